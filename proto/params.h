@@ -1,0 +1,22 @@
+/* params.h: plugin parameters as canonical JSON, and JSON number printing.
+ *
+ * Params are a JSON object. Canonical form: keys sorted, no spaces, numbers
+ * printed so they round-trip (17 significant digits for reals), so that
+ * {"n":30} and { "n" : 30 } have one key. Uses jansson. */
+#ifndef PROTO_PARAMS_H
+#define PROTO_PARAMS_H
+
+#include <stddef.h>
+
+/* Canonicalises text (NULL or "" means "{}"). On success returns 0 and *out
+ * is a malloc'd NUL-terminated string the caller frees. On failure returns -1
+ * and writes a sentence naming the problem into err (errlen bytes). Rejects
+ * anything but an object, and anything longer than PROTO_MAX_PARAMS_BYTES. */
+int proto_params_canonical(const char *text, char **out, char *err, size_t errlen);
+
+/* Prints a double so that it parses back to the same bits: "%.17g", with
+ * non-finite values as null (JSON has no NaN). Returns the length written
+ * (always < 32); out must hold 32 bytes. */
+int proto_format_double(double v, char out[32]);
+
+#endif

@@ -1,0 +1,85 @@
+/* fitfarm_plugin.h: the plugin ABI. Public and stable; nothing else under
+ * worker/ is API.
+ *
+ * A plugin is a shared object exporting one symbol,
+ *
+ *     const fitfarm_plugin_t *fitfarm_plugin(void);
+ *
+ * (use FITFARM_PLUGIN_EXPORT), returning a constant descriptor. The worker
+ * dlopens every plugin in its plugin directories, checks abi_version, and
+ * reports name, version, objectives, flags and the file's BLAKE2b digest to the
+ * broker. Evaluations run in the worker's child processes, one at a time per
+ * child: a plugin needs no thread safety, and a crash costs only the child.
+ *
+ * Determinism: a plugin draws randomness only from the seed it is given,
+ * through fitfarm_rng.h, and is built with -ffp-contract=off and without
+ * fast-math, so one build gives the same bits on every x86-64 node. A plugin
+ * whose results do not depend on the seed sets FITFARM_PLUGIN_DETERMINISTIC:
+ * then all replicates and runs share one cached result.
+ *
+ * Genomes arrive as bytes. Genomes submitted as vectors of doubles are
+ * little-endian IEEE 754 binary64; fitfarm_genome_f64() reads them. */
+#ifndef FITFARM_PLUGIN_H
+#define FITFARM_PLUGIN_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include <string.h>
+
+#include "fitfarm_rng.h"
+
+#define FITFARM_PLUGIN_ABI 1
+
+/* Descriptor flags. */
+#define FITFARM_PLUGIN_DETERMINISTIC 0x1u
+
+/* Return codes of create and evaluate. */
+#define FITFARM_PLUGIN_OK 0
+#define FITFARM_PLUGIN_EINVAL 1 /* the request is bad: wrong genome length, bad params */
+#define FITFARM_PLUGIN_EFAIL 2  /* the evaluation failed */
+
+/* What a context reports about itself once params are known. */
+typedef struct {
+    uint32_t objectives;   /* length of the fitness vector evaluate writes */
+    uint32_t genome_bytes; /* expected genome size in bytes; 0 = any */
+} fitfarm_plugin_info_t;
+
+typedef struct fitfarm_plugin {
+    uint32_t abi_version; /* FITFARM_PLUGIN_ABI */
+    const char *name;     /* [a-z0-9_-]+, unique in a pool */
+    const char *version;  /* changes whenever results may change */
+    uint32_t objectives;  /* default number of objectives */
+    uint32_t flags;       /* FITFARM_PLUGIN_* */
+
+    /* Creates a context from canonical params JSON (never NULL; "{}" when
+     * none). Fills info. On error returns FITFARM_PLUGIN_EINVAL and writes a
+     * sentence into err (errlen bytes, NUL-terminated). *ctx is owned by the
+     * worker and released with destroy. */
+    int (*create)(const char *params_json, void **ctx, fitfarm_plugin_info_t *info, char *err,
+                  size_t errlen);
+
+    /* Evaluates one genome with the given seed, writing info.objectives
+     * doubles into fitness. Returns FITFARM_PLUGIN_OK, or EINVAL / EFAIL with a
+     * sentence in err. Must not keep pointers to genome or fitness. */
+    int (*evaluate)(void *ctx, const uint8_t *genome, size_t genome_len, uint64_t seed,
+                    double *fitness, char *err, size_t errlen);
+
+    /* Releases a context. Accepts NULL. */
+    void (*destroy)(void *ctx);
+} fitfarm_plugin_t;
+
+#define FITFARM_PLUGIN_SYMBOL "fitfarm_plugin"
+#define FITFARM_PLUGIN_EXPORT __attribute__((visibility("default")))
+
+/* Reads the i-th little-endian double of a genome. The caller checks bounds. */
+static inline double fitfarm_genome_f64(const uint8_t *genome, size_t i)
+{
+    uint64_t bits = 0;
+    for (int b = 7; b >= 0; b--)
+        bits = (bits << 8) | genome[i * 8 + (size_t)b];
+    double v;
+    memcpy(&v, &bits, sizeof v);
+    return v;
+}
+
+#endif
