@@ -1,0 +1,33 @@
+/* worker.h: the worker's single entry point, used by fitfarm-worker's main
+ * and by the client library's embedded local pool (in a forked child process). */
+#ifndef WORKER_WORKER_H
+#define WORKER_WORKER_H
+
+#include <stddef.h>
+
+#define WORKER_MAX_PLUGIN_DIRS 16
+#define WORKER_MAX_EXEC 16
+
+typedef struct {
+    const char *broker_endpoint; /* the broker's workers endpoint */
+    unsigned slots;              /* child processes; 0 = online CPUs */
+    const char *plugin_dirs[WORKER_MAX_PLUGIN_DIRS]; /* NULL-terminated; empty = defaults */
+    const char *name;            /* worker name; NULL = "host-pid" */
+    int heartbeat_ms;            /* 0 = 1000 */
+    int liveness_ms;             /* broker silent this long: re-register; 0 = 5000 */
+    unsigned default_timeout_s;  /* per evaluation when the job gives none; 0 = 3600 */
+    size_t mem_limit_mb;         /* address-space limit per child; 0 = none */
+    /* External programs for the exec plugin: "NAME=COMMAND" entries, NULL-terminated. */
+    const char *exec[WORKER_MAX_EXEC];
+} worker_config_t;
+
+/* The default plugin directories: the build tree's plugins folder when this
+ * executable lives in the build tree, then the installed plugin directory.
+ * Fills dirs (up to max, NULL-terminated); returns the count. Borrowed strings. */
+size_t worker_default_plugin_dirs(const char **dirs, size_t max);
+
+/* Runs the worker until SIGTERM/SIGINT. Returns 0 on a clean stop, 1 after
+ * logging why it could not start. Blocks; one worker per process. */
+int worker_main_run(const worker_config_t *config);
+
+#endif
