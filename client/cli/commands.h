@@ -1,0 +1,12 @@
+/* commands.h: the fitfarm CLI's subcommands. main.c dispatches on argv[1];
+ * each cli_cmd_* parses its own options from argv (argv[0] is the subcommand
+ * name) and returns the process exit status: 0 ok, 1 some line or check not
+ * ok, 2 usage error. */
+#ifndef CLIENT_CLI_COMMANDS_H
+#define CLIENT_CLI_COMMANDS_H
+
+int cli_cmd_eval(int argc, char **argv);   /* cmd_eval.c */
+int cli_cmd_status(int argc, char **argv); /* cmd_status.c */
+int cli_cmd_sim(int argc, char **argv);    /* cmd_sim.c: one evaluation in-process, optional trace */
+
+#endif
