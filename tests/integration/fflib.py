@@ -1,0 +1,173 @@
+"""Helpers for fitfarm's integration tests: start real brokers and workers on
+loopback, run the CLI, and end every process we started by its PID.
+
+Standard library only. Paths come from the environment that ctest sets:
+FITFARM_BUILD_DIR and FITFARM_SOURCE_DIR.
+"""
+import json
+import os
+import random
+import signal
+import subprocess
+import sys
+import tempfile
+import time
+
+BUILD = os.environ.get("FITFARM_BUILD_DIR", os.path.join(os.path.dirname(__file__), "..", "..", "build"))
+SOURCE = os.environ.get("FITFARM_SOURCE_DIR", os.path.join(os.path.dirname(__file__), "..", ".."))
+
+
+def exe(name):
+    """Path of a built program (fitfarm, fitfarm-broker, fitfarm-worker)."""
+    for sub in ("client", "broker", "worker", ""):
+        p = os.path.join(BUILD, sub, name)
+        if os.path.isfile(p) and os.access(p, os.X_OK):
+            return p
+    raise FileNotFoundError(f"{name} not found under {BUILD}")
+
+
+class Pool:
+    """A broker and workers as real processes. Use as a context manager: on
+    exit every process still running is sent SIGTERM, then SIGKILL, by PID."""
+
+    def __init__(self, tmp=None, broker_args=(), log_prefix="pool"):
+        self.tmp = tmp or tempfile.mkdtemp(prefix="fitfarm-it-")
+        self.broker_args = list(broker_args)
+        self.procs = []
+        self.broker = None
+        self.workers = []
+        self.clients_ep = None
+        self.workers_ep = None
+        self.log_prefix = log_prefix
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.stop_all()
+        return False
+
+    def _log(self, name):
+        return open(os.path.join(self.tmp, f"{name}.log"), "ab")
+
+    def start_broker(self, clients="tcp://127.0.0.1:*", workers="tcp://127.0.0.1:*", extra=()):
+        epfile = os.path.join(self.tmp, "endpoints")
+        if os.path.exists(epfile):
+            os.unlink(epfile)
+        # A restarted broker rebinds the ports it had, so workers and clients
+        # that ZeroMQ is reconnecting find it again.
+        if self.clients_ep and clients == "tcp://127.0.0.1:*":
+            clients, workers = self.clients_ep, self.workers_ep
+        args = [exe("fitfarm-broker"), "--clients", clients, "--workers", workers,
+                "--endpoints-file", epfile] + self.broker_args + list(extra)
+        p = subprocess.Popen(args, stdout=subprocess.DEVNULL, stderr=self._log("broker"))
+        self.procs.append(p)
+        self.broker = p
+        deadline = time.time() + 20
+        while time.time() < deadline:
+            if p.poll() is not None:
+                raise RuntimeError(f"broker exited with {p.returncode}; see {self.tmp}/broker.log")
+            if os.path.exists(epfile):
+                eps = dict(line.split(" ", 1) for line in open(epfile).read().split("\n") if line)
+                self.clients_ep, self.workers_ep = eps["clients"].strip(), eps["workers"].strip()
+                return p
+            time.sleep(0.02)
+        raise RuntimeError("broker did not write its endpoints file")
+
+    def start_worker(self, slots=1, extra=(), name=None):
+        name = name or f"w{len(self.workers)}"
+        args = [exe("fitfarm-worker"), "--broker", self.workers_ep, "--slots", str(slots),
+                "--name", name] + list(extra)
+        p = subprocess.Popen(args, stdout=subprocess.DEVNULL, stderr=self._log(name))
+        self.procs.append(p)
+        self.workers.append(p)
+        return p
+
+    def wait_workers(self, n, timeout=20):
+        """Waits until the broker reports n workers."""
+        deadline = time.time() + timeout
+        while time.time() < deadline:
+            st = self.status()
+            if st is not None and len(st.get("workers", [])) >= n:
+                return st
+            time.sleep(0.1)
+        raise RuntimeError(f"pool did not reach {n} workers; last status {st}")
+
+    def status(self):
+        r = subprocess.run([exe("fitfarm"), "status", "--broker", self.clients_ep, "--json"],
+                           capture_output=True, text=True, timeout=30)
+        if r.returncode != 0:
+            return None
+        return json.loads(r.stdout)
+
+    def kill(self, p, sig=signal.SIGKILL):
+        if p.poll() is None:
+            os.kill(p.pid, sig)
+        p.wait(timeout=30)
+
+    def stop_all(self):
+        for p in self.procs:
+            if p.poll() is None:
+                try:
+                    os.kill(p.pid, signal.SIGTERM)
+                except ProcessLookupError:
+                    pass
+        deadline = time.time() + 10
+        for p in self.procs:
+            try:
+                p.wait(timeout=max(0.1, deadline - time.time()))
+            except subprocess.TimeoutExpired:
+                os.kill(p.pid, signal.SIGKILL)
+                p.wait()
+
+    def logs(self):
+        out = []
+        for f in sorted(os.listdir(self.tmp)):
+            if f.endswith(".log"):
+                out.append(f"--- {f}\n" + open(os.path.join(self.tmp, f), errors="replace").read()[-4000:])
+        return "\n".join(out)
+
+
+def run_eval(args, input_text, timeout=600):
+    """Runs `fitfarm eval ARGS` with input_text on stdin. Returns
+    (exit status, list of parsed output lines, stderr)."""
+    r = subprocess.run([exe("fitfarm"), "eval"] + list(args), input=input_text,
+                       capture_output=True, text=True, timeout=timeout)
+    lines = [json.loads(l) for l in r.stdout.splitlines() if l.strip()]
+    return r.returncode, lines, r.stderr
+
+
+def genomes(n, dim, seed):
+    rnd = random.Random(seed)
+    return [[rnd.random() for _ in range(dim)] for _ in range(n)]
+
+
+def jsonl(gs, with_id=True):
+    out = []
+    for i, g in enumerate(gs):
+        body = "[" + ",".join(repr(x) for x in g) + "]"
+        out.append(f'{{"id": {i}, "genome": {body}}}' if with_id else body)
+    return "\n".join(out) + "\n"
+
+
+class Check:
+    """Collects failures and prints a closing line the way our runners do."""
+
+    def __init__(self, name):
+        self.name = name
+        self.passed = 0
+        self.failed = 0
+
+    def ok(self, cond, what):
+        if cond:
+            self.passed += 1
+        else:
+            self.failed += 1
+            print(f"FAIL: {what}", file=sys.stderr)
+        return cond
+
+    def done(self, pool=None):
+        if self.failed and pool is not None:
+            print(pool.logs(), file=sys.stderr)
+        print(f"{self.name}: {self.passed} passed, {self.failed} failed")
+        sys.exit(1 if self.failed else 0)

@@ -1,0 +1,41 @@
+"""Independent implementations of the benchmark problems, straight from the
+published definitions (see ../../../shared/CHECKS.md), for comparing what the
+plugins return. Written apart from the C plugins on purpose: a shared bug would
+need to be made twice."""
+import math
+
+
+def zdt(variant, x):
+    """Zitzler, Deb, Thiele, 'Comparison of Multiobjective Evolutionary
+    Algorithms: Empirical Results', Evolutionary Computation 8(2), 2000."""
+    n = len(x)
+    f1 = x[0]
+    g = 1.0 + 9.0 * sum(x[1:]) / (n - 1)
+    if variant == 1:
+        h = 1.0 - math.sqrt(f1 / g)
+    elif variant == 2:
+        h = 1.0 - (f1 / g) ** 2
+    else:
+        h = 1.0 - math.sqrt(f1 / g) - (f1 / g) * math.sin(10.0 * math.pi * f1)
+    return [f1, g * h]
+
+
+def dtlz2(x, m):
+    """Deb, Thiele, Laumanns, Zitzler, 'Scalable Test Problems for
+    Evolutionary Multi-Objective Optimization', 2002: g = sum over the last
+    k variables of (x_i - 0.5)^2; f_1 = (1+g) prod_{j<M} cos(x_j pi/2), ...,
+    f_M = (1+g) sin(x_1 pi/2)."""
+    g = sum((xi - 0.5) ** 2 for xi in x[m - 1:])
+    f = []
+    for i in range(m):
+        v = 1.0 + g
+        for j in range(m - 1 - i):
+            v *= math.cos(x[j] * math.pi / 2)
+        if i > 0:
+            v *= math.sin(x[m - 1 - i] * math.pi / 2)
+        f.append(v)
+    return f
+
+
+def close(a, b, rel=1e-12, abs_=1e-15):
+    return all(abs(p - q) <= max(abs_, rel * max(abs(p), abs(q))) for p, q in zip(a, b)) and len(a) == len(b)
