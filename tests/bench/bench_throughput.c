@@ -1,0 +1,232 @@
+/* bench_throughput: evaluations per second of the trivial `sphere` plugin
+ * through (a) the embedded local pool, (b) a broker with one and with two
+ * workers over TCP loopback, for batches of 100,000 distinct genomes; and the
+ * median round-trip time of a single evaluation. Prints 'name: value unit'.
+ *
+ * sphere costs nanoseconds, so these figures measure fitfarm itself: framing,
+ * dispatch, credits, the child hop, result delivery. Usage:
+ *     build/tests/bench/bench_throughput [--count N] [--rtt-samples N]
+ * Broker and workers for (b) run as forked processes through the same entry
+ * points as the daemons; they are ended by PID. */
+#include <errno.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/prctl.h>
+#include <sys/wait.h>
+#include <time.h>
+#include <unistd.h>
+
+#include "broker/broker.h"
+#include "client/include/fitfarm.h"
+#include "worker/worker.h"
+
+static double s_now(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + (double)ts.tv_nsec * 1e-9;
+}
+
+static int s_cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+/* Evaluates count distinct sphere genomes of dimension 8 in one batch; returns
+ * evaluations per second, or -1. genome_base keeps genomes distinct across
+ * calls so the broker's cache never answers. */
+static double s_batch_rate(fitfarm_client_t *client, long count, double genome_base)
+{
+    fitfarm_run_options_t ro = {0};
+    ro.seed = 1;
+    fitfarm_run_t *run = NULL;
+    fitfarm_batch_t *batch = NULL;
+    double rate = -1;
+    if (fitfarm_run_open(client, &ro, &run) != 0)
+        goto cleanup;
+    if (fitfarm_batch_new("sphere", NULL, 1, &batch) != 0)
+        goto cleanup;
+    double g[8];
+    for (long i = 0; i < count; i++) {
+        for (int d = 0; d < 8; d++)
+            g[d] = genome_base + (double)i * 1e-3 + d;
+        if (fitfarm_batch_add_f64(batch, g, 8) < 0)
+            goto cleanup;
+    }
+    double t0 = s_now();
+    int rc = fitfarm_evaluate(run, batch, NULL, NULL, 600000);
+    double t1 = s_now();
+    if (rc != 0) {
+        fprintf(stderr, "bench: evaluate: %s\n", fitfarm_client_error(client));
+        goto cleanup;
+    }
+    fitfarm_result_t r;
+    for (long i = 0; i < count; i += count / 10 + 1)
+        if (fitfarm_batch_result(batch, (size_t)i, 0, &r) != 0 || r.status != FITFARM_STATUS_OK)
+            goto cleanup;
+    rate = (double)count / (t1 - t0);
+cleanup:
+    fitfarm_batch_destroy(&batch);
+    fitfarm_run_destroy(&run);
+    return rate;
+}
+
+/* Median wall time of one single-genome batch, in microseconds. */
+static double s_rtt_us(fitfarm_client_t *client, int samples, double genome_base)
+{
+    fitfarm_run_options_t ro = {0};
+    fitfarm_run_t *run = NULL;
+    double *t = calloc((size_t)samples, sizeof *t);
+    double median = -1;
+    if (!t || fitfarm_run_open(client, &ro, &run) != 0)
+        goto cleanup;
+    for (int i = 0; i < samples; i++) {
+        fitfarm_batch_t *batch = NULL;
+        double g[2] = {genome_base + i, 1.0};
+        if (fitfarm_batch_new("sphere", NULL, 1, &batch) != 0)
+            goto cleanup;
+        fitfarm_batch_add_f64(batch, g, 2);
+        double t0 = s_now();
+        int rc = fitfarm_evaluate(run, batch, NULL, NULL, 30000);
+        t[i] = (s_now() - t0) * 1e6;
+        fitfarm_batch_destroy(&batch);
+        if (rc != 0)
+            goto cleanup;
+    }
+    qsort(t, (size_t)samples, sizeof *t, s_cmp_double);
+    median = t[samples / 2];
+cleanup:
+    fitfarm_run_destroy(&run);
+    free(t);
+    return median;
+}
+
+static pid_t s_fork_broker(const char *epfile)
+{
+    pid_t pid = fork();
+    if (pid == 0) {
+        prctl(PR_SET_PDEATHSIG, SIGTERM);
+        broker_config_t bc = {0};
+        bc.clients_endpoint = "tcp://127.0.0.1:*";
+        bc.workers_endpoint = "tcp://127.0.0.1:*";
+        bc.endpoints_file = epfile;
+        _exit(broker_main_run(&bc));
+    }
+    return pid;
+}
+
+static pid_t s_fork_worker(const char *endpoint, unsigned slots)
+{
+    pid_t pid = fork();
+    if (pid == 0) {
+        prctl(PR_SET_PDEATHSIG, SIGTERM);
+        worker_config_t wc = {0};
+        wc.broker_endpoint = endpoint;
+        wc.slots = slots;
+        _exit(worker_main_run(&wc));
+    }
+    return pid;
+}
+
+static int s_read_endpoints(const char *path, char *clients, char *workers, size_t n)
+{
+    for (int i = 0; i < 400; i++) {
+        FILE *f = fopen(path, "r");
+        if (f) {
+            char key[32], val[256];
+            int got = 0;
+            while (fscanf(f, "%31s %255s", key, val) == 2) {
+                if (strcmp(key, "clients") == 0)
+                    got |= 1, snprintf(clients, n, "%s", val);
+                if (strcmp(key, "workers") == 0)
+                    got |= 2, snprintf(workers, n, "%s", val);
+            }
+            fclose(f);
+            if (got == 3)
+                return 0;
+        }
+        usleep(25000);
+    }
+    return -1;
+}
+
+static void s_stop(pid_t pid)
+{
+    if (pid <= 0)
+        return;
+    kill(pid, SIGTERM);
+    for (int i = 0; i < 200; i++) {
+        if (waitpid(pid, NULL, WNOHANG) == pid)
+            return;
+        usleep(25000);
+    }
+    kill(pid, SIGKILL);
+    waitpid(pid, NULL, 0);
+}
+
+int main(int argc, char **argv)
+{
+    long count = 100000;
+    int samples = 200;
+    for (int i = 1; i + 1 < argc; i += 2) {
+        if (strcmp(argv[i], "--count") == 0)
+            count = atol(argv[i + 1]);
+        else if (strcmp(argv[i], "--rtt-samples") == 0)
+            samples = atoi(argv[i + 1]);
+    }
+    if (count < 1 || samples < 1) {
+        fprintf(stderr, "usage: bench_throughput [--count N] [--rtt-samples N]\n");
+        return 2;
+    }
+    long ncpu = sysconf(_SC_NPROCESSORS_ONLN);
+    printf("cpus: %ld count\n", ncpu);
+    printf("batch: %ld genomes\n", count);
+
+    /* (a) embedded pool, one slot per CPU. */
+    fitfarm_options_t o = {0};
+    fitfarm_client_t *client = NULL;
+    char err[512];
+    if (fitfarm_client_new(&o, &client, err, sizeof err) != 0) {
+        fprintf(stderr, "bench: embedded pool: %s\n", err);
+        return 1;
+    }
+    printf("embedded_throughput: %.0f evals/s\n", s_batch_rate(client, count, 0.0));
+    printf("embedded_rtt_median: %.0f us\n", s_rtt_us(client, samples, 1e6));
+    fitfarm_client_destroy(&client);
+
+    /* (b) broker + 1 and + 2 workers (one slot each) over TCP loopback. */
+    char dir[] = "/tmp/fitfarm-bench-XXXXXX";
+    if (!mkdtemp(dir))
+        return 1;
+    char epfile[600], clients[256], workers[256];
+    snprintf(epfile, sizeof epfile, "%s/endpoints", dir);
+    pid_t broker = s_fork_broker(epfile);
+    if (s_read_endpoints(epfile, clients, workers, sizeof clients) != 0) {
+        fprintf(stderr, "bench: broker did not start\n");
+        s_stop(broker);
+        return 1;
+    }
+    pid_t w1 = s_fork_worker(workers, 1);
+    o.broker = clients;
+    if (fitfarm_client_new(&o, &client, err, sizeof err) != 0) {
+        fprintf(stderr, "bench: connect: %s\n", err);
+        s_stop(w1), s_stop(broker);
+        return 1;
+    }
+    sleep(1); /* let the worker register before timing */
+    printf("tcp_1worker_throughput: %.0f evals/s\n", s_batch_rate(client, count, 2e6));
+    printf("tcp_1worker_rtt_median: %.0f us\n", s_rtt_us(client, samples, 3e6));
+    pid_t w2 = s_fork_worker(workers, 1);
+    sleep(1);
+    printf("tcp_2workers_throughput: %.0f evals/s\n", s_batch_rate(client, count, 4e6));
+    fitfarm_client_destroy(&client);
+    s_stop(w2);
+    s_stop(w1);
+    s_stop(broker);
+    unlink(epfile);
+    rmdir(dir);
+    return 0;
+}
