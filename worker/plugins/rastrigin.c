@@ -1,0 +1,78 @@
+/* rastrigin.c: the Rastrigin function, f(x) = 10 n + sum (x_i^2 - 10 cos(2 pi x_i)),
+ * one objective, minimum 0 at the origin.
+ *
+ * Params {"n": N} optional: without n any genome of at least one finite double
+ * is accepted; with n it must be exactly n doubles. No box constraint is
+ * enforced (the usual [-5.12, 5.12] is the optimizer's business).
+ * Deterministic. Not here: the parsing helpers (bench_params.h). */
+#include <math.h>
+#include <stdlib.h>
+
+#include "bench_params.h"
+
+typedef struct {
+    size_t n; /* 0: any length */
+} rastrigin_ctx_t;
+
+static int s_create(const char *params_json, void **ctx, fitfarm_plugin_info_t *info, char *err,
+                    size_t errlen)
+{
+    static const char *const allowed[] = {"n", NULL};
+    json_t *root = bench_params_open("rastrigin", params_json, allowed, err, errlen);
+    if (!root)
+        return FITFARM_PLUGIN_EINVAL;
+    long long n = 0;
+    int rc = bench_params_int("rastrigin", root, "n", 1, BENCH_MAX_DOUBLES, &n, err, errlen);
+    json_decref(root);
+    if (rc < 0)
+        return FITFARM_PLUGIN_EINVAL;
+    rastrigin_ctx_t *self = malloc(sizeof *self);
+    if (!self) {
+        bench_errf(err, errlen, "rastrigin: out of memory");
+        return FITFARM_PLUGIN_EFAIL;
+    }
+    self->n = (size_t)n;
+    info->objectives = 1;
+    info->genome_bytes = (uint32_t)(self->n * 8);
+    *ctx = self;
+    return FITFARM_PLUGIN_OK;
+}
+
+static int s_evaluate(void *ctx, const uint8_t *genome, size_t genome_len, uint64_t seed,
+                      double *fitness, char *err, size_t errlen)
+{
+    (void)seed;
+    const rastrigin_ctx_t *self = ctx;
+    size_t n = bench_genome_check("rastrigin", genome, genome_len, self->n, 1, 1.0, 0.0, err,
+                                  errlen);
+    if (!n)
+        return FITFARM_PLUGIN_EINVAL;
+    double f = 10.0 * (double)n;
+    for (size_t i = 0; i < n; i++) {
+        double x = fitfarm_genome_f64(genome, i);
+        f += x * x - 10.0 * cos(2.0 * M_PI * x);
+    }
+    fitness[0] = f;
+    return FITFARM_PLUGIN_OK;
+}
+
+static void s_destroy(void *ctx)
+{
+    free(ctx);
+}
+
+static const fitfarm_plugin_t s_plugin = {
+    .abi_version = FITFARM_PLUGIN_ABI,
+    .name = "rastrigin",
+    .version = "1.0.0",
+    .objectives = 1,
+    .flags = FITFARM_PLUGIN_DETERMINISTIC,
+    .create = s_create,
+    .evaluate = s_evaluate,
+    .destroy = s_destroy,
+};
+
+FITFARM_PLUGIN_EXPORT const fitfarm_plugin_t *fitfarm_plugin(void)
+{
+    return &s_plugin;
+}
