@@ -54,7 +54,7 @@ typedef enum {
     PROTO_STATUS_CRASHED = 3, /* the child died from a signal or exited */
     PROTO_STATUS_TIMEOUT = 4, /* the evaluation ran past its time limit */
     PROTO_STATUS_COUNT_
-} proto_status_t;
+} proto_job_status_t; /* named apart from proto_status_t, the STATUS message */
 
 /* "ok", "invalid", ... ; "unknown" for anything else. Never NULL. */
 const char *proto_status_name(int status);
@@ -128,7 +128,7 @@ typedef struct {
  *  fitness array of f64, error str] */
 typedef struct {
     uint64_t tag;
-    uint32_t status; /* proto_status_t */
+    uint32_t status; /* proto_job_status_t */
     uint8_t cached;  /* 0 or 1 */
     uint64_t seed;
     uint8_t key[PROTO_KEY_BYTES];
@@ -215,7 +215,7 @@ typedef struct {
  *  cpu_seconds f64, peak_rss_kb uint, error str] */
 typedef struct {
     uint64_t job_id;
-    uint32_t status; /* proto_status_t */
+    uint32_t status; /* proto_job_status_t */
     uint32_t n_fitness;
     double *fitness;
     double cpu_seconds;
