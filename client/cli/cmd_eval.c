@@ -1,0 +1,632 @@
+/* cmd_eval.c: `fitfarm eval`: JSON Lines of genomes in, JSON Lines of
+ * results out, in input order, each output line written as soon as every line
+ * before it is written. Input is read as it comes (an optimizer may write one
+ * generation and wait for its results on the other end of a pipe): whatever
+ * has arrived is submitted as a batch when the input pauses or a batch fills.
+ *
+ * Owns option parsing, the reading loop and the output format. Not here: the
+ * line parser (jsonl.c), the protocol (the library). */
+#include <errno.h>
+#include <fcntl.h>
+#include <poll.h>
+#include <signal.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "cli_util.h"
+#include "client/include/fitfarm.h"
+#include "client/lib/status.h"
+#include "commands.h"
+#include "common/clock.h"
+#include "jsonl.h"
+#include "key.h"
+#include "params.h"
+
+#define EVAL_BATCH_LINES 4096   /* submit once this many lines are waiting */
+#define EVAL_READ_BYTES 65536
+
+static const char s_help[] =
+    "usage: fitfarm eval --plugin NAME [options] [< genomes.jsonl]\n"
+    "\n"
+    "Evaluates genomes read as JSON Lines and writes one result line per input\n"
+    "line and replicate, in input order, as soon as every earlier line is done.\n"
+    "\n"
+    "options:\n"
+    "  --plugin NAME      plugin to evaluate with (required)\n"
+    "  --params JSON      plugin parameters, a JSON object (default {})\n"
+    "  --run ID           run id (default: a new random one); same id and seed resume a run\n"
+    "  --seed N           run seed, 0..2^64-1 (default 0)\n"
+    "  --replicates K     evaluations per genome with different seeds (default 1)\n"
+    "  --timeout SECONDS  per-evaluation time limit (default: the worker's)\n"
+    "  --in FILE          read genomes from FILE (default stdin)\n"
+    "  --out FILE         write results to FILE (default stdout)\n"
+    "  --broker ENDPOINT  use the pool behind this broker client endpoint, e.g.\n"
+    "                     tcp://host:5555; without it an embedded local pool runs\n"
+    "  --slots N          embedded pool: worker slots (default: online CPUs)\n"
+    "  --plugin-dir DIR   embedded pool: also load plugins from DIR\n"
+    "\n"
+    "input, one JSON value per line:\n"
+    "  {\"id\": <string|number|bool|null>, \"genome\": [numbers]}   (id optional)\n"
+    "  [numbers]                                           (a bare genome)\n"
+    "  Blank lines are skipped and produce no output; \"line\" still counts them.\n"
+    "\n"
+    "output, one JSON object per input line and replicate:\n"
+    "  {\"id\": ..., \"line\": L, \"replicate\": R, \"status\": \"ok\", \"fitness\": [numbers],\n"
+    "   \"cached\": false, \"seed\": \"<decimal>\", \"key\": \"<hex>\"}\n"
+    "  id is null when the input had none; line is the 1-based input line number;\n"
+    "  numbers have 17 significant digits, so they parse back to the same double.\n"
+    "  status is ok, invalid, failed, crashed or timeout; when it is not ok,\n"
+    "  \"fitness\" is null and an \"error\" key follows \"key\". An input line that\n"
+    "  cannot be read gets, per replicate,\n"
+    "  {\"id\": ..., \"line\": L, \"replicate\": R, \"status\": \"invalid\", \"error\": \"...\"}\n"
+    "  and every other line is still evaluated.\n"
+    "\n"
+    "exit status: 0 every line ok, 1 some line not ok (or the pool failed),\n"
+    "2 usage error (bad option, unreadable file, unknown plugin).\n";
+
+/* One input line that produced output: a genome in a batch, or a rejection. */
+typedef struct {
+    size_t line;
+    char *id_json;
+    fitfarm_batch_t *batch; /* NULL: invalid input */
+    size_t index;
+    char *error; /* invalid input: why */
+} eval_record_t;
+
+typedef struct {
+    /* options */
+    const char *plugin, *params, *run_id, *in_path, *out_path, *broker, *plugin_dir;
+    uint64_t seed, replicates, slots, timeout_s;
+    /* state */
+    FILE *out;
+    int in_fd;
+    fitfarm_client_t *client;
+    fitfarm_run_t *run;
+    eval_record_t *records;
+    size_t n_records, cap_records;
+    size_t cursor;     /* next record to print */
+    unsigned cursor_r; /* next replicate of it */
+    fitfarm_batch_t *building;
+    fitfarm_batch_t **batches; /* submitted, oldest first; freed once printed */
+    size_t *batch_last;        /* last record index of each submitted batch */
+    size_t n_batches, cap_batches;
+    size_t submitted, printed_slots; /* progress: results expected / printed */
+    int any_not_ok;
+    int progress_tty;
+    int64_t progress_at;
+} eval_t;
+
+static volatile sig_atomic_t s_stop = 0;
+
+static void s_on_signal(int sig)
+{
+    (void)sig;
+    s_stop = 1;
+}
+
+static int s_usage(const char *fmt, const char *arg)
+{
+    fputs("fitfarm eval: ", stderr);
+    fprintf(stderr, fmt, arg ? arg : "");
+    fputs(" (see fitfarm eval --help)\n", stderr);
+    return 2;
+}
+
+static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
+{
+    e->replicates = 1;
+    for (int i = 1; i < argc; i++) {
+        const char *v = NULL;
+        const char *arg = argv[i];
+        if (strcmp(arg, "--help") == 0 || strcmp(arg, "-h") == 0) {
+            fputs(s_help, stdout);
+            *exit_code = 0;
+            return -1;
+        }
+#define STR_OPT(name, field)                                                                       \
+    if (cli_match_value(argc, argv, &i, name, &v)) {                                               \
+        if (!v) {                                                                                  \
+            *exit_code = s_usage("%s needs a value", name);                                        \
+            return -1;                                                                             \
+        }                                                                                          \
+        e->field = v;                                                                              \
+        continue;                                                                                  \
+    }
+#define NUM_OPT(name, field, lo, hi)                                                               \
+    if (cli_match_value(argc, argv, &i, name, &v)) {                                               \
+        if (!v || cli_parse_u64(v, lo, hi, &e->field) != 0) {                                      \
+            *exit_code = s_usage(name " needs a whole number from " #lo " to " #hi ", not '%s'",   \
+                                 v ? v : "");                                                      \
+            return -1;                                                                             \
+        }                                                                                          \
+        continue;                                                                                  \
+    }
+        STR_OPT("--plugin", plugin)
+        STR_OPT("--params", params)
+        STR_OPT("--run", run_id)
+        STR_OPT("--in", in_path)
+        STR_OPT("--out", out_path)
+        STR_OPT("--broker", broker)
+        STR_OPT("--plugin-dir", plugin_dir)
+        NUM_OPT("--seed", seed, 0, UINT64_MAX)
+        NUM_OPT("--replicates", replicates, 1, 10000)
+        NUM_OPT("--slots", slots, 0, 4096)
+        NUM_OPT("--timeout", timeout_s, 0, 4294967295)
+#undef STR_OPT
+#undef NUM_OPT
+        if (arg[0] == '-')
+            *exit_code = s_usage("unknown option %s", arg);
+        else
+            *exit_code = s_usage("unexpected argument '%s'", arg);
+        return -1;
+    }
+    if (!e->plugin) {
+        *exit_code = s_usage("--plugin NAME is required%s", NULL);
+        return -1;
+    }
+    if (!*e->plugin || strlen(e->plugin) > PROTO_MAX_NAME_BYTES) {
+        *exit_code = s_usage("--plugin '%s' is not a plugin name", e->plugin);
+        return -1;
+    }
+    if (e->run_id && (!*e->run_id || strlen(e->run_id) > PROTO_MAX_NAME_BYTES)) {
+        *exit_code = s_usage("--run '%s' must have 1 to 128 bytes", e->run_id);
+        return -1;
+    }
+    char err[200];
+    char *canon = NULL;
+    if (proto_params_canonical(e->params, &canon, err, sizeof err) != 0) {
+        fprintf(stderr, "fitfarm eval: --params: %s (see fitfarm eval --help)\n", err);
+        *exit_code = 2;
+        return -1;
+    }
+    free(canon);
+    return 0;
+}
+
+/* "zdt1, zdt2, ..." from a STATUS: the plugin names the pool carries. */
+static void s_pool_plugins(fitfarm_client_t *client, char *buf, size_t len, int *has,
+                           const char *want, int *n_workers)
+{
+    buf[0] = '\0';
+    *has = 0;
+    *n_workers = -1;
+    proto_msg_t *st = NULL;
+    if (client_status(client, &st, 5000) != 0)
+        return;
+    *n_workers = (int)st->u.status.n_workers;
+    size_t used = 0;
+    for (uint32_t w = 0; w < st->u.status.n_workers; w++) {
+        const proto_worker_info_t *wi = &st->u.status.workers[w];
+        for (uint32_t p = 0; p < wi->n_plugins; p++) {
+            const char *full = wi->plugins[p];
+            size_t nl = strcspn(full, "@");
+            if (strlen(want) == nl && strncmp(full, want, nl) == 0)
+                *has = 1;
+            char name[PROTO_MAX_NAME_BYTES + 1];
+            snprintf(name, sizeof name, "%.*s", (int)nl, full);
+            /* Skip names already listed (several workers carry the same plugin). */
+            char probe[PROTO_MAX_NAME_BYTES + 4];
+            snprintf(probe, sizeof probe, ", %s,", name);
+            char hay[4096 + 4];
+            snprintf(hay, sizeof hay, ", %s,", buf);
+            if (strstr(hay, probe))
+                continue;
+            int n = snprintf(buf + used, len - used, "%s%s", used ? ", " : "", name);
+            if (n < 0 || (size_t)n >= len - used)
+                break;
+            used += (size_t)n;
+        }
+    }
+    proto_msg_destroy(&st);
+}
+
+static int s_unknown_plugin(eval_t *e, const char *detail)
+{
+    char list[4096];
+    int has, n_workers;
+    s_pool_plugins(e->client, list, sizeof list, &has, e->plugin, &n_workers);
+    if (detail)
+        fprintf(stderr, "fitfarm eval: %s\n", detail);
+    else
+        fprintf(stderr, "fitfarm eval: the pool has no plugin \"%s\"\n", e->plugin);
+    fprintf(stderr, "fitfarm eval: plugins the pool has: %s\n", list[0] ? list : "(none)");
+    return 2;
+}
+
+static int s_reserve_records(eval_t *e)
+{
+    if (e->n_records < e->cap_records)
+        return 0;
+    size_t cap = e->cap_records ? e->cap_records * 2 : 1024;
+    eval_record_t *r = realloc(e->records, cap * sizeof *r);
+    if (!r)
+        return -1;
+    e->records = r;
+    e->cap_records = cap;
+    return 0;
+}
+
+/* Parses one line into a record (or nothing, for a blank line). */
+static int s_take_line(eval_t *e, const char *text, size_t len, size_t line_no, int too_long)
+{
+    cli_jsonl_row_t row;
+    char err[512];
+    int prc;
+    if (too_long) {
+        memset(&row, 0, sizeof row);
+        row.id_json = strdup("null");
+        snprintf(err, sizeof err, "the line is longer than %u bytes", CLI_JSONL_MAX_LINE);
+        prc = row.id_json ? CLI_JSONL_INVALID : CLI_JSONL_NOMEM;
+    } else {
+        prc = cli_jsonl_parse(text, len, &row, err, sizeof err);
+    }
+    if (prc == CLI_JSONL_BLANK)
+        return 0;
+    if (prc == CLI_JSONL_NOMEM || s_reserve_records(e) != 0) {
+        cli_jsonl_row_free(&row);
+        fprintf(stderr, "fitfarm eval: out of memory at line %zu\n", line_no);
+        return -1;
+    }
+    eval_record_t *rec = &e->records[e->n_records];
+    memset(rec, 0, sizeof *rec);
+    rec->line = line_no;
+    rec->id_json = row.id_json;
+    row.id_json = NULL;
+    if (prc == CLI_JSONL_INVALID) {
+        rec->error = strdup(err);
+        if (!rec->error) {
+            free(rec->id_json);
+            return -1;
+        }
+        e->n_records++;
+        return 0;
+    }
+    if (!e->building &&
+        fitfarm_batch_new(e->plugin, e->params, (unsigned)e->replicates, &e->building) != 0) {
+        cli_jsonl_row_free(&row);
+        free(rec->id_json);
+        fprintf(stderr, "fitfarm eval: cannot create a batch\n");
+        return -1;
+    }
+    long idx = fitfarm_batch_add_f64(e->building, row.genome, row.n);
+    cli_jsonl_row_free(&row);
+    if (idx < 0) {
+        free(rec->id_json);
+        fprintf(stderr, "fitfarm eval: cannot add line %zu to a batch: %s\n", line_no,
+                fitfarm_strerror((int)idx));
+        return -1;
+    }
+    rec->batch = e->building;
+    rec->index = (size_t)idx;
+    e->n_records++;
+    return 0;
+}
+
+static int s_submit_building(eval_t *e)
+{
+    if (!e->building)
+        return 0;
+    if (e->n_batches == e->cap_batches) {
+        size_t cap = e->cap_batches ? e->cap_batches * 2 : 16;
+        fitfarm_batch_t **b = realloc(e->batches, cap * sizeof *b);
+        if (!b)
+            return 1;
+        e->batches = b;
+        size_t *l = realloc(e->batch_last, cap * sizeof *l);
+        if (!l)
+            return 1;
+        e->batch_last = l;
+        e->cap_batches = cap;
+    }
+    fitfarm_batch_t *b = e->building;
+    e->building = NULL;
+    e->batches[e->n_batches] = b;
+    e->batch_last[e->n_batches] = e->n_records - 1;
+    e->n_batches++;
+    int rc = fitfarm_submit(e->run, b);
+    if (rc == FITFARM_EPLUGIN)
+        return s_unknown_plugin(e, fitfarm_client_error(e->client));
+    if (rc != 0) {
+        fprintf(stderr, "fitfarm eval: %s\n", fitfarm_client_error(e->client));
+        return 1;
+    }
+    e->submitted += fitfarm_batch_size(b) * e->replicates;
+    return 0;
+}
+
+static void s_print_head(eval_t *e, const eval_record_t *rec, unsigned r, const char *status)
+{
+    fprintf(e->out, "{\"id\": %s, \"line\": %zu, \"replicate\": %u, \"status\": \"%s\"",
+            rec->id_json, rec->line, r, status);
+}
+
+static void s_print_result(eval_t *e, const eval_record_t *rec, const fitfarm_result_t *res)
+{
+    s_print_head(e, rec, res->replicate, fitfarm_status_name(res->status));
+    int ok = res->status == FITFARM_STATUS_OK;
+    if (ok) {
+        fputs(", \"fitness\": [", e->out);
+        for (size_t k = 0; k < res->n_fitness; k++) {
+            char num[32];
+            proto_format_double(res->fitness[k], num);
+            fprintf(e->out, "%s%s", k ? ", " : "", num);
+        }
+        fputs("]", e->out);
+    } else {
+        fputs(", \"fitness\": null", e->out);
+        e->any_not_ok = 1;
+    }
+    char hex[2 * PROTO_KEY_BYTES + 1];
+    proto_hex(res->key, PROTO_KEY_BYTES, hex);
+    fprintf(e->out, ", \"cached\": %s, \"seed\": \"%llu\", \"key\": \"%s\"",
+            res->cached ? "true" : "false", (unsigned long long)res->seed, hex);
+    if (!ok) {
+        fputs(", \"error\": ", e->out);
+        cli_json_string(e->out, res->error[0] ? res->error : fitfarm_status_name(res->status));
+    }
+    fputs("}\n", e->out);
+}
+
+/* Prints every record whose turn has come; frees batches fully printed. */
+static void s_flush_prefix(eval_t *e)
+{
+    int wrote = 0;
+    while (e->cursor < e->n_records) {
+        eval_record_t *rec = &e->records[e->cursor];
+        if (!rec->batch) {
+            for (; e->cursor_r < e->replicates; e->cursor_r++) {
+                s_print_head(e, rec, e->cursor_r, "invalid");
+                fputs(", \"error\": ", e->out);
+                cli_json_string(e->out, rec->error);
+                fputs("}\n", e->out);
+            }
+            e->any_not_ok = 1;
+        } else {
+            for (; e->cursor_r < e->replicates; e->cursor_r++) {
+                fitfarm_result_t res;
+                if (fitfarm_batch_result(rec->batch, rec->index, e->cursor_r, &res) != 0)
+                    break;
+                s_print_result(e, rec, &res);
+                e->printed_slots++;
+            }
+            if (e->cursor_r < e->replicates)
+                break;
+        }
+        wrote = 1;
+        free(rec->id_json);
+        free(rec->error);
+        rec->id_json = rec->error = NULL;
+        /* A batch whose last record is printed is no longer needed. */
+        if (e->n_batches > 0 && e->batch_last[0] == e->cursor) {
+            fitfarm_batch_destroy(&e->batches[0]);
+            memmove(e->batches, e->batches + 1, (e->n_batches - 1) * sizeof *e->batches);
+            memmove(e->batch_last, e->batch_last + 1, (e->n_batches - 1) * sizeof *e->batch_last);
+            e->n_batches--;
+        }
+        e->cursor++;
+        e->cursor_r = 0;
+    }
+    if (wrote)
+        fflush(e->out);
+}
+
+static void s_progress(eval_t *e, int final)
+{
+    if (!e->progress_tty)
+        return;
+    int64_t now = common_clock_ms();
+    if (!final && now - e->progress_at < 200)
+        return;
+    e->progress_at = now;
+    fprintf(stderr, "\rfitfarm eval: %zu of %zu results%s", e->printed_slots, e->submitted,
+            final ? "\n" : "");
+    fflush(stderr);
+}
+
+/* The reading and waiting loop. Returns the exit status. */
+static int s_loop(eval_t *e)
+{
+    char *buf = malloc(EVAL_READ_BYTES);
+    char *line = NULL;
+    size_t line_len = 0, line_cap = 0, line_no = 0;
+    int too_long = 0, eof = 0, rc = 0;
+    if (!buf) {
+        fprintf(stderr, "fitfarm eval: out of memory\n");
+        return 1;
+    }
+    while (!s_stop) {
+        /* 1. Take what input is there, without waiting for more. */
+        int readable = 0;
+        if (!eof) {
+            struct pollfd pfd = {e->in_fd, POLLIN, 0};
+            readable = poll(&pfd, 1, 0) > 0;
+        }
+        if (readable) {
+            ssize_t n = read(e->in_fd, buf, EVAL_READ_BYTES);
+            if (n < 0 && (errno == EINTR || errno == EAGAIN))
+                continue;
+            if (n < 0) {
+                fprintf(stderr, "fitfarm eval: reading input: %s\n", strerror(errno));
+                rc = 1;
+                break;
+            }
+            if (n == 0)
+                eof = 1;
+            size_t start = 0;
+            for (size_t i = 0; i <= (size_t)n; i++) {
+                int end_line = i < (size_t)n ? buf[i] == '\n' : 0;
+                int last = i == (size_t)n;
+                if (!end_line && !last)
+                    continue;
+                size_t piece = i - start;
+                if (!too_long) {
+                    if (line_len + piece > CLI_JSONL_MAX_LINE) {
+                        too_long = 1; /* keep reading to its end, but not keeping it */
+                    } else if (piece > 0) {
+                        if (line_len + piece > line_cap) {
+                            size_t cap = line_cap ? line_cap : 4096;
+                            while (cap < line_len + piece)
+                                cap *= 2;
+                            char *l = realloc(line, cap);
+                            if (!l) {
+                                fprintf(stderr, "fitfarm eval: out of memory\n");
+                                rc = 1;
+                                goto done;
+                            }
+                            line = l;
+                            line_cap = cap;
+                        }
+                        memcpy(line + line_len, buf + start, piece);
+                        line_len += piece;
+                    }
+                }
+                if (end_line || (last && eof && (line_len > 0 || too_long))) {
+                    line_no++;
+                    if (s_take_line(e, line, line_len, line_no, too_long) != 0) {
+                        rc = 1;
+                        goto done;
+                    }
+                    line_len = 0;
+                    too_long = 0;
+                }
+                start = i + 1;
+            }
+            if (e->building && fitfarm_batch_size(e->building) >= EVAL_BATCH_LINES) {
+                rc = s_submit_building(e);
+                if (rc)
+                    break;
+            }
+            if (!eof)
+                continue; /* more may be ready right away */
+        }
+        /* 2. The input paused or ended: send what it gave. */
+        rc = s_submit_building(e);
+        if (rc)
+            break;
+        s_flush_prefix(e);
+        s_progress(e, 0);
+        if (eof && e->cursor == e->n_records)
+            break;
+        /* 3. Wait a little for results (or for more input). */
+        fitfarm_result_t res;
+        int prc = fitfarm_poll(e->run, &res, eof ? 200 : 20);
+        while (prc == 1)
+            prc = fitfarm_poll(e->run, &res, 0);
+        if (prc < 0) {
+            fprintf(stderr, "fitfarm eval: %s\n", fitfarm_client_error(e->client));
+            rc = 1;
+            break;
+        }
+        if (ferror(e->out)) {
+            fprintf(stderr, "fitfarm eval: writing results failed\n");
+            rc = 1;
+            break;
+        }
+    }
+    if (s_stop && rc == 0) {
+        fprintf(stderr, "\nfitfarm eval: interrupted; %zu of %zu results written\n",
+                e->printed_slots, e->submitted);
+        rc = 130;
+    }
+done:
+    s_progress(e, 1);
+    free(line);
+    free(buf);
+    return rc;
+}
+
+int cli_cmd_eval(int argc, char **argv)
+{
+    eval_t e;
+    memset(&e, 0, sizeof e);
+    e.in_fd = STDIN_FILENO;
+    e.out = stdout;
+    int rc = 0;
+    if (s_parse_args(&e, argc, argv, &rc) != 0)
+        return rc;
+    if (e.in_path && strcmp(e.in_path, "-") != 0) {
+        e.in_fd = open(e.in_path, O_RDONLY | O_CLOEXEC);
+        if (e.in_fd < 0) {
+            fprintf(stderr, "fitfarm eval: cannot read %s: %s (see fitfarm eval --help)\n",
+                    e.in_path, strerror(errno));
+            return 2;
+        }
+    }
+    if (e.out_path && strcmp(e.out_path, "-") != 0) {
+        e.out = fopen(e.out_path, "we");
+        if (!e.out) {
+            fprintf(stderr, "fitfarm eval: cannot write %s: %s (see fitfarm eval --help)\n",
+                    e.out_path, strerror(errno));
+            if (e.in_fd != STDIN_FILENO)
+                close(e.in_fd);
+            return 2;
+        }
+    }
+    e.progress_tty = isatty(STDERR_FILENO);
+    struct sigaction sa;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = s_on_signal;
+    sigaction(SIGINT, &sa, NULL);
+    sigaction(SIGTERM, &sa, NULL);
+    signal(SIGPIPE, SIG_IGN);
+
+    fitfarm_options_t opts;
+    memset(&opts, 0, sizeof opts);
+    opts.broker = e.broker;
+    opts.slots = (unsigned)e.slots;
+    opts.plugin_dir = e.plugin_dir;
+    char err[1200];
+    if (fitfarm_client_new(&opts, &e.client, err, sizeof err) != 0) {
+        fprintf(stderr, "fitfarm eval: %s\n", err);
+        rc = 1;
+        goto cleanup;
+    }
+    /* Say "no such plugin" before reading any input, when the pool is known. */
+    {
+        char list[4096];
+        int has, n_workers;
+        s_pool_plugins(e.client, list, sizeof list, &has, e.plugin, &n_workers);
+        if (n_workers > 0 && !has) {
+            fprintf(stderr, "fitfarm eval: the pool has no plugin \"%s\"; it has: %s\n",
+                    e.plugin, list[0] ? list : "(none)");
+            rc = 2;
+            goto cleanup;
+        }
+    }
+    fitfarm_run_options_t ropts;
+    memset(&ropts, 0, sizeof ropts);
+    ropts.run_id = e.run_id;
+    ropts.seed = e.seed;
+    ropts.timeout_s = (unsigned)e.timeout_s;
+    if (fitfarm_run_open(e.client, &ropts, &e.run) != 0) {
+        fprintf(stderr, "fitfarm eval: %s\n", fitfarm_client_error(e.client));
+        rc = 1;
+        goto cleanup;
+    }
+    rc = s_loop(&e);
+    if (rc == 0 && e.any_not_ok)
+        rc = 1;
+cleanup:
+    if (e.out && e.out != stdout)
+        fclose(e.out);
+    else
+        fflush(stdout);
+    if (e.in_fd != STDIN_FILENO && e.in_fd >= 0)
+        close(e.in_fd);
+    for (size_t i = e.cursor; i < e.n_records; i++) {
+        free(e.records[i].id_json);
+        free(e.records[i].error);
+    }
+    free(e.records);
+    for (size_t i = 0; i < e.n_batches; i++)
+        fitfarm_batch_destroy(&e.batches[i]);
+    free(e.batches);
+    free(e.batch_last);
+    fitfarm_batch_destroy(&e.building);
+    fitfarm_run_destroy(&e.run);
+    fitfarm_client_destroy(&e.client);
+    return rc;
+}

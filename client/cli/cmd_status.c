@@ -1,0 +1,175 @@
+/* cmd_status.c: `fitfarm status`: what a pool looks like right now: workers
+ * (name, host, arch, busy/total slots, plugins), each run's queued, running
+ * and done jobs, and the broker's warnings. A table for people, or one JSON
+ * object for scripts. Not here: how the broker counts (broker/). */
+#include <jansson.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "cli_util.h"
+#include "client/include/fitfarm.h"
+#include "client/lib/status.h"
+#include "commands.h"
+#include "msg.h"
+
+static const char s_help[] =
+    "usage: fitfarm status --broker ENDPOINT [--json] [--timeout SECONDS]\n"
+    "\n"
+    "Shows the pool behind a broker: workers (name, host, arch, busy/total slots,\n"
+    "plugins), queued, running and done jobs per run, and warnings.\n"
+    "\n"
+    "options:\n"
+    "  --broker ENDPOINT  the broker's client endpoint, e.g. tcp://host:5555 (required)\n"
+    "  --json             print one JSON object instead of tables:\n"
+    "                     {\"workers\": [{\"name\", \"host\", \"arch\", \"slots\", \"busy\",\n"
+    "                     \"plugins\": [...]}], \"runs\": [{\"run_id\", \"queued\", \"running\",\n"
+    "                     \"done\"}], \"warnings\": [...]}\n"
+    "  --timeout SECONDS  how long to wait for the broker (default 10)\n"
+    "\n"
+    "exit status: 0 ok, 1 the broker did not answer, 2 usage error.\n";
+
+static int s_usage(const char *fmt, const char *arg)
+{
+    fputs("fitfarm status: ", stderr);
+    fprintf(stderr, fmt, arg ? arg : "");
+    fputs(" (see fitfarm status --help)\n", stderr);
+    return 2;
+}
+
+static int s_print_json(const proto_status_t *st)
+{
+    json_t *root = json_object();
+    json_t *workers = json_array();
+    json_t *runs = json_array();
+    json_t *warnings = json_array();
+    if (!root || !workers || !runs || !warnings)
+        goto nomem;
+    json_object_set_new(root, "workers", workers);
+    json_object_set_new(root, "runs", runs);
+    json_object_set_new(root, "warnings", warnings);
+    for (uint32_t i = 0; i < st->n_workers; i++) {
+        const proto_worker_info_t *w = &st->workers[i];
+        json_t *plugins = json_array();
+        for (uint32_t p = 0; plugins && p < w->n_plugins; p++)
+            json_array_append_new(plugins, json_string(w->plugins[p]));
+        json_array_append_new(
+            workers, json_pack("{s:s?, s:s?, s:s?, s:I, s:I, s:o?}", "name", w->name, "host",
+                               w->host, "arch", w->arch, "slots", (json_int_t)w->slots, "busy",
+                               (json_int_t)w->busy, "plugins", plugins));
+    }
+    for (uint32_t i = 0; i < st->n_runs; i++) {
+        const proto_run_info_t *r = &st->runs[i];
+        json_array_append_new(runs, json_pack("{s:s?, s:I, s:I, s:I}", "run_id", r->run_id,
+                                              "queued", (json_int_t)r->queued, "running",
+                                              (json_int_t)r->running, "done",
+                                              (json_int_t)r->done));
+    }
+    for (uint32_t i = 0; i < st->n_warnings; i++)
+        json_array_append_new(warnings, json_string(st->warnings[i]));
+    char *text = json_dumps(root, JSON_COMPACT | JSON_PRESERVE_ORDER);
+    json_decref(root);
+    if (!text)
+        return 1;
+    puts(text);
+    free(text);
+    return 0;
+nomem:
+    json_decref(root);
+    json_decref(workers);
+    json_decref(runs);
+    json_decref(warnings);
+    fprintf(stderr, "fitfarm status: out of memory\n");
+    return 1;
+}
+
+static void s_print_table(const proto_status_t *st)
+{
+    uint64_t slots = 0, busy = 0;
+    for (uint32_t i = 0; i < st->n_workers; i++) {
+        slots += st->workers[i].slots;
+        busy += st->workers[i].busy;
+    }
+    printf("workers: %u (%llu of %llu slots busy)\n", st->n_workers, (unsigned long long)busy,
+           (unsigned long long)slots);
+    if (st->n_workers > 0)
+        printf("  %-24s %-20s %-8s %-11s %s\n", "NAME", "HOST", "ARCH", "BUSY/SLOTS", "PLUGINS");
+    for (uint32_t i = 0; i < st->n_workers; i++) {
+        const proto_worker_info_t *w = &st->workers[i];
+        char slot_text[32];
+        snprintf(slot_text, sizeof slot_text, "%u/%u", w->busy, w->slots);
+        printf("  %-24s %-20s %-8s %-11s ", w->name, w->host, w->arch, slot_text);
+        for (uint32_t p = 0; p < w->n_plugins; p++)
+            printf("%s%s", p ? " " : "", w->plugins[p]);
+        printf("\n");
+    }
+    printf("runs: %u\n", st->n_runs);
+    if (st->n_runs > 0)
+        printf("  %-32s %10s %10s %10s\n", "RUN", "QUEUED", "RUNNING", "DONE");
+    for (uint32_t i = 0; i < st->n_runs; i++) {
+        const proto_run_info_t *r = &st->runs[i];
+        printf("  %-32s %10llu %10llu %10llu\n", r->run_id, (unsigned long long)r->queued,
+               (unsigned long long)r->running, (unsigned long long)r->done);
+    }
+    printf("warnings: %u\n", st->n_warnings);
+    for (uint32_t i = 0; i < st->n_warnings; i++)
+        printf("  %s\n", st->warnings[i]);
+}
+
+int cli_cmd_status(int argc, char **argv)
+{
+    const char *broker = NULL;
+    int json = 0;
+    uint64_t timeout_s = 10;
+    for (int i = 1; i < argc; i++) {
+        const char *v = NULL;
+        if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
+            fputs(s_help, stdout);
+            return 0;
+        }
+        if (strcmp(argv[i], "--json") == 0) {
+            json = 1;
+            continue;
+        }
+        if (cli_match_value(argc, argv, &i, "--broker", &v)) {
+            if (!v || !*v)
+                return s_usage("--broker needs an endpoint%s", NULL);
+            broker = v;
+            continue;
+        }
+        if (cli_match_value(argc, argv, &i, "--timeout", &v)) {
+            if (!v || cli_parse_u64(v, 1, 86400, &timeout_s) != 0)
+                return s_usage("--timeout needs whole seconds from 1 to 86400, not '%s'", v);
+            continue;
+        }
+        return s_usage(argv[i][0] == '-' ? "unknown option %s" : "unexpected argument '%s'",
+                       argv[i]);
+    }
+    if (!broker)
+        return s_usage("--broker ENDPOINT is required%s", NULL);
+    fitfarm_options_t opts;
+    memset(&opts, 0, sizeof opts);
+    opts.broker = broker;
+    opts.connect_timeout_ms = (int)timeout_s * 1000;
+    char err[1200];
+    fitfarm_client_t *client = NULL;
+    if (fitfarm_client_new(&opts, &client, err, sizeof err) != 0) {
+        fprintf(stderr, "fitfarm status: %s\n", err);
+        return 1;
+    }
+    proto_msg_t *st = NULL;
+    int rc = client_status(client, &st, (int)timeout_s * 1000);
+    if (rc != 0) {
+        fprintf(stderr, "fitfarm status: %s\n", fitfarm_client_error(client));
+        fitfarm_client_destroy(&client);
+        return 1;
+    }
+    if (json)
+        rc = s_print_json(&st->u.status);
+    else
+        s_print_table(&st->u.status);
+    proto_msg_destroy(&st);
+    fitfarm_client_destroy(&client);
+    return rc;
+}

@@ -1,0 +1,196 @@
+/* batch.c: batches of genomes for one plugin, their f64 encoding, and the
+ * results stored per (genome, replicate) slot as they arrive.
+ *
+ * Not here: tags, chunks and sending (run.c). A batch knows the run it was
+ * submitted through only so it can unlink itself when destroyed first. */
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "params.h"
+
+FITFARM_API int fitfarm_batch_new(const char *plugin, const char *params_json, unsigned replicates,
+                                  fitfarm_batch_t **out)
+{
+    if (!out)
+        return FITFARM_EINVAL;
+    *out = NULL;
+    if (!plugin || !*plugin || strlen(plugin) > PROTO_MAX_NAME_BYTES || replicates == 0 ||
+        replicates > PROTO_MAX_REPLICATES)
+        return FITFARM_EINVAL;
+    fitfarm_batch_t *self = calloc(1, sizeof *self);
+    if (!self)
+        return FITFARM_ENOMEM;
+    self->replicates = replicates;
+    self->plugin = strdup(plugin);
+    char err[200];
+    /* Canonical params make {"n":30} and { "n" : 30 } one key at the broker. */
+    int prc = proto_params_canonical(params_json, &self->params, err, sizeof err);
+    if (!self->plugin || prc != 0) {
+        /* The canonicaliser does not tell out-of-memory from bad JSON; the
+         * latter is what a caller can fix, so say that. */
+        int rc = self->plugin ? FITFARM_EINVAL : FITFARM_ENOMEM;
+        fitfarm_batch_destroy(&self);
+        return rc;
+    }
+    *out = self;
+    return FITFARM_OK;
+}
+
+static long s_add(fitfarm_batch_t *self, uint8_t *genome, size_t n)
+{
+    if (self->n == self->cap) {
+        size_t cap = self->cap ? self->cap * 2 : 64;
+        uint8_t **g = realloc(self->genomes, cap * sizeof *g);
+        if (!g)
+            return FITFARM_ENOMEM;
+        self->genomes = g;
+        uint32_t *l = realloc(self->genome_len, cap * sizeof *l);
+        if (!l)
+            return FITFARM_ENOMEM;
+        self->genome_len = l;
+        self->cap = cap;
+    }
+    self->genomes[self->n] = genome;
+    self->genome_len[self->n] = (uint32_t)n;
+    return (long)self->n++;
+}
+
+static int s_addable(const fitfarm_batch_t *self, size_t n_bytes)
+{
+    /* Added after submit, a genome would have no slots and no tags. */
+    return self && !self->slots && n_bytes > 0 && n_bytes <= PROTO_MAX_GENOME_BYTES &&
+           (self->n + 1) * (uint64_t)self->replicates <= UINT32_MAX;
+}
+
+FITFARM_API long fitfarm_batch_add_f64(fitfarm_batch_t *batch, const double *genome, size_t n)
+{
+    if (!genome || n > PROTO_MAX_GENOME_BYTES / 8 || !s_addable(batch, n * 8))
+        return FITFARM_EINVAL;
+    uint8_t *bytes = malloc(n * 8);
+    if (!bytes)
+        return FITFARM_ENOMEM;
+    /* The wire genome is little-endian IEEE 754 whatever this machine is. */
+    for (size_t i = 0; i < n; i++) {
+        uint64_t bits;
+        memcpy(&bits, &genome[i], sizeof bits);
+        for (int b = 0; b < 8; b++)
+            bytes[i * 8 + (size_t)b] = (uint8_t)(bits >> (8 * b));
+    }
+    long rc = s_add(batch, bytes, n * 8);
+    if (rc < 0)
+        free(bytes);
+    return rc;
+}
+
+FITFARM_API long fitfarm_batch_add_bytes(fitfarm_batch_t *batch, const void *genome, size_t n)
+{
+    if (!genome || !s_addable(batch, n))
+        return FITFARM_EINVAL;
+    uint8_t *bytes = malloc(n);
+    if (!bytes)
+        return FITFARM_ENOMEM;
+    memcpy(bytes, genome, n);
+    long rc = s_add(batch, bytes, n);
+    if (rc < 0)
+        free(bytes);
+    return rc;
+}
+
+FITFARM_API size_t fitfarm_batch_size(const fitfarm_batch_t *batch)
+{
+    return batch ? batch->n : 0;
+}
+
+int client_batch_prepare(fitfarm_batch_t *self)
+{
+    if (self->slots)
+        return FITFARM_OK;
+    size_t n_slots = self->n * self->replicates;
+    self->slots = calloc(n_slots ? n_slots : 1, sizeof *self->slots);
+    return self->slots ? FITFARM_OK : FITFARM_ENOMEM;
+}
+
+int client_batch_store(fitfarm_batch_t *self, size_t slot, const proto_result_t *r)
+{
+    client_slot_t *s = &self->slots[slot];
+    if (s->state == CLIENT_SLOT_ARRIVED)
+        return 0; /* at-least-once on the wire: a duplicate */
+    double *fitness = NULL;
+    char *error = NULL;
+    if (r->n_fitness > 0) {
+        fitness = malloc(r->n_fitness * sizeof *fitness);
+        if (!fitness)
+            return FITFARM_ENOMEM;
+        memcpy(fitness, r->fitness, r->n_fitness * sizeof *fitness);
+    }
+    if (r->error && r->error[0]) {
+        error = strdup(r->error);
+        if (!error) {
+            free(fitness);
+            return FITFARM_ENOMEM;
+        }
+    }
+    s->state = CLIENT_SLOT_ARRIVED;
+    s->status = (uint8_t)r->status;
+    s->cached = r->cached ? 1 : 0;
+    s->seed = r->seed;
+    memcpy(s->key, r->key, PROTO_KEY_BYTES);
+    s->n_fitness = r->n_fitness;
+    s->fitness = fitness;
+    s->error = error;
+    self->arrived++;
+    return 1;
+}
+
+void client_batch_fill(const fitfarm_batch_t *self, size_t slot, fitfarm_result_t *out)
+{
+    const client_slot_t *s = &self->slots[slot];
+    memset(out, 0, sizeof *out);
+    out->batch = self;
+    out->index = slot / self->replicates;
+    out->replicate = (unsigned)(slot % self->replicates);
+    out->status = s->status;
+    out->cached = s->cached;
+    out->seed = s->seed;
+    memcpy(out->key, s->key, sizeof out->key);
+    out->n_fitness = s->n_fitness;
+    out->fitness = s->fitness;
+    out->error = s->error ? s->error : "";
+}
+
+FITFARM_API int fitfarm_batch_result(const fitfarm_batch_t *batch, size_t index, unsigned r,
+                                     fitfarm_result_t *out)
+{
+    if (!batch || !out || index >= batch->n || r >= batch->replicates)
+        return FITFARM_EINVAL;
+    size_t slot = index * batch->replicates + r;
+    if (!batch->slots || batch->slots[slot].state != CLIENT_SLOT_ARRIVED)
+        return FITFARM_ETIMEDOUT;
+    client_batch_fill(batch, slot, out);
+    return FITFARM_OK;
+}
+
+FITFARM_API void fitfarm_batch_destroy(fitfarm_batch_t **batch_p)
+{
+    if (!batch_p || !*batch_p)
+        return;
+    fitfarm_batch_t *self = *batch_p;
+    client_batch_detach(self);
+    if (self->slots) {
+        size_t n_slots = self->n * self->replicates;
+        for (size_t i = 0; i < n_slots; i++) {
+            free(self->slots[i].fitness);
+            free(self->slots[i].error);
+        }
+        free(self->slots);
+    }
+    for (size_t i = 0; i < self->n; i++)
+        free(self->genomes[i]);
+    free(self->genomes);
+    free(self->genome_len);
+    free(self->plugin);
+    free(self->params);
+    free(self);
+    *batch_p = NULL;
+}

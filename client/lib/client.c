@@ -1,0 +1,435 @@
+/* client.c: the client object: its connection to a broker (remote or the
+ * embedded pool's), the handshake, sending, and the message pump that routes
+ * what the broker says to the runs. Also the last-error sentence.
+ *
+ * Not here: runs, chunks and results (run.c), batches (batch.c), the embedded
+ * pool's processes (pool.c).
+ *
+ * Reconnection is ZeroMQ's: the DEALER socket reconnects by itself (100 ms,
+ * backing off to 2 s) and ZMTP heartbeats drop a half-open TCP connection. A
+ * socket monitor tells us when a connection came back after a drop; the runs
+ * then re-send their unfinished SUBMITs, because a restarted broker without a
+ * store has forgotten them (re-sends are harmless: the broker keeps one
+ * evaluation per key and we drop duplicate results by tag). */
+#include <errno.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <zmq.h>
+
+#include "common/clock.h"
+#include "internal.h"
+#include "status.h"
+
+#define CLIENT_DEFAULT_CONNECT_MS 10000
+#define CLIENT_HWM 100000
+#define CLIENT_PROBE_MS 250  /* STATUS_REQ interval during the handshake */
+#define CLIENT_PUMP_BURST 256 /* messages handled per pump call */
+#define CLIENT_MONITOR_EP "inproc://fitfarm-client-monitor"
+
+int client_fail(fitfarm_client_t *self, int code, const char *fmt, ...)
+{
+    if (self) {
+        va_list ap;
+        va_start(ap, fmt);
+        vsnprintf(self->err, sizeof self->err, fmt, ap);
+        va_end(ap);
+    }
+    return code;
+}
+
+int64_t client_deadline(int timeout_ms)
+{
+    return timeout_ms < 0 ? -1 : common_clock_ms() + timeout_ms;
+}
+
+int client_ms_left(int64_t deadline)
+{
+    if (deadline < 0)
+        return -1;
+    int64_t left = deadline - common_clock_ms();
+    if (left < 0)
+        return 0;
+    return left > 1000000000 ? 1000000000 : (int)left;
+}
+
+static int s_setsockopt_int(void *sock, int option, int value)
+{
+    return zmq_setsockopt(sock, option, &value, sizeof value);
+}
+
+/* Creates the context, the DEALER socket and its monitor, and connects. */
+static int s_connect(fitfarm_client_t *self)
+{
+    self->zctx = zmq_ctx_new();
+    if (!self->zctx)
+        return client_fail(self, FITFARM_ESYSTEM, "cannot create a ZeroMQ context: %s",
+                           zmq_strerror(errno));
+    self->sock = zmq_socket(self->zctx, ZMQ_DEALER);
+    if (!self->sock)
+        return client_fail(self, FITFARM_ESYSTEM, "cannot create a ZeroMQ socket: %s",
+                           zmq_strerror(errno));
+    int64_t maxmsg = (int64_t)self->limits.message_bytes;
+    if (s_setsockopt_int(self->sock, ZMQ_LINGER, 0) != 0 ||
+        s_setsockopt_int(self->sock, ZMQ_RECONNECT_IVL, 100) != 0 ||
+        s_setsockopt_int(self->sock, ZMQ_RECONNECT_IVL_MAX, 2000) != 0 ||
+        s_setsockopt_int(self->sock, ZMQ_SNDHWM, CLIENT_HWM) != 0 ||
+        s_setsockopt_int(self->sock, ZMQ_RCVHWM, CLIENT_HWM) != 0 ||
+        s_setsockopt_int(self->sock, ZMQ_HEARTBEAT_IVL, 1000) != 0 ||
+        s_setsockopt_int(self->sock, ZMQ_HEARTBEAT_TIMEOUT, 5000) != 0 ||
+        zmq_setsockopt(self->sock, ZMQ_MAXMSGSIZE, &maxmsg, sizeof maxmsg) != 0)
+        return client_fail(self, FITFARM_ESYSTEM, "cannot set socket options: %s",
+                           zmq_strerror(errno));
+    if (zmq_socket_monitor(self->sock, CLIENT_MONITOR_EP,
+                           ZMQ_EVENT_CONNECTED | ZMQ_EVENT_DISCONNECTED) != 0)
+        return client_fail(self, FITFARM_ESYSTEM, "cannot monitor the socket: %s",
+                           zmq_strerror(errno));
+    self->monitor = zmq_socket(self->zctx, ZMQ_PAIR);
+    if (!self->monitor || s_setsockopt_int(self->monitor, ZMQ_LINGER, 0) != 0 ||
+        zmq_connect(self->monitor, CLIENT_MONITOR_EP) != 0)
+        return client_fail(self, FITFARM_ESYSTEM, "cannot connect the socket monitor: %s",
+                           zmq_strerror(errno));
+    if (zmq_connect(self->sock, self->endpoint) != 0)
+        return client_fail(self, FITFARM_ECONNECT, "cannot connect to the broker at %s: %s",
+                           self->endpoint, zmq_strerror(errno));
+    return FITFARM_OK;
+}
+
+int client_send(fitfarm_client_t *self, const proto_msg_t *msg, int timeout_ms)
+{
+    uint8_t *buf = NULL;
+    size_t len = 0;
+    int prc = proto_msg_encode(msg, &buf, &len);
+    if (prc == PROTO_ENOMEM)
+        return client_fail(self, FITFARM_ENOMEM, "out of memory encoding %s",
+                           proto_type_name((int)msg->type));
+    if (prc != PROTO_OK)
+        return client_fail(self, FITFARM_EINVAL, "cannot encode %s: a field is out of protocol",
+                           proto_type_name((int)msg->type));
+    int rc = FITFARM_OK;
+    int64_t deadline = client_deadline(timeout_ms);
+    for (;;) {
+        if (zmq_send(self->sock, buf, len, ZMQ_DONTWAIT) >= 0)
+            break;
+        if (errno != EAGAIN && errno != EINTR) {
+            rc = client_fail(self, FITFARM_ECONNECT, "cannot send to the broker at %s: %s",
+                             self->endpoint, zmq_strerror(errno));
+            break;
+        }
+        int left = client_ms_left(deadline);
+        if (left == 0) {
+            rc = client_fail(self, FITFARM_ETIMEDOUT,
+                             "the broker at %s did not take a %zu-byte %s message in time",
+                             self->endpoint, len, proto_type_name((int)msg->type));
+            break;
+        }
+        zmq_pollitem_t item = {self->sock, 0, ZMQ_POLLOUT, 0};
+        zmq_poll(&item, 1, left < 0 || left > 100 ? 100 : left);
+    }
+    free(buf);
+    return rc;
+}
+
+static void s_on_monitor(fitfarm_client_t *self)
+{
+    for (;;) {
+        zmq_msg_t frame;
+        zmq_msg_init(&frame);
+        if (zmq_msg_recv(&frame, self->monitor, ZMQ_DONTWAIT) < 0) {
+            zmq_msg_close(&frame);
+            return;
+        }
+        uint16_t event = 0;
+        int first = zmq_msg_size(&frame) >= 6;
+        if (first)
+            memcpy(&event, zmq_msg_data(&frame), sizeof event);
+        int more = zmq_msg_more(&frame);
+        zmq_msg_close(&frame);
+        while (more) { /* the endpoint frame */
+            zmq_msg_init(&frame);
+            if (zmq_msg_recv(&frame, self->monitor, 0) < 0)
+                more = 0;
+            else
+                more = zmq_msg_more(&frame);
+            zmq_msg_close(&frame);
+        }
+        if (!first)
+            continue;
+        if (event == ZMQ_EVENT_DISCONNECTED) {
+            self->disconnected = 1;
+        } else if (event == ZMQ_EVENT_CONNECTED && self->disconnected) {
+            self->disconnected = 0;
+            self->reconnected = 1;
+        }
+    }
+}
+
+static void s_dispatch(fitfarm_client_t *self, proto_msg_t **msg_p)
+{
+    proto_msg_t *msg = *msg_p;
+    fitfarm_run_t *run;
+    switch (msg->type) {
+    case PROTO_RESULTS:
+        run = client_run_find(self, msg->u.results.run_id);
+        if (run)
+            client_run_on_results(run, &msg->u.results);
+        break;
+    case PROTO_ACCEPTED:
+        client_run_on_answer(self, msg->u.accepted.batch_tag, 1, 0, NULL);
+        break;
+    case PROTO_REFUSED:
+        client_run_on_answer(self, msg->u.refused.batch_tag, 0, msg->u.refused.code,
+                             msg->u.refused.text);
+        break;
+    case PROTO_STATUS:
+        proto_msg_destroy(&self->status);
+        self->status = msg;
+        self->status_count++;
+        *msg_p = NULL;
+        break;
+    default: /* HEARTBEAT, or anything a client has no use for */
+        break;
+    }
+}
+
+/* Receives one message without blocking; returns 1 if one was handled, 0 if
+ * none was waiting. Undecodable messages are dropped (a client cannot ask a
+ * broker to behave; it can only refuse to trust it). */
+static int s_recv_one(fitfarm_client_t *self)
+{
+    zmq_msg_t frame;
+    zmq_msg_init(&frame);
+    if (zmq_msg_recv(&frame, self->sock, ZMQ_DONTWAIT) < 0) {
+        zmq_msg_close(&frame);
+        return 0;
+    }
+    int multipart = zmq_msg_more(&frame);
+    if (!multipart) {
+        proto_msg_t *msg = NULL;
+        if (proto_msg_decode(zmq_msg_data(&frame), zmq_msg_size(&frame), &self->limits, &msg,
+                             NULL) == PROTO_OK) {
+            s_dispatch(self, &msg);
+            proto_msg_destroy(&msg);
+        }
+    }
+    zmq_msg_close(&frame);
+    while (multipart) { /* not our protocol: drain the rest */
+        zmq_msg_init(&frame);
+        multipart = zmq_msg_recv(&frame, self->sock, 0) >= 0 && zmq_msg_more(&frame);
+        zmq_msg_close(&frame);
+    }
+    return 1;
+}
+
+int client_pump(fitfarm_client_t *self, int timeout_ms)
+{
+    zmq_pollitem_t items[2] = {
+        {self->sock, 0, ZMQ_POLLIN, 0},
+        {self->monitor, 0, ZMQ_POLLIN, 0},
+    };
+    int n = zmq_poll(items, 2, timeout_ms < 0 ? -1 : timeout_ms);
+    if (n < 0) {
+        if (errno == EINTR)
+            return 0;
+        return client_fail(self, FITFARM_ESYSTEM, "waiting for the broker failed: %s",
+                           zmq_strerror(errno));
+    }
+    int handled = 0;
+    if (items[1].revents & ZMQ_POLLIN) {
+        s_on_monitor(self);
+        handled = 1;
+    }
+    if (items[0].revents & ZMQ_POLLIN)
+        for (int i = 0; i < CLIENT_PUMP_BURST && s_recv_one(self); i++)
+            handled = 1;
+    if (self->reconnected) {
+        self->reconnected = 0;
+        for (fitfarm_run_t *run = self->runs; run; run = run->next)
+            client_run_resend(run);
+    }
+    return handled;
+}
+
+static int s_send_status_req(fitfarm_client_t *self)
+{
+    proto_msg_t msg;
+    memset(&msg, 0, sizeof msg);
+    msg.type = PROTO_STATUS_REQ;
+    return client_send(self, &msg, 1000);
+}
+
+int client_status(fitfarm_client_t *self, proto_msg_t **status_out, int timeout_ms)
+{
+    if (!self || !status_out)
+        return FITFARM_EINVAL;
+    *status_out = NULL;
+    int64_t deadline = client_deadline(timeout_ms);
+    uint64_t seen = self->status_count;
+    int64_t next_probe = 0;
+    while (self->status_count == seen) {
+        int64_t now = common_clock_ms();
+        /* Ask again now and then: a request sent into a dropped connection is lost. */
+        if (now >= next_probe) {
+            int rc = s_send_status_req(self);
+            if (rc != FITFARM_OK && rc != FITFARM_ETIMEDOUT)
+                return rc;
+            next_probe = now + 1000;
+        }
+        int left = client_ms_left(deadline);
+        if (left == 0)
+            return client_fail(self, FITFARM_ETIMEDOUT,
+                               "no STATUS from the broker at %s within %d ms", self->endpoint,
+                               timeout_ms);
+        int wait = (int)(next_probe - now);
+        if (left >= 0 && left < wait)
+            wait = left;
+        int rc = client_pump(self, wait);
+        if (rc < 0)
+            return rc;
+        if (self->pool) {
+            rc = client_pool_check(self->pool, self->err, sizeof self->err);
+            if (rc != FITFARM_OK)
+                return rc;
+        }
+    }
+    *status_out = self->status;
+    self->status = NULL;
+    return FITFARM_OK;
+}
+
+/* Waits for the first STATUS; for the embedded pool, for one with a worker. */
+static int s_handshake(fitfarm_client_t *self)
+{
+    int64_t deadline = client_deadline(self->connect_timeout_ms);
+    int64_t next_probe = 0;
+    for (;;) {
+        if (self->status && (!self->pool || self->status->u.status.n_workers > 0))
+            return FITFARM_OK;
+        int64_t now = common_clock_ms();
+        if (now >= next_probe) {
+            int rc = s_send_status_req(self);
+            if (rc != FITFARM_OK && rc != FITFARM_ETIMEDOUT)
+                return rc;
+            next_probe = now + CLIENT_PROBE_MS;
+        }
+        if (self->pool) {
+            int rc = client_pool_check(self->pool, self->err, sizeof self->err);
+            if (rc != FITFARM_OK)
+                return rc;
+        }
+        int left = client_ms_left(deadline);
+        if (left == 0) {
+            if (self->pool)
+                return client_fail(self, FITFARM_ECONNECT,
+                                   "the embedded pool did not come up within %d ms: %s",
+                                   self->connect_timeout_ms,
+                                   self->status ? "no worker registered with the broker"
+                                                : "its broker did not answer");
+            return client_fail(self, FITFARM_ECONNECT,
+                               "no answer from a broker at %s within %d ms (is fitfarm-broker "
+                               "running there, and is this its client endpoint?)",
+                               self->endpoint, self->connect_timeout_ms);
+        }
+        int wait = (int)(next_probe - now);
+        if (wait < 0)
+            wait = 0;
+        if (left < wait)
+            wait = left;
+        int rc = client_pump(self, wait);
+        if (rc < 0)
+            return rc;
+    }
+}
+
+FITFARM_API int fitfarm_client_new(const fitfarm_options_t *options, fitfarm_client_t **out,
+                                   char *errbuf, size_t errlen)
+{
+    if (errbuf && errlen)
+        errbuf[0] = '\0';
+    if (!out || !options) {
+        if (errbuf && errlen)
+            snprintf(errbuf, errlen, "fitfarm_client_new: options and out must not be NULL");
+        if (out)
+            *out = NULL;
+        return FITFARM_EINVAL;
+    }
+    *out = NULL;
+    int rc = FITFARM_OK;
+    fitfarm_client_t *self = calloc(1, sizeof *self);
+    if (!self) {
+        if (errbuf && errlen)
+            snprintf(errbuf, errlen, "out of memory creating a client");
+        return FITFARM_ENOMEM;
+    }
+    self->limits = proto_limits_default();
+    self->connect_timeout_ms =
+        options->connect_timeout_ms > 0 ? options->connect_timeout_ms : CLIENT_DEFAULT_CONNECT_MS;
+    self->next_batch_tag = 1;
+
+    if (options->broker) {
+        if (!*options->broker) {
+            rc = client_fail(self, FITFARM_EINVAL, "the broker endpoint is empty");
+            goto cleanup;
+        }
+        self->endpoint = strdup(options->broker);
+    } else {
+        /* Fork before this client creates its ZeroMQ context (pool.c says why). */
+        rc = client_pool_new(options->slots, options->plugin_dir, options->store_dir,
+                             &self->pool, self->err, sizeof self->err);
+        if (rc != FITFARM_OK)
+            goto cleanup;
+        self->endpoint = strdup(client_pool_endpoint(self->pool));
+    }
+    if (!self->endpoint) {
+        rc = client_fail(self, FITFARM_ENOMEM, "out of memory creating a client");
+        goto cleanup;
+    }
+    rc = s_connect(self);
+    if (rc == FITFARM_OK)
+        rc = s_handshake(self);
+cleanup:
+    if (rc != FITFARM_OK) {
+        if (errbuf && errlen)
+            snprintf(errbuf, errlen, "%s", self->err[0] ? self->err : fitfarm_strerror(rc));
+        fitfarm_client_destroy(&self);
+    }
+    *out = self;
+    return rc;
+}
+
+FITFARM_API void fitfarm_client_destroy(fitfarm_client_t **self_p)
+{
+    if (!self_p || !*self_p)
+        return;
+    fitfarm_client_t *self = *self_p;
+    /* Runs outlived their client (caller misuse): make them fail cleanly. */
+    for (fitfarm_run_t *run = self->runs; run; run = run->next)
+        run->client = NULL;
+    if (self->sock) {
+        zmq_socket_monitor(self->sock, NULL, 0);
+        zmq_close(self->sock);
+    }
+    if (self->monitor)
+        zmq_close(self->monitor);
+    if (self->zctx)
+        zmq_ctx_term(self->zctx);
+    client_pool_destroy(&self->pool);
+    proto_msg_destroy(&self->status);
+    free(self->endpoint);
+    free(self);
+    *self_p = NULL;
+}
+
+FITFARM_API const char *fitfarm_client_error(const fitfarm_client_t *self)
+{
+    if (!self)
+        return "no client";
+    return self->err;
+}
+
+void client_test_pool_pids(const fitfarm_client_t *self, pid_t *broker, pid_t *worker,
+                           const char **dir)
+{
+    client_pool_pids(self ? self->pool : NULL, broker, worker, dir);
+}

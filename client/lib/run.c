@@ -1,0 +1,577 @@
+/* run.c: runs, and everything between a batch and the wire: tags, SUBMIT
+ * chunks, waiting for ACCEPTED/REFUSED, storing RESULTS exactly once, ACKs,
+ * re-sending after a reconnect, the blocking evaluate and the streaming
+ * submit/poll.
+ *
+ * Tags. Slot s (= genome index * replicates + replicate) of a batch has tag
+ * tag_base + s; a run hands out tag ranges from a counter, so tags are unique
+ * within the run and a result maps back to (batch, index, replicate) by a
+ * binary search over the run's batches. The counter starts at a random point
+ * so that a second process resuming the same run id does not reuse the tags
+ * of results the first one never acknowledged.
+ *
+ * Not here: the socket and the pump (client.c), result storage (batch.c). */
+#include <sodium.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "common/clock.h"
+#include "internal.h"
+#include "key.h"
+
+#define CLIENT_SUBMIT_WAIT_MS 60000 /* fitfarm_submit: how long ACCEPTED may take */
+#define CLIENT_SEND_MS 5000          /* how long one send may wait for the socket */
+#define CLIENT_ACK_MS 1000           /* an unsent ACK only costs a re-delivery */
+
+fitfarm_run_t *client_run_find(fitfarm_client_t *self, const char *run_id)
+{
+    for (fitfarm_run_t *run = self->runs; run; run = run->next)
+        if (strcmp(run->id, run_id) == 0)
+            return run;
+    return NULL;
+}
+
+FITFARM_API int fitfarm_run_open(fitfarm_client_t *client, const fitfarm_run_options_t *options,
+                                 fitfarm_run_t **out)
+{
+    if (!out)
+        return FITFARM_EINVAL;
+    *out = NULL;
+    if (!client || !options)
+        return FITFARM_EINVAL;
+    if (options->seed_mode != PROTO_SEED_GENOME && options->seed_mode != PROTO_SEED_COMMON)
+        return client_fail(client, FITFARM_EINVAL, "seed_mode %d is neither 0 (per genome) "
+                           "nor 1 (common random numbers)", options->seed_mode);
+    if (options->run_id) {
+        size_t len = strlen(options->run_id);
+        if (len == 0 || len > PROTO_MAX_NAME_BYTES)
+            return client_fail(client, FITFARM_EINVAL,
+                               "a run id must have 1 to %u bytes, not %zu",
+                               PROTO_MAX_NAME_BYTES, len);
+        if (client_run_find(client, options->run_id))
+            return client_fail(client, FITFARM_EINVAL,
+                               "run \"%s\" is already open in this client", options->run_id);
+    }
+    if (sodium_init() < 0)
+        return client_fail(client, FITFARM_ESYSTEM, "libsodium failed to initialise");
+    fitfarm_run_t *run = calloc(1, sizeof *run);
+    if (!run)
+        return client_fail(client, FITFARM_ENOMEM, "out of memory opening a run");
+    if (options->run_id) {
+        run->id = strdup(options->run_id);
+    } else {
+        uint8_t raw[8];
+        char hex[17];
+        randombytes_buf(raw, sizeof raw);
+        proto_hex(raw, sizeof raw, hex);
+        run->id = malloc(4 + sizeof hex);
+        if (run->id)
+            snprintf(run->id, 4 + sizeof hex, "run-%s", hex);
+    }
+    if (!run->id) {
+        free(run);
+        return client_fail(client, FITFARM_ENOMEM, "out of memory opening a run");
+    }
+    run->client = client;
+    run->seed = options->seed;
+    run->seed_mode = (uint32_t)options->seed_mode;
+    run->flags = (options->no_cache ? PROTO_SUBMIT_NO_CACHE : 0) |
+                 (options->replay ? PROTO_SUBMIT_REPLAY : 0);
+    run->timeout_s = options->timeout_s;
+    /* Random start in [2^32, 2^62): room for 2^62 tags after it. */
+    run->next_tag = ((uint64_t)(randombytes_random() & 0x3fffffffu) + 1u) << 32;
+    run->next = client->runs;
+    client->runs = run;
+    *out = run;
+    return FITFARM_OK;
+}
+
+FITFARM_API const char *fitfarm_run_id(const fitfarm_run_t *run)
+{
+    return run ? run->id : "";
+}
+
+static void s_chunk_free(client_chunk_t *chunk)
+{
+    free(chunk->slots);
+    free(chunk->refuse_text);
+    memset(chunk, 0, sizeof *chunk);
+}
+
+/* Removes chunks matching (batch or any, background or any) by compaction. */
+static void s_chunks_remove_if(fitfarm_run_t *run, const fitfarm_batch_t *batch, int only_answered,
+                               int only_background)
+{
+    size_t w = 0;
+    for (size_t i = 0; i < run->n_chunks; i++) {
+        client_chunk_t *c = &run->chunks[i];
+        int drop = (!batch || c->batch == batch) && (!only_answered || c->answered) &&
+                   (!only_background || c->background);
+        if (drop)
+            s_chunk_free(c);
+        else
+            run->chunks[w++] = *c;
+    }
+    run->n_chunks = w;
+}
+
+FITFARM_API void fitfarm_run_destroy(fitfarm_run_t **run_p)
+{
+    if (!run_p || !*run_p)
+        return;
+    fitfarm_run_t *run = *run_p;
+    if (run->client) {
+        for (fitfarm_run_t **pp = &run->client->runs; *pp; pp = &(*pp)->next)
+            if (*pp == run) {
+                *pp = run->next;
+                break;
+            }
+    }
+    for (size_t i = 0; i < run->n_batches; i++)
+        run->batches[i]->run = NULL;
+    s_chunks_remove_if(run, NULL, 0, 0);
+    free(run->chunks);
+    free(run->batches);
+    free(run->ready);
+    free(run->id);
+    free(run);
+    *run_p = NULL;
+}
+
+void client_batch_detach(fitfarm_batch_t *batch)
+{
+    fitfarm_run_t *run = batch->run;
+    if (!run)
+        return;
+    size_t w = 0;
+    for (size_t i = 0; i < run->n_batches; i++)
+        if (run->batches[i] != batch)
+            run->batches[w++] = run->batches[i];
+    run->n_batches = w;
+    s_chunks_remove_if(run, batch, 0, 0);
+    /* Keep the poll queue in order, without this batch's entries. */
+    size_t kept = 0;
+    for (size_t i = 0; i < run->ready_len; i++) {
+        client_ready_t e = run->ready[(run->ready_head + i) % run->ready_cap];
+        if (e.batch != batch)
+            run->ready[(run->ready_head + kept++) % run->ready_cap] = e;
+    }
+    run->ready_len = kept;
+    batch->run = NULL;
+}
+
+static fitfarm_batch_t *s_batch_of_tag(fitfarm_run_t *run, uint64_t tag, size_t *slot)
+{
+    size_t lo = 0, hi = run->n_batches; /* first batch with tag_base > tag */
+    while (lo < hi) {
+        size_t mid = lo + (hi - lo) / 2;
+        if (run->batches[mid]->tag_base <= tag)
+            lo = mid + 1;
+        else
+            hi = mid;
+    }
+    if (lo == 0)
+        return NULL;
+    fitfarm_batch_t *b = run->batches[lo - 1];
+    uint64_t off = tag - b->tag_base;
+    if (off >= (uint64_t)b->n * b->replicates)
+        return NULL;
+    *slot = (size_t)off;
+    return b;
+}
+
+static int s_ready_reserve(fitfarm_run_t *run)
+{
+    if (run->ready_len < run->ready_cap)
+        return 0;
+    size_t cap = run->ready_cap ? run->ready_cap * 2 : 256;
+    client_ready_t *q = malloc(cap * sizeof *q);
+    if (!q)
+        return -1;
+    for (size_t i = 0; i < run->ready_len; i++)
+        q[i] = run->ready[(run->ready_head + i) % run->ready_cap];
+    free(run->ready);
+    run->ready = q;
+    run->ready_cap = cap;
+    run->ready_head = 0;
+    return 0;
+}
+
+static void s_async_fail(fitfarm_run_t *run, int code, const char *text)
+{
+    if (run->async_rc != 0)
+        return; /* keep the first: later ones are usually its echoes */
+    run->async_rc = code;
+    snprintf(run->async_err, sizeof run->async_err, "%s", text);
+}
+
+void client_run_on_results(fitfarm_run_t *run, const proto_results_t *results)
+{
+    uint64_t *acks = malloc((results->n_results ? results->n_results : 1) * sizeof *acks);
+    uint32_t n_acks = 0;
+    for (uint32_t i = 0; i < results->n_results; i++) {
+        const proto_result_t *r = &results->results[i];
+        size_t slot = 0;
+        fitfarm_batch_t *batch = s_batch_of_tag(run, r->tag, &slot);
+        if (!batch)
+            continue; /* not ours (another session of this run, or a destroyed batch) */
+        if (batch->streaming && s_ready_reserve(run) != 0) {
+            s_async_fail(run, FITFARM_ENOMEM, "out of memory queueing a result");
+            continue; /* not acknowledged: the broker will send it again */
+        }
+        int stored = client_batch_store(batch, slot, r);
+        if (stored < 0) {
+            s_async_fail(run, FITFARM_ENOMEM, "out of memory storing a result");
+            continue;
+        }
+        if (stored == 1 && batch->streaming) {
+            run->ready[(run->ready_head + run->ready_len) % run->ready_cap] =
+                (client_ready_t){batch, slot};
+            run->ready_len++;
+        }
+        /* Duplicates are acknowledged again: the broker re-sent because it
+         * did not see our first ACK. */
+        if (acks)
+            acks[n_acks++] = r->tag;
+    }
+    if (acks && n_acks > 0 && run->client) {
+        proto_msg_t msg;
+        memset(&msg, 0, sizeof msg);
+        msg.type = PROTO_ACK;
+        msg.u.ack.run_id = run->id;
+        msg.u.ack.n_tags = n_acks;
+        msg.u.ack.tags = acks;
+        char saved[CLIENT_ERR_BYTES];
+        memcpy(saved, run->client->err, sizeof saved);
+        (void)client_send(run->client, &msg, CLIENT_ACK_MS);
+        memcpy(run->client->err, saved, sizeof saved); /* a lost ACK is not the caller's error */
+    }
+    free(acks);
+}
+
+void client_run_on_answer(fitfarm_client_t *self, uint64_t batch_tag, int accepted, uint32_t code,
+                          const char *text)
+{
+    for (fitfarm_run_t *run = self->runs; run; run = run->next) {
+        for (size_t i = 0; i < run->n_chunks; i++) {
+            client_chunk_t *c = &run->chunks[i];
+            if (c->batch_tag != batch_tag || c->answered)
+                continue;
+            for (uint32_t k = 0; k < c->n_slots; k++) {
+                client_slot_t *s = &c->batch->slots[c->slots[k]];
+                if (s->state == CLIENT_SLOT_ARRIVED)
+                    continue;
+                s->state = accepted ? CLIENT_SLOT_ACCEPTED : CLIENT_SLOT_UNSENT;
+            }
+            c->answered = accepted ? 1 : 2;
+            c->refuse_code = code;
+            if (!accepted)
+                c->refuse_text = strdup(text ? text : "");
+            if (c->background) {
+                if (!accepted)
+                    s_async_fail(run, FITFARM_EREFUSED,
+                                 "the broker refused a re-sent batch after a reconnect");
+                s_chunks_remove_if(run, c->batch, 1, 1);
+            }
+            return;
+        }
+    }
+}
+
+/* Sends one chunk: a SUBMIT whose items point into the batch's genomes. */
+static int s_chunk_send(fitfarm_run_t *run, const client_chunk_t *c)
+{
+    fitfarm_batch_t *b = c->batch;
+    proto_item_t *items = malloc(c->n_slots * sizeof *items);
+    if (!items)
+        return client_fail(run->client, FITFARM_ENOMEM, "out of memory building a SUBMIT");
+    for (uint32_t k = 0; k < c->n_slots; k++) {
+        size_t slot = c->slots[k];
+        size_t g = slot / b->replicates;
+        items[k].tag = b->tag_base + slot;
+        items[k].replicate = (uint32_t)(slot % b->replicates);
+        items[k].genome_len = b->genome_len[g];
+        items[k].genome = b->genomes[g];
+    }
+    proto_msg_t msg;
+    memset(&msg, 0, sizeof msg);
+    msg.type = PROTO_SUBMIT;
+    msg.u.submit.run_id = run->id;
+    msg.u.submit.run_seed = run->seed;
+    msg.u.submit.seed_mode = run->seed_mode;
+    msg.u.submit.flags = run->flags;
+    msg.u.submit.batch_tag = c->batch_tag;
+    msg.u.submit.plugin = b->plugin;
+    msg.u.submit.params = b->params;
+    msg.u.submit.n_items = c->n_slots;
+    msg.u.submit.items = items;
+    int rc = client_send(run->client, &msg, CLIENT_SEND_MS);
+    free(items);
+    return rc;
+}
+
+/* Cuts the slots of batch in state from (UNSENT or ACCEPTED) into chunks of
+ * at most CLIENT_CHUNK_ITEMS items and about CLIENT_CHUNK_BYTES genome bytes,
+ * registers them, marks UNSENT slots SENT and sends them. */
+static int s_send_slots(fitfarm_run_t *run, fitfarm_batch_t *b, int from, int background,
+                        size_t *n_chunks_sent)
+{
+    size_t n_slots = b->n * b->replicates;
+    size_t s = 0;
+    *n_chunks_sent = 0;
+    while (s < n_slots) {
+        while (s < n_slots && b->slots[s].state != from)
+            s++;
+        if (s == n_slots)
+            break;
+        if (run->n_chunks == run->cap_chunks) {
+            size_t cap = run->cap_chunks ? run->cap_chunks * 2 : 16;
+            client_chunk_t *c = realloc(run->chunks, cap * sizeof *c);
+            if (!c)
+                return client_fail(run->client, FITFARM_ENOMEM, "out of memory building chunks");
+            run->chunks = c;
+            run->cap_chunks = cap;
+        }
+        client_chunk_t *c = &run->chunks[run->n_chunks];
+        memset(c, 0, sizeof *c);
+        c->slots = malloc(CLIENT_CHUNK_ITEMS * sizeof *c->slots);
+        if (!c->slots)
+            return client_fail(run->client, FITFARM_ENOMEM, "out of memory building chunks");
+        size_t bytes = 0;
+        for (; s < n_slots && c->n_slots < CLIENT_CHUNK_ITEMS; s++) {
+            if (b->slots[s].state != from)
+                continue;
+            size_t len = b->genome_len[s / b->replicates];
+            if (c->n_slots > 0 && bytes + len > CLIENT_CHUNK_BYTES)
+                break;
+            bytes += len;
+            c->slots[c->n_slots++] = (uint32_t)s;
+        }
+        c->batch = b;
+        c->background = background;
+        c->batch_tag = run->client->next_batch_tag++;
+        run->n_chunks++;
+        for (uint32_t k = 0; k < c->n_slots; k++)
+            if (b->slots[c->slots[k]].state == CLIENT_SLOT_UNSENT)
+                b->slots[c->slots[k]].state = CLIENT_SLOT_SENT;
+        int rc = s_chunk_send(run, c);
+        if (rc != FITFARM_OK)
+            return rc;
+        (*n_chunks_sent)++;
+    }
+    return FITFARM_OK;
+}
+
+void client_run_resend(fitfarm_run_t *run)
+{
+    if (!run->client)
+        return;
+    char saved[CLIENT_ERR_BYTES];
+    memcpy(saved, run->client->err, sizeof saved);
+    /* Earlier re-sends that were never answered are superseded below. */
+    s_chunks_remove_if(run, NULL, 0, 1);
+    for (size_t i = 0; i < run->n_chunks; i++)
+        if (!run->chunks[i].answered)
+            (void)s_chunk_send(run, &run->chunks[i]); /* same batch_tag: one answer will do */
+    for (size_t i = 0; i < run->n_batches; i++) {
+        fitfarm_batch_t *b = run->batches[i];
+        size_t sent;
+        if (b->arrived < b->n * b->replicates)
+            (void)s_send_slots(run, b, CLIENT_SLOT_ACCEPTED, 1, &sent);
+    }
+    /* A failed re-send is retried at the next reconnect; not the caller's error. */
+    memcpy(run->client->err, saved, sizeof saved);
+}
+
+static int s_refusal(fitfarm_run_t *run, const fitfarm_batch_t *b, const client_chunk_t *c)
+{
+    const char *text = c->refuse_text ? c->refuse_text : "";
+    fitfarm_client_t *cl = run->client;
+    switch (c->refuse_code) {
+    case PROTO_REFUSE_UNKNOWN_PLUGIN:
+        return client_fail(cl, FITFARM_EPLUGIN, "the pool has no plugin \"%s\": %s", b->plugin,
+                           text);
+    case PROTO_REFUSE_QUEUE_FULL:
+        return client_fail(cl, FITFARM_EQUEUEFULL, "the broker's queue is full: %s", text);
+    case PROTO_REFUSE_NOT_RECORDED:
+        return client_fail(cl, FITFARM_ENOTRECORDED, "replay of run \"%s\": %s", run->id, text);
+    case PROTO_REFUSE_BAD_PARAMS:
+        return client_fail(cl, FITFARM_EREFUSED, "the broker refused the params of plugin "
+                           "\"%s\": %s", b->plugin, text);
+    case PROTO_REFUSE_RUN_MISMATCH:
+        return client_fail(cl, FITFARM_EREFUSED, "run \"%s\" exists with another seed or seed "
+                           "mode: %s", run->id, text);
+    default:
+        return client_fail(cl, FITFARM_EREFUSED, "the broker refused the batch (code %u): %s",
+                           c->refuse_code, text);
+    }
+}
+
+static int s_wait_turn(fitfarm_client_t *cl, int wait_ms)
+{
+    int rc = client_pump(cl, wait_ms);
+    if (rc >= 0 && cl->pool)
+        rc = client_pool_check(cl->pool, cl->err, sizeof cl->err);
+    return rc < 0 ? rc : 0;
+}
+
+/* Sends the batch's unsent slots and waits for every chunk's answer. */
+static int s_submit(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int64_t deadline)
+{
+    fitfarm_client_t *cl = run ? run->client : NULL;
+    if (!cl || !b)
+        return cl ? client_fail(cl, FITFARM_EINVAL, "no batch given") : FITFARM_EINVAL;
+    if (b->run && b->run != run)
+        return client_fail(cl, FITFARM_EINVAL, "the batch was submitted through another run");
+    int first = b->slots == NULL;
+    if (!b->slots) {
+        if (client_batch_prepare(b) != FITFARM_OK)
+            return client_fail(cl, FITFARM_ENOMEM, "out of memory preparing the batch");
+        if (run->n_batches == run->cap_batches) {
+            size_t cap = run->cap_batches ? run->cap_batches * 2 : 16;
+            fitfarm_batch_t **v = realloc(run->batches, cap * sizeof *v);
+            if (!v) {
+                free(b->slots);
+                b->slots = NULL;
+                return client_fail(cl, FITFARM_ENOMEM, "out of memory submitting");
+            }
+            run->batches = v;
+            run->cap_batches = cap;
+        }
+        b->tag_base = run->next_tag;
+        run->next_tag += (uint64_t)b->n * b->replicates;
+        b->streaming = streaming;
+        b->run = run;
+        run->batches[run->n_batches++] = b;
+    } else if (!b->run) {
+        return client_fail(cl, FITFARM_EINVAL, "the batch's run was destroyed");
+    } else if (b->streaming != streaming) {
+        return client_fail(cl, FITFARM_EINVAL, "a batch is either evaluated or submitted, "
+                           "not both");
+    }
+    size_t sent = 0;
+    int rc = s_send_slots(run, b, CLIENT_SLOT_UNSENT, 0, &sent);
+    if (rc == FITFARM_OK && sent == 0 && !first)
+        return client_fail(cl, FITFARM_EINVAL, "the batch was already submitted");
+    /* Wait for an answer to every foreground chunk of this batch. */
+    while (rc == FITFARM_OK) {
+        int waiting = 0;
+        for (size_t i = 0; i < run->n_chunks; i++)
+            waiting |= run->chunks[i].batch == b && !run->chunks[i].background &&
+                       !run->chunks[i].answered;
+        if (!waiting)
+            break;
+        int left = client_ms_left(deadline);
+        if (left == 0) {
+            rc = client_fail(cl, FITFARM_ETIMEDOUT,
+                             "the broker at %s did not accept the batch in time", cl->endpoint);
+            break;
+        }
+        rc = s_wait_turn(cl, left < 0 || left > 200 ? 200 : left);
+        if (!run->client)
+            return FITFARM_EINVAL;
+    }
+    /* Report the first refusal; forget answered and (on failure) pending chunks.
+     * Unanswered slots go back to UNSENT so a later submit sends them again. */
+    for (size_t i = 0; i < run->n_chunks; i++) {
+        client_chunk_t *c = &run->chunks[i];
+        if (c->batch != b || c->background)
+            continue;
+        if (c->answered == 2 && rc == FITFARM_OK)
+            rc = s_refusal(run, b, c);
+        if (!c->answered)
+            for (uint32_t k = 0; k < c->n_slots; k++)
+                if (b->slots[c->slots[k]].state == CLIENT_SLOT_SENT)
+                    b->slots[c->slots[k]].state = CLIENT_SLOT_UNSENT;
+    }
+    size_t w = 0;
+    for (size_t i = 0; i < run->n_chunks; i++) {
+        client_chunk_t *c = &run->chunks[i];
+        if (c->batch == b && !c->background)
+            s_chunk_free(c);
+        else
+            run->chunks[w++] = *c;
+    }
+    run->n_chunks = w;
+    return rc;
+}
+
+static int s_take_async(fitfarm_run_t *run)
+{
+    int rc = run->async_rc;
+    if (rc != 0) {
+        client_fail(run->client, rc, "%s", run->async_err);
+        run->async_rc = 0;
+    }
+    return rc;
+}
+
+FITFARM_API int fitfarm_evaluate(fitfarm_run_t *run, fitfarm_batch_t *batch,
+                                 fitfarm_progress_cb progress, void *arg, int timeout_ms)
+{
+    if (!run || !run->client || !batch)
+        return FITFARM_EINVAL;
+    fitfarm_client_t *cl = run->client;
+    int64_t deadline = client_deadline(timeout_ms);
+    int rc = s_submit(run, batch, 0, deadline);
+    if (rc != FITFARM_OK)
+        return rc;
+    size_t total = batch->n * batch->replicates;
+    size_t reported = (size_t)-1;
+    while (batch->arrived < total) {
+        if (progress && reported != batch->arrived) {
+            reported = batch->arrived;
+            progress(batch->arrived, total, arg);
+        }
+        rc = s_take_async(run);
+        if (rc != 0)
+            return rc;
+        int left = client_ms_left(deadline);
+        if (left == 0)
+            return client_fail(cl, FITFARM_ETIMEDOUT, "%zu of %zu results arrived within %d ms",
+                               batch->arrived, total, timeout_ms);
+        rc = s_wait_turn(cl, left < 0 || left > 500 ? 500 : left);
+        if (rc < 0)
+            return rc;
+        if (!run->client || batch->run != run)
+            return FITFARM_EINVAL;
+    }
+    if (progress && reported != total)
+        progress(total, total, arg);
+    return FITFARM_OK;
+}
+
+FITFARM_API int fitfarm_submit(fitfarm_run_t *run, fitfarm_batch_t *batch)
+{
+    if (!run || !run->client || !batch)
+        return FITFARM_EINVAL;
+    return s_submit(run, batch, 1, client_deadline(CLIENT_SUBMIT_WAIT_MS));
+}
+
+FITFARM_API int fitfarm_poll(fitfarm_run_t *run, fitfarm_result_t *out, int timeout_ms)
+{
+    if (!run || !run->client || !out)
+        return FITFARM_EINVAL;
+    int64_t deadline = client_deadline(timeout_ms);
+    for (;;) {
+        if (run->ready_len > 0) {
+            client_ready_t e = run->ready[run->ready_head];
+            run->ready_head = (run->ready_head + 1) % run->ready_cap;
+            run->ready_len--;
+            client_batch_fill(e.batch, e.slot, out);
+            return 1;
+        }
+        int rc = s_take_async(run);
+        if (rc != 0)
+            return rc;
+        int left = client_ms_left(deadline);
+        if (left == 0)
+            return 0;
+        rc = s_wait_turn(run->client, left < 0 || left > 500 ? 500 : left);
+        if (rc < 0)
+            return rc;
+        if (!run->client)
+            return FITFARM_EINVAL;
+    }
+}
