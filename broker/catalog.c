@@ -1,0 +1,134 @@
+/* catalog.c: the plugin catalog (see catalog.h). Owns the entries and their
+ * strings; entries are never removed, so pointers to them stay valid for the
+ * broker's life (evaluations keep one). */
+#include "catalog.h"
+
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "common/log.h"
+#include "key.h"
+
+void broker_catalog_init(broker_catalog_t *self)
+{
+    memset(self, 0, sizeof *self);
+    self->by_name = broker_table_new();
+}
+
+void broker_catalog_fini(broker_catalog_t *self)
+{
+    for (uint32_t i = 0; i < self->n; i++) {
+        free(self->list[i]->name);
+        free(self->list[i]->version);
+        free(self->list[i]->other_version);
+        free(self->list[i]);
+    }
+    free(self->list);
+    broker_table_destroy(&self->by_name);
+    memset(self, 0, sizeof *self);
+}
+
+broker_plugin_t *broker_catalog_get(const broker_catalog_t *self, const char *name)
+{
+    return broker_table_get(self->by_name, name, strlen(name));
+}
+
+int broker_plugin_stochastic(const broker_plugin_t *plugin)
+{
+    return !(plugin->flags & PROTO_PLUGIN_DETERMINISTIC);
+}
+
+broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugin_info_t *info)
+{
+    broker_plugin_t *p = broker_catalog_get(self, info->name);
+    if (!p) {
+        p = common_xcalloc(1, sizeof *p);
+        p->id = self->n;
+        p->name = common_xstrdup(info->name);
+        p->version = common_xstrdup(info->version);
+        p->objectives = info->objectives;
+        p->flags = info->flags;
+        if (self->n == self->cap) {
+            self->cap = self->cap ? self->cap * 2 : 8;
+            self->list = common_xrealloc(self->list, self->cap, sizeof *self->list);
+        }
+        self->list[self->n++] = p;
+        broker_table_put(self->by_name, p->name, strlen(p->name), p);
+    }
+    if (strcmp(p->version, info->version) != 0) {
+        if (!p->other_version) {
+            p->other_version = common_xstrdup(info->version);
+            LOG_WARN("plugin %s is reported at version %s and %s; jobs go only to workers "
+                     "with %s",
+                     p->name, p->version, info->version, p->version);
+        }
+        return NULL;
+    }
+    if (p->flags != info->flags)
+        LOG_WARN("plugin %s %s is reported with flags %u and %u; keeping %u", p->name,
+                 p->version, p->flags, info->flags, p->flags);
+    int seen = 0;
+    for (uint32_t i = 0; i < p->n_digests; i++)
+        seen |= memcmp(p->digests[i], info->digest, PROTO_DIGEST_BYTES) == 0;
+    if (!seen && p->n_digests < BROKER_CATALOG_MAX_DIGESTS)
+        memcpy(p->digests[p->n_digests++], info->digest, PROTO_DIGEST_BYTES);
+    return p;
+}
+
+static int s_cmp_names(const void *a, const void *b)
+{
+    return strcmp((*(broker_plugin_t *const *)a)->name, (*(broker_plugin_t *const *)b)->name);
+}
+
+void broker_catalog_names(const broker_catalog_t *self, char *out, size_t outlen)
+{
+    if (outlen == 0)
+        return;
+    out[0] = '\0';
+    broker_plugin_t **sorted = common_xcalloc(self->n ? self->n : 1, sizeof *sorted);
+    memcpy(sorted, self->list, self->n * sizeof *sorted);
+    qsort(sorted, self->n, sizeof *sorted, s_cmp_names);
+    size_t used = 0;
+    for (uint32_t i = 0; i < self->n && used < outlen; i++) {
+        int k = snprintf(out + used, outlen - used, "%s%s", i ? ", " : "", sorted[i]->name);
+        if (k < 0)
+            break;
+        used += (size_t)k;
+    }
+    free(sorted);
+}
+
+static void s_push(char ***warnings, uint32_t *n, char *text)
+{
+    *warnings = common_xrealloc(*warnings, (size_t)*n + 1, sizeof **warnings);
+    (*warnings)[(*n)++] = text;
+}
+
+uint32_t broker_catalog_warnings(const broker_catalog_t *self, char ***warnings, uint32_t n)
+{
+    for (uint32_t i = 0; i < self->n; i++) {
+        const broker_plugin_t *p = self->list[i];
+        char text[512];
+        if (p->n_digests > 1) {
+            char a[2 * PROTO_DIGEST_BYTES + 1], b[2 * PROTO_DIGEST_BYTES + 1];
+            proto_hex(p->digests[0], PROTO_DIGEST_BYTES, a);
+            proto_hex(p->digests[1], PROTO_DIGEST_BYTES, b);
+            a[4] = b[4] = '\0';
+            snprintf(text, sizeof text,
+                     "plugin %s %s is reported with %s different builds (digests %s…, %s…): "
+                     "results may differ bitwise",
+                     p->name, p->version, p->n_digests == 2 ? "two" : "several", a, b);
+            s_push(warnings, &n, common_xstrdup(text));
+        }
+        if (p->other_version) {
+            snprintf(text, sizeof text,
+                     "plugin %s is reported at versions %s and %s: only workers with %s get "
+                     "its jobs",
+                     p->name, p->version, p->other_version, p->version);
+            s_push(warnings, &n, common_xstrdup(text));
+        }
+    }
+    return n;
+}

@@ -1,0 +1,55 @@
+/* catalog.h: every plugin the broker has ever seen reported by a worker, by
+ * name: the version keys are computed with, objectives, flags (determinism
+ * decides whether the seed is part of the key), the build digests reported,
+ * and how many connected workers carry it right now.
+ *
+ * The first version reported for a name is the catalog's version; a worker
+ * reporting another version of that name does not get its jobs, and STATUS
+ * warns. Not here: which worker carries what (registry.h). */
+#ifndef BROKER_CATALOG_H
+#define BROKER_CATALOG_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "msg.h"
+#include "table.h"
+
+#define BROKER_CATALOG_MAX_DIGESTS 8 /* distinct builds remembered per plugin */
+
+typedef struct {
+    uint32_t id; /* dense index, 0..n-1: workers keep a bitmap over it */
+    char *name;
+    char *version;
+    uint32_t objectives;
+    uint32_t flags; /* PROTO_PLUGIN_* */
+    uint8_t digests[BROKER_CATALOG_MAX_DIGESTS][PROTO_DIGEST_BYTES];
+    uint32_t n_digests;
+    char *other_version; /* a different version seen for this name, or NULL */
+    uint32_t carriers;   /* connected workers that carry it */
+} broker_plugin_t;
+
+typedef struct {
+    broker_table_t *by_name;
+    broker_plugin_t **list;
+    uint32_t n, cap;
+} broker_catalog_t;
+
+void broker_catalog_init(broker_catalog_t *self);
+void broker_catalog_fini(broker_catalog_t *self);
+
+/* Borrowed entry for name, valid until fini; NULL if never seen. */
+broker_plugin_t *broker_catalog_get(const broker_catalog_t *self, const char *name);
+/* Records one plugin from a HELLO. Returns the entry the worker may take jobs
+ * for, or NULL when it reports another version than the catalog's (that
+ * worker must not get jobs keyed to the catalog's version). */
+broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugin_info_t *info);
+/* Writes "a, b, c" (names in sorted order) into out; "" when empty. */
+void broker_catalog_names(const broker_catalog_t *self, char *out, size_t outlen);
+/* Appends warnings (malloc'd strings, caller frees each and the array) about
+ * mixed builds and versions. Returns the new count. */
+uint32_t broker_catalog_warnings(const broker_catalog_t *self, char ***warnings, uint32_t n);
+/* 1 when the seed is part of the key. */
+int broker_plugin_stochastic(const broker_plugin_t *plugin);
+
+#endif

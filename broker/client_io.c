@@ -1,0 +1,357 @@
+/* client_io.c: the clients endpoint (see client_io.h). Owns no state beyond
+ * the pending ACCEPTED list in broker_t; runs and evaluations belong to their
+ * modules. */
+#include "client_io.h"
+
+#include <assert.h>
+#include <inttypes.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "common/log.h"
+#include "envelope.h"
+#include "key.h"
+#include "params.h"
+
+static void s_refuse(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t code,
+                     uint64_t batch_tag, const char *run_id, const char *text)
+{
+    char hex[BROKER_RID_HEX];
+    LOG_INFO("refused batch %" PRIu64 " of run %s from client %s: %s", batch_tag,
+             run_id ? run_id : "", broker_rid_hex(rid, rid_len, hex), text);
+    if (!b->clients)
+        return;
+    proto_msg_t msg = {.type = PROTO_REFUSED};
+    msg.u.refused.code = code;
+    msg.u.refused.batch_tag = batch_tag;
+    msg.u.refused.run_id = (char *)(run_id ? run_id : "");
+    msg.u.refused.text = (char *)text;
+    broker_envelope_send(b->clients, rid, rid_len, &msg);
+}
+
+static void s_queue_accept(broker_t *b, const uint8_t *rid, size_t rid_len, broker_run_t *run,
+                           uint64_t batch_tag, uint32_t n)
+{
+    if (b->n_accepts == b->cap_accepts) {
+        b->cap_accepts = b->cap_accepts ? b->cap_accepts * 2 : 16;
+        b->accepts = common_xrealloc(b->accepts, b->cap_accepts, sizeof *b->accepts);
+    }
+    broker_accept_t *a = &b->accepts[b->n_accepts++];
+    memcpy(a->rid, rid, rid_len);
+    a->rid_len = (uint8_t)rid_len;
+    a->run = run;
+    a->batch_tag = batch_tag;
+    a->n_accepted = n;
+}
+
+/* Seed and key of one item, recomputed here: the client's word is not taken. */
+static void s_item_key(const broker_plugin_t *plugin, const char *params, uint64_t run_seed,
+                       uint32_t seed_mode, const proto_item_t *it, uint64_t *seed,
+                       uint8_t key[PROTO_KEY_BYTES])
+{
+    *seed = proto_seed_derive(run_seed, (int)seed_mode, it->genome, it->genome_len, it->replicate);
+    proto_key_input_t in = {
+        .plugin = plugin->name,
+        .version = plugin->version,
+        .params = params,
+        .genome = it->genome,
+        .genome_len = it->genome_len,
+        .stochastic = broker_plugin_stochastic(plugin),
+        .seed = *seed,
+        .digest = NULL,
+    };
+    if (proto_key_compute(&in, key) != 0)
+        abort(); /* libsodium cannot initialise: nothing sensible can follow */
+}
+
+int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const proto_submit_t *s)
+{
+    int rc = 0;
+    char *canon = NULL;
+    uint8_t(*keys)[PROTO_KEY_BYTES] = NULL;
+    uint64_t *seeds = NULL;
+    char text[2048];
+    char hex[BROKER_RID_HEX];
+
+    if (b->stopping) {
+        rc = PROTO_REFUSE_SHUTTING_DOWN;
+        s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, "the broker is shutting down");
+        goto cleanup;
+    }
+    if (!s->run_id || !*s->run_id || s->seed_mode > PROTO_SEED_COMMON) {
+        rc = PROTO_REFUSE_BAD_MESSAGE;
+        s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id,
+                 !s->run_id || !*s->run_id ? "the run id is empty" : "unknown seed mode");
+        goto cleanup;
+    }
+    broker_plugin_t *plugin = broker_catalog_get(&b->catalog, s->plugin);
+    if (!plugin) {
+        char names[1024];
+        broker_catalog_names(&b->catalog, names, sizeof names);
+        if (names[0])
+            snprintf(text, sizeof text,
+                     "no worker in the pool carries plugin '%s'; the pool has: %s", s->plugin,
+                     names);
+        else
+            snprintf(text, sizeof text,
+                     "no worker in the pool carries plugin '%s'; the pool has no workers yet",
+                     s->plugin);
+        rc = PROTO_REFUSE_UNKNOWN_PLUGIN;
+        s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+        goto cleanup;
+    }
+    char perr[256] = "";
+    if (proto_params_canonical(s->params, &canon, perr, sizeof perr) != 0 ||
+        strcmp(canon, s->params ? s->params : "") != 0) {
+        if (canon)
+            snprintf(text, sizeof text, "params are not in canonical form (expected %.1500s)",
+                     canon);
+        else
+            snprintf(text, sizeof text, "bad params: %s", perr);
+        rc = PROTO_REFUSE_BAD_PARAMS;
+        s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+        goto cleanup;
+    }
+    broker_run_t *run = broker_runs_get(&b->runs, s->run_id);
+    if (run && (run->seed != s->run_seed || run->seed_mode != s->seed_mode)) {
+        snprintf(text, sizeof text,
+                 "run %s exists with seed %" PRIu64 " and seed mode %u, not seed %" PRIu64
+                 " and seed mode %u",
+                 run->id, run->seed, run->seed_mode, s->run_seed, s->seed_mode);
+        rc = PROTO_REFUSE_RUN_MISMATCH;
+        s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+        goto cleanup;
+    }
+    for (uint32_t i = 0; i < s->n_items; i++) {
+        if (s->items[i].replicate >= PROTO_MAX_REPLICATES) {
+            snprintf(text, sizeof text, "item %u: replicate %u, limit %u", i,
+                     s->items[i].replicate, PROTO_MAX_REPLICATES);
+            rc = PROTO_REFUSE_BAD_MESSAGE;
+            s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+            goto cleanup;
+        }
+    }
+
+    /* Keys first, so a replay can be refused before anything changes. */
+    keys = common_xcalloc(s->n_items ? s->n_items : 1, sizeof *keys);
+    seeds = common_xcalloc(s->n_items ? s->n_items : 1, sizeof *seeds);
+    for (uint32_t i = 0; i < s->n_items; i++)
+        s_item_key(plugin, canon, s->run_seed, s->seed_mode, &s->items[i], &seeds[i], keys[i]);
+    if (s->flags & PROTO_SUBMIT_REPLAY) {
+        for (uint32_t i = 0; i < s->n_items; i++) {
+            broker_eval_t *e = broker_evals_get(&b->evals, keys[i]);
+            if (!e || e->state != BROKER_EVAL_DONE) {
+                snprintf(text, sizeof text,
+                         "replay: item %u (tag %" PRIu64 ") has no recorded result", i,
+                         s->items[i].tag);
+                rc = PROTO_REFUSE_NOT_RECORDED;
+                s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+                goto cleanup;
+            }
+        }
+    }
+
+    if (!run) {
+        run = broker_runs_new(&b->runs, s->run_id, s->run_seed, s->seed_mode);
+        LOG_INFO("run %s started by client %s: seed %" PRIu64 ", plugin %s", run->id,
+                 broker_rid_hex(rid, rid_len, hex), run->seed, plugin->name);
+    } else if (run->client_len != rid_len || memcmp(run->client, rid, rid_len) != 0 ||
+               s->n_items == 0) {
+        /* The client came back (new connection) or asks to resume: what it
+         * has not acknowledged goes out again; it drops duplicates by tag. */
+        size_t n = broker_runs_resend(&b->runs, run);
+        if (n)
+            LOG_INFO("run %s resumed by client %s: re-sending %zu unacknowledged results",
+                     run->id, broker_rid_hex(rid, rid_len, hex), n);
+    }
+    broker_run_set_client(run, rid, rid_len);
+
+    const char *params = broker_intern(&b->intern, canon);
+    int no_cache = (s->flags & PROTO_SUBMIT_NO_CACHE) != 0;
+    for (uint32_t i = 0; i < s->n_items; i++) {
+        const proto_item_t *it = &s->items[i];
+        broker_eval_t *e = broker_evals_get(&b->evals, keys[i]);
+        run->outstanding++;
+        if (e && e->state == BROKER_EVAL_DONE && !no_cache) {
+            broker_store_note_request(b->store, run, it->tag, e);
+            broker_runs_answer(&b->runs, run, it->tag, e, 1);
+            continue;
+        }
+        if (!e) {
+            e = broker_evals_new(&b->evals, keys[i], plugin, params, seeds[i], it->genome,
+                                 it->genome_len);
+            broker_eval_add_waiter(e, run, it->tag);
+            broker_runs_enqueue(&b->runs, run, e, 0);
+        } else if (e->state == BROKER_EVAL_DONE) {
+            broker_eval_reset(e); /* no-cache: evaluate again */
+            broker_eval_add_waiter(e, run, it->tag);
+            broker_runs_enqueue(&b->runs, run, e, 0);
+        } else {
+            broker_eval_add_waiter(e, run, it->tag); /* single flight */
+        }
+        broker_store_note_request(b->store, run, it->tag, e);
+        assert(broker_eval_check(&b->evals, e));
+    }
+    s_queue_accept(b, rid, rid_len, run, s->batch_tag, s->n_items);
+
+cleanup:
+    free(canon);
+    free(keys);
+    free(seeds);
+    return rc;
+}
+
+static void s_on_ack(broker_t *b, const uint8_t *rid, size_t rid_len, const proto_ack_t *a)
+{
+    broker_run_t *run = broker_runs_get(&b->runs, a->run_id);
+    if (!run) {
+        char hex[BROKER_RID_HEX];
+        LOG_DEBUG("ignored ACK for unknown run %s from client %s", a->run_id,
+                  broker_rid_hex(rid, rid_len, hex));
+        return;
+    }
+    broker_run_set_client(run, rid, rid_len);
+    for (uint32_t i = 0; i < a->n_tags; i++)
+        broker_runs_ack(&b->runs, run, a->tags[i]);
+}
+
+static void s_on_status(broker_t *b, const uint8_t *rid, size_t rid_len)
+{
+    proto_msg_t msg = {.type = PROTO_STATUS};
+    proto_status_t *st = &msg.u.status;
+    st->n_workers = b->registry.n;
+    st->workers = common_xcalloc(st->n_workers ? st->n_workers : 1, sizeof *st->workers);
+    uint32_t i = 0;
+    for (broker_worker_t *w = b->registry.seen_head; w; w = w->seen_next, i++) {
+        proto_worker_info_t *wi = &st->workers[i];
+        wi->name = w->name;
+        wi->host = w->host;
+        wi->arch = w->arch;
+        wi->slots = w->slots;
+        wi->busy = w->held;
+        wi->n_plugins = w->n_plugins;
+        wi->plugins = common_xcalloc(w->n_plugins ? w->n_plugins : 1, sizeof *wi->plugins);
+        for (uint32_t k = 0; k < w->n_plugins; k++) {
+            size_t n = strlen(w->plugins[k]->name) + strlen(w->plugins[k]->version) + 2;
+            wi->plugins[k] = common_xmalloc(n);
+            snprintf(wi->plugins[k], n, "%s@%s", w->plugins[k]->name, w->plugins[k]->version);
+        }
+    }
+    size_t n_runs = broker_table_size(b->runs.by_id);
+    if (n_runs > PROTO_MAX_LIST)
+        n_runs = PROTO_MAX_LIST; /* the decoder's cap; the oldest extra runs are left out */
+    st->runs = common_xcalloc(n_runs ? n_runs : 1, sizeof *st->runs);
+    size_t cur = 0;
+    broker_run_t *run;
+    while (st->n_runs < n_runs && (run = broker_table_next(b->runs.by_id, &cur))) {
+        proto_run_info_t *ri = &st->runs[st->n_runs++];
+        ri->run_id = run->id;
+        ri->queued = run->n_queued;
+        ri->running = run->n_running;
+        ri->done = run->n_answered;
+    }
+    st->n_warnings = broker_catalog_warnings(&b->catalog, &st->warnings, 0);
+    if (b->clients)
+        broker_envelope_send(b->clients, rid, rid_len, &msg);
+    for (i = 0; i < st->n_workers; i++) {
+        for (uint32_t k = 0; k < st->workers[i].n_plugins; k++)
+            free(st->workers[i].plugins[k]);
+        free(st->workers[i].plugins);
+    }
+    free(st->workers);
+    free(st->runs);
+    for (i = 0; i < st->n_warnings; i++)
+        free(st->warnings[i]);
+    free(st->warnings);
+}
+
+void broker_client_on_message(broker_t *b, const uint8_t *rid, size_t rid_len, const uint8_t *body,
+                              size_t len)
+{
+    proto_msg_t *msg = NULL;
+    proto_err_t err = {0};
+    char hex[BROKER_RID_HEX];
+    if (proto_msg_decode(body, len, NULL, &msg, &err) != PROTO_OK) {
+        b->dropped_msgs++;
+        LOG_WARN("dropped a bad message from client %s: %s", broker_rid_hex(rid, rid_len, hex),
+                 err.text[0] ? err.text : "undecodable");
+        return;
+    }
+    switch (msg->type) {
+    case PROTO_SUBMIT:
+        broker_client_submit(b, rid, rid_len, &msg->u.submit);
+        break;
+    case PROTO_ACK:
+        s_on_ack(b, rid, rid_len, &msg->u.ack);
+        break;
+    case PROTO_STATUS_REQ:
+        s_on_status(b, rid, rid_len);
+        break;
+    case PROTO_HEARTBEAT: {
+        proto_msg_t hb = {.type = PROTO_HEARTBEAT};
+        if (b->clients)
+            broker_envelope_send(b->clients, rid, rid_len, &hb);
+        break;
+    }
+    default:
+        b->dropped_msgs++;
+        LOG_WARN("dropped a %s message from client %s: not a message clients send",
+                 proto_type_name((int)msg->type), broker_rid_hex(rid, rid_len, hex));
+        break;
+    }
+    proto_msg_destroy(&msg);
+}
+
+static void s_flush_run(broker_t *b, broker_run_t *run)
+{
+    uint32_t done = 0;
+    while (done < run->n_outbox) {
+        uint32_t n = 0;
+        size_t bytes = 0;
+        while (done + n < run->n_outbox && n < BROKER_RESULTS_PER_MSG &&
+               bytes < BROKER_MSG_SOFT_BYTES) {
+            const broker_delivery_t *d = &run->outbox[done + n];
+            const broker_eval_t *e = d->eval;
+            proto_result_t *r = &b->results[n++];
+            r->tag = d->tag;
+            r->status = e->status;
+            r->cached = d->cached;
+            r->seed = e->seed;
+            memcpy(r->key, e->key, PROTO_KEY_BYTES);
+            r->n_fitness = e->n_fitness;
+            r->fitness = e->fitness;
+            r->error = e->error ? e->error : (char *)"";
+            bytes += 64 + (size_t)e->n_fitness * 9 + (e->error ? strlen(e->error) : 0);
+        }
+        if (b->clients && run->client_len) {
+            proto_msg_t msg = {.type = PROTO_RESULTS};
+            msg.u.results.run_id = run->id;
+            msg.u.results.n_results = n;
+            msg.u.results.results = b->results;
+            broker_envelope_send(b->clients, run->client, run->client_len, &msg);
+        }
+        done += n;
+    }
+    b->results_sent += run->n_outbox;
+    broker_runs_sent(&b->runs, run);
+}
+
+void broker_client_flush(broker_t *b)
+{
+    for (size_t i = 0; i < b->n_accepts; i++) {
+        broker_accept_t *a = &b->accepts[i];
+        if (!b->clients)
+            continue;
+        proto_msg_t msg = {.type = PROTO_ACCEPTED};
+        msg.u.accepted.run_id = a->run->id;
+        msg.u.accepted.batch_tag = a->batch_tag;
+        msg.u.accepted.n_accepted = a->n_accepted;
+        broker_envelope_send(b->clients, a->rid, a->rid_len, &msg);
+    }
+    b->n_accepts = 0;
+    broker_run_t *run;
+    while ((run = broker_runs_take_dirty(&b->runs)))
+        s_flush_run(b, run);
+}

@@ -1,0 +1,44 @@
+/* core.c: setting up and tearing down the broker's state (core.h). Owns the
+ * per-turn scratch arrays; each module owns the rest. */
+#include "core.h"
+
+#include <stdlib.h>
+#include <string.h>
+
+#include "common/alloc.h"
+
+void broker_core_init(broker_t *b, int liveness_ms, int heartbeat_ms, unsigned attempts,
+                      const char *store_dir)
+{
+    memset(b, 0, sizeof *b);
+    b->liveness_ms = liveness_ms > 0 ? liveness_ms : 5000;
+    b->heartbeat_ms = heartbeat_ms > 0 ? heartbeat_ms : 1000;
+    b->attempts = attempts > 0 ? attempts : 3;
+    broker_catalog_init(&b->catalog);
+    broker_registry_init(&b->registry);
+    broker_evals_init(&b->evals);
+    broker_runs_init(&b->runs);
+    broker_intern_init(&b->intern);
+    broker_timers_init(&b->timers);
+    b->store = broker_store_open(store_dir);
+    b->jobs = common_xcalloc(BROKER_JOBS_PER_MSG, sizeof *b->jobs);
+    b->results = common_xcalloc(BROKER_RESULTS_PER_MSG, sizeof *b->results);
+}
+
+void broker_core_fini(broker_t *b)
+{
+    /* Registry first: freeing workers decrements catalog carrier counts. */
+    broker_registry_fini(&b->registry);
+    broker_runs_fini(&b->runs);
+    broker_evals_fini(&b->evals);
+    broker_catalog_fini(&b->catalog);
+    broker_intern_fini(&b->intern);
+    broker_timers_fini(&b->timers);
+    broker_store_close(&b->store);
+    free(b->jobs);
+    free(b->results);
+    free(b->accepts);
+    b->jobs = NULL;
+    b->results = NULL;
+    b->accepts = NULL;
+}

@@ -1,0 +1,77 @@
+/* core.h: the broker's state, one struct shared by its modules: sockets,
+ * resolved configuration, the catalog, registry, evaluation table, runs,
+ * timers, the store seam, and per-turn scratch. Only the broker's own .c files
+ * include it; the outside sees broker.h. Not here: behaviour (each module). */
+#ifndef BROKER_CORE_H
+#define BROKER_CORE_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "broker.h"
+#include "catalog.h"
+#include "evals.h"
+#include "intern.h"
+#include "msg.h"
+#include "registry.h"
+#include "runs.h"
+#include "store.h"
+#include "timers.h"
+
+#define BROKER_MSGS_PER_TURN 512     /* per socket per loop turn */
+#define BROKER_JOBS_PER_MSG 4096     /* jobs in one JOBS message */
+#define BROKER_RESULTS_PER_MSG 4096  /* results in one RESULTS message */
+#define BROKER_MSG_SOFT_BYTES (16u * 1024u * 1024u) /* stop filling a message past this */
+#define BROKER_HWM 100000
+
+static_assert(BROKER_MSG_SOFT_BYTES + PROTO_MAX_GENOME_BYTES + PROTO_MAX_PARAMS_BYTES <
+                  PROTO_MAX_MESSAGE_BYTES,
+              "a filled message plus one more job must stay under the message cap");
+
+/* An ACCEPTED reply held until the turn's store commit. */
+typedef struct {
+    uint8_t rid[BROKER_RID_MAX];
+    uint8_t rid_len;
+    broker_run_t *run;
+    uint64_t batch_tag;
+    uint32_t n_accepted;
+} broker_accept_t;
+
+typedef struct broker {
+    /* configuration with defaults applied */
+    int liveness_ms;
+    int heartbeat_ms;
+    unsigned attempts;
+    /* sockets (NULL in unit tests that drive the modules directly) */
+    void *ctx;
+    void *clients;
+    void *workers;
+    /* state */
+    broker_catalog_t catalog;
+    broker_registry_t registry;
+    broker_evals_t evals;
+    broker_runs_t runs;
+    broker_intern_t intern;
+    broker_timers_t timers;
+    broker_store_t *store;
+    broker_timer_t heartbeat_timer;
+    broker_timer_t liveness_timer;
+    uint64_t next_job_id;
+    int64_t now_ms;
+    int stopping;
+    /* per-turn scratch, reused */
+    broker_accept_t *accepts;
+    size_t n_accepts, cap_accepts;
+    proto_job_t *jobs;
+    proto_result_t *results;
+    /* counters */
+    uint64_t jobs_sent, results_sent, dropped_msgs;
+} broker_t;
+
+/* Sets up every module (no sockets). attempts etc. already resolved. */
+void broker_core_init(broker_t *b, int liveness_ms, int heartbeat_ms, unsigned attempts,
+                      const char *store_dir);
+/* Frees every module's state (not the sockets). */
+void broker_core_fini(broker_t *b);
+
+#endif

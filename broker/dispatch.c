@@ -1,0 +1,149 @@
+/* dispatch.c: job lifecycle transitions that involve workers (see dispatch.h
+ * and the state table in evals.h). Owns no state of its own. */
+#include "dispatch.h"
+
+#include <assert.h>
+#include <inttypes.h>
+#include <string.h>
+
+#include "common/log.h"
+#include "envelope.h"
+
+static void s_send_jobs(broker_t *b, broker_worker_t *w, uint32_t n)
+{
+    if (!b->workers || n == 0)
+        return;
+    proto_msg_t msg = {.type = PROTO_JOBS};
+    msg.u.jobs.n_jobs = n;
+    msg.u.jobs.jobs = b->jobs;
+    broker_envelope_send(b->workers, w->rid, w->rid_len, &msg);
+}
+
+uint64_t broker_dispatch_turn(broker_t *b)
+{
+    uint64_t total = 0;
+    broker_worker_t *w = b->registry.ready_head;
+    while (w && b->runs.total_queued > 0) {
+        broker_worker_t *next = w->ready_next; /* w leaves the list at 0 credits */
+        uint32_t n = 0;
+        size_t bytes = 0;
+        while (w->credits > 0 && n < BROKER_JOBS_PER_MSG && bytes < BROKER_MSG_SOFT_BYTES) {
+            broker_eval_t *e = broker_runs_pick(&b->runs, w);
+            if (!e)
+                break;
+            e->state = BROKER_EVAL_RUNNING;
+            e->worker = w;
+            broker_evals_bind_job(&b->evals, e, ++b->next_job_id);
+            broker_worker_hold(w, e);
+            broker_registry_spend(&b->registry, w);
+            e->home->n_running++;
+            proto_job_t *j = &b->jobs[n++];
+            j->job_id = e->job_id;
+            j->plugin = e->plugin->name;
+            j->params = (char *)e->params; /* read only by the encoder */
+            j->seed = e->seed;
+            j->timeout_ms = 0;
+            j->genome_len = e->genome_len;
+            j->genome = e->genome;
+            bytes += e->genome_len + 64;
+            assert(broker_eval_check(&b->evals, e));
+        }
+        s_send_jobs(b, w, n);
+        total += n;
+        w = next;
+    }
+    b->jobs_sent += total;
+    return total;
+}
+
+/* Takes e out of wherever it sits (queue or worker), keeping counts. */
+static void s_detach(broker_t *b, broker_eval_t *e)
+{
+    if (e->state == BROKER_EVAL_RUNNING) {
+        broker_worker_release(e->worker, e);
+        broker_evals_unbind_job(&b->evals, e);
+        e->worker = NULL;
+        assert(e->home->n_running > 0);
+        e->home->n_running--;
+    } else if (e->state == BROKER_EVAL_QUEUED) {
+        broker_runs_unqueue(&b->runs, e);
+    }
+}
+
+void broker_dispatch_complete(broker_t *b, broker_eval_t *e, uint32_t status,
+                              const double *fitness, uint32_t n_fitness, const char *error)
+{
+    broker_eval_set_result(&b->evals, e, status, fitness, n_fitness, error);
+    broker_store_note_result(b->store, e);
+    for (uint32_t i = 0; i < e->n_waiters; i++) {
+        broker_waiter_t *wt = broker_eval_waiter(e, i);
+        broker_runs_answer(&b->runs, wt->run, wt->tag, e, 0);
+    }
+    broker_eval_clear_waiters(e);
+    assert(broker_eval_check(&b->evals, e));
+}
+
+static int s_retryable(uint32_t status)
+{
+    return status == PROTO_STATUS_CRASHED || status == PROTO_STATUS_TIMEOUT;
+}
+
+void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcome_t *o)
+{
+    broker_eval_t *e = broker_evals_by_job(&b->evals, o->job_id);
+    if (e) {
+        if (e->worker != w) {
+            LOG_WARN("ignored the result of job %" PRIu64 " from worker %s: it was sent to %s",
+                     o->job_id, w ? w->name : "(unregistered)", e->worker->name);
+            return;
+        }
+        s_detach(b, e);
+        if (s_retryable(o->status)) {
+            e->attempts++;
+            if (e->attempts < b->attempts) {
+                LOG_INFO("job %" PRIu64 " %s on worker %s (attempt %u of %u): %s; retrying",
+                         o->job_id, proto_status_name((int)o->status), w->name,
+                         (unsigned)e->attempts, b->attempts, o->error ? o->error : "");
+                e->avoid_worker = w->serial;
+                e->state = BROKER_EVAL_QUEUED;
+                broker_runs_enqueue(&b->runs, e->home, e, 1);
+                assert(broker_eval_check(&b->evals, e));
+                return;
+            }
+            LOG_WARN("job %" PRIu64 " %s %u times, last on worker %s: %s; failing it", o->job_id,
+                     proto_status_name((int)o->status), (unsigned)e->attempts, w->name,
+                     o->error ? o->error : "");
+        }
+        broker_dispatch_complete(b, e, o->status, o->fitness, o->n_fitness, o->error);
+        return;
+    }
+    e = broker_evals_orphan_take(&b->evals, o->job_id);
+    if (e && e->state != BROKER_EVAL_DONE && !s_retryable(o->status)) {
+        /* A dropped worker finished after all: the first result wins, and the
+         * re-queued or re-dispatched copy is withdrawn (its later result finds
+         * no job id and is ignored). */
+        LOG_INFO("accepted a late result for job %" PRIu64 " from %s", o->job_id,
+                 w ? w->name : "a dropped worker");
+        s_detach(b, e);
+        broker_dispatch_complete(b, e, o->status, o->fitness, o->n_fitness, o->error);
+        return;
+    }
+    LOG_DEBUG("ignored a result for stale job %" PRIu64, o->job_id);
+}
+
+uint32_t broker_dispatch_drop_worker(broker_t *b, broker_worker_t *w)
+{
+    uint32_t n = 0;
+    /* Tail first, each pushed to the front: the oldest ends up first again. */
+    broker_eval_t *e;
+    while ((e = w->jobs_tail)) {
+        broker_evals_orphan_add(&b->evals, e->job_id, e);
+        s_detach(b, e);
+        e->state = BROKER_EVAL_QUEUED;
+        broker_runs_enqueue(&b->runs, e->home, e, 1);
+        assert(broker_eval_check(&b->evals, e));
+        n++;
+    }
+    broker_registry_remove(&b->registry, w);
+    return n;
+}

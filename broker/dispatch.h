@@ -1,0 +1,32 @@
+/* dispatch.h: the transitions of the job lifecycle (evals.h) that involve
+ * workers: sending queued jobs to workers with credits, taking outcomes back,
+ * retrying crashed and timed-out jobs, re-queueing a dropped worker's jobs,
+ * and completing an evaluation (answering every waiting request). Not here:
+ * decoding worker messages (worker_io.c), choosing which job is next (runs.c). */
+#ifndef BROKER_DISPATCH_H
+#define BROKER_DISPATCH_H
+
+#include <stdint.h>
+
+#include "core.h"
+
+/* For every worker with credits, takes runs round-robin and sends the jobs
+ * in one JOBS message per worker. With b->workers NULL (unit tests) the jobs
+ * change state but nothing is sent. Returns the number of jobs dispatched. */
+uint64_t broker_dispatch_turn(broker_t *b);
+
+/* One outcome of a DONE from worker w (NULL: a routing id the broker does not
+ * know, whose late results may still be accepted for orphaned jobs). */
+void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcome_t *o);
+
+/* Final result for e (detached from any queue or worker first): stores it and
+ * answers every waiting request. */
+void broker_dispatch_complete(broker_t *b, broker_eval_t *e, uint32_t status,
+                              const double *fitness, uint32_t n_fitness, const char *error);
+
+/* Drops w: its held jobs go back to the front of their runs (same seed, order
+ * kept), their job ids become orphans, the registration is freed. Returns how
+ * many jobs were re-queued. The caller logs why. */
+uint32_t broker_dispatch_drop_worker(broker_t *b, broker_worker_t *w);
+
+#endif

@@ -1,0 +1,186 @@
+/* evals.c: the evaluation table (see evals.h for the job lifecycle). Owns the
+ * evaluations (one allocation each, genome inline), their waiter arrays and
+ * results, and the orphan records. Does not own plugins, params or runs. */
+#include "evals.h"
+
+#include <assert.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "common/alloc.h"
+
+typedef struct {
+    uint64_t job_id; /* the table key points here */
+    broker_eval_t *eval;
+} s_orphan_t;
+
+void broker_evals_init(broker_evals_t *self)
+{
+    self->by_key = broker_table_new();
+    self->by_job = broker_table_new();
+    self->orphans = broker_table_new();
+    self->n_done = 0;
+}
+
+void broker_evals_fini(broker_evals_t *self)
+{
+    size_t cur = 0;
+    s_orphan_t *o;
+    while ((o = broker_table_next(self->orphans, &cur)))
+        free(o);
+    cur = 0;
+    broker_eval_t *e;
+    while ((e = broker_table_next(self->by_key, &cur))) {
+        free(e->more);
+        free(e->fitness);
+        free(e->error);
+        free(e);
+    }
+    broker_table_destroy(&self->by_key);
+    broker_table_destroy(&self->by_job);
+    broker_table_destroy(&self->orphans);
+}
+
+broker_eval_t *broker_evals_get(const broker_evals_t *self, const uint8_t key[PROTO_KEY_BYTES])
+{
+    return broker_table_get(self->by_key, key, PROTO_KEY_BYTES);
+}
+
+broker_eval_t *broker_evals_new(broker_evals_t *self, const uint8_t key[PROTO_KEY_BYTES],
+                                broker_plugin_t *plugin, const char *params, uint64_t seed,
+                                const uint8_t *genome, uint32_t genome_len)
+{
+    broker_eval_t *e = common_xcalloc(1, sizeof *e + genome_len);
+    memcpy(e->key, key, PROTO_KEY_BYTES);
+    e->state = BROKER_EVAL_QUEUED;
+    e->plugin = plugin;
+    e->params = params;
+    e->seed = seed;
+    e->genome_len = genome_len;
+    if (genome_len)
+        memcpy(e->genome, genome, genome_len);
+    void *prev = broker_table_put(self->by_key, e->key, PROTO_KEY_BYTES, e);
+    assert(prev == NULL);
+    (void)prev;
+    return e;
+}
+
+void broker_eval_add_waiter(broker_eval_t *e, struct broker_run *run, uint64_t tag)
+{
+    broker_waiter_t w = {run, tag};
+    if (e->n_waiters == 0) {
+        e->w0 = w;
+    } else {
+        uint32_t i = e->n_waiters - 1;
+        if (i == e->cap_more) {
+            e->cap_more = e->cap_more ? e->cap_more * 2 : 4;
+            e->more = common_xrealloc(e->more, e->cap_more, sizeof *e->more);
+        }
+        e->more[i] = w;
+    }
+    e->n_waiters++;
+}
+
+broker_waiter_t *broker_eval_waiter(broker_eval_t *e, uint32_t i)
+{
+    assert(i < e->n_waiters);
+    return i == 0 ? &e->w0 : &e->more[i - 1];
+}
+
+void broker_eval_clear_waiters(broker_eval_t *e)
+{
+    free(e->more);
+    e->more = NULL;
+    e->cap_more = 0;
+    e->n_waiters = 0;
+}
+
+void broker_evals_bind_job(broker_evals_t *self, broker_eval_t *e, uint64_t job_id)
+{
+    assert(e->job_id == 0 && job_id != 0);
+    e->job_id = job_id;
+    broker_table_put(self->by_job, &e->job_id, sizeof e->job_id, e);
+}
+
+void broker_evals_unbind_job(broker_evals_t *self, broker_eval_t *e)
+{
+    if (e->job_id == 0)
+        return;
+    void *was = broker_table_delete(self->by_job, &e->job_id, sizeof e->job_id);
+    assert(was == e);
+    (void)was;
+    e->job_id = 0;
+}
+
+broker_eval_t *broker_evals_by_job(const broker_evals_t *self, uint64_t job_id)
+{
+    return broker_table_get(self->by_job, &job_id, sizeof job_id);
+}
+
+void broker_evals_orphan_add(broker_evals_t *self, uint64_t job_id, broker_eval_t *e)
+{
+    s_orphan_t *o = common_xmalloc(sizeof *o);
+    o->job_id = job_id;
+    o->eval = e;
+    s_orphan_t *prev = broker_table_put(self->orphans, &o->job_id, sizeof o->job_id, o);
+    free(prev);
+}
+
+broker_eval_t *broker_evals_orphan_take(broker_evals_t *self, uint64_t job_id)
+{
+    s_orphan_t *o = broker_table_delete(self->orphans, &job_id, sizeof job_id);
+    if (!o)
+        return NULL;
+    broker_eval_t *e = o->eval;
+    free(o);
+    return e;
+}
+
+void broker_eval_set_result(broker_evals_t *self, broker_eval_t *e, uint32_t status,
+                            const double *fitness, uint32_t n_fitness, const char *error)
+{
+    assert(e->state != BROKER_EVAL_DONE && e->job_id == 0 && e->worker == NULL);
+    free(e->fitness);
+    free(e->error);
+    e->fitness = NULL;
+    e->error = NULL;
+    e->n_fitness = n_fitness;
+    if (n_fitness)
+        e->fitness = common_xmemdup(fitness, (size_t)n_fitness * sizeof *fitness);
+    if (error && *error)
+        e->error = common_xstrdup(error);
+    e->status = (uint8_t)status;
+    e->state = BROKER_EVAL_DONE;
+    e->prev = e->next = NULL;
+    self->n_done++;
+}
+
+void broker_eval_reset(broker_eval_t *e)
+{
+    assert(e->state == BROKER_EVAL_DONE);
+    free(e->fitness);
+    free(e->error);
+    e->fitness = NULL;
+    e->error = NULL;
+    e->n_fitness = 0;
+    e->attempts = 0;
+    e->avoid_worker = 0;
+    e->state = BROKER_EVAL_QUEUED;
+}
+
+int broker_eval_check(const broker_evals_t *self, const broker_eval_t *e)
+{
+    if (broker_evals_get(self, e->key) != e)
+        return 0;
+    switch (e->state) {
+    case BROKER_EVAL_QUEUED:
+        return e->job_id == 0 && e->worker == NULL && e->n_waiters >= 1 && e->home != NULL;
+    case BROKER_EVAL_RUNNING:
+        return e->job_id != 0 && broker_evals_by_job(self, e->job_id) == e && e->worker != NULL &&
+               e->n_waiters >= 1;
+    case BROKER_EVAL_DONE:
+        return e->job_id == 0 && e->worker == NULL && e->n_waiters == 0;
+    default:
+        return 0;
+    }
+}

@@ -1,0 +1,118 @@
+/* evals.h: the evaluation table, keyed by content key. One evaluation per key
+ * ever seen: its state, its result once DONE (the in-memory result cache), the
+ * requests (run, tag) waiting on it (single flight, also across runs), and the
+ * retry accounting. Also the job-id index of dispatched evaluations, and the
+ * "orphan" index of job ids whose worker was dropped (so a late result can
+ * still be accepted once).
+ *
+ * Job lifecycle (one evaluation; "job" is one dispatch of it):
+ *
+ *   state    | where it sits                    | entered by                        | what holds
+ *   ---------+----------------------------------+-----------------------------------+-------------------------------
+ *   QUEUED   | its home run's queue for its     | broker_client_submit (new key, or | job_id 0, worker NULL,
+ *            | plugin (runs.h)                  | DONE + no-cache); broker_dispatch_ | n_waiters >= 1, counted in
+ *            |                                  | requeue (worker dropped: front;   | home->n_queued
+ *            |                                  | CRASHED/TIMEOUT under --attempts) |
+ *   RUNNING  | its worker's held list; job-id   | broker_dispatch_turn (fresh job   | job_id != 0 and indexed,
+ *            | index                            | id per dispatch, same seed)       | worker != NULL, counted in
+ *            |                                  |                                   | worker->held, home->n_running
+ *   DONE     | only the key table (cache)       | broker_dispatch_complete (OK,     | result set, n_waiters 0,
+ *            |                                  | INVALID, FAILED; CRASHED/TIMEOUT  | job_id 0, in no list
+ *            |                                  | at the last attempt; a late       |
+ *            |                                  | orphan result)                    |
+ *
+ * Never DONE twice without passing through QUEUED: a result for a stale job
+ * id of a DONE evaluation is ignored, so no request is answered twice.
+ *
+ * Not here: queue order and fairness (runs.h), sending (dispatch.c). */
+#ifndef BROKER_EVALS_H
+#define BROKER_EVALS_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "catalog.h"
+#include "limits.h"
+#include "table.h"
+
+struct broker_run;
+struct broker_worker;
+
+typedef enum { BROKER_EVAL_QUEUED = 0, BROKER_EVAL_RUNNING = 1, BROKER_EVAL_DONE = 2 } broker_eval_state_t;
+
+typedef struct {
+    struct broker_run *run;
+    uint64_t tag;
+} broker_waiter_t;
+
+typedef struct broker_eval {
+    uint8_t key[PROTO_KEY_BYTES];
+    uint8_t state;    /* broker_eval_state_t */
+    uint8_t status;   /* proto_status_t once DONE */
+    uint16_t attempts;/* dispatches that ended CRASHED or TIMEOUT */
+    uint64_t job_id;  /* current dispatch; 0 when not RUNNING */
+    uint64_t seed;
+    uint64_t avoid_worker; /* serial of the worker it last crashed on, 0 = none */
+    uint64_t qseq;         /* enqueue order: oldest-first across plugin queues */
+    broker_plugin_t *plugin; /* borrowed from the catalog */
+    const char *params;      /* borrowed, interned (broker_intern) */
+    struct broker_run *home; /* run whose queue it is charged to */
+    struct broker_worker *worker;
+    struct broker_eval *prev, *next; /* run queue when QUEUED, worker list when RUNNING */
+    /* waiters: the first inline (the common case), the rest in more[] */
+    broker_waiter_t w0;
+    broker_waiter_t *more;
+    uint32_t n_waiters, cap_more;
+    /* result */
+    uint32_t n_fitness;
+    double *fitness;
+    char *error; /* NULL = "" */
+    uint32_t genome_len;
+    uint8_t genome[]; /* copied in; the evaluation owns it */
+} broker_eval_t;
+
+typedef struct {
+    broker_table_t *by_key;
+    broker_table_t *by_job;    /* job id -> RUNNING evaluation */
+    broker_table_t *orphans;   /* job id -> evaluation, for dropped workers' jobs */
+    uint64_t n_done;
+} broker_evals_t;
+
+void broker_evals_init(broker_evals_t *self);
+/* Frees every evaluation and index. */
+void broker_evals_fini(broker_evals_t *self);
+
+/* Borrowed, valid until fini; NULL if the key was never seen. */
+broker_eval_t *broker_evals_get(const broker_evals_t *self, const uint8_t key[PROTO_KEY_BYTES]);
+/* New QUEUED evaluation with no waiters, indexed by key (which must be new);
+ * not yet in any queue. Borrowed, valid until fini. */
+broker_eval_t *broker_evals_new(broker_evals_t *self, const uint8_t key[PROTO_KEY_BYTES],
+                                broker_plugin_t *plugin, const char *params, uint64_t seed,
+                                const uint8_t *genome, uint32_t genome_len);
+
+void broker_eval_add_waiter(broker_eval_t *e, struct broker_run *run, uint64_t tag);
+/* Waiter i (0-based, < n_waiters). */
+broker_waiter_t *broker_eval_waiter(broker_eval_t *e, uint32_t i);
+void broker_eval_clear_waiters(broker_eval_t *e);
+
+/* RUNNING bookkeeping: index e under job_id / remove its current job id. */
+void broker_evals_bind_job(broker_evals_t *self, broker_eval_t *e, uint64_t job_id);
+void broker_evals_unbind_job(broker_evals_t *self, broker_eval_t *e);
+broker_eval_t *broker_evals_by_job(const broker_evals_t *self, uint64_t job_id);
+
+/* Remembers job_id (of a dropped worker's dispatch) as pointing at e. */
+void broker_evals_orphan_add(broker_evals_t *self, uint64_t job_id, broker_eval_t *e);
+/* Removes and returns the orphan under job_id, or NULL. */
+broker_eval_t *broker_evals_orphan_take(broker_evals_t *self, uint64_t job_id);
+
+/* Stores the final result (copies fitness and error) and marks e DONE. The
+ * waiters are kept: the caller answers them, then broker_eval_clear_waiters. */
+void broker_eval_set_result(broker_evals_t *self, broker_eval_t *e, uint32_t status,
+                            const double *fitness, uint32_t n_fitness, const char *error);
+/* Forgets the stored result: back to QUEUED for a no-cache request. */
+void broker_eval_reset(broker_eval_t *e);
+
+/* Invariants of one evaluation per the state table above. */
+int broker_eval_check(const broker_evals_t *self, const broker_eval_t *e);
+
+#endif

@@ -1,0 +1,205 @@
+/* loop.c: broker_main_run, the one thread and its one zmq_poll loop. Each
+ * turn: time-out from the nearest timer; at most BROKER_MSGS_PER_TURN messages
+ * per socket (so neither starves the other); the due timers; then the
+ * before-sleep step: dispatch queued jobs (one JOBS message per worker),
+ * commit the store (the seam in store.h), and only then send ACCEPTED and the
+ * batched RESULTS. Owns the sockets, the signal flag and the endpoints file. */
+#include <errno.h>
+#include <inttypes.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+#include <zmq.h>
+
+#include "broker.h"
+#include "client_io.h"
+#include "common/clock.h"
+#include "common/log.h"
+#include "core.h"
+#include "dispatch.h"
+#include "envelope.h"
+#include "worker_io.h"
+
+static volatile sig_atomic_t s_stop;
+
+static void s_on_signal(int sig)
+{
+    (void)sig;
+    s_stop = 1;
+}
+
+static void *s_bind(void *ctx, const char *endpoint, const char *role, char *bound, size_t n)
+{
+    void *sock = zmq_socket(ctx, ZMQ_ROUTER);
+    if (!sock) {
+        LOG_ERROR("cannot create the %s socket: %s", role, zmq_strerror(errno));
+        return NULL;
+    }
+    int zero = 0, hwm = BROKER_HWM;
+    int64_t maxmsg = PROTO_MAX_MESSAGE_BYTES;
+    zmq_setsockopt(sock, ZMQ_ROUTER_MANDATORY, &zero, sizeof zero);
+    zmq_setsockopt(sock, ZMQ_LINGER, &zero, sizeof zero);
+    zmq_setsockopt(sock, ZMQ_MAXMSGSIZE, &maxmsg, sizeof maxmsg);
+    zmq_setsockopt(sock, ZMQ_SNDHWM, &hwm, sizeof hwm);
+    zmq_setsockopt(sock, ZMQ_RCVHWM, &hwm, sizeof hwm);
+    if (zmq_bind(sock, endpoint) != 0) {
+        LOG_ERROR("cannot bind the %s endpoint %s: %s", role, endpoint, zmq_strerror(errno));
+        zmq_close(sock);
+        return NULL;
+    }
+    size_t len = n;
+    if (zmq_getsockopt(sock, ZMQ_LAST_ENDPOINT, bound, &len) != 0)
+        snprintf(bound, n, "%s", endpoint);
+    LOG_INFO("listening for %s on %s", role, bound);
+    return sock;
+}
+
+static int s_write_endpoints(const char *path, const char *clients, const char *workers)
+{
+    char tmp[4096];
+    int rc = -1;
+    snprintf(tmp, sizeof tmp, "%s.tmp.%ld", path, (long)getpid());
+    FILE *f = fopen(tmp, "w");
+    if (!f)
+        goto cleanup;
+    int ok = fprintf(f, "clients %s\nworkers %s\n", clients, workers) > 0;
+    ok &= fflush(f) == 0 && fsync(fileno(f)) == 0;
+    ok &= fclose(f) == 0;
+    if (!ok || rename(tmp, path) != 0) {
+        unlink(tmp);
+        goto cleanup;
+    }
+    rc = 0;
+cleanup:
+    if (rc != 0)
+        LOG_ERROR("cannot write the endpoints file %s: %s", path, strerror(errno));
+    return rc;
+}
+
+/* Handles up to BROKER_MSGS_PER_TURN waiting messages on one socket. */
+static void s_drain(broker_t *b, void *sock, int workers)
+{
+    for (int i = 0; i < BROKER_MSGS_PER_TURN; i++) {
+        uint8_t rid[BROKER_RID_MAX];
+        size_t rid_len = 0;
+        zmq_msg_t body;
+        int got = broker_envelope_recv(sock, workers ? "worker" : "client", rid, &rid_len, &body);
+        if (got == 0)
+            break;
+        if (got < 0) {
+            b->dropped_msgs++;
+            continue;
+        }
+        const uint8_t *data = zmq_msg_data(&body);
+        size_t len = zmq_msg_size(&body);
+        if (workers)
+            broker_worker_on_message(b, rid, rid_len, data, len);
+        else
+            broker_client_on_message(b, rid, rid_len, data, len);
+        zmq_msg_close(&body);
+    }
+}
+
+static void s_before_sleep(broker_t *b)
+{
+    if (!b->stopping)
+        broker_dispatch_turn(b);
+    if (broker_store_commit(b->store) != 0) {
+        /* Nothing that depends on this turn may go out; it stays queued. */
+        LOG_ERROR("store commit failed; holding this turn's replies");
+        return;
+    }
+    broker_client_flush(b);
+}
+
+int broker_main_run(const broker_config_t *config)
+{
+    int rc = 1;
+    broker_t b;
+    char clients_ep[512] = "", workers_ep[512] = "";
+    struct sigaction sa, old_term, old_int;
+
+    if (!config || !config->clients_endpoint || !config->workers_endpoint) {
+        LOG_ERROR("both a clients and a workers endpoint are required");
+        return 1;
+    }
+    common_log_set_tag("broker");
+    broker_core_init(&b, config->liveness_ms, config->heartbeat_ms, config->attempts,
+                     config->store_dir);
+    b.now_ms = common_clock_ms();
+
+    s_stop = 0;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = s_on_signal;
+    sigemptyset(&sa.sa_mask);
+    sigaction(SIGTERM, &sa, &old_term);
+    sigaction(SIGINT, &sa, &old_int);
+
+    b.ctx = zmq_ctx_new();
+    if (!b.ctx) {
+        LOG_ERROR("cannot create a ZeroMQ context: %s", zmq_strerror(errno));
+        goto cleanup;
+    }
+    b.clients = s_bind(b.ctx, config->clients_endpoint, "clients", clients_ep, sizeof clients_ep);
+    if (!b.clients)
+        goto cleanup;
+    b.workers = s_bind(b.ctx, config->workers_endpoint, "workers", workers_ep, sizeof workers_ep);
+    if (!b.workers)
+        goto cleanup;
+    if (config->endpoints_file &&
+        s_write_endpoints(config->endpoints_file, clients_ep, workers_ep) != 0)
+        goto cleanup;
+    LOG_INFO("broker ready: liveness %d ms, heartbeat %d ms, %u attempts per job",
+             b.liveness_ms, b.heartbeat_ms, b.attempts);
+
+    broker_worker_timers_start(&b);
+    zmq_pollitem_t items[2] = {
+        {.socket = b.clients, .events = ZMQ_POLLIN},
+        {.socket = b.workers, .events = ZMQ_POLLIN},
+    };
+    while (!s_stop) {
+        b.now_ms = common_clock_ms();
+        long timeout = broker_timers_timeout(&b.timers, b.now_ms);
+        if (zmq_poll(items, 2, timeout) < 0) {
+            if (errno == EINTR)
+                continue;
+            LOG_ERROR("zmq_poll failed: %s", zmq_strerror(errno));
+            goto cleanup;
+        }
+        b.now_ms = common_clock_ms();
+        if (items[0].revents & ZMQ_POLLIN)
+            s_drain(&b, b.clients, 0);
+        if (items[1].revents & ZMQ_POLLIN)
+            s_drain(&b, b.workers, 1);
+        broker_timers_run(&b.timers, b.now_ms);
+        s_before_sleep(&b);
+    }
+    /* Stop accepting; what this process owes goes out before the sockets close. */
+    b.stopping = 1;
+    s_before_sleep(&b);
+    LOG_INFO("broker stopping: %" PRIu64 " jobs sent, %" PRIu64 " results sent, %" PRIu64
+             " messages dropped",
+             b.jobs_sent, b.results_sent, b.dropped_msgs);
+    rc = 0;
+
+cleanup:
+    if (b.clients || b.workers) {
+        int linger = rc == 0 ? 200 : 0; /* a short grace for the final flush */
+        if (b.clients) {
+            zmq_setsockopt(b.clients, ZMQ_LINGER, &linger, sizeof linger);
+            zmq_close(b.clients);
+        }
+        if (b.workers) {
+            zmq_setsockopt(b.workers, ZMQ_LINGER, &linger, sizeof linger);
+            zmq_close(b.workers);
+        }
+    }
+    if (b.ctx)
+        zmq_ctx_term(b.ctx);
+    broker_core_fini(&b);
+    sigaction(SIGTERM, &old_term, NULL);
+    sigaction(SIGINT, &old_int, NULL);
+    return rc;
+}

@@ -1,0 +1,336 @@
+/* runs.c: runs, their queues, round-robin fairness and delivery bookkeeping
+ * (see runs.h). Owns run records, queue arrays, outboxes and delivery nodes
+ * (recycled through a free list: one per result in flight, so no malloc per
+ * result in the steady state). Borrows evaluations. */
+#include "runs.h"
+
+#include <assert.h>
+#include <inttypes.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "common/alloc.h"
+#include "common/log.h"
+#include "msg.h"
+
+void broker_runs_init(broker_runs_t *self)
+{
+    memset(self, 0, sizeof *self);
+    self->by_id = broker_table_new();
+}
+
+void broker_runs_fini(broker_runs_t *self)
+{
+    size_t cur = 0;
+    broker_run_t *run;
+    while ((run = broker_table_next(self->by_id, &cur))) {
+        size_t c2 = 0;
+        broker_delivery_t *d;
+        while ((d = broker_table_next(run->unacked, &c2)))
+            free(d);
+        broker_table_destroy(&run->unacked);
+        free(run->outbox);
+        free(run->queues);
+        free(run->id);
+        free(run);
+    }
+    broker_table_destroy(&self->by_id);
+    while (self->free_nodes) {
+        broker_delivery_t *d = self->free_nodes;
+        self->free_nodes = d->free_next;
+        free(d);
+    }
+    memset(self, 0, sizeof *self);
+}
+
+broker_run_t *broker_runs_get(const broker_runs_t *self, const char *id)
+{
+    return broker_table_get(self->by_id, id, strlen(id));
+}
+
+broker_run_t *broker_runs_new(broker_runs_t *self, const char *id, uint64_t seed,
+                              uint32_t seed_mode)
+{
+    assert(!broker_runs_get(self, id));
+    broker_run_t *run = common_xcalloc(1, sizeof *run);
+    run->id = common_xstrdup(id);
+    run->seed = seed;
+    run->seed_mode = seed_mode;
+    run->unacked = broker_table_new();
+    broker_table_put(self->by_id, run->id, strlen(run->id), run);
+    return run;
+}
+
+void broker_run_set_client(broker_run_t *run, const uint8_t *rid, size_t rid_len)
+{
+    assert(rid_len <= BROKER_RID_MAX);
+    memcpy(run->client, rid, rid_len);
+    run->client_len = (uint8_t)rid_len;
+}
+
+/* ---- the ring of runs with queued work ---------------------------------- */
+
+static void s_ring_insert(broker_runs_t *self, broker_run_t *run)
+{
+    if (run->in_rr)
+        return;
+    if (!self->rr_cursor) {
+        run->rr_prev = run->rr_next = run;
+        self->rr_cursor = run;
+    } else {
+        /* Just before the cursor: a newcomer waits for the current round. */
+        broker_run_t *c = self->rr_cursor;
+        run->rr_next = c;
+        run->rr_prev = c->rr_prev;
+        c->rr_prev->rr_next = run;
+        c->rr_prev = run;
+    }
+    run->in_rr = 1;
+    self->n_active++;
+}
+
+static void s_ring_remove(broker_runs_t *self, broker_run_t *run)
+{
+    if (!run->in_rr)
+        return;
+    if (run->rr_next == run) {
+        self->rr_cursor = NULL;
+    } else {
+        run->rr_prev->rr_next = run->rr_next;
+        run->rr_next->rr_prev = run->rr_prev;
+        if (self->rr_cursor == run)
+            self->rr_cursor = run->rr_next;
+    }
+    run->rr_prev = run->rr_next = NULL;
+    run->in_rr = 0;
+    self->n_active--;
+}
+
+/* ---- queues ------------------------------------------------------------- */
+
+static broker_queue_t *s_queue(broker_run_t *run, broker_plugin_t *plugin, int create)
+{
+    for (uint32_t i = 0; i < run->n_queues; i++)
+        if (run->queues[i].plugin == plugin)
+            return &run->queues[i];
+    if (!create)
+        return NULL;
+    run->queues = common_xrealloc(run->queues, (size_t)run->n_queues + 1, sizeof *run->queues);
+    broker_queue_t *q = &run->queues[run->n_queues++];
+    q->plugin = plugin;
+    q->head = q->tail = NULL;
+    return q;
+}
+
+void broker_runs_enqueue(broker_runs_t *self, broker_run_t *run, broker_eval_t *e, int front)
+{
+    assert(e->state == BROKER_EVAL_QUEUED && e->prev == NULL && e->next == NULL);
+    broker_queue_t *q = s_queue(run, e->plugin, 1);
+    e->home = run;
+    if (front) {
+        e->qseq = (uint64_t)(-(++self->front_seq));
+        e->next = q->head;
+        if (q->head)
+            q->head->prev = e;
+        else
+            q->tail = e;
+        q->head = e;
+    } else {
+        e->qseq = (uint64_t)(++self->back_seq);
+        e->prev = q->tail;
+        if (q->tail)
+            q->tail->next = e;
+        else
+            q->head = e;
+        q->tail = e;
+    }
+    run->n_queued++;
+    self->total_queued++;
+    s_ring_insert(self, run);
+}
+
+void broker_runs_unqueue(broker_runs_t *self, broker_eval_t *e)
+{
+    broker_run_t *run = e->home;
+    broker_queue_t *q = s_queue(run, e->plugin, 0);
+    assert(q && e->state == BROKER_EVAL_QUEUED);
+    if (e->prev)
+        e->prev->next = e->next;
+    else
+        q->head = e->next;
+    if (e->next)
+        e->next->prev = e->prev;
+    else
+        q->tail = e->prev;
+    e->prev = e->next = NULL;
+    assert(run->n_queued > 0 && self->total_queued > 0);
+    run->n_queued--;
+    self->total_queued--;
+    if (run->n_queued == 0)
+        s_ring_remove(self, run);
+}
+
+/* qseq as a signed order: front-pushed jobs are negative, newest front first. */
+static int64_t s_order(const broker_eval_t *e)
+{
+    return (int64_t)e->qseq;
+}
+
+static broker_eval_t *s_oldest_for(broker_run_t *run, const broker_worker_t *w)
+{
+    broker_eval_t *best = NULL;
+    for (uint32_t i = 0; i < run->n_queues; i++) {
+        broker_queue_t *q = &run->queues[i];
+        broker_eval_t *e = q->head;
+        if (!e || !broker_worker_carries(w, q->plugin))
+            continue;
+        if (e->avoid_worker == w->serial && q->plugin->carriers > 1)
+            continue;
+        if (!best || s_order(e) < s_order(best))
+            best = e;
+    }
+    return best;
+}
+
+broker_eval_t *broker_runs_pick(broker_runs_t *self, const broker_worker_t *w)
+{
+    for (uint32_t i = 0, n = self->n_active; i < n && self->rr_cursor; i++) {
+        broker_run_t *run = self->rr_cursor;
+        self->rr_cursor = run->rr_next;
+        broker_eval_t *e = s_oldest_for(run, w);
+        if (e) {
+            broker_runs_unqueue(self, e);
+            return e;
+        }
+    }
+    return NULL;
+}
+
+/* ---- delivery ----------------------------------------------------------- */
+
+static void s_outbox_push(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
+                          int cached)
+{
+    if (run->n_outbox == run->cap_outbox) {
+        run->cap_outbox = run->cap_outbox ? run->cap_outbox * 2 : 64;
+        run->outbox = common_xrealloc(run->outbox, run->cap_outbox, sizeof *run->outbox);
+    }
+    broker_delivery_t *d = &run->outbox[run->n_outbox++];
+    d->tag = tag;
+    d->eval = e;
+    d->cached = (uint8_t)(cached != 0);
+    d->free_next = NULL;
+    if (!run->dirty) {
+        run->dirty = 1;
+        run->dirty_next = self->dirty_head;
+        self->dirty_head = run;
+    }
+}
+
+void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
+                        int cached)
+{
+    assert(e->state == BROKER_EVAL_DONE || cached == 0);
+    s_outbox_push(self, run, tag, e, cached);
+    run->n_answered++;
+    run->p_answered++;
+    if (cached)
+        run->p_cached++;
+    else
+        run->p_evaluated++;
+    if (e->status != PROTO_STATUS_OK)
+        run->p_failed++;
+    assert(run->outstanding > 0);
+    run->outstanding--;
+    if (run->outstanding == 0) {
+        LOG_INFO("run %s idle: %" PRIu64 " requests answered (%" PRIu64 " evaluated, %" PRIu64
+                 " cached, %" PRIu64 " failed)",
+                 run->id, run->p_answered, run->p_evaluated, run->p_cached, run->p_failed);
+        run->p_answered = run->p_evaluated = run->p_cached = run->p_failed = 0;
+    }
+}
+
+size_t broker_runs_resend(broker_runs_t *self, broker_run_t *run)
+{
+    size_t cur = 0, n = 0;
+    broker_delivery_t *d;
+    while ((d = broker_table_next(run->unacked, &cur))) {
+        s_outbox_push(self, run, d->tag, d->eval, d->cached);
+        n++;
+    }
+    return n;
+}
+
+broker_run_t *broker_runs_take_dirty(broker_runs_t *self)
+{
+    broker_run_t *run = self->dirty_head;
+    if (run) {
+        self->dirty_head = run->dirty_next;
+        run->dirty_next = NULL;
+        run->dirty = 0;
+    }
+    return run;
+}
+
+void broker_runs_sent(broker_runs_t *self, broker_run_t *run)
+{
+    for (uint32_t i = 0; i < run->n_outbox; i++) {
+        const broker_delivery_t *o = &run->outbox[i];
+        broker_delivery_t *d = broker_table_get(run->unacked, &o->tag, sizeof o->tag);
+        if (!d) {
+            d = self->free_nodes;
+            if (d)
+                self->free_nodes = d->free_next;
+            else
+                d = common_xmalloc(sizeof *d);
+            d->tag = o->tag;
+            broker_table_put(run->unacked, &d->tag, sizeof d->tag, d);
+        }
+        d->eval = o->eval;
+        d->cached = o->cached;
+        d->free_next = NULL;
+    }
+    run->n_outbox = 0;
+}
+
+int broker_runs_ack(broker_runs_t *self, broker_run_t *run, uint64_t tag)
+{
+    broker_delivery_t *d = broker_table_delete(run->unacked, &tag, sizeof tag);
+    if (!d)
+        return 0;
+    d->free_next = self->free_nodes;
+    self->free_nodes = d;
+    return 1;
+}
+
+int broker_runs_check(const broker_runs_t *self)
+{
+    uint32_t n = 0;
+    uint64_t queued = 0;
+    const broker_run_t *r = self->rr_cursor;
+    if (r) {
+        do {
+            if (!r->in_rr || r->n_queued == 0 || r->rr_next->rr_prev != r)
+                return 0;
+            n++;
+            r = r->rr_next;
+        } while (r != self->rr_cursor && n <= self->n_active);
+    }
+    if (n != self->n_active)
+        return 0;
+    size_t cur = 0;
+    broker_run_t *run;
+    while ((run = broker_table_next(self->by_id, &cur))) {
+        uint64_t in_queues = 0;
+        for (uint32_t i = 0; i < run->n_queues; i++)
+            for (const broker_eval_t *e = run->queues[i].head; e; e = e->next) {
+                if (e->home != run || e->state != BROKER_EVAL_QUEUED)
+                    return 0;
+                in_queues++;
+            }
+        if (in_queues != run->n_queued || (run->n_queued > 0) != (run->in_rr != 0))
+            return 0;
+        queued += in_queues;
+    }
+    return queued == self->total_queued;
+}
