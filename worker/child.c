@@ -1,0 +1,244 @@
+/* child.c: one child process of the pool (child.h). Owns the context cache,
+ * the evaluation call, status mapping and per-evaluation measurements. */
+#include "child.h"
+
+#include <math.h>
+#include <signal.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/prctl.h>
+#include <sys/resource.h>
+#include <time.h>
+#include <unistd.h>
+
+#include "common/log.h"
+#include "frame.h"
+
+typedef struct {
+    const worker_plugin_t *plugin; /* NULL: free slot */
+    char *params;
+    void *ctx;
+    fitfarm_plugin_info_t info;
+    uint64_t used; /* LRU stamp */
+} s_context_t;
+
+static s_context_t s_contexts[WORKER_CHILD_CONTEXTS];
+static uint64_t s_clock;
+
+static double s_cpu_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &ts);
+    return (double)ts.tv_sec + (double)ts.tv_nsec * 1e-9;
+}
+
+static void s_context_drop(s_context_t *c)
+{
+    if (!c->plugin)
+        return;
+    c->plugin->plugin->destroy(c->ctx);
+    free(c->params);
+    memset(c, 0, sizeof *c);
+}
+
+/* Finds or creates the context for (plugin, params). Returns it, or NULL with
+ * a sentence in err when create() refuses (not cached: the next job with
+ * other params may be fine, and the same bad params fail fast anyway). */
+static s_context_t *s_context_get(const worker_plugin_t *plugin, const char *params, char *err,
+                                  size_t errlen, int *status)
+{
+    s_context_t *victim = &s_contexts[0];
+    for (size_t i = 0; i < WORKER_CHILD_CONTEXTS; i++) {
+        s_context_t *c = &s_contexts[i];
+        if (c->plugin == plugin && strcmp(c->params, params) == 0) {
+            c->used = ++s_clock;
+            return c;
+        }
+        if (!c->plugin || (victim->plugin && c->used < victim->used))
+            victim = c;
+    }
+    s_context_drop(victim);
+    void *ctx = NULL;
+    fitfarm_plugin_info_t info = {.objectives = plugin->plugin->objectives};
+    err[0] = '\0';
+    int prc = plugin->plugin->create(params, &ctx, &info, err, errlen);
+    err[errlen - 1] = '\0';
+    if (prc != FITFARM_PLUGIN_OK) {
+        if (!err[0])
+            snprintf(err, errlen, "%s: create failed (code %d) without a message",
+                     plugin->plugin->name, prc);
+        /* EFAIL from create is the plugin's trouble, not the request's. */
+        *status = prc == FITFARM_PLUGIN_EFAIL ? PROTO_STATUS_FAILED : PROTO_STATUS_INVALID;
+        plugin->plugin->destroy(ctx);
+        return NULL;
+    }
+    if (info.objectives < 1 || info.objectives > PROTO_MAX_OBJECTIVES) {
+        snprintf(err, errlen, "%s: these params give %u objectives, the limit is %u",
+                 plugin->plugin->name, info.objectives, PROTO_MAX_OBJECTIVES);
+        *status = PROTO_STATUS_INVALID;
+        plugin->plugin->destroy(ctx);
+        return NULL;
+    }
+    victim->plugin = plugin;
+    victim->params = strdup(params);
+    if (!victim->params) {
+        plugin->plugin->destroy(ctx);
+        memset(victim, 0, sizeof *victim);
+        snprintf(err, errlen, "child out of memory");
+        *status = PROTO_STATUS_FAILED;
+        return NULL;
+    }
+    victim->ctx = ctx;
+    victim->info = info;
+    victim->used = ++s_clock;
+    return victim;
+}
+
+/* Evaluates job into out (fitness and error malloc'd). */
+static void s_evaluate(const worker_registry_t *registry, const proto_job_t *job,
+                       proto_outcome_t *out)
+{
+    char err[PROTO_MAX_ERROR_BYTES];
+    double fitness[PROTO_MAX_OBJECTIVES];
+    uint32_t n_fitness = 0;
+    int status = PROTO_STATUS_OK;
+    err[0] = '\0';
+    double cpu0 = s_cpu_seconds();
+
+    const worker_plugin_t *plugin = worker_registry_find(registry, job->plugin);
+    if (!plugin) {
+        char names[512];
+        worker_registry_names(registry, names, sizeof names);
+        snprintf(err, sizeof err, "unknown plugin \"%.128s\" (this worker carries: %s)",
+                 job->plugin, names);
+        status = PROTO_STATUS_INVALID;
+        goto done;
+    }
+    s_context_t *c = s_context_get(plugin, job->params, err, sizeof err, &status);
+    if (!c)
+        goto done;
+    if (c->info.genome_bytes && job->genome_len != c->info.genome_bytes) {
+        snprintf(err, sizeof err, "%s: genome is %u bytes, these params expect %u",
+                 plugin->plugin->name, job->genome_len, c->info.genome_bytes);
+        status = PROTO_STATUS_INVALID;
+        goto done;
+    }
+    for (uint32_t i = 0; i < c->info.objectives; i++)
+        fitness[i] = NAN;
+    /* A zero-length genome has no bytes to point at; give the plugin a valid pointer. */
+    static const uint8_t empty[8];
+    const uint8_t *genome = job->genome_len ? job->genome : empty;
+    int prc = plugin->plugin->evaluate(c->ctx, genome, job->genome_len, job->seed, fitness, err,
+                                       sizeof err);
+    err[sizeof err - 1] = '\0';
+    if (prc == FITFARM_PLUGIN_EINVAL) {
+        status = PROTO_STATUS_INVALID;
+    } else if (prc != FITFARM_PLUGIN_OK) {
+        status = PROTO_STATUS_FAILED;
+        if (prc != FITFARM_PLUGIN_EFAIL && !err[0])
+            snprintf(err, sizeof err, "%s: evaluate returned unknown code %d",
+                     plugin->plugin->name, prc);
+    } else {
+        n_fitness = c->info.objectives;
+        err[0] = '\0';
+        for (uint32_t i = 0; i < n_fitness; i++)
+            if (!isfinite(fitness[i])) {
+                snprintf(err, sizeof err, "objective %u is %s", i,
+                         isnan(fitness[i]) ? "NaN" : "infinite");
+                status = PROTO_STATUS_FAILED;
+                n_fitness = 0;
+                break;
+            }
+    }
+    if (status != PROTO_STATUS_OK && !err[0])
+        snprintf(err, sizeof err, "%s: evaluation %s without a message", plugin->plugin->name,
+                 status == PROTO_STATUS_INVALID ? "refused the request" : "failed");
+done:
+    out->job_id = job->job_id;
+    out->status = (uint32_t)status;
+    out->cpu_seconds = s_cpu_seconds() - cpu0;
+    struct rusage ru;
+    getrusage(RUSAGE_SELF, &ru);
+    out->peak_rss_kb = ru.ru_maxrss > 0 ? (uint64_t)ru.ru_maxrss : 0;
+    out->n_fitness = 0;
+    out->fitness = NULL;
+    if (n_fitness) {
+        out->fitness = malloc(n_fitness * sizeof(double));
+        if (out->fitness) {
+            memcpy(out->fitness, fitness, n_fitness * sizeof(double));
+            out->n_fitness = n_fitness;
+        } else {
+            out->status = PROTO_STATUS_FAILED;
+            snprintf(err, sizeof err, "child out of memory for the fitness vector");
+        }
+    }
+    out->error = strdup(err);
+}
+
+void worker_child_run(int fd, const worker_registry_t *registry, size_t mem_limit_mb,
+                      pid_t parent)
+{
+    prctl(PR_SET_PDEATHSIG, SIGKILL);
+    if (getppid() != parent) /* the parent died before prctl took effect */
+        _exit(0);
+    signal(SIGINT, SIG_IGN);
+    signal(SIGTERM, SIG_IGN);
+    signal(SIGPIPE, SIG_IGN); /* an exec co-process that dies must be an error, not a death */
+    signal(SIGCHLD, SIG_DFL);
+    if (mem_limit_mb > 0) {
+        struct rlimit rl;
+        rl.rlim_cur = rl.rlim_max = (rlim_t)mem_limit_mb * 1024u * 1024u;
+        if (setrlimit(RLIMIT_AS, &rl) != 0)
+            LOG_WARN("cannot limit the address space to %zu MB", mem_limit_mb);
+    }
+    for (;;) {
+        proto_msg_t *msg = NULL;
+        char err[256];
+        int rc = worker_frame_read(fd, &msg, err, sizeof err);
+        if (rc == 1)
+            break;
+        if (rc < 0 || msg->type != PROTO_JOBS || msg->u.jobs.n_jobs != 1) {
+            LOG_ERROR("child %d: bad frame from the worker: %s", (int)getpid(),
+                      rc < 0 ? err : "not one job");
+            proto_msg_destroy(&msg);
+            _exit(2);
+        }
+        proto_outcome_t outcome;
+        s_evaluate(registry, &msg->u.jobs.jobs[0], &outcome);
+        proto_msg_destroy(&msg);
+        proto_msg_t reply = {.type = PROTO_DONE};
+        reply.u.done.credits = 0;
+        reply.u.done.n_outcomes = 1;
+        reply.u.done.outcomes = &outcome;
+        if (!outcome.error) {
+            /* strdup failed: out of memory under the address-space limit. */
+            outcome.error = (char *)"child out of memory";
+            outcome.status = PROTO_STATUS_FAILED;
+            free(outcome.fitness);
+            outcome.fitness = NULL;
+            outcome.n_fitness = 0;
+            rc = worker_frame_write(fd, &reply);
+            outcome.error = NULL;
+        } else {
+            rc = worker_frame_write(fd, &reply);
+        }
+        free(outcome.fitness);
+        free(outcome.error);
+        if (rc != 0)
+            _exit(3);
+        /* A plugin that ran up against the address-space limit may have left
+         * the heap full (leaks, fragmentation): start afresh rather than fail
+         * the next, innocent job. The parent respawns an idle child that left. */
+        if (mem_limit_mb > 0) {
+            struct rusage ru;
+            getrusage(RUSAGE_SELF, &ru);
+            if ((uint64_t)ru.ru_maxrss >= (uint64_t)mem_limit_mb * 1024u * 3u / 4u)
+                break;
+        }
+    }
+    for (size_t i = 0; i < WORKER_CHILD_CONTEXTS; i++)
+        s_context_drop(&s_contexts[i]);
+    _exit(0);
+}

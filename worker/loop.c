@@ -1,0 +1,536 @@
+/* loop.c: the worker daemon's reactor and worker_main_run (worker.h).
+ *
+ * One thread, one zmq_poll over the broker's DEALER socket and the children's
+ * sockets. Each turn: read a bounded number of broker messages, collect
+ * finished jobs from the pool, hand queued jobs to idle children, then send
+ * every outcome finished this turn in one DONE that also grants the credits
+ * prefetch wants (credits.c), heartbeat, and re-register if the broker has
+ * been silent past the liveness window. Signal handlers only count signals;
+ * the loop drains on the first SIGTERM/SIGINT (no new credits, running jobs
+ * finish and are reported, queued ones are handed back with BYE) and stops at
+ * once on the second. Not here: plugin loading (registry.c), children
+ * (pool.c), prefetch arithmetic (credits.c), flags (main.c). */
+#include <errno.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/utsname.h>
+#include <unistd.h>
+#include <zmq.h>
+
+#include "common/alloc.h"
+#include "common/clock.h"
+#include "common/log.h"
+#include "credits.h"
+#include "msg.h"
+#include "pool.h"
+#include "registry.h"
+#include "worker.h"
+
+#define S_MAX_MESSAGES_PER_TURN 64 /* broker messages read per turn: children are not starved */
+#define S_MAX_OUTCOMES_PER_DONE 10000u
+#define S_CLOSE_LINGER_MS 2000 /* time the last DONE and BYE get to leave */
+
+static volatile sig_atomic_t s_stop_signals;
+
+static void s_on_stop_signal(int sig)
+{
+    (void)sig;
+    if (s_stop_signals < 2)
+        s_stop_signals++;
+}
+
+typedef struct {
+    worker_config_t config;
+    char name[PROTO_MAX_NAME_BYTES];
+    char host[PROTO_MAX_NAME_BYTES];
+    char arch[PROTO_MAX_NAME_BYTES];
+    worker_registry_t *registry;
+    worker_pool_t *pool;
+    void *ctx;
+    void *sock;
+    worker_credits_t credits;
+    /* Jobs in hand, not started: FIFO [head, count) of jobs we own. */
+    proto_job_t *queue;
+    size_t head, count, cap;
+    /* Finished, not yet sent. */
+    worker_pool_result_t *done;
+    size_t n_done, cap_done;
+    int64_t next_heartbeat_ms;
+    int64_t last_heard_ms;
+    int draining;
+    uint64_t evaluated;
+} s_worker_t;
+
+static size_t s_queued(const s_worker_t *self)
+{
+    return self->count - self->head;
+}
+
+static size_t s_held(const s_worker_t *self)
+{
+    return s_queued(self) + worker_pool_busy(self->pool);
+}
+
+static void s_free_job(proto_job_t *j)
+{
+    free(j->plugin);
+    free(j->params);
+    free(j->genome);
+    memset(j, 0, sizeof *j);
+}
+
+static int s_send(s_worker_t *self, const proto_msg_t *msg)
+{
+    uint8_t *buf = NULL;
+    size_t len = 0;
+    int rc = proto_msg_encode(msg, &buf, &len);
+    if (rc != PROTO_OK) {
+        LOG_ERROR("cannot encode %s (error %d); not sent", proto_type_name((int)msg->type), rc);
+        return -1;
+    }
+    rc = zmq_send(self->sock, buf, len, ZMQ_DONTWAIT) < 0 ? -1 : 0;
+    if (rc != 0)
+        LOG_DEBUG("%s not sent: %s", proto_type_name((int)msg->type), zmq_strerror(zmq_errno()));
+    free(buf);
+    return rc;
+}
+
+static void s_send_simple(s_worker_t *self, int type)
+{
+    proto_msg_t msg = {.type = (uint32_t)type};
+    s_send(self, &msg);
+}
+
+static void s_grant(s_worker_t *self)
+{
+    if (self->draining)
+        return;
+    uint32_t want = worker_credits_want(&self->credits, s_held(self));
+    if (want == 0)
+        return;
+    proto_msg_t msg = {.type = PROTO_CREDIT};
+    msg.u.credit.credits = want;
+    if (s_send(self, &msg) == 0)
+        worker_credits_granted(&self->credits, want, common_clock_us());
+}
+
+/* HELLO, then credits for all the capacity not currently held. Jobs held from
+ * before are still reported; a broker that does not know them ignores them. */
+static void s_register(s_worker_t *self)
+{
+    size_t n = worker_registry_count(self->registry);
+    proto_plugin_info_t *infos = common_xcalloc(n ? n : 1, sizeof *infos);
+    for (size_t i = 0; i < n; i++) {
+        const worker_plugin_t *p = worker_registry_at(self->registry, i);
+        /* The encoder only reads these strings. */
+        infos[i].name = (char *)p->plugin->name;
+        infos[i].version = (char *)p->plugin->version;
+        infos[i].objectives = p->plugin->objectives;
+        infos[i].flags =
+            (p->plugin->flags & FITFARM_PLUGIN_DETERMINISTIC) ? PROTO_PLUGIN_DETERMINISTIC : 0;
+        memcpy(infos[i].digest, p->digest, PROTO_DIGEST_BYTES);
+    }
+    proto_msg_t msg = {.type = PROTO_HELLO};
+    msg.u.hello.name = self->name;
+    msg.u.hello.host = self->host;
+    msg.u.hello.arch = self->arch;
+    msg.u.hello.slots = worker_pool_slots(self->pool);
+    msg.u.hello.n_plugins = (uint32_t)n;
+    msg.u.hello.plugins = infos;
+    s_send(self, &msg);
+    free(infos);
+    worker_credits_reset(&self->credits);
+    s_grant(self);
+}
+
+static void s_on_jobs(s_worker_t *self, proto_msg_t *msg)
+{
+    proto_jobs_t *jobs = &msg->u.jobs;
+    worker_credits_jobs(&self->credits, jobs->n_jobs, common_clock_us());
+    if (self->count + jobs->n_jobs > self->cap) {
+        /* Compact before growing. */
+        memmove(self->queue, self->queue + self->head, s_queued(self) * sizeof *self->queue);
+        self->count -= self->head;
+        self->head = 0;
+        if (self->count + jobs->n_jobs > self->cap) {
+            self->cap = self->count + jobs->n_jobs + 64;
+            self->queue = common_xrealloc(self->queue, self->cap, sizeof *self->queue);
+        }
+    }
+    for (uint32_t i = 0; i < jobs->n_jobs; i++) {
+        /* Take the job's strings over; the message then frees NULLs. */
+        self->queue[self->count++] = jobs->jobs[i];
+        memset(&jobs->jobs[i], 0, sizeof jobs->jobs[i]);
+    }
+    LOG_DEBUG("%u jobs arrived; %zu queued, %u running", jobs->n_jobs, s_queued(self),
+              worker_pool_busy(self->pool));
+}
+
+static void s_on_message(s_worker_t *self, const uint8_t *buf, size_t len)
+{
+    proto_msg_t *msg = NULL;
+    proto_err_t err = {0};
+    if (proto_msg_decode(buf, len, NULL, &msg, &err) != PROTO_OK) {
+        LOG_WARN("dropped an undecodable message from the broker: %s", err.text);
+        return;
+    }
+    self->last_heard_ms = common_clock_ms();
+    switch (msg->type) {
+    case PROTO_JOBS:
+        s_on_jobs(self, msg);
+        break;
+    case PROTO_REHELLO:
+        LOG_INFO("broker does not know this worker; registering again");
+        s_register(self);
+        break;
+    case PROTO_HEARTBEAT:
+        break;
+    default:
+        LOG_WARN("dropped an unexpected %s from the broker", proto_type_name((int)msg->type));
+        break;
+    }
+    proto_msg_destroy(&msg);
+}
+
+static void s_read_broker(s_worker_t *self)
+{
+    for (int i = 0; i < S_MAX_MESSAGES_PER_TURN; i++) {
+        zmq_msg_t part;
+        zmq_msg_init(&part);
+        if (zmq_msg_recv(&part, self->sock, ZMQ_DONTWAIT) < 0) {
+            zmq_msg_close(&part);
+            return;
+        }
+        int more = zmq_msg_more(&part);
+        if (!more)
+            s_on_message(self, zmq_msg_data(&part), zmq_msg_size(&part));
+        zmq_msg_close(&part);
+        if (more) {
+            /* Bodies are one frame; skip the rest of this message. */
+            LOG_WARN("dropped a multi-frame message from the broker");
+            do {
+                zmq_msg_init(&part);
+                if (zmq_msg_recv(&part, self->sock, ZMQ_DONTWAIT) < 0) {
+                    zmq_msg_close(&part);
+                    return;
+                }
+                more = zmq_msg_more(&part);
+                zmq_msg_close(&part);
+            } while (more);
+        }
+    }
+}
+
+static void s_collect(s_worker_t *self)
+{
+    worker_pool_result_t r;
+    while (worker_pool_take(self->pool, &r)) {
+        worker_credits_eval(&self->credits, r.wall_us);
+        if (self->n_done == self->cap_done) {
+            self->cap_done = self->cap_done ? self->cap_done * 2 : 64;
+            self->done = common_xrealloc(self->done, self->cap_done, sizeof *self->done);
+        }
+        self->done[self->n_done++] = r;
+        self->evaluated++;
+        LOG_DEBUG("job %llu: %s in %lld us%s%s", (unsigned long long)r.outcome.job_id,
+                  proto_status_name((int)r.outcome.status), (long long)r.wall_us,
+                  r.outcome.error[0] ? ": " : "", r.outcome.error);
+    }
+}
+
+static void s_dispatch(s_worker_t *self)
+{
+    while (!self->draining && s_queued(self) > 0 && worker_pool_idle(self->pool) > 0) {
+        proto_job_t *job = &self->queue[self->head];
+        if (worker_pool_start(self->pool, job) != 0)
+            break;
+        s_free_job(job);
+        self->head++;
+    }
+    if (self->head == self->count)
+        self->head = self->count = 0;
+}
+
+/* Sends the turn's outcomes in DONE messages, the first carrying new credits.
+ * On a send failure the outcomes stay for the next turn. */
+static void s_flush(s_worker_t *self)
+{
+    size_t sent = 0;
+    while (sent < self->n_done) {
+        size_t n = self->n_done - sent;
+        if (n > S_MAX_OUTCOMES_PER_DONE)
+            n = S_MAX_OUTCOMES_PER_DONE;
+        proto_outcome_t *outs = common_xcalloc(n, sizeof *outs);
+        for (size_t i = 0; i < n; i++)
+            outs[i] = self->done[sent + i].outcome;
+        size_t held_after = s_held(self);
+        uint32_t want = self->draining ? 0 : worker_credits_want(&self->credits, held_after);
+        proto_msg_t msg = {.type = PROTO_DONE};
+        msg.u.done.credits = want;
+        msg.u.done.n_outcomes = (uint32_t)n;
+        msg.u.done.outcomes = outs;
+        int rc = s_send(self, &msg);
+        free(outs);
+        if (rc != 0)
+            break;
+        worker_credits_granted(&self->credits, want, common_clock_us());
+        for (size_t i = 0; i < n; i++)
+            worker_pool_result_clear(&self->done[sent + i]);
+        sent += n;
+    }
+    if (sent > 0) {
+        memmove(self->done, self->done + sent, (self->n_done - sent) * sizeof *self->done);
+        self->n_done -= sent;
+    }
+    if (self->n_done == 0)
+        s_grant(self);
+}
+
+static long s_min_timeout(long a, long b)
+{
+    if (a < 0)
+        return b;
+    if (b < 0)
+        return a;
+    return a < b ? a : b;
+}
+
+static void s_timers(s_worker_t *self)
+{
+    int64_t now = common_clock_ms();
+    if (now >= self->next_heartbeat_ms) {
+        s_send_simple(self, PROTO_HEARTBEAT);
+        self->next_heartbeat_ms = now + self->config.heartbeat_ms;
+    }
+    if (now - self->last_heard_ms >= self->config.liveness_ms) {
+        LOG_WARN("broker silent for %lld ms; registering again",
+                 (long long)(now - self->last_heard_ms));
+        self->last_heard_ms = now;
+        s_register(self);
+    }
+}
+
+static int s_open_socket(s_worker_t *self)
+{
+    self->ctx = zmq_ctx_new();
+    if (!self->ctx) {
+        LOG_ERROR("cannot create a ZeroMQ context: %s", zmq_strerror(zmq_errno()));
+        return -1;
+    }
+    self->sock = zmq_socket(self->ctx, ZMQ_DEALER);
+    if (!self->sock) {
+        LOG_ERROR("cannot create a socket: %s", zmq_strerror(zmq_errno()));
+        return -1;
+    }
+    int linger = 0, ivl = 100, ivl_max = 2000;
+    int64_t maxmsg = PROTO_MAX_MESSAGE_BYTES;
+    zmq_setsockopt(self->sock, ZMQ_LINGER, &linger, sizeof linger);
+    zmq_setsockopt(self->sock, ZMQ_RECONNECT_IVL, &ivl, sizeof ivl);
+    zmq_setsockopt(self->sock, ZMQ_RECONNECT_IVL_MAX, &ivl_max, sizeof ivl_max);
+    zmq_setsockopt(self->sock, ZMQ_MAXMSGSIZE, &maxmsg, sizeof maxmsg);
+    if (zmq_connect(self->sock, self->config.broker_endpoint) != 0) {
+        LOG_ERROR("cannot connect to %s: %s", self->config.broker_endpoint,
+                  zmq_strerror(zmq_errno()));
+        return -1;
+    }
+    return 0;
+}
+
+static int s_load_plugins(s_worker_t *self)
+{
+    const char *defaults[WORKER_MAX_PLUGIN_DIRS + 1];
+    const char *const *dirs = self->config.plugin_dirs;
+    if (!dirs[0]) {
+        worker_default_plugin_dirs(defaults, WORKER_MAX_PLUGIN_DIRS);
+        dirs = defaults;
+    }
+    for (size_t i = 0; i < WORKER_MAX_PLUGIN_DIRS && dirs[i]; i++)
+        worker_registry_load_dir(self->registry, dirs[i]);
+    for (size_t i = 0; i < WORKER_MAX_EXEC && self->config.exec[i]; i++) {
+        char err[512];
+        if (worker_registry_add_exec(self->registry, self->config.exec[i], err, sizeof err) !=
+            0) {
+            LOG_ERROR("cannot use --exec %s: %s", self->config.exec[i], err);
+            return -1;
+        }
+    }
+    if (worker_registry_count(self->registry) == 0) {
+        LOG_ERROR("no plugins found (looked in %s%s); nothing to evaluate", dirs[0],
+                  dirs[0] && dirs[1] ? " and more" : "");
+        return -1;
+    }
+    return 0;
+}
+
+static void s_identity(s_worker_t *self)
+{
+    if (gethostname(self->host, sizeof self->host) != 0 || !self->host[0])
+        snprintf(self->host, sizeof self->host, "unknown");
+    self->host[sizeof self->host - 1] = '\0';
+    struct utsname u;
+    if (uname(&u) == 0)
+        snprintf(self->arch, sizeof self->arch, "%s", u.machine);
+    else
+        snprintf(self->arch, sizeof self->arch, "unknown");
+    if (self->config.name && self->config.name[0])
+        snprintf(self->name, sizeof self->name, "%s", self->config.name);
+    else
+        snprintf(self->name, sizeof self->name, "%.100s-%ld", self->host, (long)getpid());
+}
+
+static void s_defaults(worker_config_t *c)
+{
+    if (!c->slots) {
+        long n = sysconf(_SC_NPROCESSORS_ONLN);
+        c->slots = n > 0 ? (unsigned)n : 1;
+    }
+    if (c->slots > WORKER_POOL_MAX_SLOTS)
+        c->slots = WORKER_POOL_MAX_SLOTS;
+    if (c->heartbeat_ms <= 0)
+        c->heartbeat_ms = 1000;
+    if (c->liveness_ms <= 0)
+        c->liveness_ms = 5000;
+    if (!c->default_timeout_s)
+        c->default_timeout_s = 3600;
+}
+
+/* Runs the reactor until drained or forced. */
+static void s_run(s_worker_t *self)
+{
+    zmq_pollitem_t items[1 + WORKER_POOL_MAX_SLOTS];
+    int forced = 0;
+    int64_t drain_stuck_ms = 0;
+    s_register(self);
+    for (;;) {
+        if (s_stop_signals >= 2) {
+            LOG_WARN("second stop signal: killing %u running evaluations",
+                     worker_pool_busy(self->pool));
+            worker_pool_kill_busy(self->pool);
+            forced = 1;
+            break;
+        }
+        if (s_stop_signals >= 1 && !self->draining) {
+            self->draining = 1;
+            LOG_INFO("draining: %u running evaluations finish, %zu queued jobs go back to the "
+                     "broker",
+                     worker_pool_busy(self->pool), s_queued(self));
+        }
+        if (self->draining && worker_pool_busy(self->pool) == 0) {
+            if (self->n_done == 0)
+                break;
+            /* Outcomes that cannot leave (the broker is gone) must not keep
+             * a stopping worker alive forever. */
+            if (!drain_stuck_ms)
+                drain_stuck_ms = common_clock_ms();
+            else if (common_clock_ms() - drain_stuck_ms > self->config.liveness_ms) {
+                LOG_WARN("%zu outcomes could not be sent while draining; dropping them",
+                         self->n_done);
+                break;
+            }
+        }
+
+        int64_t now = common_clock_ms();
+        long timeout = self->next_heartbeat_ms - now;
+        timeout = s_min_timeout(timeout, self->last_heard_ms + self->config.liveness_ms - now);
+        timeout = s_min_timeout(timeout, worker_pool_timeout_ms(self->pool));
+        if (self->n_done > 0) /* a send failed: retry soon */
+            timeout = s_min_timeout(timeout, 10);
+        if (timeout < 0)
+            timeout = 0;
+        items[0].socket = self->sock;
+        items[0].fd = 0;
+        items[0].events = ZMQ_POLLIN;
+        items[0].revents = 0;
+        size_t n = worker_pool_pollitems(self->pool, items + 1, WORKER_POOL_MAX_SLOTS);
+        int rc = zmq_poll(items, (int)(1 + n), timeout);
+        if (rc < 0 && zmq_errno() != EINTR) {
+            LOG_ERROR("zmq_poll failed: %s; stopping", zmq_strerror(zmq_errno()));
+            forced = 1;
+            break;
+        }
+        if (rc > 0 && (items[0].revents & ZMQ_POLLIN))
+            s_read_broker(self);
+        worker_pool_handle(self->pool, items + 1, rc > 0 ? n : 0);
+        s_collect(self);
+        s_dispatch(self);
+        s_collect(self);
+        s_flush(self);
+        s_timers(self);
+    }
+    if (forced && self->n_done > 0)
+        s_flush(self);
+    s_send_simple(self, PROTO_BYE);
+    LOG_INFO("stopped after %llu evaluations; %zu queued jobs handed back",
+             (unsigned long long)self->evaluated, s_queued(self));
+}
+
+int worker_main_run(const worker_config_t *config)
+{
+    s_worker_t self_ = {0}, *self = &self_;
+    int rc = 1;
+    self->config = *config;
+    s_defaults(&self->config);
+    if (!self->config.broker_endpoint) {
+        LOG_ERROR("no broker endpoint given");
+        return 1;
+    }
+    s_identity(self);
+    worker_credits_init(&self->credits, self->config.slots);
+    s_stop_signals = 0;
+
+    struct sigaction sa;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = s_on_stop_signal;
+    sigemptyset(&sa.sa_mask);
+    /* No SA_RESTART: zmq_poll must return so the loop sees the flag. */
+    sigaction(SIGTERM, &sa, NULL);
+    sigaction(SIGINT, &sa, NULL);
+    signal(SIGPIPE, SIG_IGN);
+
+    self->registry = worker_registry_new();
+    if (s_load_plugins(self) != 0)
+        goto cleanup;
+    worker_pool_config_t pc = {
+        .slots = self->config.slots,
+        .registry = self->registry,
+        .mem_limit_mb = self->config.mem_limit_mb,
+        .default_timeout_ms = self->config.default_timeout_s > 4000000u
+                                  ? 4000000000u
+                                  : self->config.default_timeout_s * 1000u,
+    };
+    /* Fork the children before ZeroMQ starts its threads. */
+    self->pool = worker_pool_new(&pc);
+    if (!self->pool)
+        goto cleanup;
+    if (s_open_socket(self) != 0)
+        goto cleanup;
+    LOG_INFO("worker %s on %s (%s): %u slots, %zu plugins, broker %s", self->name, self->host,
+             self->arch, self->config.slots, worker_registry_count(self->registry),
+             self->config.broker_endpoint);
+    self->last_heard_ms = common_clock_ms();
+    self->next_heartbeat_ms = self->last_heard_ms + self->config.heartbeat_ms;
+    s_run(self);
+    rc = 0;
+cleanup:
+    if (self->sock) {
+        /* Give the last DONE and BYE a moment to leave. */
+        int linger = S_CLOSE_LINGER_MS;
+        zmq_setsockopt(self->sock, ZMQ_LINGER, &linger, sizeof linger);
+        zmq_close(self->sock);
+    }
+    if (self->ctx)
+        zmq_ctx_term(self->ctx);
+    worker_pool_destroy(&self->pool);
+    for (size_t i = self->head; i < self->count; i++)
+        s_free_job(&self->queue[i]);
+    free(self->queue);
+    for (size_t i = 0; i < self->n_done; i++)
+        worker_pool_result_clear(&self->done[i]);
+    free(self->done);
+    worker_registry_destroy(&self->registry);
+    signal(SIGTERM, SIG_DFL);
+    signal(SIGINT, SIG_DFL);
+    return rc;
+}

@@ -1,0 +1,156 @@
+/* main.c: fitfarm-worker's command line. Owns flag parsing and usage text
+ * only; everything else is worker_main_run (loop.c). Usage errors exit 2. */
+#include <errno.h>
+#include <getopt.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "common/log.h"
+#include "worker.h"
+
+#ifndef FITFARM_VERSION
+#define FITFARM_VERSION "unknown"
+#endif
+
+static void s_usage(FILE *out)
+{
+    fprintf(out,
+            "usage: fitfarm-worker --broker ENDPOINT [options]\n"
+            "\n"
+            "Runs fitness evaluations for a fitfarm broker in pre-forked child processes.\n"
+            "\n"
+            "  --broker EP         the broker's workers endpoint, e.g. tcp://host:5556 (required)\n"
+            "  --slots N           child processes, 1..1024 (default: online CPUs)\n"
+            "  --plugin-dir DIR    load plugins from DIR (repeatable; default: the build\n"
+            "                      tree's plugins when run from it, then the installed ones)\n"
+            "  --exec NAME=CMD     register external program CMD as plugin NAME (repeatable)\n"
+            "  --name NAME         worker name shown by the broker (default: host-pid)\n"
+            "  --timeout SECONDS   per evaluation, when a job gives none (default 3600)\n"
+            "  --mem-limit MB      address-space limit per child process (default: none)\n"
+            "  --heartbeat MS      heartbeat interval (default 1000)\n"
+            "  --liveness MS       re-register after the broker is silent this long (default 5000)\n"
+            "  --help, --version\n"
+            "\n"
+            "SIGTERM or SIGINT drains (running evaluations finish, queued jobs go back);\n"
+            "a second one stops at once. FITFARM_LOG=debug|info|warn|error sets the log level.\n");
+}
+
+/* Parses a decimal integer in [lo, hi]; exits 2 naming the flag otherwise. */
+static unsigned long long s_number(const char *flag, const char *text, unsigned long long lo,
+                                   unsigned long long hi)
+{
+    char *end = NULL;
+    errno = 0;
+    unsigned long long v = strtoull(text, &end, 10);
+    if (errno || !end || *end || end == text || text[0] == '-' || v < lo || v > hi) {
+        fprintf(stderr, "fitfarm-worker: %s needs a whole number from %llu to %llu, got \"%s\"\n",
+                flag, lo, hi, text);
+        exit(2);
+    }
+    return v;
+}
+
+int main(int argc, char **argv)
+{
+    worker_config_t config;
+    memset(&config, 0, sizeof config);
+    size_t n_dirs = 0, n_exec = 0;
+    enum { O_BROKER = 1, O_SLOTS, O_DIR, O_NAME, O_EXEC, O_TIMEOUT, O_MEM, O_HB, O_LIVE };
+    static const struct option options[] = {
+        {"broker", required_argument, NULL, O_BROKER},
+        {"slots", required_argument, NULL, O_SLOTS},
+        {"plugin-dir", required_argument, NULL, O_DIR},
+        {"name", required_argument, NULL, O_NAME},
+        {"exec", required_argument, NULL, O_EXEC},
+        {"timeout", required_argument, NULL, O_TIMEOUT},
+        {"mem-limit", required_argument, NULL, O_MEM},
+        {"heartbeat", required_argument, NULL, O_HB},
+        {"liveness", required_argument, NULL, O_LIVE},
+        {"help", no_argument, NULL, 'h'},
+        {"version", no_argument, NULL, 'V'},
+        {NULL, 0, NULL, 0},
+    };
+    int opt;
+    opterr = 0;
+    while ((opt = getopt_long(argc, argv, "hV", options, NULL)) != -1) {
+        switch (opt) {
+        case O_BROKER:
+            config.broker_endpoint = optarg;
+            break;
+        case O_SLOTS:
+            config.slots = (unsigned)s_number("--slots", optarg, 1, 1024);
+            break;
+        case O_DIR:
+            if (n_dirs == WORKER_MAX_PLUGIN_DIRS) {
+                fprintf(stderr, "fitfarm-worker: at most %d --plugin-dir\n",
+                        WORKER_MAX_PLUGIN_DIRS);
+                return 2;
+            }
+            config.plugin_dirs[n_dirs++] = optarg;
+            break;
+        case O_NAME:
+            if (!optarg[0] || strlen(optarg) >= 128) {
+                fprintf(stderr, "fitfarm-worker: --name must be 1 to 127 bytes\n");
+                return 2;
+            }
+            config.name = optarg;
+            break;
+        case O_EXEC:
+            if (n_exec == WORKER_MAX_EXEC) {
+                fprintf(stderr, "fitfarm-worker: at most %d --exec\n", WORKER_MAX_EXEC);
+                return 2;
+            }
+            if (!strchr(optarg, '=') || optarg[0] == '=') {
+                fprintf(stderr, "fitfarm-worker: --exec needs NAME=COMMAND, got \"%s\"\n",
+                        optarg);
+                return 2;
+            }
+            config.exec[n_exec++] = optarg;
+            break;
+        case O_TIMEOUT:
+            config.default_timeout_s = (unsigned)s_number("--timeout", optarg, 1, 30u * 86400u);
+            break;
+        case O_MEM:
+            config.mem_limit_mb = (size_t)s_number("--mem-limit", optarg, 16, 1u << 30);
+            break;
+        case O_HB:
+            config.heartbeat_ms = (int)s_number("--heartbeat", optarg, 10, 600000);
+            break;
+        case O_LIVE:
+            config.liveness_ms = (int)s_number("--liveness", optarg, 100, 3600000);
+            break;
+        case 'h':
+            s_usage(stdout);
+            return 0;
+        case 'V':
+            printf("fitfarm-worker %s\n", FITFARM_VERSION);
+            return 0;
+        default:
+            if (optopt && optopt < O_BROKER)
+                fprintf(stderr, "fitfarm-worker: unknown option -%c\n", optopt);
+            else if (optopt)
+                fprintf(stderr, "fitfarm-worker: %s needs a value\n", argv[optind - 1]);
+            else
+                fprintf(stderr, "fitfarm-worker: unknown option %s\n", argv[optind - 1]);
+            fprintf(stderr, "try fitfarm-worker --help\n");
+            return 2;
+        }
+    }
+    if (optind < argc) {
+        fprintf(stderr, "fitfarm-worker: unexpected argument \"%s\"\ntry fitfarm-worker --help\n",
+                argv[optind]);
+        return 2;
+    }
+    if (!config.broker_endpoint || !config.broker_endpoint[0]) {
+        fprintf(stderr, "fitfarm-worker: --broker ENDPOINT is required\n"
+                        "try fitfarm-worker --help\n");
+        return 2;
+    }
+    if (config.liveness_ms && config.heartbeat_ms && config.liveness_ms <= config.heartbeat_ms) {
+        fprintf(stderr, "fitfarm-worker: --liveness must be longer than --heartbeat\n");
+        return 2;
+    }
+    common_log_set_tag("worker");
+    return worker_main_run(&config) == 0 ? 0 : 1;
+}

@@ -1,0 +1,84 @@
+/* pool.h: the worker's pre-forked child processes. Internal to the worker.
+ *
+ * Owns: forking N children (each with a socketpair), handing one job to an
+ * idle child, reading its outcome, noticing a child's death or overrun and
+ * turning it into a CRASHED or TIMEOUT outcome, killing (by PID) and
+ * respawning children. The worker never dies from a plugin: everything a
+ * plugin can do ends as an outcome here. Not owned: which job runs next, the
+ * network, credits (loop.c); the evaluation itself (child.c).
+ *
+ * Single-threaded; the caller polls the descriptors this module lists (one
+ * zmq_poll together with the broker socket), then calls worker_pool_handle. */
+#ifndef WORKER_POOL_H
+#define WORKER_POOL_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include <zmq.h>
+
+#include "msg.h"
+#include "registry.h"
+
+#define WORKER_POOL_MAX_SLOTS 1024u
+
+typedef struct {
+    unsigned slots;                /* children, 1..WORKER_POOL_MAX_SLOTS */
+    const worker_registry_t *registry; /* borrowed; must outlive the pool */
+    size_t mem_limit_mb;           /* address-space limit per child; 0 = none */
+    uint32_t default_timeout_ms;   /* for jobs with timeout_ms 0; 0 = 3600 s */
+} worker_pool_config_t;
+
+/* A finished job. outcome.fitness and outcome.error are malloc'd (error is
+ * never NULL); release with worker_pool_result_clear. */
+typedef struct {
+    proto_outcome_t outcome;
+    int64_t wall_us; /* from hand-over to answer */
+} worker_pool_result_t;
+
+typedef struct worker_pool worker_pool_t;
+
+/* Forks the children. Returns the pool (caller destroys it), or NULL (logged)
+ * if not one child could be started. Aborts on out of memory. */
+worker_pool_t *worker_pool_new(const worker_pool_config_t *config);
+
+/* SIGKILLs every child by PID, reaps them, frees the pool and its unread
+ * results; sets *self_p to NULL. Accepts NULL. */
+void worker_pool_destroy(worker_pool_t **self_p);
+
+unsigned worker_pool_slots(const worker_pool_t *self);
+unsigned worker_pool_idle(const worker_pool_t *self); /* live children without a job */
+unsigned worker_pool_busy(const worker_pool_t *self); /* children running a job */
+
+/* Hands job to an idle child (copies what it needs; job stays the caller's).
+ * Returns 0, or -1 if no child is idle. If the child turns out dead, the job
+ * goes to a fresh one; if that fails too, the job ends as a CRASHED result. */
+int worker_pool_start(worker_pool_t *self, const proto_job_t *job);
+
+/* Fills items with one ZMQ_POLLIN entry per live child (at most max).
+ * Returns the count. */
+size_t worker_pool_pollitems(const worker_pool_t *self, zmq_pollitem_t *items, size_t max);
+
+/* After zmq_poll on items from worker_pool_pollitems: reads answers, reaps
+ * dead children (respawning them), kills children past their deadline. Also
+ * safe to call with n == 0 (only deadlines and respawns). */
+void worker_pool_handle(worker_pool_t *self, const zmq_pollitem_t *items, size_t n);
+
+/* Milliseconds until the next deadline or respawn attempt, or -1 if none. */
+long worker_pool_timeout_ms(const worker_pool_t *self);
+
+/* Pops one finished result into *out. Returns 1, or 0 if none is ready. */
+int worker_pool_take(worker_pool_t *self, worker_pool_result_t *out);
+
+/* Frees what a result owns. */
+void worker_pool_result_clear(worker_pool_result_t *r);
+
+/* Polls the children for up to timeout_ms (or until a result is ready) and
+ * handles what arrived. Returns the number of results ready. For tests and
+ * for simple callers that own no other socket. */
+size_t worker_pool_wait(worker_pool_t *self, int timeout_ms);
+
+/* SIGKILLs the running children (a forced stop). Their jobs produce no
+ * results. */
+void worker_pool_kill_busy(worker_pool_t *self);
+
+#endif
