@@ -5,7 +5,8 @@
  * equal content keys: a JSON object, dumped with JSON_COMPACT (no spaces),
  * JSON_SORT_KEYS (keys in byte order), JSON_REAL_PRECISION(17) (reals
  * round-trip to the same bits) and JSON_ENSURE_ASCII (every non-ASCII
- * character as \uXXXX, so "é" and "\u00e9" in the input give one form).
+ * character as \uXXXX with upper-case hex, as jansson writes it, so "é"
+ * and "\u00e9" in the input give one form).
  * Integers stay integers and reals stay reals (jansson prints 1.0 as "1.0"),
  * so {"n":1} and {"n":1.0} are different parameters, as a plugin could tell
  * them apart. Duplicate keys are refused (JSON_REJECT_DUPLICATES): which one
