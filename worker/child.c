@@ -228,15 +228,6 @@ void worker_child_run(int fd, const worker_registry_t *registry, size_t mem_limi
         free(outcome.error);
         if (rc != 0)
             _exit(3);
-        /* A plugin that ran up against the address-space limit may have left
-         * the heap full (leaks, fragmentation): start afresh rather than fail
-         * the next, innocent job. The parent respawns an idle child that left. */
-        if (mem_limit_mb > 0) {
-            struct rusage ru;
-            getrusage(RUSAGE_SELF, &ru);
-            if ((uint64_t)ru.ru_maxrss >= (uint64_t)mem_limit_mb * 1024u * 3u / 4u)
-                break;
-        }
     }
     for (size_t i = 0; i < WORKER_CHILD_CONTEXTS; i++)
         s_context_drop(&s_contexts[i]);

@@ -169,7 +169,7 @@ static void s_respawn(worker_pool_t *self, unsigned i)
     s_spawn(self, i);
 }
 
-/* The child's socket closed or broke: it died (or recycled itself). */
+/* The child's socket closed or broke: it died. */
 static void s_on_death(worker_pool_t *self, unsigned i, const char *why)
 {
     s_child_t *c = &self->children[i];
@@ -184,7 +184,7 @@ static void s_on_death(worker_pool_t *self, unsigned i, const char *why)
                  (int)c->pid, text);
         s_push_failure(self, c->job_id, c->start_us, PROTO_STATUS_CRASHED, text, &ru);
     } else if (WIFEXITED(status) && WEXITSTATUS(status) == 0) {
-        LOG_INFO("idle child pid %d left (memory recycling); respawning", (int)c->pid);
+        LOG_INFO("idle child pid %d exited; respawning", (int)c->pid);
     } else {
         char text[PROTO_MAX_ERROR_BYTES];
         s_describe_status(status, text, sizeof text);
@@ -246,6 +246,20 @@ static void s_on_readable(worker_pool_t *self, unsigned i)
     r.wall_us = common_clock_us() - c->start_us;
     proto_msg_destroy(&msg);
     c->busy = 0;
+    /* A child that came close to its address-space limit may keep a full heap
+     * (leaks, fragmentation): replace it now rather than fail the next,
+     * innocent job. Decided here, not in the child, so no job is ever handed
+     * to a child that is about to leave. */
+    uint64_t limit_kb = (uint64_t)self->config.mem_limit_mb * 1024u;
+    if (limit_kb && r.outcome.peak_rss_kb >= limit_kb / 4u * 3u) {
+        LOG_INFO("child pid %d peaked at %llu kB of its %llu kB limit; replacing it",
+                 (int)c->pid, (unsigned long long)r.outcome.peak_rss_kb,
+                 (unsigned long long)limit_kb);
+        kill(c->pid, SIGKILL);
+        while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
+            ;
+        s_respawn(self, i);
+    }
     s_push(self, &r);
 }
 
