@@ -88,7 +88,8 @@ void broker_catalog_names(const broker_catalog_t *self, char *out, size_t outlen
         return;
     out[0] = '\0';
     broker_plugin_t **sorted = common_xcalloc(self->n ? self->n : 1, sizeof *sorted);
-    memcpy(sorted, self->list, self->n * sizeof *sorted);
+    if (self->n)
+        memcpy(sorted, self->list, self->n * sizeof *sorted);
     qsort(sorted, self->n, sizeof *sorted, s_cmp_names);
     size_t used = 0;
     for (uint32_t i = 0; i < self->n && used < outlen; i++) {

@@ -1,0 +1,305 @@
+/* test_broker_evals.c: the broker's job lifecycle without sockets: single
+ * flight (one evaluation for many requests, also across runs), cache hits,
+ * retry accounting for crashed and timed-out jobs, re-queueing a dropped
+ * worker's jobs and accepting its late result exactly once, and round-robin
+ * fairness between a large and a small run. The broker state is driven
+ * through the same functions the loop calls, with the sockets left NULL. */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <cmocka.h>
+
+#include "broker/client_io.h"
+#include "broker/core.h"
+#include "broker/dispatch.h"
+#include "broker/worker_io.h"
+
+static broker_t *s_broker(unsigned attempts)
+{
+    broker_t *b = calloc(1, sizeof *b);
+    broker_core_init(b, 5000, 1000, attempts, NULL);
+    broker_worker_timers_start(b);
+    return b;
+}
+
+static void s_broker_destroy(broker_t **b)
+{
+    broker_core_fini(*b);
+    free(*b);
+    *b = NULL;
+}
+
+static broker_worker_t *s_worker(broker_t *b, const char *rid, const char *plugin, int deterministic,
+                                 uint32_t credits)
+{
+    proto_plugin_info_t pi = {.name = (char *)plugin,
+                              .version = (char *)"1.0",
+                              .objectives = 2,
+                              .flags = deterministic ? PROTO_PLUGIN_DETERMINISTIC : 0};
+    proto_hello_t h = {.name = (char *)rid,
+                       .host = (char *)"localhost",
+                       .arch = (char *)"x86_64",
+                       .slots = 4,
+                       .n_plugins = 1,
+                       .plugins = &pi};
+    broker_worker_t *w = broker_worker_on_hello(b, (const uint8_t *)rid, strlen(rid), &h);
+    broker_registry_add_credits(&b->registry, w, credits);
+    return w;
+}
+
+/* Submits n items; item i carries genome value genomes[i] (one f64) and tag
+ * tag0 + i. Returns the refusal code or 0. */
+static int s_submit(broker_t *b, const char *client, const char *run_id, uint64_t seed,
+                    const char *plugin, const double *genomes, uint32_t n, uint64_t tag0,
+                    uint32_t flags)
+{
+    proto_item_t *items = calloc(n ? n : 1, sizeof *items);
+    for (uint32_t i = 0; i < n; i++) {
+        items[i].tag = tag0 + i;
+        items[i].replicate = 0;
+        items[i].genome_len = sizeof(double);
+        items[i].genome = (uint8_t *)&genomes[i];
+    }
+    proto_submit_t s = {.run_id = (char *)run_id,
+                        .run_seed = seed,
+                        .seed_mode = PROTO_SEED_GENOME,
+                        .flags = flags,
+                        .batch_tag = 1,
+                        .plugin = (char *)plugin,
+                        .params = (char *)"{}",
+                        .n_items = n,
+                        .items = items};
+    int rc = broker_client_submit(b, (const uint8_t *)client, strlen(client), &s);
+    free(items);
+    return rc;
+}
+
+static proto_outcome_t s_outcome(uint64_t job_id, uint32_t status, double f)
+{
+    static double fit[2];
+    fit[0] = f;
+    fit[1] = -f;
+    proto_outcome_t o = {.job_id = job_id,
+                         .status = status,
+                         .n_fitness = status == PROTO_STATUS_OK ? 2 : 0,
+                         .fitness = fit,
+                         .error = (char *)(status == PROTO_STATUS_OK ? "" : "child died")};
+    return o;
+}
+
+/* Usage example: one worker, one run, one genome evaluated once for three
+ * requests; a fourth request later is a cache hit. */
+static void test_usage_example(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker(3);
+    broker_worker_t *w = s_worker(b, "w1", "spin", 0, 8);
+    double g[3] = {0.5, 0.5, 0.5};
+    assert_int_equal(s_submit(b, "c1", "run-a", 42, "spin", g, 3, 100, 0), 0);
+    broker_run_t *run = broker_runs_get(&b->runs, "run-a");
+    assert_non_null(run);
+    assert_int_equal(run->n_queued, 1); /* three requests, one evaluation */
+    assert_int_equal(run->outstanding, 3);
+    assert_int_equal(broker_dispatch_turn(b), 1);
+    assert_int_equal(w->held, 1);
+    assert_int_equal(w->credits, 7);
+    proto_outcome_t o = s_outcome(w->jobs_head->job_id, PROTO_STATUS_OK, 1.25);
+    broker_dispatch_outcome(b, w, &o);
+    assert_int_equal(w->held, 0);
+    assert_int_equal(run->n_outbox, 3);
+    for (uint32_t i = 0; i < 3; i++) {
+        assert_int_equal(run->outbox[i].cached, 0);
+        assert_int_equal(run->outbox[i].eval->status, PROTO_STATUS_OK);
+        assert_true(run->outbox[i].eval->fitness[0] == 1.25);
+    }
+    assert_int_equal(run->outstanding, 0);
+    broker_client_flush(b); /* no sockets: moves the outbox to unacked */
+    assert_int_equal(broker_table_size(run->unacked), 3);
+    assert_int_equal(broker_runs_ack(&b->runs, run, 101), 1);
+    assert_int_equal(broker_runs_ack(&b->runs, run, 101), 0);
+    assert_int_equal(s_submit(b, "c1", "run-a", 42, "spin", g, 1, 200, 0), 0);
+    assert_int_equal(run->n_outbox, 1);
+    assert_int_equal(run->outbox[0].cached, 1);
+    assert_int_equal(run->n_queued, 0);
+    s_broker_destroy(&b);
+}
+
+static void test_single_flight_across_runs_and_no_cache(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker(3);
+    broker_worker_t *w = s_worker(b, "w1", "det", 1, 8);
+    double g[1] = {2.0};
+    /* a deterministic plugin's key omits the seed: two runs share one evaluation */
+    assert_int_equal(s_submit(b, "c1", "r1", 1, "det", g, 1, 1, 0), 0);
+    assert_int_equal(s_submit(b, "c2", "r2", 2, "det", g, 1, 1, 0), 0);
+    assert_int_equal(broker_table_size(b->evals.by_key), 1);
+    assert_int_equal(broker_dispatch_turn(b), 1);
+    /* a third request while it runs attaches too */
+    assert_int_equal(s_submit(b, "c2", "r2", 2, "det", g, 1, 2, 0), 0);
+    assert_int_equal(broker_dispatch_turn(b), 0);
+    proto_outcome_t o = s_outcome(w->jobs_head->job_id, PROTO_STATUS_OK, 3.0);
+    broker_dispatch_outcome(b, w, &o);
+    broker_run_t *r1 = broker_runs_get(&b->runs, "r1"), *r2 = broker_runs_get(&b->runs, "r2");
+    assert_int_equal(r1->n_outbox, 1);
+    assert_int_equal(r2->n_outbox, 2);
+    assert_int_equal(r2->outbox[1].cached, 0); /* attached while running: not a cache hit */
+    /* no-cache evaluates the same key again */
+    assert_int_equal(s_submit(b, "c1", "r1", 1, "det", g, 1, 9, PROTO_SUBMIT_NO_CACHE), 0);
+    assert_int_equal(r1->n_queued, 1);
+    assert_int_equal(broker_dispatch_turn(b), 1);
+    s_broker_destroy(&b);
+}
+
+static void test_retry_accounting(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker(3);
+    broker_worker_t *wa = s_worker(b, "wa", "spin", 0, 8);
+    broker_worker_t *wb = s_worker(b, "wb", "spin", 0, 8);
+    double g[1] = {7.0};
+    assert_int_equal(s_submit(b, "c1", "r", 5, "spin", g, 1, 1, 0), 0);
+    broker_run_t *run = broker_runs_get(&b->runs, "r");
+    broker_eval_t *e = run->queues[0].head;
+    uint64_t seed = e->seed;
+
+    assert_int_equal(broker_dispatch_turn(b), 1);
+    assert_ptr_equal(e->worker, wa);
+    proto_outcome_t o = s_outcome(e->job_id, PROTO_STATUS_CRASHED, 0);
+    broker_dispatch_outcome(b, wa, &o);
+    assert_int_equal(e->attempts, 1);
+    assert_int_equal(e->state, BROKER_EVAL_QUEUED);
+
+    /* a retry goes to another worker when one carries the plugin */
+    assert_int_equal(broker_dispatch_turn(b), 1);
+    assert_ptr_equal(e->worker, wb);
+    assert_int_equal(e->seed, seed); /* same seed on every attempt */
+    o = s_outcome(e->job_id, PROTO_STATUS_TIMEOUT, 0);
+    broker_dispatch_outcome(b, wb, &o);
+    assert_int_equal(e->attempts, 2);
+
+    assert_int_equal(broker_dispatch_turn(b), 1);
+    assert_ptr_equal(e->worker, wa);
+    o = s_outcome(e->job_id, PROTO_STATUS_CRASHED, 0);
+    broker_dispatch_outcome(b, wa, &o);
+    /* third attempt of three: final, with the last status and error */
+    assert_int_equal(e->state, BROKER_EVAL_DONE);
+    assert_int_equal(e->status, PROTO_STATUS_CRASHED);
+    assert_string_equal(e->error, "child died");
+    assert_int_equal(run->n_outbox, 1);
+    assert_int_equal(run->n_running + run->n_queued, 0);
+    assert_int_equal(wa->held + wb->held, 0);
+    assert_int_equal(wa->credits + wb->credits, 16 - 3);
+    s_broker_destroy(&b);
+}
+
+static void test_dropped_worker_requeue_and_late_result(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker(3);
+    broker_worker_t *wa = s_worker(b, "wa", "spin", 0, 8);
+    double g[2] = {1.0, 2.0};
+    assert_int_equal(s_submit(b, "c1", "r", 5, "spin", g, 2, 1, 0), 0);
+    assert_int_equal(broker_dispatch_turn(b), 2);
+    broker_eval_t *first = wa->jobs_head, *second = wa->jobs_tail;
+    uint64_t old_job = first->job_id;
+    assert_int_equal(broker_dispatch_drop_worker(b, wa), 2);
+    broker_run_t *run = broker_runs_get(&b->runs, "r");
+    assert_int_equal(run->n_queued, 2);
+    assert_ptr_equal(run->queues[0].head, first); /* order kept at the front */
+    assert_ptr_equal(run->queues[0].head->next, second);
+
+    broker_worker_t *wb = s_worker(b, "wb", "spin", 0, 8);
+    assert_int_equal(broker_dispatch_turn(b), 2);
+    assert_ptr_equal(first->worker, wb);
+    uint64_t new_job = first->job_id;
+    assert_true(new_job != old_job);
+    /* the dropped worker's late result arrives first: accepted once */
+    proto_outcome_t o = s_outcome(old_job, PROTO_STATUS_OK, 4.0);
+    broker_dispatch_outcome(b, NULL, &o);
+    assert_int_equal(first->state, BROKER_EVAL_DONE);
+    assert_int_equal(wb->held, 1);
+    assert_int_equal(run->n_outbox, 1);
+    /* the re-dispatched copy's result is ignored: never delivered twice */
+    o = s_outcome(new_job, PROTO_STATUS_OK, 5.0);
+    broker_dispatch_outcome(b, wb, &o);
+    assert_int_equal(run->n_outbox, 1);
+    assert_true(first->fitness[0] == 4.0);
+    /* and the stale id again: still nothing */
+    o = s_outcome(old_job, PROTO_STATUS_OK, 6.0);
+    broker_dispatch_outcome(b, NULL, &o);
+    assert_int_equal(run->n_outbox, 1);
+    s_broker_destroy(&b);
+}
+
+static void test_round_robin_fairness(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker(3);
+    enum { BIG = 1000, SMALL = 10 };
+    static double big[BIG], small[SMALL];
+    for (int i = 0; i < BIG; i++)
+        big[i] = i;
+    for (int i = 0; i < SMALL; i++)
+        small[i] = 10000 + i;
+    assert_int_equal(s_submit(b, "c1", "big", 1, "spin", big, BIG, 0, 0),
+                     PROTO_REFUSE_UNKNOWN_PLUGIN); /* no worker has said HELLO yet */
+    broker_worker_t *w = s_worker(b, "w", "spin", 0, 0);
+    assert_int_equal(s_submit(b, "c1", "big", 1, "spin", big, BIG, 0, 0), 0);
+    assert_int_equal(s_submit(b, "c2", "small", 2, "spin", small, SMALL, 0, 0), 0);
+    broker_registry_add_credits(&b->registry, w, 2 * SMALL);
+    assert_int_equal(broker_dispatch_turn(b), 2 * SMALL);
+    broker_run_t *rb = broker_runs_get(&b->runs, "big"), *rs = broker_runs_get(&b->runs, "small");
+    /* the small run, submitted after 1000 big jobs, is served in full
+     * within the first 2*SMALL dispatches, alternating with the big one */
+    assert_int_equal(rs->n_running, SMALL);
+    assert_int_equal(rb->n_running, SMALL);
+    assert_int_equal(rs->n_queued, 0);
+    int k = 0, big_seen = 0;
+    for (broker_eval_t *e = w->jobs_head; e; e = e->next, k++) {
+        assert_ptr_equal(e->home, k % 2 == 0 ? rb : rs);
+        if (e->home == rb) {
+            double v;
+            memcpy(&v, e->genome, sizeof v);
+            assert_true(v == big_seen++); /* oldest first within a run */
+        }
+    }
+    assert_true(broker_runs_check(&b->runs));
+    s_broker_destroy(&b);
+}
+
+static void test_refusals(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker(3);
+    double g[1] = {1.0};
+    assert_int_equal(s_submit(b, "c", "r", 1, "spin", g, 1, 1, 0), PROTO_REFUSE_UNKNOWN_PLUGIN);
+    s_worker(b, "w", "spin", 0, 1);
+    assert_int_equal(s_submit(b, "c", "r", 1, "nope", g, 1, 1, 0), PROTO_REFUSE_UNKNOWN_PLUGIN);
+    assert_int_equal(s_submit(b, "c", "r", 1, "spin", g, 1, 1, 0), 0);
+    assert_int_equal(s_submit(b, "c", "r", 2, "spin", g, 1, 1, 0), PROTO_REFUSE_RUN_MISMATCH);
+    assert_int_equal(s_submit(b, "c", "r2", 1, "spin", g, 1, 1, PROTO_SUBMIT_REPLAY),
+                     PROTO_REFUSE_NOT_RECORDED);
+    char names[64];
+    s_worker(b, "w2", "alpha", 1, 1);
+    broker_catalog_names(&b->catalog, names, sizeof names);
+    assert_string_equal(names, "alpha, spin");
+    s_broker_destroy(&b);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_usage_example),
+        cmocka_unit_test(test_single_flight_across_runs_and_no_cache),
+        cmocka_unit_test(test_retry_accounting),
+        cmocka_unit_test(test_dropped_worker_requeue_and_late_result),
+        cmocka_unit_test(test_round_robin_fairness),
+        cmocka_unit_test(test_refusals),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
