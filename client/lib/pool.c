@@ -88,8 +88,11 @@ static void s_run_worker(const client_pool_t *self, unsigned slots, const char *
         config.plugin_dirs[n++] = plugin_dir;
     const char *defaults[WORKER_MAX_PLUGIN_DIRS];
     size_t nd = worker_default_plugin_dirs(defaults, WORKER_MAX_PLUGIN_DIRS);
+    /* A default folder that does not exist (nothing installed yet) is not
+     * worth a warning on every run of the CLI. */
+    struct stat st;
     for (size_t i = 0; i < nd && n + 1 < WORKER_MAX_PLUGIN_DIRS; i++)
-        if (defaults[i])
+        if (defaults[i] && stat(defaults[i], &st) == 0 && S_ISDIR(st.st_mode))
             config.plugin_dirs[n++] = defaults[i];
     config.plugin_dirs[n] = NULL;
     common_log_set_tag("pool worker");
