@@ -291,6 +291,33 @@ static void test_refusals(void **state)
     s_broker_destroy(&b);
 }
 
+static void test_resend_after_reconnect(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker(3);
+    broker_worker_t *w = s_worker(b, "w", "spin", 0, 4);
+    double g[2] = {1.0, 2.0};
+    assert_int_equal(s_submit(b, "old-conn", "r", 3, "spin", g, 2, 10, 0), 0);
+    assert_int_equal(broker_dispatch_turn(b), 2);
+    proto_outcome_t o = s_outcome(w->jobs_head->job_id, PROTO_STATUS_OK, 1.0);
+    broker_dispatch_outcome(b, w, &o);
+    o = s_outcome(w->jobs_head->job_id, PROTO_STATUS_OK, 2.0);
+    broker_dispatch_outcome(b, w, &o);
+    broker_client_flush(b);
+    broker_run_t *run = broker_runs_get(&b->runs, "r");
+    assert_int_equal(broker_runs_ack(&b->runs, run, 10), 1);
+    /* the client comes back on a new connection: the unacked result (tag 11)
+     * is queued again, to the new routing id */
+    assert_int_equal(s_submit(b, "new-conn", "r", 3, "spin", g, 0, 0, 0), 0);
+    assert_int_equal(run->n_outbox, 1);
+    assert_int_equal(run->outbox[0].tag, 11);
+    assert_int_equal(run->client_len, strlen("new-conn"));
+    assert_memory_equal(run->client, "new-conn", run->client_len);
+    broker_client_flush(b);
+    assert_int_equal(broker_table_size(run->unacked), 1);
+    s_broker_destroy(&b);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -300,6 +327,7 @@ int main(void)
         cmocka_unit_test(test_dropped_worker_requeue_and_late_result),
         cmocka_unit_test(test_round_robin_fairness),
         cmocka_unit_test(test_refusals),
+        cmocka_unit_test(test_resend_after_reconnect),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
