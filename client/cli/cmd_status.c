@@ -24,7 +24,7 @@ static const char s_help[] =
     "  --broker ENDPOINT  the broker's client endpoint, e.g. tcp://host:5555 (required)\n"
     "  --json             print one JSON object instead of tables:\n"
     "                     {\"workers\": [{\"name\", \"host\", \"arch\", \"slots\", \"busy\",\n"
-    "                     \"plugins\": [...]}], \"runs\": [{\"run_id\", \"queued\", \"running\",\n"
+    "                     \"plugins\": [...]}], \"runs\": [{\"run\", \"queued\", \"running\",\n"
     "                     \"done\"}], \"warnings\": [...]}\n"
     "  --timeout SECONDS  how long to wait for the broker (default 10)\n"
     "\n"
@@ -61,7 +61,7 @@ static int s_print_json(const proto_status_t *st)
     }
     for (uint32_t i = 0; i < st->n_runs; i++) {
         const proto_run_info_t *r = &st->runs[i];
-        json_array_append_new(runs, json_pack("{s:s?, s:I, s:I, s:I}", "run_id", r->run_id,
+        json_array_append_new(runs, json_pack("{s:s?, s:I, s:I, s:I}", "run", r->run_id,
                                               "queued", (json_int_t)r->queued, "running",
                                               (json_int_t)r->running, "done",
                                               (json_int_t)r->done));
