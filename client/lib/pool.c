@@ -90,10 +90,16 @@ static void s_run_worker(const client_pool_t *self, unsigned slots, const char *
     size_t nd = worker_default_plugin_dirs(defaults, WORKER_MAX_PLUGIN_DIRS);
     /* A default folder that does not exist (nothing installed yet) is not
      * worth a warning on every run of the CLI. */
-    struct stat st;
-    for (size_t i = 0; i < nd && n + 1 < WORKER_MAX_PLUGIN_DIRS; i++)
-        if (defaults[i] && stat(defaults[i], &st) == 0 && S_ISDIR(st.st_mode))
-            config.plugin_dirs[n++] = defaults[i];
+    struct stat st, extra;
+    int have_extra = plugin_dir && stat(plugin_dir, &extra) == 0;
+    for (size_t i = 0; i < nd && n + 1 < WORKER_MAX_PLUGIN_DIRS; i++) {
+        if (!defaults[i] || stat(defaults[i], &st) != 0 || !S_ISDIR(st.st_mode))
+            continue;
+        /* The caller's folder may be a default one too: load it once. */
+        if (have_extra && st.st_dev == extra.st_dev && st.st_ino == extra.st_ino)
+            continue;
+        config.plugin_dirs[n++] = defaults[i];
+    }
     config.plugin_dirs[n] = NULL;
     common_log_set_tag("pool worker");
     _exit(worker_main_run(&config) == 0 ? 0 : 1);

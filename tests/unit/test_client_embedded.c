@@ -1,0 +1,228 @@
+/* test_client_embedded.c: libfitfarm with the embedded local pool (a broker
+ * and a worker forked from this process) and the bundled zdt1 plugin from
+ * $FITFARM_BUILD_DIR/plugins: blocking evaluation checked against the ZDT1
+ * formula, streaming submit/poll, an unknown plugin, and nothing left
+ * running after fitfarm_client_destroy.
+ *
+ * Outside reference: ZDT1 as defined by Zitzler, Deb and Thiele, "Comparison
+ * of Multiobjective Evolutionary Algorithms: Empirical Results", Evolutionary
+ * Computation 8(2), 2000: n = 30, f1 = x1, g = 1 + 9 * sum_{i=2..n} x_i / (n-1),
+ * f2 = g * (1 - sqrt(f1 / g)). Computed here independently of the plugin. */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <cmocka.h>
+
+#include <errno.h>
+#include <math.h>
+#include <signal.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <sys/wait.h>
+
+#include "client/include/fitfarm.h"
+#include "client/lib/status.h"
+
+#define N_VARS 30
+
+/* ZDT1 (Zitzler, Deb, Thiele 2000), straight from the definition. */
+static void s_zdt1(const double *x, double f[2])
+{
+    double sum = 0;
+    for (int i = 1; i < N_VARS; i++)
+        sum += x[i];
+    double g = 1.0 + 9.0 * sum / (N_VARS - 1);
+    f[0] = x[0];
+    f[1] = g * (1.0 - sqrt(f[0] / g));
+}
+
+/* Test genomes in [0, 1): splitmix64 (Blackman & Vigna), top 53 bits. */
+static double s_uniform(uint64_t *state)
+{
+    uint64_t z = (*state += 0x9E3779B97F4A7C15ULL);
+    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
+    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
+    z ^= z >> 31;
+    return (double)(z >> 11) * 0x1.0p-53;
+}
+
+static void s_close(double got, double want, const char *what, size_t i)
+{
+    /* The plugin may sum in another order: allow a few ulps of the sum. */
+    if (!(fabs(got - want) <= 1e-12 * (1.0 + fabs(want))))
+        fail_msg("genome %zu: %s = %.17g, ZDT1 formula gives %.17g", i, what, got, want);
+}
+
+static fitfarm_client_t *s_pool(unsigned slots, char *err, size_t errlen)
+{
+    const char *build = getenv("FITFARM_BUILD_DIR");
+    static char dir[4096];
+    snprintf(dir, sizeof dir, "%s/plugins", build ? build : ".");
+    fitfarm_options_t opts = {0};
+    opts.slots = slots;
+    opts.plugin_dir = dir;
+    opts.connect_timeout_ms = 20000;
+    fitfarm_client_t *client = NULL;
+    int rc = fitfarm_client_new(&opts, &client, err, errlen);
+    if (rc != 0)
+        fail_msg("embedded pool did not start (%s): %s", fitfarm_strerror(rc), err);
+    return client;
+}
+
+static int s_setup(void **state)
+{
+    char err[1200];
+    *state = s_pool(2, err, sizeof err);
+    return *state ? 0 : -1;
+}
+
+static int s_teardown(void **state)
+{
+    fitfarm_client_t *client = *state;
+    fitfarm_client_destroy(&client);
+    return 0;
+}
+
+/* Usage: an embedded pool evaluating 1000 ZDT1 genomes in one blocking call. */
+static void test_evaluate_zdt1(void **state)
+{
+    fitfarm_client_t *client = *state;
+    fitfarm_run_options_t ro = {0};
+    ro.seed = 7;
+    fitfarm_run_t *run = NULL;
+    assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
+    fitfarm_batch_t *batch = NULL;
+    assert_int_equal(fitfarm_batch_new("zdt1", "{\"n\": 30}", 1, &batch), 0);
+    static double genomes[1000][N_VARS];
+    uint64_t rng = 2000;
+    for (size_t i = 0; i < 1000; i++) {
+        for (int k = 0; k < N_VARS; k++)
+            genomes[i][k] = s_uniform(&rng);
+        assert_int_equal(fitfarm_batch_add_f64(batch, genomes[i], N_VARS), (long)i);
+    }
+    int rc = fitfarm_evaluate(run, batch, NULL, NULL, 120000);
+    if (rc != 0)
+        fail_msg("evaluate: %s", fitfarm_client_error(client));
+    for (size_t i = 0; i < 1000; i++) {
+        fitfarm_result_t res;
+        assert_int_equal(fitfarm_batch_result(batch, i, 0, &res), 0);
+        if (res.status != FITFARM_STATUS_OK)
+            fail_msg("genome %zu: %s: %s", i, fitfarm_status_name(res.status), res.error);
+        assert_int_equal(res.n_fitness, 2);
+        double want[2];
+        s_zdt1(genomes[i], want);
+        s_close(res.fitness[0], want[0], "f1", i);
+        s_close(res.fitness[1], want[1], "f2", i);
+    }
+    fitfarm_batch_destroy(&batch);
+    fitfarm_run_destroy(&run);
+}
+
+/* Streaming: every result arrives once through poll, in whatever order. */
+static void test_submit_poll(void **state)
+{
+    fitfarm_client_t *client = *state;
+    fitfarm_run_options_t ro = {0};
+    fitfarm_run_t *run = NULL;
+    assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
+    fitfarm_batch_t *batch = NULL;
+    assert_int_equal(fitfarm_batch_new("zdt1", NULL, 2, &batch), 0);
+    static double genomes[200][N_VARS];
+    uint64_t rng = 3000;
+    for (size_t i = 0; i < 200; i++) {
+        for (int k = 0; k < N_VARS; k++)
+            genomes[i][k] = s_uniform(&rng);
+        fitfarm_batch_add_f64(batch, genomes[i], N_VARS);
+    }
+    assert_int_equal(fitfarm_submit(run, batch), 0);
+    static uint8_t seen[400];
+    memset(seen, 0, sizeof seen);
+    size_t got = 0;
+    fitfarm_result_t res;
+    while (got < 400) {
+        int rc = fitfarm_poll(run, &res, 60000);
+        if (rc != 1)
+            fail_msg("poll after %zu results: %d %s", got, rc, fitfarm_client_error(client));
+        size_t slot = res.index * 2 + res.replicate;
+        assert_int_equal(seen[slot], 0);
+        seen[slot] = 1;
+        got++;
+        assert_int_equal(res.status, FITFARM_STATUS_OK);
+        double want[2];
+        s_zdt1(genomes[res.index], want);
+        s_close(res.fitness[0], want[0], "f1", res.index);
+        s_close(res.fitness[1], want[1], "f2", res.index);
+    }
+    assert_int_equal(fitfarm_poll(run, &res, 200), 0);
+    fitfarm_batch_destroy(&batch);
+    fitfarm_run_destroy(&run);
+}
+
+static void test_unknown_plugin(void **state)
+{
+    fitfarm_client_t *client = *state;
+    fitfarm_run_options_t ro = {0};
+    fitfarm_run_t *run = NULL;
+    assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
+    fitfarm_batch_t *batch = NULL;
+    assert_int_equal(fitfarm_batch_new("no-such-plugin", NULL, 1, &batch), 0);
+    double g = 0.5;
+    fitfarm_batch_add_f64(batch, &g, 1);
+    assert_int_equal(fitfarm_evaluate(run, batch, NULL, NULL, 20000), FITFARM_EPLUGIN);
+    const char *msg = fitfarm_client_error(client);
+    if (!strstr(msg, "no-such-plugin") || !strstr(msg, "zdt1"))
+        fail_msg("the error should name the plugin and the pool's plugins: %s", msg);
+    fitfarm_batch_destroy(&batch);
+    fitfarm_run_destroy(&run);
+}
+
+static void s_assert_gone(pid_t pid, const char *what)
+{
+    assert_true(pid > 0);
+    /* Reaped by destroy: no zombie left, and no process with that PID of ours. */
+    errno = 0;
+    if (kill(pid, 0) == 0 || errno != ESRCH)
+        fail_msg("the embedded %s (pid %d) is still there", what, (int)pid);
+    int status;
+    assert_int_equal(waitpid(pid, &status, WNOHANG), -1);
+    assert_int_equal(errno, ECHILD);
+}
+
+static void test_destroy_leaves_nothing(void **state)
+{
+    (void)state;
+    char err[1200];
+    fitfarm_client_t *client = s_pool(1, err, sizeof err);
+    pid_t broker = -1, worker = -1;
+    const char *dir = NULL;
+    client_test_pool_pids(client, &broker, &worker, &dir);
+    assert_true(broker > 0 && worker > 0 && broker != worker);
+    assert_int_equal(kill(broker, 0), 0);
+    assert_int_equal(kill(worker, 0), 0);
+    char dir_copy[512];
+    snprintf(dir_copy, sizeof dir_copy, "%s", dir);
+    struct stat st;
+    assert_int_equal(stat(dir_copy, &st), 0);
+    fitfarm_client_destroy(&client);
+    assert_null(client);
+    s_assert_gone(broker, "broker");
+    s_assert_gone(worker, "worker");
+    assert_int_equal(stat(dir_copy, &st), -1); /* the private folder is removed */
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_evaluate_zdt1),
+        cmocka_unit_test(test_submit_poll),
+        cmocka_unit_test(test_unknown_plugin),
+    };
+    const struct CMUnitTest alone[] = {
+        cmocka_unit_test(test_destroy_leaves_nothing),
+    };
+    int failed = cmocka_run_group_tests(tests, s_setup, s_teardown);
+    return failed + cmocka_run_group_tests(alone, NULL, NULL);
+}
