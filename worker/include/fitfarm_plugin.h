@@ -82,4 +82,20 @@ static inline double fitfarm_genome_f64(const uint8_t *genome, size_t i)
     return v;
 }
 
+/* Optional: a plugin may also export
+ *
+ *     int fitfarm_plugin_trace(const char *params_json, const uint8_t *genome,
+ *                              size_t genome_len, uint64_t seed, const char *path,
+ *                              char *err, size_t errlen);
+ *
+ * which runs one evaluation exactly as create + evaluate would (same params,
+ * genome and seed, same fitness) and writes its time series to the file at
+ * path, in a format the plugin documents (JSON Lines for the bundled ones).
+ * Returns FITFARM_PLUGIN_OK, or EINVAL / EFAIL with a sentence in err. Used by
+ * `fitfarm sim --trace`; the worker never calls it. */
+typedef int (*fitfarm_plugin_trace_fn)(const char *params_json, const uint8_t *genome,
+                                       size_t genome_len, uint64_t seed, const char *path,
+                                       char *err, size_t errlen);
+#define FITFARM_PLUGIN_TRACE_SYMBOL "fitfarm_plugin_trace"
+
 #endif

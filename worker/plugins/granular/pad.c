@@ -6,6 +6,7 @@
 #include <math.h>
 #include <stdarg.h>
 #include <stdlib.h>
+#include <string.h>
 
 #include "dem.h"
 #include "fitfarm_plugin.h"
@@ -51,6 +52,7 @@ int granular_pad_run(const granular_params_t *p, const double *genes, size_t gen
     size_t n = (size_t)p->rows * (size_t)p->columns;
     granular_world_t *w = NULL, *snap = NULL;
     double *stiff = NULL;
+    memset(out, 0, sizeof *out);
     if (gene_count != n) {
         s_errf(err, errlen, "granular: genome has %zu genes, expected %zu (rows*columns = %d*%d)",
                gene_count, n, p->rows, p->columns);
