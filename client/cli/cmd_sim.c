@@ -1,0 +1,328 @@
+/* cmd_sim.c: `fitfarm sim`: one evaluation of one genome by a plugin loaded
+ * into this process, without a broker or a pool: for trying params, timing a
+ * plugin, and (with --trace) recording what the simulation did through the
+ * plugin's optional fitfarm_plugin_trace entry point.
+ *
+ * Owns option parsing, finding and loading the plugin file, and the output
+ * line. Not here: the worker's plugin registry (the worker's own, private),
+ * the plugins themselves. The plugin runs in this process: a crashing plugin
+ * takes the command down, which is what a developer debugging it wants. */
+#include <dlfcn.h>
+#include <jansson.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#include "cli_util.h"
+#include "commands.h"
+#include "fitfarm_plugin.h"
+#include "limits.h"
+#include "params.h"
+#include "worker/worker.h"
+
+#define SIM_MAX_GENES (PROTO_MAX_GENOME_BYTES / 8u)
+#define SIM_MAX_OBJECTIVES PROTO_MAX_OBJECTIVES
+
+static const char s_help[] =
+    "usage: fitfarm sim PLUGIN --genome JSON_ARRAY [options]\n"
+    "\n"
+    "Evaluates one genome with a plugin loaded into this process (no broker, no\n"
+    "pool, no cache) and prints one JSON line. PLUGIN is a plugin name, looked up\n"
+    "as NAME.so in the plugin directories, or a path to a .so file.\n"
+    "\n"
+    "options:\n"
+    "  --genome JSON      the genome, a JSON array of numbers (required)\n"
+    "  --params JSON      plugin parameters, a JSON object (default {})\n"
+    "  --seed N           evaluation seed, 0..2^64-1 (default 0)\n"
+    "  --trace FILE       also write the plugin's trace of this evaluation to FILE\n"
+    "                     (the plugin must export fitfarm_plugin_trace)\n"
+    "  --plugin-dir DIR   look in DIR first (repeatable); then the build tree's\n"
+    "                     plugins when run from it, then the installed plugins\n"
+    "\n"
+    "output: {\"plugin\": NAME, \"version\": V, \"seed\": \"<decimal>\", \"fitness\": [numbers],\n"
+    "         \"cpu_seconds\": S, \"trace\": FILE|null}\n"
+    "numbers have 17 significant digits, so they parse back to the same double.\n"
+    "\n"
+    "exit status: 0 ok, 1 the plugin could not be loaded or the evaluation\n"
+    "failed (the reason on stderr), 2 usage error.\n";
+
+static int s_usage(const char *fmt, const char *arg)
+{
+    fputs("fitfarm sim: ", stderr);
+    fprintf(stderr, fmt, arg ? arg : "");
+    fputs(" (see fitfarm sim --help)\n", stderr);
+    return 2;
+}
+
+/* A plugin name as the ABI allows it: [a-z0-9_-]+, at most 64 bytes. */
+static int s_valid_name(const char *s)
+{
+    size_t n = strlen(s);
+    if (n == 0 || n > 64)
+        return 0;
+    for (size_t i = 0; i < n; i++) {
+        char c = s[i];
+        if (!((c >= 'a' && c <= 'z') || (c >= '0' && c <= '9') || c == '_' || c == '-'))
+            return 0;
+    }
+    return 1;
+}
+
+/* Loads the plugin: a path as given, or NAME.so from the first directory
+ * that has it. Returns the descriptor (borrowed from *dl, which the caller
+ * dlcloses) or NULL with a sentence in err. */
+static const fitfarm_plugin_t *s_load(const char *plugin, const char *const *dirs, void **dl,
+                                      char *err, size_t errlen)
+{
+    char path[4096];
+    *dl = NULL;
+    if (strchr(plugin, '/')) {
+        *dl = dlopen(plugin, RTLD_NOW | RTLD_LOCAL);
+        if (!*dl) {
+            snprintf(err, errlen, "cannot load %s: %s", plugin, dlerror());
+            return NULL;
+        }
+    } else {
+        if (!s_valid_name(plugin)) {
+            snprintf(err, errlen, "'%.80s' is not a plugin name ([a-z0-9_-]+) nor a path",
+                     plugin);
+            return NULL;
+        }
+        char tried[1024] = "";
+        size_t used = 0;
+        for (size_t i = 0; dirs[i] && !*dl; i++) {
+            snprintf(path, sizeof path, "%s/%s.so", dirs[i], plugin);
+            *dl = dlopen(path, RTLD_NOW | RTLD_LOCAL);
+            if (!*dl && used < sizeof tried) {
+                int w = snprintf(tried + used, sizeof tried - used, "%s%s", used ? ", " : "",
+                                 dirs[i]);
+                if (w > 0)
+                    used += (size_t)w;
+            }
+        }
+        if (!*dl) {
+            snprintf(err, errlen, "no plugin '%s' (looked for %s.so in: %s)", plugin, plugin,
+                     used ? tried : "no directories");
+            return NULL;
+        }
+    }
+    const fitfarm_plugin_t *(*entry)(void) =
+        (const fitfarm_plugin_t *(*)(void))dlsym(*dl, FITFARM_PLUGIN_SYMBOL);
+    const fitfarm_plugin_t *p = entry ? entry() : NULL;
+    if (!p) {
+        snprintf(err, errlen, "%s has no %s descriptor", plugin, FITFARM_PLUGIN_SYMBOL);
+    } else if (p->abi_version != FITFARM_PLUGIN_ABI) {
+        snprintf(err, errlen, "%s speaks plugin ABI %u, this build %u", plugin,
+                 (unsigned)p->abi_version, (unsigned)FITFARM_PLUGIN_ABI);
+        p = NULL;
+    } else if (!p->name || !p->version || !p->create || !p->evaluate || !p->destroy) {
+        snprintf(err, errlen, "%s has an incomplete descriptor", plugin);
+        p = NULL;
+    }
+    if (!p) {
+        dlclose(*dl);
+        *dl = NULL;
+    }
+    return p;
+}
+
+/* Parses a JSON array of numbers into little-endian doubles (the wire form
+ * of an f64 genome). Returns a malloc'd buffer and its length, or NULL with
+ * err. */
+static uint8_t *s_genome(const char *text, size_t *len, char *err, size_t errlen)
+{
+    json_error_t jerr;
+    json_t *arr = json_loads(text, 0, &jerr);
+    uint8_t *out = NULL;
+    if (!arr) {
+        snprintf(err, errlen, "--genome is not valid JSON: %s", jerr.text);
+        goto cleanup;
+    }
+    size_t n = json_is_array(arr) ? json_array_size(arr) : 0;
+    if (!json_is_array(arr) || n > SIM_MAX_GENES) {
+        snprintf(err, errlen, "--genome must be a JSON array of at most %u numbers",
+                 SIM_MAX_GENES);
+        goto cleanup;
+    }
+    out = malloc(n ? n * 8 : 1);
+    if (!out) {
+        snprintf(err, errlen, "out of memory");
+        goto cleanup;
+    }
+    for (size_t i = 0; i < n; i++) {
+        json_t *v = json_array_get(arr, i);
+        if (!json_is_number(v)) {
+            snprintf(err, errlen, "--genome[%zu] is not a number", i);
+            free(out);
+            out = NULL;
+            goto cleanup;
+        }
+        double d = json_number_value(v);
+        uint64_t bits;
+        memcpy(&bits, &d, sizeof bits);
+        for (int b = 0; b < 8; b++)
+            out[i * 8 + (size_t)b] = (uint8_t)(bits >> (8 * b));
+    }
+    *len = n * 8;
+cleanup:
+    json_decref(arr);
+    return out;
+}
+
+static double s_cpu_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+int cli_cmd_sim(int argc, char **argv)
+{
+    const char *plugin = NULL, *genome_text = NULL, *params_text = "{}", *trace_path = NULL;
+    const char *dirs[2 * WORKER_MAX_PLUGIN_DIRS + 1];
+    size_t ndirs = 0;
+    uint64_t seed = 0;
+    for (int i = 1; i < argc; i++) {
+        const char *v = NULL;
+        if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
+            fputs(s_help, stdout);
+            return 0;
+        } else if (cli_match_value(argc, argv, &i, "--genome", &v)) {
+            if (!v)
+                return s_usage("--genome needs a JSON array", NULL);
+            genome_text = v;
+        } else if (cli_match_value(argc, argv, &i, "--params", &v)) {
+            if (!v)
+                return s_usage("--params needs a JSON object", NULL);
+            params_text = v;
+        } else if (cli_match_value(argc, argv, &i, "--seed", &v)) {
+            if (!v || cli_parse_u64(v, 0, UINT64_MAX, &seed) < 0)
+                return s_usage("--seed needs a number in 0..2^64-1, not '%s'", v);
+        } else if (cli_match_value(argc, argv, &i, "--trace", &v)) {
+            if (!v || !*v)
+                return s_usage("--trace needs a file name", NULL);
+            trace_path = v;
+        } else if (cli_match_value(argc, argv, &i, "--plugin-dir", &v)) {
+            if (!v || !*v)
+                return s_usage("--plugin-dir needs a directory", NULL);
+            if (ndirs == WORKER_MAX_PLUGIN_DIRS)
+                return s_usage("at most 16 --plugin-dir options%s", NULL);
+            dirs[ndirs++] = v;
+        } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
+            return s_usage("unknown option '%s'", argv[i]);
+        } else if (!plugin) {
+            plugin = argv[i];
+        } else {
+            return s_usage("unexpected argument '%s'", argv[i]);
+        }
+    }
+    if (!plugin)
+        return s_usage("which plugin? give its name%s", NULL);
+    if (!genome_text)
+        return s_usage("--genome is required%s", NULL);
+    ndirs += worker_default_plugin_dirs(dirs + ndirs, WORKER_MAX_PLUGIN_DIRS + 1);
+    dirs[ndirs] = NULL;
+
+    int rc = 1;
+    char err[512] = "";
+    void *dl = NULL, *ctx = NULL;
+    char *params = NULL;
+    uint8_t *genome = NULL;
+    double *fitness = NULL;
+    size_t genome_len = 0;
+    const fitfarm_plugin_t *p = NULL;
+    if (proto_params_canonical(params_text, &params, err, sizeof err) != 0) {
+        rc = s_usage("--params: %s", err);
+        goto cleanup;
+    }
+    genome = s_genome(genome_text, &genome_len, err, sizeof err);
+    if (!genome) {
+        rc = s_usage("%s", err);
+        goto cleanup;
+    }
+    p = s_load(plugin, dirs, &dl, err, sizeof err);
+    if (!p) {
+        fprintf(stderr, "fitfarm sim: %s\n", err);
+        goto cleanup;
+    }
+    fitfarm_plugin_trace_fn trace = NULL;
+    if (trace_path) {
+        trace = (fitfarm_plugin_trace_fn)dlsym(dl, FITFARM_PLUGIN_TRACE_SYMBOL);
+        if (!trace) {
+            fprintf(stderr, "fitfarm sim: plugin %s has no trace entry point (%s)\n", p->name,
+                    FITFARM_PLUGIN_TRACE_SYMBOL);
+            goto cleanup;
+        }
+    }
+    fitfarm_plugin_info_t info = {0};
+    err[0] = '\0';
+    if (p->create(params, &ctx, &info, err, sizeof err) != FITFARM_PLUGIN_OK) {
+        err[sizeof err - 1] = '\0';
+        fprintf(stderr, "fitfarm sim: %s refused the params: %s\n", p->name, err);
+        ctx = NULL;
+        goto cleanup;
+    }
+    if (info.objectives == 0 || info.objectives > SIM_MAX_OBJECTIVES) {
+        fprintf(stderr, "fitfarm sim: %s reports %u objectives\n", p->name,
+                (unsigned)info.objectives);
+        goto cleanup;
+    }
+    if (info.genome_bytes && info.genome_bytes != genome_len) {
+        fprintf(stderr, "fitfarm sim: %s expects %u doubles, --genome has %zu\n", p->name,
+                (unsigned)(info.genome_bytes / 8), genome_len / 8);
+        goto cleanup;
+    }
+    fitness = calloc(info.objectives, sizeof *fitness);
+    if (!fitness) {
+        fprintf(stderr, "fitfarm sim: out of memory\n");
+        goto cleanup;
+    }
+    double t0 = s_cpu_seconds();
+    err[0] = '\0';
+    int erc = p->evaluate(ctx, genome, genome_len, seed, fitness, err, sizeof err);
+    double cpu = s_cpu_seconds() - t0;
+    err[sizeof err - 1] = '\0';
+    if (erc != FITFARM_PLUGIN_OK) {
+        fprintf(stderr, "fitfarm sim: %s: evaluation failed: %s\n", p->name, err);
+        goto cleanup;
+    }
+    if (trace) {
+        err[0] = '\0';
+        if (trace(params, genome, genome_len, seed, trace_path, err, sizeof err) !=
+            FITFARM_PLUGIN_OK) {
+            err[sizeof err - 1] = '\0';
+            fprintf(stderr, "fitfarm sim: %s: trace failed: %s\n", p->name, err);
+            goto cleanup;
+        }
+    }
+    printf("{\"plugin\":");
+    cli_json_string(stdout, p->name);
+    printf(",\"version\":");
+    cli_json_string(stdout, p->version);
+    printf(",\"seed\":\"%llu\",\"fitness\":[", (unsigned long long)seed);
+    for (uint32_t i = 0; i < info.objectives; i++) {
+        char num[32];
+        proto_format_double(fitness[i], num);
+        printf("%s%s", i ? "," : "", num);
+    }
+    char num[32];
+    proto_format_double(cpu, num);
+    printf("],\"cpu_seconds\":%s,\"trace\":", num);
+    if (trace_path)
+        cli_json_string(stdout, trace_path);
+    else
+        printf("null");
+    printf("}\n");
+    rc = fflush(stdout) == 0 ? 0 : 1;
+cleanup:
+    if (ctx)
+        p->destroy(ctx);
+    if (dl)
+        dlclose(dl);
+    free(fitness);
+    free(genome);
+    free(params);
+    return rc;
+}
