@@ -31,6 +31,7 @@
 #define S_MAX_MESSAGES_PER_TURN 64 /* broker messages read per turn: children are not starved */
 #define S_MAX_OUTCOMES_PER_DONE 10000u
 #define S_CLOSE_LINGER_MS 2000 /* time the last DONE and BYE get to leave */
+#define S_REHELLO_DEBOUNCE_MS 250
 
 static volatile sig_atomic_t s_stop_signals;
 
@@ -59,6 +60,7 @@ typedef struct {
     size_t n_done, cap_done;
     int64_t next_heartbeat_ms;
     int64_t last_heard_ms;
+    int64_t last_hello_ms;
     int draining;
     uint64_t evaluated;
 } s_worker_t;
@@ -141,6 +143,7 @@ static void s_register(s_worker_t *self)
     msg.u.hello.plugins = infos;
     s_send(self, &msg);
     free(infos);
+    self->last_hello_ms = common_clock_ms();
     worker_credits_reset(&self->credits);
     s_grant(self);
 }
@@ -182,6 +185,11 @@ static void s_on_message(s_worker_t *self, const uint8_t *buf, size_t len)
         s_on_jobs(self, msg);
         break;
     case PROTO_REHELLO:
+        /* Every message we sent before our HELLO reached a restarted broker
+         * earns one REHELLO; answering each would register many times. If
+         * the broker really forgot us since, our next heartbeat earns another. */
+        if (self->last_heard_ms - self->last_hello_ms < S_REHELLO_DEBOUNCE_MS)
+            break;
         LOG_INFO("broker does not know this worker; registering again");
         s_register(self);
         break;
@@ -346,8 +354,15 @@ static int s_load_plugins(s_worker_t *self)
         worker_default_plugin_dirs(defaults, WORKER_MAX_PLUGIN_DIRS);
         dirs = defaults;
     }
-    for (size_t i = 0; i < WORKER_MAX_PLUGIN_DIRS && dirs[i]; i++)
+    for (size_t i = 0; i < WORKER_MAX_PLUGIN_DIRS && dirs[i]; i++) {
+        /* A default folder that does not exist (say, nothing installed yet)
+         * is normal; a folder the user named is worth a warning. */
+        if (dirs == defaults && access(dirs[i], F_OK) != 0) {
+            LOG_DEBUG("no plugin directory %s", dirs[i]);
+            continue;
+        }
         worker_registry_load_dir(self->registry, dirs[i]);
+    }
     for (size_t i = 0; i < WORKER_MAX_EXEC && self->config.exec[i]; i++) {
         char err[512];
         if (worker_registry_add_exec(self->registry, self->config.exec[i], err, sizeof err) !=
