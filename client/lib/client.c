@@ -243,11 +243,12 @@ int client_pump(fitfarm_client_t *self, int timeout_ms)
     if (items[0].revents & ZMQ_POLLIN)
         for (int i = 0; i < CLIENT_PUMP_BURST && s_recv_one(self); i++)
             handled = 1;
-    if (self->reconnected) {
-        self->reconnected = 0;
-        for (fitfarm_run_t *run = self->runs; run; run = run->next)
+    int64_t now = common_clock_ms();
+    int all = self->reconnected;
+    self->reconnected = 0;
+    for (fitfarm_run_t *run = self->runs; run; run = run->next)
+        if (all || (run->retry_at_ms != 0 && now >= run->retry_at_ms))
             client_run_resend(run);
-    }
     return handled;
 }
 

@@ -89,6 +89,8 @@ struct fitfarm_run {
     size_t n_chunks, cap_chunks;
     client_ready_t *ready; /* poll queue (streaming batches) */
     size_t ready_head, ready_len, ready_cap;
+    int64_t retry_at_ms;    /* re-send again then (a restarted broker refused); 0 = no */
+    int64_t retry_until_ms; /* give up retrying after this */
     int async_rc; /* a background refusal to report on the next poll/evaluate */
     char async_err[CLIENT_ERR_BYTES];
 };

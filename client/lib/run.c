@@ -23,6 +23,8 @@
 #define CLIENT_SUBMIT_WAIT_MS 60000 /* fitfarm_submit: how long ACCEPTED may take */
 #define CLIENT_SEND_MS 5000          /* how long one send may wait for the socket */
 #define CLIENT_ACK_MS 1000           /* an unsent ACK only costs a re-delivery */
+#define CLIENT_RETRY_EVERY_MS 1000   /* re-send refused re-sends this often ... */
+#define CLIENT_RETRY_FOR_MS 60000    /* ... for this long (workers re-register) */
 
 fitfarm_run_t *client_run_find(fitfarm_client_t *self, const char *run_id)
 {
@@ -250,6 +252,31 @@ void client_run_on_results(fitfarm_run_t *run, const proto_results_t *results)
     free(acks);
 }
 
+/* A re-send after a reconnect was refused. A broker that just restarted
+ * may not know its workers' plugins yet, or be busy: keep the slots and try
+ * again every second for a while; other refusals, or too long, are errors. */
+static void s_background_refused(fitfarm_run_t *run, client_chunk_t *c, uint32_t code,
+                                 const char *text)
+{
+    int64_t now = common_clock_ms();
+    int transient = code == PROTO_REFUSE_UNKNOWN_PLUGIN || code == PROTO_REFUSE_QUEUE_FULL ||
+                    code == PROTO_REFUSE_SHUTTING_DOWN;
+    if (transient && (run->retry_until_ms == 0 || now < run->retry_until_ms)) {
+        if (run->retry_until_ms == 0)
+            run->retry_until_ms = now + CLIENT_RETRY_FOR_MS;
+        run->retry_at_ms = now + CLIENT_RETRY_EVERY_MS;
+        for (uint32_t k = 0; k < c->n_slots; k++)
+            if (c->batch->slots[c->slots[k]].state == CLIENT_SLOT_UNSENT)
+                c->batch->slots[c->slots[k]].state = CLIENT_SLOT_ACCEPTED;
+        return;
+    }
+    char msg[CLIENT_ERR_BYTES];
+    snprintf(msg, sizeof msg, "after a reconnect the broker refused batch work it had "
+             "accepted before (code %u): %s", code, text ? text : "");
+    s_async_fail(run, code == PROTO_REFUSE_UNKNOWN_PLUGIN ? FITFARM_EPLUGIN : FITFARM_EREFUSED,
+                 msg);
+}
+
 void client_run_on_answer(fitfarm_client_t *self, uint64_t batch_tag, int accepted, uint32_t code,
                           const char *text)
 {
@@ -269,9 +296,10 @@ void client_run_on_answer(fitfarm_client_t *self, uint64_t batch_tag, int accept
             if (!accepted)
                 c->refuse_text = strdup(text ? text : "");
             if (c->background) {
-                if (!accepted)
-                    s_async_fail(run, FITFARM_EREFUSED,
-                                 "the broker refused a re-sent batch after a reconnect");
+                if (accepted)
+                    run->retry_until_ms = 0;
+                else
+                    s_background_refused(run, c, code, text);
                 s_chunks_remove_if(run, c->batch, 1, 1);
             }
             return;
@@ -367,6 +395,7 @@ void client_run_resend(fitfarm_run_t *run)
 {
     if (!run->client)
         return;
+    run->retry_at_ms = 0;
     char saved[CLIENT_ERR_BYTES];
     memcpy(saved, run->client->err, sizeof saved);
     /* Earlier re-sends that were never answered are superseded below. */
