@@ -86,8 +86,7 @@ static const fitfarm_plugin_t *s_load(const char *plugin, const char *const *dir
         }
     } else {
         if (!s_valid_name(plugin)) {
-            snprintf(err, errlen, "'%.80s' is not a plugin name ([a-z0-9_-]+) nor a path",
-                     plugin);
+            snprintf(err, errlen, "'%.80s' is not a plugin name ([a-z0-9_-]+) nor a path", plugin);
             return NULL;
         }
         char tried[1024] = "";
@@ -96,8 +95,8 @@ static const fitfarm_plugin_t *s_load(const char *plugin, const char *const *dir
             snprintf(path, sizeof path, "%s/%s.so", dirs[i], plugin);
             *dl = dlopen(path, RTLD_NOW | RTLD_LOCAL);
             if (!*dl && used < sizeof tried) {
-                int w = snprintf(tried + used, sizeof tried - used, "%s%s", used ? ", " : "",
-                                 dirs[i]);
+                int w =
+                    snprintf(tried + used, sizeof tried - used, "%s%s", used ? ", " : "", dirs[i]);
                 if (w > 0)
                     used += (size_t)w;
             }
@@ -142,8 +141,7 @@ static uint8_t *s_genome(const char *text, size_t *len, char *err, size_t errlen
     }
     size_t n = json_is_array(arr) ? json_array_size(arr) : 0;
     if (!json_is_array(arr) || n > SIM_MAX_GENES) {
-        snprintf(err, errlen, "--genome must be a JSON array of at most %u numbers",
-                 SIM_MAX_GENES);
+        snprintf(err, errlen, "--genome must be a JSON array of at most %u numbers", SIM_MAX_GENES);
         goto cleanup;
     }
     out = malloc(n ? n * 8 : 1);

@@ -26,8 +26,8 @@
 #include "worker/plugins/granular/params.h"
 
 /* Quick params for most checks: a 3x6 pad, short phases. */
-#define S_QUICK                                                                                   \
-    "{\"rows\":3,\"columns\":6,\"settle_time\":0.05,\"transient_time\":0.03,"                  \
+#define S_QUICK                                                                                    \
+    "{\"rows\":3,\"columns\":6,\"settle_time\":0.05,\"transient_time\":0.03,"                      \
     "\"measure_time\":0.03,\"frequencies\":[40,120]"
 
 static int s_run(const char *json, double fill, uint64_t seed, granular_pad_result_t *res,
@@ -138,8 +138,8 @@ static void test_graded_and_three_objectives(void **state)
     (void)state;
     granular_params_t p;
     char err[256];
-    assert_int_equal(granular_params_parse(
-                         S_QUICK ",\"materials\":\"graded\",\"objectives\":3}", &p, err, sizeof err),
+    assert_int_equal(granular_params_parse(S_QUICK ",\"materials\":\"graded\",\"objectives\":3}",
+                                           &p, err, sizeof err),
                      0);
     assert_int_equal(p.objectives, 3);
     double genes[18];
@@ -200,15 +200,13 @@ static void test_bad_params_name_the_key(void **state)
     /* A time step beyond t_c/10 would be unstable: refused before running. */
     granular_pad_result_t res;
     char err[256] = "";
-    assert_int_equal(s_run("{\"dt\":0.001}", 0.0, 1, &res, err, sizeof err),
-                     FITFARM_PLUGIN_EINVAL);
+    assert_int_equal(s_run("{\"dt\":0.001}", 0.0, 1, &res, err, sizeof err), FITFARM_PLUGIN_EINVAL);
     assert_non_null(strstr(err, "dt"));
     /* restitution e gives zeta = -ln e / sqrt(pi^2 + ln^2 e), the inverse of
      * e = exp(-gamma t_c) (Poeschel & Schwager 2005): e = exp(-pi) <-> 1/sqrt(2). */
     granular_params_t p;
-    assert_int_equal(granular_params_parse("{\"restitution\":0.04321391826377226}", &p, err,
-                                           sizeof err),
-                     0);
+    assert_int_equal(
+        granular_params_parse("{\"restitution\":0.04321391826377226}", &p, err, sizeof err), 0);
     assert_true(fabs(p.damping_ratio - M_SQRT1_2) < 1e-12);
 }
 

@@ -25,11 +25,11 @@
 
 #include <cmocka.h>
 
+#include "fitfarm_rng.h"
 #include "worker/plugins/granular/cells.h"
 #include "worker/plugins/granular/contact.h"
 #include "worker/plugins/granular/dem.h"
 #include "worker/plugins/granular/goertzel.h"
-#include "fitfarm_rng.h"
 
 /* Two discs fly at each other with no gravity; the world is built by hand
  * the same way pad.c builds one. Returns the measured contact duration and
@@ -288,8 +288,8 @@ static void test_monatomic_chain_cutoff(void **state)
         far_above = fmax(far_above, above[i]);
         far_below = fmax(far_below, below[i]);
     }
-    print_message("far quarter / first disc: below w_max %.3g, above %.3g\n",
-                  far_below / below[0], far_above / above[0]);
+    print_message("far quarter / first disc: below w_max %.3g, above %.3g\n", far_below / below[0],
+                  far_above / above[0]);
     /* Below w_max the wave propagates: the far quarter moves about as much
      * as the first disc; above it, practically not at all. */
     assert_true(far_below > 0.3 * below[0]);

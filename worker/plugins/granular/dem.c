@@ -4,14 +4,15 @@
  * to every disc touching a boundary. Owns no scenario (pad.c). */
 #include "dem.h"
 
+#include <assert.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
 /* The double arrays of a world, for allocation and copying. */
-#define S_ARRAYS(X)                                                                               \
-    X(x) X(y) X(vx) X(vy) X(w) X(ax) X(ay) X(aw) X(r) X(m) X(k) X(vpx) X(vpy) X(vpw) X(fx) X(fy)  \
-        X(tq)
+#define S_ARRAYS(X)                                                                                \
+    X(x)                                                                                           \
+    X(y) X(vx) X(vy) X(w) X(ax) X(ay) X(aw) X(r) X(m) X(k) X(vpx) X(vpy) X(vpw) X(fx) X(fy) X(tq)
 
 granular_world_t *granular_world_new(size_t n)
 {
@@ -21,8 +22,8 @@ granular_world_t *granular_world_new(size_t n)
     self->n = n;
     size_t cnt = n ? n : 1;
     int ok = 1;
-#define S_ALLOC(f)                                                                                \
-    self->f = calloc(cnt, sizeof(double));                                                        \
+#define S_ALLOC(f)                                                                                 \
+    self->f = calloc(cnt, sizeof(double));                                                         \
     ok = ok && self->f;
     S_ARRAYS(S_ALLOC)
 #undef S_ALLOC
@@ -48,6 +49,7 @@ void granular_world_destroy(granular_world_t **self_p)
 
 void granular_world_copy_state(granular_world_t *dst, const granular_world_t *src)
 {
+    assert(dst->n == src->n);
     size_t bytes = src->n * sizeof(double);
 #define S_COPY(f) memcpy(dst->f, src->f, bytes);
     S_ARRAYS(S_COPY)
@@ -146,12 +148,11 @@ static double s_boundary(granular_world_t *self, size_t i, int32_t partner, doub
     double vex = -self->vpx[i], vey = bv_end - self->vpy[i];
     double vn = vex * nx + vey * ny;
     double vt = vex * tx + vey * ty - self->vpw[i] * r;
-    granular_history_t *h =
-        granular_contacts_find(&self->contacts[i], partner, self->stamp);
+    granular_history_t *h = granular_contacts_find(&self->contacts[i], partner, self->stamp);
     double scratch = 0.0;
     double fn, ft;
-    granular_contact_force(&law, delta, vn, vt, vt_half * self->disp_dt, h ? &h->xi : &scratch,
-                           &fn, &ft);
+    granular_contact_force(&law, delta, vn, vt, vt_half * self->disp_dt, h ? &h->xi : &scratch, &fn,
+                           &ft);
     self->fx[i] -= fn * nx + ft * tx;
     self->fy[i] -= fn * ny + ft * ty;
     self->tq[i] -= r * ft;
@@ -180,8 +181,7 @@ static void s_pair(void *ctx, uint32_t i, uint32_t j)
     double vex = self->vpx[j] - self->vpx[i], vey = self->vpy[j] - self->vpy[i];
     double vn = vex * nx + vey * ny;
     double vt = vex * tx + vey * ty - self->vpw[j] * rj - self->vpw[i] * ri;
-    granular_history_t *h =
-        granular_contacts_find(&self->contacts[i], (int32_t)j, self->stamp);
+    granular_history_t *h = granular_contacts_find(&self->contacts[i], (int32_t)j, self->stamp);
     double scratch = 0.0;
     double fn, ft;
     granular_contact_force(&law, reach - d, vn, vt, vt_half * self->disp_dt, h ? &h->xi : &scratch,
@@ -226,15 +226,15 @@ static void s_forces(granular_world_t *self, double disp_dt)
     for (size_t i = 0; i < n; i++) {
         double x = self->x[i], y = self->y[i], r = self->r[i];
         if (self->has_floor && y - self->floor_y < r)
-            s_boundary(self, i, GRANULAR_FLOOR, 0.0, -1.0, r - (y - self->floor_y), 0.0,
-                       floor_vh, self->floor_v);
+            s_boundary(self, i, GRANULAR_FLOOR, 0.0, -1.0, r - (y - self->floor_y), 0.0, floor_vh,
+                       self->floor_v);
         if (self->has_walls) {
             if (x - self->wall_left < r)
-                s_boundary(self, i, GRANULAR_WALL_LEFT, -1.0, 0.0, r - (x - self->wall_left),
-                           0.0, floor_vh, self->floor_v);
+                s_boundary(self, i, GRANULAR_WALL_LEFT, -1.0, 0.0, r - (x - self->wall_left), 0.0,
+                           floor_vh, self->floor_v);
             if (self->wall_right - x < r)
-                s_boundary(self, i, GRANULAR_WALL_RIGHT, 1.0, 0.0, r - (self->wall_right - x),
-                           0.0, floor_vh, self->floor_v);
+                s_boundary(self, i, GRANULAR_WALL_RIGHT, 1.0, 0.0, r - (self->wall_right - x), 0.0,
+                           floor_vh, self->floor_v);
         }
         if (self->has_plate && self->plate_y - y < r)
             plate_f += s_boundary(self, i, GRANULAR_PLATE, 0.0, 1.0, r - (self->plate_y - y),

@@ -25,9 +25,9 @@ static void s_errf(char *err, size_t errlen, const char *fmt, ...)
 }
 
 /* Runs steps time steps, tracing now and then. */
-static void s_run(granular_world_t *w, uint64_t steps, granular_trace_t *trace,
-                  const char *phase, double frequency, uint64_t sample_every,
-                  uint64_t grains_every, const double *stiff)
+static void s_run(granular_world_t *w, uint64_t steps, granular_trace_t *trace, const char *phase,
+                  double frequency, uint64_t sample_every, uint64_t grains_every,
+                  const double *stiff)
 {
     for (uint64_t s = 0; s < steps; s++) {
         granular_world_step(w);
@@ -45,8 +45,8 @@ static uint64_t s_every(double interval, double dt)
 }
 
 int granular_pad_run(const granular_params_t *p, const double *genes, size_t gene_count,
-                     uint64_t seed, granular_trace_t *trace, granular_pad_result_t *out,
-                     char *err, size_t errlen)
+                     uint64_t seed, granular_trace_t *trace, granular_pad_result_t *out, char *err,
+                     size_t errlen)
 {
     int rc = FITFARM_PLUGIN_EFAIL;
     size_t n = (size_t)p->rows * (size_t)p->columns;
@@ -116,9 +116,8 @@ int granular_pad_run(const granular_params_t *p, const double *genes, size_t gen
     double dt = t_c * GRANULAR_DT_FRACTION;
     if (p->dt > 0.0) {
         if (p->dt > t_c * GRANULAR_DT_MAX_FRACTION) {
-            s_errf(err, errlen,
-                   "granular: dt = %g s exceeds t_c/10 = %g s of the stiffest contact", p->dt,
-                   t_c * GRANULAR_DT_MAX_FRACTION);
+            s_errf(err, errlen, "granular: dt = %g s exceeds t_c/10 = %g s of the stiffest contact",
+                   p->dt, t_c * GRANULAR_DT_MAX_FRACTION);
             rc = FITFARM_PLUGIN_EINVAL;
             goto cleanup;
         }

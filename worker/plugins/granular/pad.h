@@ -42,9 +42,9 @@
 #include "trace.h"
 
 #define GRANULAR_SETTLE_DAMPING 0.7        /* local damping while settling (PFC's default) */
-#define GRANULAR_DT_FRACTION (1.0 / 50.0) /* dt = t_c/50 unless "dt" is given */
-#define GRANULAR_DT_MAX_FRACTION 0.1      /* a given dt may be at most t_c/10 */
-#define GRANULAR_MAX_STEPS 2000000000.0   /* refuse params that would run longer */
+#define GRANULAR_DT_FRACTION (1.0 / 50.0)  /* dt = t_c/50 unless "dt" is given */
+#define GRANULAR_DT_MAX_FRACTION 0.1       /* a given dt may be at most t_c/10 */
+#define GRANULAR_MAX_STEPS 2000000000.0    /* refuse params that would run longer */
 #define GRANULAR_MIN_STEPS_PER_PERIOD 20.0 /* resolve the fastest disturbance */
 
 typedef struct {
@@ -61,7 +61,7 @@ typedef struct {
  * 1 (EINVAL: bad genome or params, e.g. a dt too large) or 2 (EFAIL: out of
  * memory, or the simulation went non-finite) with a sentence in err. */
 int granular_pad_run(const granular_params_t *p, const double *genes, size_t gene_count,
-                     uint64_t seed, granular_trace_t *trace, granular_pad_result_t *out,
-                     char *err, size_t errlen);
+                     uint64_t seed, granular_trace_t *trace, granular_pad_result_t *out, char *err,
+                     size_t errlen);
 
 #endif

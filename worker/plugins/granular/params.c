@@ -73,8 +73,7 @@ static int s_real(json_t *root, const char *key, double lo, int lo_open, double 
     return 1;
 }
 
-static int s_int(json_t *root, const char *key, int lo, int hi, int *out, char *err,
-                 size_t errlen)
+static int s_int(json_t *root, const char *key, int lo, int hi, int *out, char *err, size_t errlen)
 {
     json_t *v = json_object_get(root, key);
     if (!v)
@@ -94,14 +93,12 @@ static int s_int(json_t *root, const char *key, int lo, int hi, int *out, char *
 }
 
 static const char *const s_keys[] = {
-    "scenario",      "rows",          "columns",        "radius",         "density_soft",
-    "density_stiff", "k_soft",        "k_stiff",        "damping_ratio",  "restitution",
-    "friction",      "plate_mass",    "frequencies",    "amplitude",      "settle_time",
-    "transient_time", "measure_time", "scatter_radius", "jitter",         "gravity",
-    "objectives",    "materials",     "dt",             NULL};
+    "scenario",    "rows",      "columns",       "radius",         "density_soft", "density_stiff",
+    "k_soft",      "k_stiff",   "damping_ratio", "restitution",    "friction",     "plate_mass",
+    "frequencies", "amplitude", "settle_time",   "transient_time", "measure_time", "scatter_radius",
+    "jitter",      "gravity",   "objectives",    "materials",      "dt",           NULL};
 
-int granular_params_parse(const char *params_json, granular_params_t *p, char *err,
-                          size_t errlen)
+int granular_params_parse(const char *params_json, granular_params_t *p, char *err, size_t errlen)
 {
     int rc = -1;
     granular_params_default(p);
@@ -123,8 +120,12 @@ int granular_params_parse(const char *params_json, granular_params_t *p, char *e
         for (size_t i = 0; s_keys[i]; i++)
             known |= strcmp(key, s_keys[i]) == 0;
         if (!known) {
-            s_errf(err, errlen, "granular: unknown parameter \"%.64s\" (see the plugin's table)",
-                   key);
+            char list[512] = "";
+            size_t used = 0;
+            for (size_t i = 0; s_keys[i] && used < sizeof list; i++)
+                used += (size_t)snprintf(list + used, sizeof list - used, "%s%s", i ? ", " : "",
+                                         s_keys[i]);
+            s_errf(err, errlen, "granular: unknown parameter \"%.64s\" (it takes: %s)", key, list);
             goto cleanup;
         }
     }
@@ -141,7 +142,8 @@ int granular_params_parse(const char *params_json, granular_params_t *p, char *e
         else if (strcmp(m, "graded") == 0)
             p->materials = GRANULAR_GRADED;
         else {
-            s_errf(err, errlen, "granular: parameter \"materials\" must be \"binary\" or \"graded\"");
+            s_errf(err, errlen,
+                   "granular: parameter \"materials\" must be \"binary\" or \"graded\"");
             goto cleanup;
         }
     }
@@ -191,8 +193,10 @@ int granular_params_parse(const char *params_json, granular_params_t *p, char *e
     if (v) {
         size_t count = json_is_array(v) ? json_array_size(v) : 0;
         if (count < 1 || count > GRANULAR_MAX_FREQUENCIES) {
-            s_errf(err, errlen, "granular: parameter \"frequencies\" must be an array of 1 to %d "
-                                "numbers (Hz)", GRANULAR_MAX_FREQUENCIES);
+            s_errf(err, errlen,
+                   "granular: parameter \"frequencies\" must be an array of 1 to %d "
+                   "numbers (Hz)",
+                   GRANULAR_MAX_FREQUENCIES);
             goto cleanup;
         }
         for (size_t i = 0; i < count; i++) {

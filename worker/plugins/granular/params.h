@@ -66,7 +66,6 @@ void granular_params_default(granular_params_t *p);
 
 /* Parses params_json (NULL means "{}") over the defaults. Returns 0, or -1
  * with a sentence naming the offending key in err. */
-int granular_params_parse(const char *params_json, granular_params_t *p, char *err,
-                          size_t errlen);
+int granular_params_parse(const char *params_json, granular_params_t *p, char *err, size_t errlen);
 
 #endif

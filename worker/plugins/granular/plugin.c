@@ -108,8 +108,8 @@ FITFARM_PLUGIN_EXPORT const fitfarm_plugin_t *fitfarm_plugin(void)
  * exactly as evaluate() does it, with the time series written to path as
  * JSON Lines (trace.h). */
 FITFARM_PLUGIN_EXPORT int fitfarm_plugin_trace(const char *params_json, const uint8_t *genome,
-                                               size_t genome_len, uint64_t seed,
-                                               const char *path, char *err, size_t errlen)
+                                               size_t genome_len, uint64_t seed, const char *path,
+                                               char *err, size_t errlen)
 {
     int rc = FITFARM_PLUGIN_EINVAL;
     granular_params_t p;
@@ -131,11 +131,10 @@ FITFARM_PLUGIN_EXPORT int fitfarm_plugin_trace(const char *params_json, const ui
         rc = FITFARM_PLUGIN_EFAIL;
         goto cleanup;
     }
-    granular_trace_t trace = {.f = f, .version = GRANULAR_VERSION,
-                              .params_json = canon ? canon : "{}"};
+    granular_trace_t trace = {
+        .f = f, .version = GRANULAR_VERSION, .params_json = canon ? canon : "{}"};
     granular_pad_result_t res;
-    rc = granular_pad_run(&p, genes, (size_t)p.rows * p.columns, seed, &trace, &res, err,
-                          errlen);
+    rc = granular_pad_run(&p, genes, (size_t)p.rows * p.columns, seed, &trace, &res, err, errlen);
     if (fclose(f) != 0 && rc == FITFARM_PLUGIN_OK) {
         snprintf(err, errlen, "granular: writing trace file %.200s failed", path);
         rc = FITFARM_PLUGIN_EFAIL;

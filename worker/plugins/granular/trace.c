@@ -38,8 +38,9 @@ void granular_trace_header(granular_trace_t *self, uint64_t seed, int rows, int 
 void granular_trace_sample(granular_trace_t *self, const char *phase, double frequency,
                            const granular_world_t *w)
 {
-    fprintf(self->f, "{\"type\":\"sample\",\"phase\":\"%s\",\"frequency\":%.9g,\"t\":%.9g,"
-                     "\"floor_y\":",
+    fprintf(self->f,
+            "{\"type\":\"sample\",\"phase\":\"%s\",\"frequency\":%.9g,\"t\":%.9g,"
+            "\"floor_y\":",
             phase, frequency, w->t);
     s_num(self->f, "%.9g", w->floor_y);
     fputs(",\"plate_y\":", self->f);
@@ -58,8 +59,8 @@ void granular_trace_sample(granular_trace_t *self, const char *phase, double fre
 void granular_trace_grains(granular_trace_t *self, const char *phase, double frequency,
                            const granular_world_t *w, const double *stiff)
 {
-    fprintf(self->f, "{\"type\":\"grains\",\"phase\":\"%s\",\"frequency\":%.9g,\"t\":%.9g",
-            phase, frequency, w->t);
+    fprintf(self->f, "{\"type\":\"grains\",\"phase\":\"%s\",\"frequency\":%.9g,\"t\":%.9g", phase,
+            frequency, w->t);
     s_array(self->f, "x", w->x, w->n);
     s_array(self->f, "y", w->y, w->n);
     s_array(self->f, "r", w->r, w->n);
@@ -68,8 +69,8 @@ void granular_trace_grains(granular_trace_t *self, const char *phase, double fre
 }
 
 void granular_trace_result(granular_trace_t *self, const double *fitness, int objectives,
-                           const double *transmissibility, size_t frequencies,
-                           double settlement_mm, double stiff_share)
+                           const double *transmissibility, size_t frequencies, double settlement_mm,
+                           double stiff_share)
 {
     fputs("{\"type\":\"result\",\"fitness\":[", self->f);
     for (int i = 0; i < objectives; i++) {

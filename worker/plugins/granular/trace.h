@@ -44,7 +44,7 @@ void granular_trace_sample(granular_trace_t *self, const char *phase, double fre
 void granular_trace_grains(granular_trace_t *self, const char *phase, double frequency,
                            const granular_world_t *world, const double *stiff);
 void granular_trace_result(granular_trace_t *self, const double *fitness, int objectives,
-                           const double *transmissibility, size_t frequencies,
-                           double settlement_mm, double stiff_share);
+                           const double *transmissibility, size_t frequencies, double settlement_mm,
+                           double stiff_share);
 
 #endif
