@@ -757,6 +757,7 @@ int proto_msg_decode(const uint8_t *buf, size_t len, const proto_limits_t *limit
      * confusing count or type error. */
     uint8_t b;
     uint64_t count, version, type;
+    s_path_push(c, "message"); /* until the type is known */
     if ((rc = s_take_byte(c, &b)))
         goto cleanup;
     if (b >= 0x90 && b <= 0x9f)
@@ -785,6 +786,7 @@ int proto_msg_decode(const uint8_t *buf, size_t len, const proto_limits_t *limit
         rc = s_fail(c, PROTO_EUNKNOWN, "unknown message type %llu", (unsigned long long)type);
         goto cleanup;
     }
+    s_path_pop(c, 0);
     s_path_push(c, "%s", proto_type_name((int)type));
     if (count != 2 + (uint64_t)nfields) {
         rc = s_fail(c, PROTO_ECOUNT, "%llu elements, expected %d", (unsigned long long)count,
