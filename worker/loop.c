@@ -154,7 +154,8 @@ static void s_on_jobs(s_worker_t *self, proto_msg_t *msg)
     worker_credits_jobs(&self->credits, jobs->n_jobs, common_clock_us());
     if (self->count + jobs->n_jobs > self->cap) {
         /* Compact before growing. */
-        memmove(self->queue, self->queue + self->head, s_queued(self) * sizeof *self->queue);
+        if (self->head > 0)
+            memmove(self->queue, self->queue + self->head, s_queued(self) * sizeof *self->queue);
         self->count -= self->head;
         self->head = 0;
         if (self->count + jobs->n_jobs > self->cap) {
