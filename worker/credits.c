@@ -14,7 +14,7 @@ void worker_credits_init(worker_credits_t *self, unsigned slots)
 void worker_credits_reset(worker_credits_t *self)
 {
     self->outstanding = 0;
-    self->grant_us = 0;
+    self->awaiting = 0;
 }
 
 void worker_credits_eval(worker_credits_t *self, int64_t wall_us)
@@ -27,7 +27,7 @@ void worker_credits_eval(worker_credits_t *self, int64_t wall_us)
 
 void worker_credits_jobs(worker_credits_t *self, uint32_t n, int64_t now_us)
 {
-    if (self->grant_us) {
+    if (self->awaiting) {
         self->rtt_us[self->rtt_pos] = now_us - self->grant_us;
         self->rtt_pos = (self->rtt_pos + 1) % WORKER_CREDITS_RTT_SAMPLES;
         if (self->n_rtt < WORKER_CREDITS_RTT_SAMPLES)
@@ -36,7 +36,7 @@ void worker_credits_jobs(worker_credits_t *self, uint32_t n, int64_t now_us)
     self->outstanding = n >= self->outstanding ? 0 : self->outstanding - n;
     /* Still owed jobs: the next batch answers the same (older) grant poorly,
      * so only time the first answer to each grant. */
-    self->grant_us = 0;
+    self->awaiting = 0;
 }
 
 static int s_cmp_i64(const void *a, const void *b)
@@ -97,6 +97,8 @@ void worker_credits_granted(worker_credits_t *self, uint32_t n, int64_t now_us)
     if (n == 0)
         return;
     self->outstanding += n;
-    if (!self->grant_us)
+    if (!self->awaiting) {
+        self->awaiting = 1;
         self->grant_us = now_us;
+    }
 }

@@ -31,7 +31,8 @@ typedef struct {
     size_t n_eval, eval_pos;
     int64_t rtt_us[WORKER_CREDITS_RTT_SAMPLES];
     size_t n_rtt, rtt_pos;
-    int64_t grant_us; /* time of the oldest unanswered grant; 0 = none */
+    int64_t grant_us; /* time of the oldest unanswered grant, when awaiting */
+    int awaiting;
 } worker_credits_t;
 
 void worker_credits_init(worker_credits_t *self, unsigned slots);

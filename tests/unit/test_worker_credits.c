@@ -1,0 +1,94 @@
+/* test_worker_credits.c: the worker's prefetch depth (worker/credits.h).
+ * The expected depths follow the rule in DEVELOPERS.md ("Prefetch"):
+ * slots x (1 + rtt / median evaluation time), at least slots, at most
+ * slots x 64, slots x 4 until measured. */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+
+#include <cmocka.h>
+
+#include "worker/credits.h"
+
+/* Usage: grant what want() says, note arrivals and evaluation times. */
+static void test_usage_example(void **state)
+{
+    (void)state;
+    worker_credits_t c;
+    worker_credits_init(&c, 2);
+    assert_int_equal(worker_credits_want(&c, 0), 8); /* 2 slots x 4 before any measurement */
+    worker_credits_granted(&c, 8, 1000);
+    assert_int_equal(worker_credits_want(&c, 0), 0); /* all granted, none arrived */
+    worker_credits_jobs(&c, 8, 1300);                /* round trip 300 us */
+    assert_int_equal(worker_credits_rtt_us(&c), 300);
+    assert_int_equal(worker_credits_want(&c, 8), 0); /* 8 in hand */
+}
+
+static void test_depth_follows_times(void **state)
+{
+    (void)state;
+    worker_credits_t c;
+    worker_credits_init(&c, 4);
+    worker_credits_granted(&c, 16, 0);
+    worker_credits_jobs(&c, 16, 1000); /* rtt 1 ms */
+    /* Evaluations of 1 ms: 4 x (1 + 1) = 8. */
+    for (int i = 0; i < 31; i++)
+        worker_credits_eval(&c, 1000);
+    assert_int_equal(worker_credits_target(&c), 8);
+    /* Evaluations of 10 s: one per slot. */
+    for (int i = 0; i < 31; i++)
+        worker_credits_eval(&c, 10000000);
+    assert_int_equal(worker_credits_target(&c), 4);
+    /* Trivial evaluations (1 us): bounded at 4 x 64. */
+    for (int i = 0; i < 31; i++)
+        worker_credits_eval(&c, 1);
+    assert_int_equal(worker_credits_target(&c), 256);
+    assert_int_equal(worker_credits_want(&c, 100), 156);
+}
+
+/* The median ignores a few outliers; the round trip is the minimum of recent
+ * samples, so a grant that waited on an empty queue does not inflate it. */
+static void test_robust_estimates(void **state)
+{
+    (void)state;
+    worker_credits_t c;
+    worker_credits_init(&c, 1);
+    for (int i = 0; i < 28; i++)
+        worker_credits_eval(&c, 2000);
+    for (int i = 0; i < 3; i++)
+        worker_credits_eval(&c, 60000000);
+    assert_int_equal(worker_credits_median_eval_us(&c), 2000);
+    worker_credits_granted(&c, 1, 0);
+    worker_credits_jobs(&c, 1, 500);
+    worker_credits_granted(&c, 1, 1000);
+    worker_credits_jobs(&c, 1, 9001000); /* the broker had nothing for 9 s */
+    assert_int_equal(worker_credits_rtt_us(&c), 500);
+    /* 1 x (1 + 500/2000) rounds to 1. */
+    assert_int_equal(worker_credits_target(&c), 1);
+}
+
+/* After REHELLO the broker holds no credits of ours: grant the capacity not
+ * held again. */
+static void test_reset_regrants(void **state)
+{
+    (void)state;
+    worker_credits_t c;
+    worker_credits_init(&c, 2);
+    worker_credits_granted(&c, 8, 0);
+    worker_credits_jobs(&c, 3, 100);
+    assert_int_equal(worker_credits_want(&c, 3), 0); /* 3 held + 5 outstanding */
+    worker_credits_reset(&c);
+    assert_int_equal(worker_credits_want(&c, 3), 5);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_usage_example),
+        cmocka_unit_test(test_depth_follows_times),
+        cmocka_unit_test(test_robust_estimates),
+        cmocka_unit_test(test_reset_regrants),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
