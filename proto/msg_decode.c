@@ -138,7 +138,7 @@ static const char *s_type_of(uint8_t b)
  * forms are accepted too (some encoders use them); negatives are refused. */
 static int s_read_u64(s_cursor_t *c, uint64_t *v)
 {
-    uint8_t b;
+    uint8_t b = 0;
     int rc = s_take_byte(c, &b);
     if (rc)
         return rc;
@@ -163,7 +163,7 @@ static int s_read_u64(s_cursor_t *c, uint64_t *v)
 
 static int s_read_u32(s_cursor_t *c, uint32_t *v)
 {
-    uint64_t x;
+    uint64_t x = 0;
     int rc = s_read_u64(c, &x);
     if (rc)
         return rc;
@@ -175,8 +175,8 @@ static int s_read_u32(s_cursor_t *c, uint32_t *v)
 
 static int s_read_f64(s_cursor_t *c, double *v)
 {
-    uint8_t b;
-    uint64_t bits;
+    uint8_t b = 0;
+    uint64_t bits = 0;
     int rc = s_take_byte(c, &b);
     if (rc)
         return rc;
@@ -190,7 +190,7 @@ static int s_read_f64(s_cursor_t *c, double *v)
 
 static int s_read_bool(s_cursor_t *c, uint8_t *v)
 {
-    uint8_t b;
+    uint8_t b = 0;
     int rc = s_take_byte(c, &b);
     if (rc)
         return rc;
@@ -204,8 +204,8 @@ static int s_read_bool(s_cursor_t *c, uint8_t *v)
  * the caller allocates anything for the elements. */
 static int s_read_array(s_cursor_t *c, uint32_t limit, size_t min_elem, uint32_t *n)
 {
-    uint8_t b;
-    uint64_t x;
+    uint8_t b = 0;
+    uint64_t x = 0;
     int rc = s_take_byte(c, &b);
     if (rc)
         return rc;
@@ -229,8 +229,8 @@ static int s_read_array(s_cursor_t *c, uint32_t limit, size_t min_elem, uint32_t
 /* An array header whose count is fixed by the protocol (a struct). */
 static int s_read_tuple(s_cursor_t *c, uint32_t expect)
 {
-    uint8_t b;
-    uint64_t x;
+    uint8_t b = 0;
+    uint64_t x = 0;
     int rc = s_take_byte(c, &b);
     if (rc)
         return rc;
@@ -250,8 +250,8 @@ static int s_read_tuple(s_cursor_t *c, uint32_t expect)
 /* Length of a str (want_str) or bin, checked against limit and bytes left. */
 static int s_read_len(s_cursor_t *c, int want_str, uint32_t limit, uint32_t *n)
 {
-    uint8_t b;
-    uint64_t x;
+    uint8_t b = 0;
+    uint64_t x = 0;
     int rc = s_take_byte(c, &b);
     if (rc)
         return rc;
@@ -278,7 +278,7 @@ static int s_read_len(s_cursor_t *c, int want_str, uint32_t limit, uint32_t *n)
 /* A str of at most limit bytes without NUL, as a new NUL-terminated string. */
 static int s_read_str(s_cursor_t *c, uint32_t limit, char **out)
 {
-    uint32_t n;
+    uint32_t n = 0;
     int rc = s_read_len(c, 1, limit, &n);
     if (rc)
         return rc;
@@ -299,7 +299,7 @@ static int s_read_str(s_cursor_t *c, uint32_t limit, char **out)
 /* A bin of at most limit bytes, as a new buffer (NULL when empty). */
 static int s_read_bin(s_cursor_t *c, uint32_t limit, uint8_t **out, uint32_t *out_len)
 {
-    uint32_t n;
+    uint32_t n = 0;
     int rc = s_read_len(c, 0, limit, &n);
     if (rc)
         return rc;
@@ -319,7 +319,7 @@ static int s_read_bin(s_cursor_t *c, uint32_t limit, uint8_t **out, uint32_t *ou
 /* A bin of exactly n bytes into a fixed buffer (keys, digests). */
 static int s_read_bin_fixed(s_cursor_t *c, uint8_t *out, uint32_t n)
 {
-    uint32_t got;
+    uint32_t got = 0;
     int rc = s_read_len(c, 0, UINT32_MAX, &got);
     if (rc)
         return rc;
@@ -379,7 +379,7 @@ static int s_alloc(s_cursor_t *c, void **p, uint32_t n, size_t size)
 static int s_read_f64_array(s_cursor_t *c, uint32_t limit, uint32_t *n_out, double **out)
 {
     int rc;
-    uint32_t n;
+    uint32_t n = 0;
     if ((rc = s_read_array(c, limit, 9, &n)) || (rc = s_alloc(c, (void **)out, n, sizeof **out)))
         goto cleanup;
     *n_out = n;
@@ -394,7 +394,7 @@ static int s_read_str_array(s_cursor_t *c, uint32_t count_limit, uint32_t str_li
                             uint32_t *n_out, char ***out)
 {
     int rc;
-    uint32_t n;
+    uint32_t n = 0;
     if ((rc = s_read_array(c, count_limit, 1, &n)) || (rc = s_alloc(c, (void **)out, n, sizeof **out)))
         goto cleanup;
     *n_out = n;
@@ -408,7 +408,7 @@ cleanup:
 static int s_read_u64_array(s_cursor_t *c, uint32_t limit, uint32_t *n_out, uint64_t **out)
 {
     int rc;
-    uint32_t n;
+    uint32_t n = 0;
     if ((rc = s_read_array(c, limit, 1, &n)) || (rc = s_alloc(c, (void **)out, n, sizeof **out)))
         goto cleanup;
     *n_out = n;
@@ -444,7 +444,7 @@ cleanup:
 static int s_submit(s_cursor_t *c, proto_submit_t *s)
 {
     int rc;
-    uint32_t n;
+    uint32_t n = 0;
     FIELD("run_id", s_read_str(c, c->lim.name_bytes, &s->run_id));
     FIELD("run_seed", s_read_u64(c, &s->run_seed));
     FIELD("seed_mode", s_read_u32(c, &s->seed_mode));
@@ -506,7 +506,7 @@ cleanup:
 static int s_results(s_cursor_t *c, proto_results_t *r)
 {
     int rc;
-    uint32_t n;
+    uint32_t n = 0;
     FIELD("run_id", s_read_str(c, c->lim.name_bytes, &r->run_id));
     size_t old = s_path_push(c, ".results");
     /* a result is at least 1 + 1 + 1 + 1 + 1 + 34 + 1 + 1 bytes */
@@ -564,7 +564,7 @@ cleanup:
 static int s_status(s_cursor_t *c, proto_status_t *st)
 {
     int rc;
-    uint32_t n;
+    uint32_t n = 0;
     size_t old = s_path_push(c, ".workers");
     /* a worker info is at least 7 bytes, a run info 5 */
     if ((rc = s_read_array(c, PROTO_MAX_LIST, 7, &n)) ||
@@ -608,7 +608,7 @@ cleanup:
 static int s_hello(s_cursor_t *c, proto_hello_t *h)
 {
     int rc;
-    uint32_t n;
+    uint32_t n = 0;
     FIELD("name", s_read_str(c, c->lim.name_bytes, &h->name));
     FIELD("host", s_read_str(c, c->lim.name_bytes, &h->host));
     FIELD("arch", s_read_str(c, c->lim.name_bytes, &h->arch));
@@ -644,7 +644,7 @@ cleanup:
 static int s_done(s_cursor_t *c, proto_done_t *d)
 {
     int rc;
-    uint32_t n;
+    uint32_t n = 0;
     FIELD("credits", s_read_u32(c, &d->credits));
     size_t old = s_path_push(c, ".outcomes");
     /* an outcome is at least 1 + 1 + 1 + 1 + 9 + 1 + 1 bytes */
@@ -677,7 +677,7 @@ cleanup:
 static int s_jobs(s_cursor_t *c, proto_jobs_t *j)
 {
     int rc;
-    uint32_t n;
+    uint32_t n = 0;
     size_t old = s_path_push(c, ".jobs");
     /* a job is at least 1 + 1 + 1 + 1 + 1 + 1 + 2 bytes */
     if ((rc = s_read_array(c, c->lim.batch_items, 8, &n)) ||
@@ -755,8 +755,8 @@ int proto_msg_decode(const uint8_t *buf, size_t len, const proto_limits_t *limit
     /* Header: [version, type, ...]. The version is checked before anything
      * else so a peer speaking another version gets PROTO_EVERSION, not a
      * confusing count or type error. */
-    uint8_t b;
-    uint64_t count, version, type;
+    uint8_t b = 0;
+    uint64_t count = 0, version = 0, type = 0;
     s_path_push(c, "message"); /* until the type is known */
     if ((rc = s_take_byte(c, &b)))
         goto cleanup;
