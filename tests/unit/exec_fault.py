@@ -22,6 +22,7 @@ Each request's first gene chooses the answer:
   4 fitness [1.0] (one)       9 a good answer plus an extra line
   10 kills itself with SIGSEGV
   11 fitness [seed mod 1000003, number of params]
+  12 sleeps gene1 seconds, then fitness [gene1, pid]
 """
 import json
 import os
@@ -97,6 +98,9 @@ def main():
             os.kill(os.getpid(), signal.SIGSEGV)
         elif what == 11:
             out(json.dumps({"fitness": [int(req["seed"]) % 1000003, len(req["params"])]}))
+        elif what == 12:
+            time.sleep(genome[1])
+            out(json.dumps({"fitness": [genome[1], os.getpid()]}))
 
 
 if __name__ == "__main__":
