@@ -120,8 +120,15 @@ static void s_evaluate(const worker_registry_t *registry, const proto_job_t *job
     if (!c)
         goto done;
     if (c->info.genome_bytes && job->genome_len != c->info.genome_bytes) {
-        snprintf(err, sizeof err, "%s: genome is %u bytes, these params expect %u",
-                 plugin->plugin->name, job->genome_len, c->info.genome_bytes);
+        /* Say it in doubles when it fits: that is how users submit genomes. */
+        if (job->genome_len % 8 == 0 && c->info.genome_bytes % 8 == 0)
+            snprintf(err, sizeof err,
+                     "%s: genome has %u doubles (%u bytes), these params expect %u (%u bytes)",
+                     plugin->plugin->name, job->genome_len / 8, job->genome_len,
+                     c->info.genome_bytes / 8, c->info.genome_bytes);
+        else
+            snprintf(err, sizeof err, "%s: genome is %u bytes, these params expect %u",
+                     plugin->plugin->name, job->genome_len, c->info.genome_bytes);
         status = PROTO_STATUS_INVALID;
         goto done;
     }
