@@ -182,10 +182,14 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         if (!e) {
             e = broker_evals_new(&b->evals, keys[i], plugin, params, seeds[i], it->genome,
                                  it->genome_len);
+            e->timeout_ms = s->timeout_ms;
+            e->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
             broker_eval_add_waiter(e, run, it->tag);
             broker_runs_enqueue(&b->runs, run, e, 0);
         } else if (e->state == BROKER_EVAL_DONE) {
             broker_eval_reset(e); /* no-cache: evaluate again */
+            e->timeout_ms = s->timeout_ms;
+            e->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
             broker_eval_add_waiter(e, run, it->tag);
             broker_runs_enqueue(&b->runs, run, e, 0);
         } else {
@@ -251,6 +255,9 @@ static void s_on_status(broker_t *b, const uint8_t *rid, size_t rid_len)
         ri->queued = run->n_queued;
         ri->running = run->n_running;
         ri->done = run->n_answered;
+        ri->evaluated = run->n_evaluated;
+        ri->cached = run->n_cached;
+        ri->failed = run->n_failed;
     }
     st->n_warnings = broker_catalog_warnings(&b->catalog, &st->warnings, 0);
     if (b->clients)

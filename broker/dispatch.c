@@ -42,7 +42,7 @@ uint64_t broker_dispatch_turn(broker_t *b)
             j->plugin = e->plugin->name;
             j->params = (char *)e->params; /* read only by the encoder */
             j->seed = e->seed;
-            j->timeout_ms = 0;
+            j->timeout_ms = e->timeout_ms;
             j->genome_len = e->genome_len;
             j->genome = e->genome;
             bytes += e->genome_len + 64;
@@ -75,6 +75,10 @@ void broker_dispatch_complete(broker_t *b, broker_eval_t *e, uint32_t status,
 {
     broker_eval_set_result(&b->evals, e, status, fitness, n_fitness, error);
     broker_store_note_result(b->store, e);
+    /* One simulation, charged to the run whose queue it came from; requests
+     * that attached to it (single flight) did not cost another. */
+    e->home->n_evaluated++;
+    e->home->p_evaluated++;
     for (uint32_t i = 0; i < e->n_waiters; i++) {
         broker_waiter_t *wt = broker_eval_waiter(e, i);
         broker_runs_answer(&b->runs, wt->run, wt->tag, e, 0);
@@ -100,10 +104,11 @@ void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcom
         s_detach(b, e);
         if (s_retryable(o->status)) {
             e->attempts++;
-            if (e->attempts < b->attempts) {
+            unsigned max_attempts = e->max_attempts ? e->max_attempts : b->attempts;
+            if (e->attempts < max_attempts) {
                 LOG_INFO("job %" PRIu64 " %s on worker %s (attempt %u of %u): %s; retrying",
                          o->job_id, proto_status_name((int)o->status), w->name,
-                         (unsigned)e->attempts, b->attempts, o->error ? o->error : "");
+                         (unsigned)e->attempts, max_attempts, o->error ? o->error : "");
                 e->avoid_worker = w->serial;
                 e->state = BROKER_EVAL_QUEUED;
                 broker_runs_enqueue(&b->runs, e->home, e, 1);

@@ -50,6 +50,8 @@ typedef struct broker_eval {
     uint8_t state;    /* broker_eval_state_t */
     uint8_t status;   /* proto_status_t once DONE */
     uint16_t attempts;/* dispatches that ended CRASHED or TIMEOUT */
+    uint16_t max_attempts; /* from the submitting run's SUBMIT; 0 = the broker's --attempts */
+    uint32_t timeout_ms;   /* per evaluation, sent with the job; 0 = the worker's default */
     uint64_t job_id;  /* current dispatch; 0 when not RUNNING */
     uint64_t seed;
     uint64_t avoid_worker; /* serial of the worker it last crashed on, 0 = none */

@@ -234,12 +234,14 @@ void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, br
     s_outbox_push(self, run, tag, e, cached);
     run->n_answered++;
     run->p_answered++;
-    if (cached)
+    if (cached) {
         run->p_cached++;
-    else
-        run->p_evaluated++;
-    if (e->status != PROTO_STATUS_OK)
+        run->n_cached++;
+    }
+    if (e->status != PROTO_STATUS_OK) {
         run->p_failed++;
+        run->n_failed++;
+    }
     assert(run->outstanding > 0);
     run->outstanding--;
     if (run->outstanding == 0) {

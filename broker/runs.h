@@ -40,6 +40,7 @@ typedef struct broker_run {
     broker_queue_t *queues;
     uint32_t n_queues;
     uint64_t n_queued, n_running, n_answered;
+    uint64_t n_evaluated, n_cached, n_failed; /* since the broker started */
     uint64_t outstanding; /* accepted requests not yet answered */
     /* since the run last went idle, for the idle log line */
     uint64_t p_answered, p_evaluated, p_cached, p_failed;

@@ -91,12 +91,15 @@ typedef struct {
 } proto_item_t;          /* wire: [tag uint, replicate uint, genome bin] */
 
 /* [v, SUBMIT, run_id str, run_seed uint, seed_mode uint, flags uint,
- *  batch_tag uint, plugin str, params str, items array of proto_item_t] */
+ *  timeout_ms uint, attempts uint, batch_tag uint, plugin str, params str,
+ *  items array of proto_item_t] */
 typedef struct {
     char *run_id;
     uint64_t run_seed;
     uint32_t seed_mode; /* proto_seed_mode_t */
     uint32_t flags;     /* PROTO_SUBMIT_* */
+    uint32_t timeout_ms; /* per evaluation; 0 = the worker's default for the plugin */
+    uint32_t attempts;   /* tries of a job that crashes or times out; 0 = the broker's default */
     uint64_t batch_tag; /* echoed in ACCEPTED / REFUSED */
     char *plugin;
     char *params; /* canonical JSON text (proto_params_canonical) */
@@ -164,12 +167,16 @@ typedef struct {
     char **plugins; /* "name@version" */
 } proto_worker_info_t;
 
-/* Run as listed by STATUS: [run_id str, queued uint, running uint, done uint] */
+/* Run as listed by STATUS: [run_id str, queued uint, running uint, done uint,
+ *  evaluated uint, cached uint, failed uint] */
 typedef struct {
     char *run_id;
-    uint64_t queued;
-    uint64_t running;
-    uint64_t done;
+    uint64_t queued;    /* evaluations waiting for a worker */
+    uint64_t running;   /* evaluations on a worker */
+    uint64_t done;      /* requests answered */
+    uint64_t evaluated; /* evaluations this run paid for (simulated on a worker) */
+    uint64_t cached;    /* requests answered from a stored result */
+    uint64_t failed;    /* requests answered with a status other than ok */
 } proto_run_info_t;
 
 /* [v, STATUS, workers array, runs array, warnings array of str] */

@@ -452,6 +452,8 @@ static int s_submit(s_cursor_t *c, proto_submit_t *s)
         FIELD_FAIL("seed_mode", PROTO_EVALUE, "%lu, expected 0 (genome) or 1 (common)",
                    (unsigned long)s->seed_mode);
     FIELD("flags", s_read_u32(c, &s->flags));
+    FIELD("timeout_ms", s_read_u32(c, &s->timeout_ms));
+    FIELD("attempts", s_read_u32(c, &s->attempts));
     FIELD("batch_tag", s_read_u64(c, &s->batch_tag));
     FIELD("plugin", s_read_str(c, c->lim.name_bytes, &s->plugin));
     FIELD("params", s_read_str(c, c->lim.params_bytes, &s->params));
@@ -551,12 +553,15 @@ cleanup:
 static int s_run_info(s_cursor_t *c, proto_run_info_t *r)
 {
     int rc;
-    if ((rc = s_read_tuple(c, 4)))
+    if ((rc = s_read_tuple(c, 7)))
         goto cleanup;
     FIELD("run_id", s_read_str(c, c->lim.name_bytes, &r->run_id));
     FIELD("queued", s_read_u64(c, &r->queued));
     FIELD("running", s_read_u64(c, &r->running));
     FIELD("done", s_read_u64(c, &r->done));
+    FIELD("evaluated", s_read_u64(c, &r->evaluated));
+    FIELD("cached", s_read_u64(c, &r->cached));
+    FIELD("failed", s_read_u64(c, &r->failed));
 cleanup:
     return rc;
 }
@@ -696,7 +701,7 @@ cleanup:
 static int s_field_count(uint32_t type)
 {
     switch (type) {
-    case PROTO_SUBMIT: return 8;
+    case PROTO_SUBMIT: return 10;
     case PROTO_ACK: return 2;
     case PROTO_ACCEPTED: return 3;
     case PROTO_RESULTS: return 2;

@@ -96,6 +96,8 @@ static int s_pack_submit(msgpack_packer *pk, const proto_submit_t *s)
     U64(s->run_seed);
     U64(s->seed_mode);
     U64(s->flags);
+    U64(s->timeout_ms);
+    U64(s->attempts);
     U64(s->batch_tag);
     STR(s->plugin);
     STR(s->params);
@@ -151,11 +153,14 @@ static int s_pack_status(msgpack_packer *pk, const proto_status_t *st)
     PACK(msgpack_pack_array(pk, st->n_runs));
     for (uint32_t i = 0; i < st->n_runs; i++) {
         const proto_run_info_t *r = &st->runs[i];
-        PACK(msgpack_pack_array(pk, 4));
+        PACK(msgpack_pack_array(pk, 7));
         STR(r->run_id);
         U64(r->queued);
         U64(r->running);
         U64(r->done);
+        U64(r->evaluated);
+        U64(r->cached);
+        U64(r->failed);
     }
     PACK(msgpack_pack_array(pk, st->n_warnings));
     for (uint32_t i = 0; i < st->n_warnings; i++)
@@ -230,7 +235,7 @@ cleanup:
 static int s_field_count(uint32_t type)
 {
     switch (type) {
-    case PROTO_SUBMIT: return 8;
+    case PROTO_SUBMIT: return 10;
     case PROTO_ACK: return 2;
     case PROTO_ACCEPTED: return 3;
     case PROTO_RESULTS: return 2;

@@ -41,6 +41,8 @@ static const char s_help[] =
     "  --seed N           run seed, 0..2^64-1 (default 0)\n"
     "  --replicates K     evaluations per genome with different seeds (default 1)\n"
     "  --timeout SECONDS  per-evaluation time limit (default: the worker's)\n"
+    "  --attempts N       tries of an evaluation that crashes or times out, each on\n"
+    "                     another worker where possible (default 3)\n"
     "  --in FILE          read genomes from FILE (default stdin)\n"
     "  --out FILE         write results to FILE (default stdout)\n"
     "  --broker ENDPOINT  use the pool behind this broker client endpoint, e.g.\n"
@@ -79,7 +81,7 @@ typedef struct {
 typedef struct {
     /* options */
     const char *plugin, *params, *run_id, *in_path, *out_path, *broker, *plugin_dir;
-    uint64_t seed, replicates, slots, timeout_s;
+    uint64_t seed, replicates, slots, timeout_s, attempts;
     /* state */
     FILE *out;
     int in_fd;
@@ -154,7 +156,8 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         NUM_OPT("--seed", seed, 0, UINT64_MAX)
         NUM_OPT("--replicates", replicates, 1, 10000)
         NUM_OPT("--slots", slots, 0, 4096)
-        NUM_OPT("--timeout", timeout_s, 0, 4294967295)
+        NUM_OPT("--timeout", timeout_s, 0, 4294967)
+        NUM_OPT("--attempts", attempts, 1, 100)
 #undef STR_OPT
 #undef NUM_OPT
         if (arg[0] == '-')
@@ -601,6 +604,7 @@ int cli_cmd_eval(int argc, char **argv)
     ropts.run_id = e.run_id;
     ropts.seed = e.seed;
     ropts.timeout_s = (unsigned)e.timeout_s;
+    ropts.attempts = (unsigned)e.attempts;
     if (fitfarm_run_open(e.client, &ropts, &e.run) != 0) {
         fprintf(stderr, "fitfarm eval: %s\n", fitfarm_client_error(e.client));
         rc = 1;

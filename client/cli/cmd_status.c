@@ -61,10 +61,11 @@ static int s_print_json(const proto_status_t *st)
     }
     for (uint32_t i = 0; i < st->n_runs; i++) {
         const proto_run_info_t *r = &st->runs[i];
-        json_array_append_new(runs, json_pack("{s:s?, s:I, s:I, s:I}", "run", r->run_id,
-                                              "queued", (json_int_t)r->queued, "running",
-                                              (json_int_t)r->running, "done",
-                                              (json_int_t)r->done));
+        json_array_append_new(
+            runs, json_pack("{s:s?, s:I, s:I, s:I, s:I, s:I, s:I}", "run", r->run_id, "queued",
+                            (json_int_t)r->queued, "running", (json_int_t)r->running, "done",
+                            (json_int_t)r->done, "evaluated", (json_int_t)r->evaluated, "cached",
+                            (json_int_t)r->cached, "failed", (json_int_t)r->failed));
     }
     for (uint32_t i = 0; i < st->n_warnings; i++)
         json_array_append_new(warnings, json_string(st->warnings[i]));
@@ -106,11 +107,14 @@ static void s_print_table(const proto_status_t *st)
     }
     printf("runs: %u\n", st->n_runs);
     if (st->n_runs > 0)
-        printf("  %-32s %10s %10s %10s\n", "RUN", "QUEUED", "RUNNING", "DONE");
+        printf("  %-32s %10s %10s %10s %10s %10s %10s\n", "RUN", "QUEUED", "RUNNING", "DONE",
+               "EVALUATED", "CACHED", "FAILED");
     for (uint32_t i = 0; i < st->n_runs; i++) {
         const proto_run_info_t *r = &st->runs[i];
-        printf("  %-32s %10llu %10llu %10llu\n", r->run_id, (unsigned long long)r->queued,
-               (unsigned long long)r->running, (unsigned long long)r->done);
+        printf("  %-32s %10llu %10llu %10llu %10llu %10llu %10llu\n", r->run_id,
+               (unsigned long long)r->queued, (unsigned long long)r->running,
+               (unsigned long long)r->done, (unsigned long long)r->evaluated,
+               (unsigned long long)r->cached, (unsigned long long)r->failed);
     }
     printf("warnings: %u\n", st->n_warnings);
     for (uint32_t i = 0; i < st->n_warnings; i++)

@@ -89,6 +89,7 @@ typedef struct {
     int no_cache;       /* evaluate again even if the store has the result */
     int replay;         /* answer only from the store; never simulate */
     unsigned timeout_s; /* per-evaluation time limit; 0 = the worker's default */
+    unsigned attempts;  /* tries of an evaluation that crashes or times out; 0 = the broker's default (3) */
 } fitfarm_run_options_t;
 
 /* Opens (or resumes, if run_id exists) a run. The run borrows client, which

@@ -82,6 +82,7 @@ struct fitfarm_run {
     uint32_t seed_mode;
     uint32_t flags;
     unsigned timeout_s;
+    unsigned attempts;
     uint64_t next_tag;
     fitfarm_batch_t **batches; /* submitted, ascending tag_base */
     size_t n_batches, cap_batches;

@@ -81,6 +81,7 @@ FITFARM_API int fitfarm_run_open(fitfarm_client_t *client, const fitfarm_run_opt
     run->flags = (options->no_cache ? PROTO_SUBMIT_NO_CACHE : 0) |
                  (options->replay ? PROTO_SUBMIT_REPLAY : 0);
     run->timeout_s = options->timeout_s;
+    run->attempts = options->attempts;
     /* Random start in [2^32, 2^62): room for 2^62 tags after it. */
     run->next_tag = ((uint64_t)(randombytes_random() & 0x3fffffffu) + 1u) << 32;
     run->next = client->runs;
@@ -329,6 +330,9 @@ static int s_chunk_send(fitfarm_run_t *run, const client_chunk_t *c)
     msg.u.submit.run_seed = run->seed;
     msg.u.submit.seed_mode = run->seed_mode;
     msg.u.submit.flags = run->flags;
+    msg.u.submit.timeout_ms =
+        run->timeout_s > UINT32_MAX / 1000u ? UINT32_MAX : run->timeout_s * 1000u;
+    msg.u.submit.attempts = run->attempts;
     msg.u.submit.batch_tag = c->batch_tag;
     msg.u.submit.plugin = b->plugin;
     msg.u.submit.params = b->params;

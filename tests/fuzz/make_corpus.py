@@ -75,9 +75,9 @@ KEY = Bin(bytes(range(32)))
 GENOME = Bin(struct.pack("<3d", 0.1, 0.2, 0.3))
 
 MESSAGES = {
-    "submit": [1, 1, "run-1", 42, 0, 0, 7, "zdt1", '{"n":30}',
+    "submit": [1, 1, "run-1", 42, 0, 0, 5000, 3, 7, "zdt1", '{"n":30}',
                [[1, 0, GENOME], [2, 1, GENOME], [U64, 9999, Bin(b"")]]],
-    "submit_common": [1, 1, "r", U64, 1, 3, 0, "granular", "{}", []],
+    "submit_common": [1, 1, "r", U64, 1, 3, 0, 0, 0, "granular", "{}", []],
     "ack": [1, 2, "run-1", [0, 1, 255, 65536, U64]],
     "status_req": [1, 3],
     "accepted": [1, 10, "run-1", 7, 3],
@@ -85,7 +85,7 @@ MESSAGES = {
                                  [2, 4, False, 0, KEY, [], "timeout after 5000 ms"]]],
     "refused": [1, 12, 2, 7, "run-1", "unknown plugin zdt9; pool has: zdt1@1.0"],
     "status": [1, 13, [["w1", "lab-3", "x86_64", 8, 3, ["zdt1@1.0", "granular@2.3"]]],
-               [["run-1", 10, 2, U64]], ["two builds of zdt1@1.0"]],
+               [["run-1", 10, 2, U64, 5, 3, 1]], ["two builds of zdt1@1.0"]],
     "hello": [1, 20, "w1", "lab-3", "x86_64", 8,
               [["zdt1", "1.0", 2, 1, KEY], ["granular", "2.3", 3, 0, KEY]]],
     "credit": [1, 21, 256],

@@ -313,6 +313,8 @@ static void test_broker_over_the_wire(void **state)
     assert_int_equal(m->u.status.n_runs, 1);
     assert_string_equal(m->u.status.runs[0].run_id, "r1");
     assert_int_equal(m->u.status.runs[0].done, 100);
+    assert_int_equal(m->u.status.runs[0].evaluated, 1); /* single flight: one simulation */
+    assert_int_equal(m->u.status.runs[0].cached, 0);
     proto_msg_destroy(&m);
 
     /* A silent worker's job goes to a second worker with the same seed. */

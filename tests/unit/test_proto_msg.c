@@ -110,6 +110,7 @@ static proto_msg_t s_sample(uint32_t type)
         m.u.submit = (proto_submit_t){.run_id = "run-1", .run_seed = UINT64_MAX,
                                       .seed_mode = PROTO_SEED_COMMON,
                                       .flags = PROTO_SUBMIT_NO_CACHE | PROTO_SUBMIT_REPLAY,
+                                      .timeout_ms = UINT32_MAX, .attempts = 7,
                                       .batch_tag = 0, .plugin = "zdt1",
                                       .params = "{\"n\":30}", .n_items = 3, .items = s_items};
         break;
@@ -144,7 +145,8 @@ static proto_msg_t s_sample(uint32_t type)
         workers[1] = (proto_worker_info_t){.name = "", .host = "", .arch = "", .slots = 0,
                                            .busy = 0, .n_plugins = 0, .plugins = NULL};
         runs[0] = (proto_run_info_t){.run_id = "run-1", .queued = UINT64_MAX, .running = 0,
-                                     .done = 1u << 20};
+                                     .done = 1u << 20, .evaluated = 5, .cached = UINT64_MAX - 1,
+                                     .failed = 3};
         m.u.status = (proto_status_t){.n_workers = 2, .workers = workers, .n_runs = 1,
                                       .runs = runs, .n_warnings = 2, .warnings = s_warnings};
         break;
@@ -302,6 +304,8 @@ static void test_decoded_fields(void **state)
     assert_int_equal(s->run_seed, UINT64_MAX);
     assert_int_equal(s->seed_mode, PROTO_SEED_COMMON);
     assert_int_equal(s->flags, 3);
+    assert_int_equal(s->timeout_ms, UINT32_MAX);
+    assert_int_equal(s->attempts, 7);
     assert_string_equal(s->plugin, "zdt1");
     assert_string_equal(s->params, "{\"n\":30}");
     assert_int_equal(s->n_items, 3);
@@ -317,6 +321,9 @@ static void test_decoded_fields(void **state)
     assert_int_equal(d->u.status.n_workers, 2);
     assert_string_equal(d->u.status.workers[0].plugins[1], "granular@2.3");
     assert_int_equal(d->u.status.runs[0].queued, UINT64_MAX);
+    assert_int_equal(d->u.status.runs[0].evaluated, 5);
+    assert_int_equal(d->u.status.runs[0].cached, UINT64_MAX - 1);
+    assert_int_equal(d->u.status.runs[0].failed, 3);
     assert_string_equal(d->u.status.warnings[0], "two builds of zdt1@1.0 in the pool");
     proto_msg_destroy(&d);
 
@@ -524,8 +531,8 @@ static void test_huge_declared_counts(void **state)
     /* ACK tags: 1000 declared (within the limit), 1 byte present */
     static const uint8_t ack2[] = {0x94, 0x01, 0x02, 0xa1, 'r', 0xdc, 0x03, 0xe8, 0x01};
     s_expect_refused(ack2, sizeof ack2, NULL, PROTO_ETRUNCATED, "ACK.tags: 1000 elements declared");
-    /* SUBMIT params: str 32 (0xdb) of 0xffffffff bytes */
-    static const uint8_t sub[] = {0x9a, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00,
+    /* SUBMIT (fixarray of 12) params: str 32 (0xdb) of 0xffffffff bytes */
+    static const uint8_t sub[] = {0x9c, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                   0xa1, 'p', 0xdb, 0xff, 0xff, 0xff, 0xff, 'x'};
     s_expect_refused(sub, sizeof sub, NULL, PROTO_ELIMIT, "SUBMIT.params: 4294967295 bytes");
     /* JOBS genome: bin 32 (0xc6) of 1000 bytes, 2 present */
@@ -621,19 +628,19 @@ static void test_mistyped_fields(void **state)
     s_expect_refused(r, n, NULL, PROTO_ETYPE, "RESULTS.results[0].key: str, expected bin");
 
     /* SUBMIT: seed_mode 2; genome as str instead of bin */
-    static const uint8_t s1[] = {0x9a, 0x01, 0x01, 0xa1, 'r', 0x00, 0x02, 0x00, 0x00,
+    static const uint8_t s1[] = {0x9c, 0x01, 0x01, 0xa1, 'r', 0x00, 0x02, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x90};
     s_expect_refused(s1, sizeof s1, NULL, PROTO_EVALUE, "SUBMIT.seed_mode: 2");
-    static const uint8_t s2[] = {0x9a, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s2[] = {0x9c, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x91, 0x93, 0x00, 0x00, 0xa1, 'g'};
     s_expect_refused(s2, sizeof s2, NULL, PROTO_ETYPE, "SUBMIT.items[0].genome: str, expected bin");
     /* replicate index at PROTO_MAX_REPLICATES (0x2710 = 10000) */
-    static const uint8_t s3[] = {0x9a, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s3[] = {0x9c, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x91, 0x93, 0x00, 0xcd, 0x27, 0x10,
                                  0xc4, 0x00};
     s_expect_refused(s3, sizeof s3, NULL, PROTO_ELIMIT, "SUBMIT.items[0].replicate: 10000");
     /* a map where the items array belongs */
-    static const uint8_t s4[] = {0x9a, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s4[] = {0x9c, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x80};
     s_expect_refused(s4, sizeof s4, NULL, PROTO_ETYPE, "SUBMIT.items: map, expected array");
 }
