@@ -47,10 +47,13 @@
  *                                      params): status invalid, not retried
  *      {"error": "why"}                this evaluation failed: status failed
  *    An answer that is not one of these (garbage, a wrong count, a
- *    non-number, a line over 1 MiB, extra lines) or an end of output fails the
- *    evaluation with a message naming what was wrong; the worker then kills the
- *    program (its whole process group) and starts it afresh for the next
- *    evaluation. A program that exits on end of input needs no other shutdown.
+ *    non-number, a line over 1 MiB) or an end of output fails the evaluation
+ *    with a message naming what was wrong; the worker then kills the program
+ *    (its whole process group) and starts it afresh for the next evaluation.
+ *    Output between an answer and the next request (an extra line) also gets
+ *    the program restarted, before that request is sent. A program that exits
+ *    on end of input needs no other shutdown; one that does not is killed
+ *    half a second after its input closes.
  *
  * A complete program in Python (objectives: the sum of squares of the genes):
  *
