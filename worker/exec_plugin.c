@@ -274,6 +274,9 @@ static int s_coproc_spawn(const s_exec_t *x, s_coproc_t *cp, char *err, size_t e
         goto cleanup;
     }
     pid_t parent = getpid();
+    long max_fd = sysconf(_SC_OPEN_MAX); /* sysconf is not async-signal-safe: ask before fork */
+    if (max_fd < 0 || max_fd > 65536)
+        max_fd = 65536;
     pid_t pid = fork();
     if (pid < 0) {
         s_errf(err, errlen, "cannot fork: %s", strerror(errno));
@@ -304,10 +307,9 @@ static int s_coproc_spawn(const s_exec_t *x, s_coproc_t *cp, char *err, size_t e
         /* No inherited descriptors (the worker's broker connection, other
          * co-processes' pipes) except the close-on-exec status pipe. */
         int keep = status[1];
-        if (close_range(3, (unsigned)keep - 1u, 0) != 0 ||
+        if ((keep > 3 && close_range(3, (unsigned)keep - 1u, 0) != 0) ||
             close_range((unsigned)keep + 1u, ~0u, 0) != 0) {
-            long max = sysconf(_SC_OPEN_MAX);
-            for (long fd = 3; fd < max && fd < 65536; fd++)
+            for (long fd = 3; fd < max_fd; fd++)
                 if (fd != keep)
                     close((int)fd);
         }
