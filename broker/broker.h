@@ -16,7 +16,25 @@ typedef struct {
      * as two lines "clients ENDPOINT\nworkers ENDPOINT\n"; NULL = nowhere.
      * Written atomically (temp file + rename) once both are bound. */
     const char *endpoints_file;
+    /* Security (zap.h). CURVE on both endpoints unless insecure; insecure
+     * (plaintext) is refused unless both endpoints are ipc://, inproc:// or
+     * loopback tcp://. */
+    const char *key_file; /* the broker's .secret key file */
+    const char *keys_dir; /* folder holding clients.allow and workers.allow */
+    int insecure;
+    /* Limits against exhaustion; 0 = the default (the proto ceiling, or for
+     * the queue caps BROKER_DEFAULT_QUEUED_PER_RUN / _PER_CLIENT). */
+    uint32_t max_message_bytes; /* every message on both sockets (ZMQ_MAXMSGSIZE) */
+    uint32_t max_genome_bytes;
+    uint32_t max_batch;      /* items in one SUBMIT */
+    uint32_t max_objectives; /* fitness values in one result */
+    uint32_t max_string_bytes; /* run ids, plugin, worker and host names */
+    uint64_t max_queued_per_run;    /* accepted, not yet answered, per run */
+    uint64_t max_queued_per_client; /* the same summed over a client connection's runs */
 } broker_config_t;
+
+#define BROKER_DEFAULT_QUEUED_PER_RUN 1000000u
+#define BROKER_DEFAULT_QUEUED_PER_CLIENT 4000000u
 
 /* Runs the broker until SIGTERM or SIGINT (handlers installed here set a flag
  * that the loop reads). Returns 0 on a clean stop, or 1 after logging why it

@@ -14,6 +14,7 @@
 #include "envelope.h"
 #include "key.h"
 #include "params.h"
+#include "quota.h"
 
 static void s_refuse(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t code,
                      uint64_t batch_tag, const char *run_id, const char *text)
@@ -132,6 +133,12 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
             goto cleanup;
         }
+    }
+
+    if (broker_quota_check(b, rid, rid_len, run, s->n_items, text, sizeof text) != 0) {
+        rc = PROTO_REFUSE_QUEUE_FULL;
+        s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+        goto cleanup;
     }
 
     /* Keys first, so a replay can be refused before anything changes. */
@@ -280,7 +287,7 @@ void broker_client_on_message(broker_t *b, const uint8_t *rid, size_t rid_len, c
     proto_msg_t *msg = NULL;
     proto_err_t err = {0};
     char hex[BROKER_RID_HEX];
-    if (proto_msg_decode(body, len, NULL, &msg, &err) != PROTO_OK) {
+    if (proto_msg_decode(body, len, &b->limits, &msg, &err) != PROTO_OK) {
         b->dropped_msgs++;
         LOG_WARN("dropped a bad message from client %s: %s", broker_rid_hex(rid, rid_len, hex),
                  err.text[0] ? err.text : "undecodable");

@@ -14,6 +14,9 @@ void broker_core_init(broker_t *b, int liveness_ms, int heartbeat_ms, unsigned a
     b->liveness_ms = liveness_ms > 0 ? liveness_ms : 5000;
     b->heartbeat_ms = heartbeat_ms > 0 ? heartbeat_ms : 1000;
     b->attempts = attempts > 0 ? attempts : 3;
+    b->limits = proto_limits_default();
+    b->max_queued_per_run = BROKER_DEFAULT_QUEUED_PER_RUN;
+    b->max_queued_per_client = BROKER_DEFAULT_QUEUED_PER_CLIENT;
     broker_catalog_init(&b->catalog);
     broker_registry_init(&b->registry);
     broker_evals_init(&b->evals);

@@ -66,6 +66,10 @@ typedef struct broker {
     proto_result_t *results;
     /* counters */
     uint64_t jobs_sent, results_sent, dropped_msgs;
+    /* security and limits (zap.h, quota.h); zap NULL in plaintext mode */
+    struct broker_zap *zap;
+    proto_limits_t limits;
+    uint64_t max_queued_per_run, max_queued_per_client;
 } broker_t;
 
 /* Sets up every module (no sockets). attempts etc. already resolved. */

@@ -20,19 +20,23 @@
 #include "core.h"
 #include "dispatch.h"
 #include "envelope.h"
+#include "guard.h"
 #include "worker_io.h"
 
 static volatile sig_atomic_t s_stop;
+static volatile sig_atomic_t s_reload; /* SIGHUP: reload the allow-lists */
 
 static void s_on_signal(int sig)
 {
-    (void)sig;
-    s_stop = 1;
+    if (sig == SIGHUP)
+        s_reload = 1;
+    else
+        s_stop = 1;
 }
 
-static void *s_bind(void *ctx, const char *endpoint, const char *role, char *bound, size_t n)
+static void *s_bind(broker_t *b, const char *endpoint, const char *role, char *bound, size_t n)
 {
-    void *sock = zmq_socket(ctx, ZMQ_ROUTER);
+    void *sock = zmq_socket(b->ctx, ZMQ_ROUTER);
     if (!sock) {
         LOG_ERROR("cannot create the %s socket: %s", role, zmq_strerror(errno));
         return NULL;
@@ -44,6 +48,10 @@ static void *s_bind(void *ctx, const char *endpoint, const char *role, char *bou
     zmq_setsockopt(sock, ZMQ_MAXMSGSIZE, &maxmsg, sizeof maxmsg);
     zmq_setsockopt(sock, ZMQ_SNDHWM, &hwm, sizeof hwm);
     zmq_setsockopt(sock, ZMQ_RCVHWM, &hwm, sizeof hwm);
+    if (broker_guard_socket(b, sock, role) != 0) {
+        zmq_close(sock);
+        return NULL;
+    }
     if (zmq_bind(sock, endpoint) != 0) {
         LOG_ERROR("cannot bind the %s endpoint %s: %s", role, endpoint, zmq_strerror(errno));
         zmq_close(sock);
@@ -92,12 +100,18 @@ static void s_drain(broker_t *b, void *sock, int workers)
             b->dropped_msgs++;
             continue;
         }
+        if (!broker_guard_admit(b, workers, rid, rid_len, &body)) {
+            zmq_msg_close(&body);
+            continue;
+        }
         const uint8_t *data = zmq_msg_data(&body);
         size_t len = zmq_msg_size(&body);
-        if (workers)
+        if (workers) {
             broker_worker_on_message(b, rid, rid_len, data, len);
-        else
+            broker_guard_note_worker(b, rid, rid_len, &body);
+        } else {
             broker_client_on_message(b, rid, rid_len, data, len);
+        }
         zmq_msg_close(&body);
     }
 }
@@ -119,7 +133,7 @@ int broker_main_run(const broker_config_t *config)
     int rc = 1;
     broker_t b;
     char clients_ep[512] = "", workers_ep[512] = "";
-    struct sigaction sa, old_term, old_int;
+    struct sigaction sa, old_term, old_int, old_hup;
 
     if (!config || !config->clients_endpoint || !config->workers_endpoint) {
         LOG_ERROR("both a clients and a workers endpoint are required");
@@ -136,16 +150,20 @@ int broker_main_run(const broker_config_t *config)
     sigemptyset(&sa.sa_mask);
     sigaction(SIGTERM, &sa, &old_term);
     sigaction(SIGINT, &sa, &old_int);
+    s_reload = 0;
+    sigaction(SIGHUP, &sa, &old_hup);
 
     b.ctx = zmq_ctx_new();
     if (!b.ctx) {
         LOG_ERROR("cannot create a ZeroMQ context: %s", zmq_strerror(errno));
         goto cleanup;
     }
-    b.clients = s_bind(b.ctx, config->clients_endpoint, "clients", clients_ep, sizeof clients_ep);
+    if (broker_guard_start(&b, config) != 0)
+        goto cleanup;
+    b.clients = s_bind(&b, config->clients_endpoint, "clients", clients_ep, sizeof clients_ep);
     if (!b.clients)
         goto cleanup;
-    b.workers = s_bind(b.ctx, config->workers_endpoint, "workers", workers_ep, sizeof workers_ep);
+    b.workers = s_bind(&b, config->workers_endpoint, "workers", workers_ep, sizeof workers_ep);
     if (!b.workers)
         goto cleanup;
     if (config->endpoints_file &&
@@ -155,20 +173,27 @@ int broker_main_run(const broker_config_t *config)
              b.liveness_ms, b.heartbeat_ms, b.attempts);
 
     broker_worker_timers_start(&b);
-    zmq_pollitem_t items[2] = {
+    zmq_pollitem_t items[5] = {
         {.socket = b.clients, .events = ZMQ_POLLIN},
         {.socket = b.workers, .events = ZMQ_POLLIN},
     };
+    int n_items = 2 + (b.zap ? broker_zap_pollitems(b.zap, items + 2, 3) : 0);
     while (!s_stop) {
         b.now_ms = common_clock_ms();
         long timeout = broker_timers_timeout(&b.timers, b.now_ms);
-        if (zmq_poll(items, 2, timeout) < 0) {
+        if (s_reload) {
+            s_reload = 0;
+            broker_guard_reload(&b);
+        }
+        if (zmq_poll(items, n_items, timeout) < 0) {
             if (errno == EINTR)
                 continue;
             LOG_ERROR("zmq_poll failed: %s", zmq_strerror(errno));
             goto cleanup;
         }
         b.now_ms = common_clock_ms();
+        if (b.zap)
+            broker_zap_handle(b.zap); /* handshakes first: admitted peers then speak */
         if (items[0].revents & ZMQ_POLLIN)
             s_drain(&b, b.clients, 0);
         if (items[1].revents & ZMQ_POLLIN)
@@ -196,10 +221,12 @@ cleanup:
             zmq_close(b.workers);
         }
     }
+    broker_guard_stop(&b);
     if (b.ctx)
         zmq_ctx_term(b.ctx);
     broker_core_fini(&b);
     sigaction(SIGTERM, &old_term, NULL);
     sigaction(SIGINT, &old_int, NULL);
+    sigaction(SIGHUP, &old_hup, NULL);
     return rc;
 }

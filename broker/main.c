@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "broker.h"
+#include "common/config.h"
 
 #ifndef FITFARM_VERSION
 #define FITFARM_VERSION "0.0.0"
@@ -29,10 +30,25 @@ static void s_usage(FILE *out)
             "  --attempts N          tries of a job that crashes or times out (default 3)\n"
             "  --endpoints-file FILE write the bound endpoints there as\n"
             "                        \"clients EP\\nworkers EP\\n\" (atomically)\n"
+            "  --key FILE            the broker's secret key (fitfarm keygen broker);\n"
+            "                        or FITFARM_KEY, or 'key =' in the config file\n"
+            "  --keys DIR            folder with clients.allow and workers.allow (fitfarm\n"
+            "                        allow); or FITFARM_KEYS_DIR, or 'keys_dir =' in the config\n"
+            "  --config FILE         settings file (default $XDG_CONFIG_HOME/fitfarm/config or\n"
+            "                        ~/.config/fitfarm/config); flags beat environment beat file\n"
+            "  --insecure            plaintext, no keys: only on ipc://, inproc:// or loopback\n"
+            "  --max-message-bytes N cap on any one message (default 67108864)\n"
+            "  --max-genome-bytes N  cap on one genome (default 1048576)\n"
+            "  --max-batch N         cap on items in one SUBMIT (default 100000)\n"
+            "  --max-objectives N    cap on fitness values in one result (default 64)\n"
+            "  --max-string-bytes N  cap on run ids and names (default 128)\n"
+            "  --max-queued-per-run N     requests waiting per run (default 1000000)\n"
+            "  --max-queued-per-client N  requests waiting per client (default 4000000)\n"
+            "                        past a cap a batch is refused with \"queue full\"\n"
             "  --help                this text\n"
             "  --version             print the version\n"
             "\n"
-            "Stops cleanly on SIGTERM or SIGINT. Log level: FITFARM_LOG=debug|info|warn|error.\n");
+            "Stops cleanly on SIGTERM or SIGINT; SIGHUP reloads the allow-lists. Log level: FITFARM_LOG=debug|info|warn|error.\n");
 }
 
 static int s_bad(const char *fmt, const char *arg)
@@ -54,9 +70,33 @@ static int s_parse_int(const char *s, long lo, long hi, long *out)
     return 0;
 }
 
+/* --max-* flags; each at least 1 and at most its protocol ceiling. */
+static int s_limit(const char *a, const char *v, broker_config_t *cfg)
+{
+    long n = 0;
+    if (strcmp(a, "--max-message-bytes") == 0 && s_parse_int(v, 4096, 64L << 20, &n) == 0)
+        cfg->max_message_bytes = (uint32_t)n;
+    else if (strcmp(a, "--max-genome-bytes") == 0 && s_parse_int(v, 1, 1L << 20, &n) == 0)
+        cfg->max_genome_bytes = (uint32_t)n;
+    else if (strcmp(a, "--max-batch") == 0 && s_parse_int(v, 1, 100000, &n) == 0)
+        cfg->max_batch = (uint32_t)n;
+    else if (strcmp(a, "--max-objectives") == 0 && s_parse_int(v, 1, 64, &n) == 0)
+        cfg->max_objectives = (uint32_t)n;
+    else if (strcmp(a, "--max-string-bytes") == 0 && s_parse_int(v, 8, 128, &n) == 0)
+        cfg->max_string_bytes = (uint32_t)n;
+    else if (strcmp(a, "--max-queued-per-run") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
+        cfg->max_queued_per_run = (uint64_t)n;
+    else if (strcmp(a, "--max-queued-per-client") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
+        cfg->max_queued_per_client = (uint64_t)n;
+    else
+        return -1;
+    return 0;
+}
+
 int main(int argc, char **argv)
 {
     broker_config_t cfg = {0};
+    const char *config_path = NULL;
     for (int i = 1; i < argc; i++) {
         const char *a = argv[i];
         if (strcmp(a, "--help") == 0 || strcmp(a, "-h") == 0) {
@@ -67,9 +107,17 @@ int main(int argc, char **argv)
             printf("fitfarm-broker %s\n", FITFARM_VERSION);
             return 0;
         }
-        static const char *const with_value[] = {"--clients",  "--workers",  "--store",
-                                                 "--liveness", "--heartbeat", "--attempts",
-                                                 "--endpoints-file"};
+        if (strcmp(a, "--insecure") == 0) {
+            cfg.insecure = 1;
+            continue;
+        }
+        static const char *const with_value[] = {
+            "--clients",          "--workers",          "--store",
+            "--liveness",         "--heartbeat",        "--attempts",
+            "--endpoints-file",   "--key",              "--keys",
+            "--config",           "--max-message-bytes", "--max-genome-bytes",
+            "--max-batch",        "--max-objectives",   "--max-string-bytes",
+            "--max-queued-per-run", "--max-queued-per-client"};
         int known = 0;
         for (size_t k = 0; k < sizeof with_value / sizeof *with_value; k++)
             known |= strcmp(a, with_value[k]) == 0;
@@ -87,6 +135,16 @@ int main(int argc, char **argv)
             cfg.store_dir = v;
         } else if (strcmp(a, "--endpoints-file") == 0) {
             cfg.endpoints_file = v;
+        } else if (strcmp(a, "--key") == 0) {
+            cfg.key_file = v;
+        } else if (strcmp(a, "--keys") == 0) {
+            cfg.keys_dir = v;
+        } else if (strcmp(a, "--config") == 0) {
+            config_path = v;
+        } else if (strncmp(a, "--max-", 6) == 0) {
+            if (s_limit(a, v, &cfg) != 0)
+                return s_bad("%s", "a --max-* option needs a whole number within its ceiling "
+                                   "(see --help)");
         } else if (strcmp(a, "--liveness") == 0) {
             if (s_parse_int(v, 10, 86400000, &n) != 0)
                 return s_bad("--liveness wants milliseconds between 10 and 86400000, not '%s'",
@@ -107,5 +165,17 @@ int main(int argc, char **argv)
         return s_bad("%s", "--clients ENDPOINT is required");
     if (!cfg.workers_endpoint)
         return s_bad("%s", "--workers ENDPOINT is required");
-    return broker_main_run(&cfg) == 0 ? 0 : 1;
+    /* Flag beats environment beats config file (common/config.h). */
+    common_config_t *file = NULL;
+    char cerr[768];
+    if (common_config_load(config_path, &file, NULL, 0, cerr, sizeof cerr) != 0)
+        return s_bad("%s", cerr);
+    if (!cfg.insecure) {
+        cfg.key_file = common_config_resolve(cfg.key_file, "FITFARM_KEY", file, "key", NULL);
+        cfg.keys_dir =
+            common_config_resolve(cfg.keys_dir, "FITFARM_KEYS_DIR", file, "keys_dir", NULL);
+    }
+    int rc = broker_main_run(&cfg) == 0 ? 0 : 1;
+    common_config_destroy(&file); /* resolved strings borrowed from it until here */
+    return rc;
 }

@@ -49,6 +49,7 @@ typedef struct broker_worker {
     struct broker_worker *seen_prev, *seen_next;   /* last-seen order */
     struct broker_worker *ready_prev, *ready_next; /* credits > 0 */
     int in_ready;
+    char user_id[41]; /* CURVE: the worker's public key (Z85) from ZAP; "" in plaintext */
 } broker_worker_t;
 
 typedef struct {

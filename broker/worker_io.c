@@ -97,7 +97,7 @@ void broker_worker_on_message(broker_t *b, const uint8_t *rid, size_t rid_len, c
     proto_msg_t *msg = NULL;
     proto_err_t err = {0};
     char hex[BROKER_RID_HEX];
-    if (proto_msg_decode(body, len, NULL, &msg, &err) != PROTO_OK) {
+    if (proto_msg_decode(body, len, &b->limits, &msg, &err) != PROTO_OK) {
         b->dropped_msgs++;
         LOG_WARN("dropped a bad message from worker %s: %s", broker_rid_hex(rid, rid_len, hex),
                  err.text[0] ? err.text : "undecodable");

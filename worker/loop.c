@@ -26,6 +26,7 @@
 #include "msg.h"
 #include "pool.h"
 #include "registry.h"
+#include "secure.h"
 #include "worker.h"
 
 #define S_MAX_MESSAGES_PER_TURN 64 /* broker messages read per turn: children are not starved */
@@ -339,6 +340,8 @@ static int s_open_socket(s_worker_t *self)
     zmq_setsockopt(self->sock, ZMQ_RECONNECT_IVL, &ivl, sizeof ivl);
     zmq_setsockopt(self->sock, ZMQ_RECONNECT_IVL_MAX, &ivl_max, sizeof ivl_max);
     zmq_setsockopt(self->sock, ZMQ_MAXMSGSIZE, &maxmsg, sizeof maxmsg);
+    if (worker_secure_socket(self->sock, &self->config) != 0)
+        return -1;
     if (zmq_connect(self->sock, self->config.broker_endpoint) != 0) {
         LOG_ERROR("cannot connect to %s: %s", self->config.broker_endpoint,
                   zmq_strerror(zmq_errno()));
@@ -492,6 +495,8 @@ int worker_main_run(const worker_config_t *config)
         LOG_ERROR("no broker endpoint given");
         return 1;
     }
+    if (worker_secure_check(&self->config) != 0)
+        return 1;
     s_identity(self);
     worker_credits_init(&self->credits, self->config.slots);
     s_stop_signals = 0;

@@ -6,6 +6,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "common/config.h"
 #include "common/log.h"
 #include "worker.h"
 
@@ -30,6 +31,14 @@ static void s_usage(FILE *out)
             "  --mem-limit MB      address-space limit per child process (default: none)\n"
             "  --heartbeat MS      heartbeat interval (default 1000)\n"
             "  --liveness MS       re-register after the broker is silent this long (default 5000)\n"
+            "  --key FILE          this worker's secret key (fitfarm keygen NAME); or\n"
+            "                      FITFARM_KEY, or 'key =' in the config file\n"
+            "  --broker-key FILE   the broker's public key; or FITFARM_BROKER_KEY, or\n"
+            "                      'broker_key =' in the config file\n"
+            "  --config FILE       settings file (default $XDG_CONFIG_HOME/fitfarm/config or\n"
+            "                      ~/.config/fitfarm/config); flags beat environment beat file;\n"
+            "                      --broker may also come from FITFARM_BROKER or 'broker ='\n"
+            "  --insecure          plaintext, no keys: only to ipc://, inproc:// or loopback\n"
             "  --help, --version\n"
             "\n"
             "SIGTERM or SIGINT drains (running evaluations finish, queued jobs go back);\n"
@@ -51,12 +60,18 @@ static unsigned long long s_number(const char *flag, const char *text, unsigned 
     return v;
 }
 
+static int s_checked_run(worker_config_t *cfg);
+
 int main(int argc, char **argv)
 {
     worker_config_t config;
     memset(&config, 0, sizeof config);
     size_t n_dirs = 0, n_exec = 0;
-    enum { O_BROKER = 1, O_SLOTS, O_DIR, O_NAME, O_EXEC, O_TIMEOUT, O_MEM, O_HB, O_LIVE };
+    enum {
+        O_BROKER = 1, O_SLOTS, O_DIR, O_NAME, O_EXEC, O_TIMEOUT, O_MEM, O_HB, O_LIVE,
+        O_KEY, O_BROKER_KEY, O_CONFIG, O_INSECURE
+    };
+    const char *config_path = NULL;
     static const struct option options[] = {
         {"broker", required_argument, NULL, O_BROKER},
         {"slots", required_argument, NULL, O_SLOTS},
@@ -67,6 +82,10 @@ int main(int argc, char **argv)
         {"mem-limit", required_argument, NULL, O_MEM},
         {"heartbeat", required_argument, NULL, O_HB},
         {"liveness", required_argument, NULL, O_LIVE},
+        {"key", required_argument, NULL, O_KEY},
+        {"broker-key", required_argument, NULL, O_BROKER_KEY},
+        {"config", required_argument, NULL, O_CONFIG},
+        {"insecure", no_argument, NULL, O_INSECURE},
         {"help", no_argument, NULL, 'h'},
         {"version", no_argument, NULL, 'V'},
         {NULL, 0, NULL, 0},
@@ -120,6 +139,18 @@ int main(int argc, char **argv)
         case O_LIVE:
             config.liveness_ms = (int)s_number("--liveness", optarg, 100, 3600000);
             break;
+        case O_KEY:
+            config.key_file = optarg;
+            break;
+        case O_BROKER_KEY:
+            config.broker_key_file = optarg;
+            break;
+        case O_CONFIG:
+            config_path = optarg;
+            break;
+        case O_INSECURE:
+            config.insecure = 1;
+            break;
         case 'h':
             s_usage(stdout);
             return 0;
@@ -142,6 +173,30 @@ int main(int argc, char **argv)
                 argv[optind]);
         return 2;
     }
+    /* Flag beats environment beats config file (common/config.h). */
+    common_config_t *file = NULL;
+    char cerr[768];
+    if (common_config_load(config_path, &file, NULL, 0, cerr, sizeof cerr) != 0) {
+        fprintf(stderr, "fitfarm-worker: %s\n", cerr);
+        return 2;
+    }
+    config.broker_endpoint =
+        common_config_resolve(config.broker_endpoint, "FITFARM_BROKER", file, "broker", NULL);
+    if (!config.insecure) {
+        config.key_file = common_config_resolve(config.key_file, "FITFARM_KEY", file, "key", NULL);
+        config.broker_key_file = common_config_resolve(config.broker_key_file,
+                                                       "FITFARM_BROKER_KEY", file, "broker_key",
+                                                       NULL);
+    }
+    int rc = s_checked_run(&config);
+    common_config_destroy(&file); /* resolved strings borrowed from it until here */
+    return rc;
+}
+
+/* The checks that need the resolved settings, then the worker. */
+static int s_checked_run(worker_config_t *cfg)
+{
+    worker_config_t config = *cfg;
     if (!config.broker_endpoint || !config.broker_endpoint[0]) {
         fprintf(stderr, "fitfarm-worker: --broker ENDPOINT is required\n"
                         "try fitfarm-worker --help\n");

@@ -19,6 +19,10 @@ typedef struct {
     size_t mem_limit_mb;         /* address-space limit per child; 0 = none */
     /* External programs for the exec plugin: "NAME=COMMAND" entries, NULL-terminated. */
     const char *exec[WORKER_MAX_EXEC];
+    /* Security (secure.h), appended: CURVE unless insecure (local endpoints only). */
+    const char *key_file;        /* this worker's .secret key file */
+    const char *broker_key_file; /* the broker's .public key file */
+    int insecure;
 } worker_config_t;
 
 /* The default plugin directories: the build tree's plugins folder when this

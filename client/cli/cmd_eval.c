@@ -16,6 +16,7 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "cli_keys.h"
 #include "cli_util.h"
 #include "client/include/fitfarm.h"
 #include "client/lib/status.h"
@@ -125,6 +126,8 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         const char *arg = argv[i];
         if (strcmp(arg, "--help") == 0 || strcmp(arg, "-h") == 0) {
             fputs(s_help, stdout);
+            fputs("\nsecurity, with --broker:\n", stdout);
+            fputs(cli_keys_help, stdout);
             *exit_code = 0;
             return -1;
         }
@@ -160,6 +163,11 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         NUM_OPT("--attempts", attempts, 1, 100)
 #undef STR_OPT
 #undef NUM_OPT
+        int keys = cli_keys_option(argc, argv, &i, "fitfarm eval", exit_code);
+        if (keys > 0)
+            continue;
+        if (keys < 0)
+            return -1;
         if (arg[0] == '-')
             *exit_code = s_usage("unknown option %s", arg);
         else
@@ -581,6 +589,10 @@ int cli_cmd_eval(int argc, char **argv)
     opts.broker = e.broker;
     opts.slots = (unsigned)e.slots;
     opts.plugin_dir = e.plugin_dir;
+    if (cli_keys_apply(&opts, "fitfarm eval") != 0) {
+        rc = 2;
+        goto cleanup;
+    }
     char err[1200];
     if (fitfarm_client_new(&opts, &e.client, err, sizeof err) != 0) {
         fprintf(stderr, "fitfarm eval: %s\n", err);

@@ -8,6 +8,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "cli_keys.h"
 #include "cli_util.h"
 #include "client/include/fitfarm.h"
 #include "client/lib/status.h"
@@ -130,6 +131,8 @@ int cli_cmd_status(int argc, char **argv)
         const char *v = NULL;
         if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
             fputs(s_help, stdout);
+            fputs("\nsecurity:\n", stdout);
+            fputs(cli_keys_help, stdout);
             return 0;
         }
         if (strcmp(argv[i], "--json") == 0) {
@@ -147,14 +150,23 @@ int cli_cmd_status(int argc, char **argv)
                 return s_usage("--timeout needs whole seconds from 1 to 86400, not '%s'", v);
             continue;
         }
+        int keys_rc = 0;
+        int keys = cli_keys_option(argc, argv, &i, "fitfarm status", &keys_rc);
+        if (keys > 0)
+            continue;
+        if (keys < 0)
+            return keys_rc;
         return s_usage(argv[i][0] == '-' ? "unknown option %s" : "unexpected argument '%s'",
                        argv[i]);
     }
-    if (!broker)
-        return s_usage("--broker ENDPOINT is required%s", NULL);
     fitfarm_options_t opts;
     memset(&opts, 0, sizeof opts);
     opts.broker = broker;
+    if (cli_keys_apply(&opts, "fitfarm status") != 0)
+        return 2;
+    broker = opts.broker;
+    if (!broker)
+        return s_usage("--broker ENDPOINT is required%s", NULL);
     opts.connect_timeout_ms = (int)timeout_s * 1000;
     char err[1200];
     fitfarm_client_t *client = NULL;

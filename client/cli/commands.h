@@ -7,6 +7,8 @@
 
 int cli_cmd_eval(int argc, char **argv);   /* cmd_eval.c */
 int cli_cmd_status(int argc, char **argv); /* cmd_status.c */
+int cli_cmd_keygen(int argc, char **argv); /* cmd_keygen.c: a CURVE key pair in two files */
+int cli_cmd_allow(int argc, char **argv);  /* cmd_allow.c: admit a key to a broker allow-list */
 int cli_cmd_sim(int argc, char **argv);    /* cmd_sim.c: one evaluation in-process, optional trace */
 
 #endif

@@ -13,6 +13,8 @@ static const char s_usage[] =
     "commands:\n"
     "  eval      evaluate genomes from JSON Lines (a local pool, or --broker)\n"
     "  status    show a pool's workers, runs and warnings\n"
+    "  keygen    make a CURVE key pair (NAME.public, NAME.secret)\n"
+    "  allow     admit a public key to a broker's clients or workers allow-list\n"
 #ifdef FITFARM_HAVE_SIM
     "  sim       run one evaluation in this process, optionally with a trace\n"
 #endif
@@ -43,6 +45,10 @@ int main(int argc, char **argv)
         return cli_cmd_eval(argc - 1, argv + 1);
     if (strcmp(cmd, "status") == 0)
         return cli_cmd_status(argc - 1, argv + 1);
+    if (strcmp(cmd, "keygen") == 0)
+        return cli_cmd_keygen(argc - 1, argv + 1);
+    if (strcmp(cmd, "allow") == 0)
+        return cli_cmd_allow(argc - 1, argv + 1);
 #ifdef FITFARM_HAVE_SIM
     if (strcmp(cmd, "sim") == 0)
         return cli_cmd_sim(argc - 1, argv + 1);

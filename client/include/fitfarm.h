@@ -68,6 +68,14 @@ typedef struct {
     const char *plugin_dir; /* embedded pool: extra plugin directory; NULL = defaults */
     const char *store_dir;  /* embedded pool: durable store; NULL = private temporary */
     int connect_timeout_ms; /* how long to wait for the pool to answer; 0 = 10000 */
+    /* A remote broker is reached with CURVE: this client's secret key file
+     * (from `fitfarm keygen`) and the broker's public key file. Without them
+     * fitfarm_client_new fails with FITFARM_EINVAL, unless insecure is set and
+     * the broker endpoint is ipc://, inproc:// or loopback tcp://. The
+     * embedded pool needs none of these. */
+    const char *key_file;
+    const char *broker_key_file;
+    int insecure;
 } fitfarm_options_t;
 
 /* Connects (or starts the embedded pool: a broker and a worker process on this

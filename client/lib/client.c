@@ -20,6 +20,7 @@
 
 #include "common/clock.h"
 #include "internal.h"
+#include "secure.h"
 #include "status.h"
 
 #define CLIENT_DEFAULT_CONNECT_MS 10000
@@ -60,7 +61,7 @@ static int s_setsockopt_int(void *sock, int option, int value)
 }
 
 /* Creates the context, the DEALER socket and its monitor, and connects. */
-static int s_connect(fitfarm_client_t *self)
+static int s_connect(fitfarm_client_t *self, const fitfarm_options_t *options)
 {
     self->zctx = zmq_ctx_new();
     if (!self->zctx)
@@ -90,6 +91,9 @@ static int s_connect(fitfarm_client_t *self)
         zmq_connect(self->monitor, CLIENT_MONITOR_EP) != 0)
         return client_fail(self, FITFARM_ESYSTEM, "cannot connect the socket monitor: %s",
                            zmq_strerror(errno));
+    int src = client_secure_socket(self, self->sock, options);
+    if (src != FITFARM_OK)
+        return src;
     if (zmq_connect(self->sock, self->endpoint) != 0)
         return client_fail(self, FITFARM_ECONNECT, "cannot connect to the broker at %s: %s",
                            self->endpoint, zmq_strerror(errno));
@@ -386,7 +390,7 @@ FITFARM_API int fitfarm_client_new(const fitfarm_options_t *options, fitfarm_cli
         rc = client_fail(self, FITFARM_ENOMEM, "out of memory creating a client");
         goto cleanup;
     }
-    rc = s_connect(self);
+    rc = s_connect(self, options);
     if (rc == FITFARM_OK)
         rc = s_handshake(self);
 cleanup:

@@ -113,6 +113,7 @@ static pid_t s_fork_broker(const char *epfile)
         bc.clients_endpoint = "tcp://127.0.0.1:*";
         bc.workers_endpoint = "tcp://127.0.0.1:*";
         bc.endpoints_file = epfile;
+        bc.insecure = 1; /* loopback */
         _exit(broker_main_run(&bc));
     }
     return pid;
@@ -126,6 +127,7 @@ static pid_t s_fork_worker(const char *endpoint, unsigned slots)
         worker_config_t wc = {0};
         wc.broker_endpoint = endpoint;
         wc.slots = slots;
+        wc.insecure = 1;
         _exit(worker_main_run(&wc));
     }
     return pid;
@@ -211,6 +213,7 @@ int main(int argc, char **argv)
     }
     pid_t w1 = s_fork_worker(workers, 1);
     o.broker = clients;
+    o.insecure = 1;
     if (fitfarm_client_new(&o, &client, err, sizeof err) != 0) {
         fprintf(stderr, "bench: connect: %s\n", err);
         s_stop(w1), s_stop(broker);

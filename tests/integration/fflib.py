@@ -30,8 +30,18 @@ class Pool:
     """A broker and workers as real processes. Use as a context manager: on
     exit every process still running is sent SIGTERM, then SIGKILL, by PID."""
 
-    def __init__(self, tmp=None, broker_args=(), log_prefix="pool"):
+    def __init__(self, tmp=None, broker_args=(), log_prefix="pool", secure=False):
+        """secure=False: plaintext on loopback (every daemon gets --insecure).
+        secure=True: CURVE with keys made in tmp/keys by `fitfarm keygen`
+        (broker, client, worker) and admitted with `fitfarm allow`."""
         self.tmp = tmp or tempfile.mkdtemp(prefix="fitfarm-it-")
+        self.secure = secure
+        self.keys = os.path.join(self.tmp, "keys")
+        if secure:
+            for name in ("broker", "client", "worker"):
+                make_key(name, self.keys)
+            allow("client", os.path.join(self.keys, "client.public"), self.keys)
+            allow("worker", os.path.join(self.keys, "worker.public"), self.keys)
         self.broker_args = list(broker_args)
         self.procs = []
         self.broker = None
@@ -60,6 +70,9 @@ class Pool:
             clients, workers = self.clients_ep, self.workers_ep
         args = [exe("fitfarm-broker"), "--clients", clients, "--workers", workers,
                 "--endpoints-file", epfile] + self.broker_args + list(extra)
+        if "--key" not in args and "--insecure" not in args:
+            args += (["--key", self.key("broker.secret"), "--keys", self.keys] if self.secure
+                     else ["--insecure"])
         p = subprocess.Popen(args, stdout=subprocess.DEVNULL, stderr=self._log("broker"))
         self.procs.append(p)
         self.broker = p
@@ -78,6 +91,9 @@ class Pool:
         name = name or f"w{len(self.workers)}"
         args = [exe("fitfarm-worker"), "--broker", self.workers_ep, "--slots", str(slots),
                 "--name", name] + list(extra)
+        if "--key" not in args and "--insecure" not in args:
+            args += (["--key", self.key("worker.secret"), "--broker-key", self.key("broker.public")]
+                     if self.secure else ["--insecure"])
         p = subprocess.Popen(args, stdout=subprocess.DEVNULL, stderr=self._log(name))
         self.procs.append(p)
         self.workers.append(p)
@@ -93,8 +109,18 @@ class Pool:
             time.sleep(0.1)
         raise RuntimeError(f"pool did not reach {n} workers; last status {st}")
 
+    def key(self, name):
+        """Path of a key file this pool made (secure mode)."""
+        return os.path.join(self.keys, name)
+
+    def client_args(self):
+        """--broker and the security flags for `fitfarm eval` / `status`."""
+        sec = (["--key", self.key("client.secret"), "--broker-key", self.key("broker.public")]
+               if self.secure else ["--insecure"])
+        return ["--broker", self.clients_ep] + sec
+
     def status(self):
-        r = subprocess.run([exe("fitfarm"), "status", "--broker", self.clients_ep, "--json"],
+        r = subprocess.run([exe("fitfarm"), "status", "--json"] + self.client_args(),
                            capture_output=True, text=True, timeout=30)
         if r.returncode != 0:
             return None
@@ -131,10 +157,32 @@ class Pool:
 def run_eval(args, input_text, timeout=600):
     """Runs `fitfarm eval ARGS` with input_text on stdin. Returns
     (exit status, list of parsed output lines, stderr)."""
-    r = subprocess.run([exe("fitfarm"), "eval"] + list(args), input=input_text,
+    args = list(args)
+    # Loopback pools in tests run plaintext unless the caller passed keys.
+    if "--broker" in args and "--key" not in args and "--insecure" not in args:
+        args.append("--insecure")
+    r = subprocess.run([exe("fitfarm"), "eval"] + args, input=input_text,
                        capture_output=True, text=True, timeout=timeout)
     lines = [json.loads(l) for l in r.stdout.splitlines() if l.strip()]
     return r.returncode, lines, r.stderr
+
+
+def make_key(name, folder):
+    """`fitfarm keygen NAME --dir FOLDER`; returns (public path, secret path)."""
+    r = subprocess.run([exe("fitfarm"), "keygen", name, "--dir", folder],
+                       capture_output=True, text=True, timeout=30)
+    if r.returncode != 0:
+        raise RuntimeError(f"keygen {name}: {r.stderr}")
+    return os.path.join(folder, name + ".public"), os.path.join(folder, name + ".secret")
+
+
+def allow(role, public, keys):
+    """`fitfarm allow ROLE PUBLIC --keys KEYS`."""
+    r = subprocess.run([exe("fitfarm"), "allow", role, public, "--keys", keys],
+                       capture_output=True, text=True, timeout=30)
+    if r.returncode != 0:
+        raise RuntimeError(f"allow {role} {public}: {r.stderr}")
+    return r
 
 
 def genomes(n, dim, seed):

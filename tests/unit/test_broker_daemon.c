@@ -184,7 +184,8 @@ static int s_setup(void **state)
     s_child = fork();
     assert_true(s_child >= 0);
     if (s_child == 0) {
-        broker_config_t cfg = {.clients_endpoint = "tcp://127.0.0.1:*",
+        broker_config_t cfg = {.insecure = 1,
+                               .clients_endpoint = "tcp://127.0.0.1:*",
                                .workers_endpoint = "tcp://127.0.0.1:*",
                                .liveness_ms = 800,
                                .heartbeat_ms = 100,

@@ -205,6 +205,7 @@ static fitfarm_client_t *s_connect(fake_broker_t *fb)
 {
     fitfarm_options_t opts = {0};
     opts.broker = fb->endpoint;
+    opts.insecure = 1; /* a scripted broker on loopback */
     opts.connect_timeout_ms = 5000;
     fitfarm_client_t *client = NULL;
     char err[256];
@@ -493,6 +494,7 @@ static void test_no_broker(void **state)
     (void)state;
     fitfarm_options_t opts = {0};
     opts.broker = "tcp://127.0.0.1:1"; /* nothing listens on port 1 */
+    opts.insecure = 1;
     opts.connect_timeout_ms = 300;
     fitfarm_client_t *client = (fitfarm_client_t *)&opts;
     char err[256];
