@@ -32,6 +32,17 @@ static void s_refuse(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t c
     broker_envelope_send(b->clients, rid, rid_len, &msg);
 }
 
+/* 1 when request (run, tag) already waits on e. */
+static int s_waits(broker_eval_t *e, const broker_run_t *run, uint64_t tag)
+{
+    for (uint32_t i = 0; i < e->n_waiters; i++) {
+        const broker_waiter_t *w = broker_eval_waiter(e, i);
+        if (w->run == run && w->tag == tag)
+            return 1;
+    }
+    return 0;
+}
+
 static void s_queue_accept(broker_t *b, const uint8_t *rid, size_t rid_len, broker_run_t *run,
                            uint64_t batch_tag, uint32_t n)
 {
@@ -73,6 +84,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     char *canon = NULL;
     uint8_t(*keys)[PROTO_KEY_BYTES] = NULL;
     uint64_t *seeds = NULL;
+    uint8_t *recorded = NULL; /* per item: 0 new, 1 recorded (answered), 2 recorded cached */
     char text[2048];
     char hex[BROKER_RID_HEX];
 
@@ -146,6 +158,27 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     seeds = common_xcalloc(s->n_items ? s->n_items : 1, sizeof *seeds);
     for (uint32_t i = 0; i < s->n_items; i++)
         s_item_key(plugin, canon, s->run_seed, s->seed_mode, &s->items[i], &seeds[i], keys[i]);
+    /* Request identity is (run, tag): a tag the store already holds must ask
+     * for the same key (a resumed client re-sends the same requests); it is
+     * then answered from the record, never evaluated again. */
+    recorded = common_xcalloc(s->n_items ? s->n_items : 1, 1);
+    for (uint32_t i = 0; run && i < s->n_items; i++) {
+        uint8_t old[PROTO_KEY_BYTES];
+        int cached = 0;
+        if (!broker_store_find_request(b->store, run->id, s->items[i].tag, old, &cached))
+            continue;
+        if (memcmp(old, keys[i], PROTO_KEY_BYTES) != 0) {
+            snprintf(text, sizeof text,
+                     "run %s request %" PRIu64 " (item %u of the batch) was recorded with "
+                     "another genome or params; one client per run at a time, and a resumed "
+                     "run must send the same requests in the same order",
+                     run->id, s->items[i].tag, i);
+            rc = PROTO_REFUSE_RUN_MISMATCH;
+            s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+            goto cleanup;
+        }
+        recorded[i] = (uint8_t)(1 + (cached != 0));
+    }
     if (s->flags & PROTO_SUBMIT_REPLAY) {
         for (uint32_t i = 0; i < s->n_items; i++) {
             broker_eval_t *e = broker_evals_get(&b->evals, keys[i]);
@@ -174,15 +207,25 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                      run->id, broker_rid_hex(rid, rid_len, hex), n);
     }
     broker_run_set_client(run, rid, rid_len);
+    broker_store_note_run(b->store, run);
 
     const char *params = broker_intern(&b->intern, canon);
     int no_cache = (s->flags & PROTO_SUBMIT_NO_CACHE) != 0;
     for (uint32_t i = 0; i < s->n_items; i++) {
         const proto_item_t *it = &s->items[i];
         broker_eval_t *e = broker_evals_get(&b->evals, keys[i]);
+        if (recorded[i] && e) {
+            if (e->state == BROKER_EVAL_DONE) {
+                broker_runs_redeliver(&b->runs, run, it->tag, e, recorded[i] == 2);
+            } else if (!s_waits(e, run, it->tag)) {
+                run->outstanding++;
+                broker_eval_add_waiter(e, run, it->tag);
+            }
+            continue;
+        }
         run->outstanding++;
         if (e && e->state == BROKER_EVAL_DONE && !no_cache) {
-            broker_store_note_request(b->store, run, it->tag, e);
+            broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, 1);
             broker_runs_answer(&b->runs, run, it->tag, e, 1);
             continue;
         }
@@ -193,16 +236,18 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             e->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
             broker_eval_add_waiter(e, run, it->tag);
             broker_runs_enqueue(&b->runs, run, e, 0);
+            broker_store_note_eval(b->store, e);
         } else if (e->state == BROKER_EVAL_DONE) {
             broker_eval_reset(e); /* no-cache: evaluate again */
             e->timeout_ms = s->timeout_ms;
             e->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
             broker_eval_add_waiter(e, run, it->tag);
             broker_runs_enqueue(&b->runs, run, e, 0);
+            broker_store_note_eval(b->store, e);
         } else {
             broker_eval_add_waiter(e, run, it->tag); /* single flight */
         }
-        broker_store_note_request(b->store, run, it->tag, e);
+        broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, 0);
         assert(broker_eval_check(&b->evals, e));
     }
     s_queue_accept(b, rid, rid_len, run, s->batch_tag, s->n_items);
@@ -211,6 +256,7 @@ cleanup:
     free(canon);
     free(keys);
     free(seeds);
+    free(recorded);
     return rc;
 }
 
@@ -225,7 +271,8 @@ static void s_on_ack(broker_t *b, const uint8_t *rid, size_t rid_len, const prot
     }
     broker_run_set_client(run, rid, rid_len);
     for (uint32_t i = 0; i < a->n_tags; i++)
-        broker_runs_ack(&b->runs, run, a->tags[i]);
+        if (broker_runs_ack(&b->runs, run, a->tags[i]))
+            broker_store_note_ack(b->store, run, a->tags[i]);
 }
 
 static void s_on_status(broker_t *b, const uint8_t *rid, size_t rid_len)

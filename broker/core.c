@@ -2,6 +2,7 @@
  * per-turn scratch arrays; each module owns the rest. */
 #include "core.h"
 
+#include <sodium.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -24,6 +25,14 @@ void broker_core_init(broker_t *b, int liveness_ms, int heartbeat_ms, unsigned a
     broker_intern_init(&b->intern);
     broker_timers_init(&b->timers);
     b->store = broker_store_open(store_dir);
+    /* NULL store: broker_main_run refuses to start (the open logged why). */
+    if (b->store && broker_store_load(b) != 0)
+        broker_store_close(&b->store);
+    /* Job ids start at a random multiple of 2^32, so a worker's late DONE
+     * for a job of the previous broker process never matches a new job. */
+    if (sodium_init() < 0)
+        abort();
+    b->next_job_id = ((uint64_t)(randombytes_random() & 0x3fffffffu) + 1u) << 32;
     b->jobs = common_xcalloc(BROKER_JOBS_PER_MSG, sizeof *b->jobs);
     b->results = common_xcalloc(BROKER_RESULTS_PER_MSG, sizeof *b->results);
 }

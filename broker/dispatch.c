@@ -70,11 +70,12 @@ static void s_detach(broker_t *b, broker_eval_t *e)
     }
 }
 
-void broker_dispatch_complete(broker_t *b, broker_eval_t *e, uint32_t status,
-                              const double *fitness, uint32_t n_fitness, const char *error)
+void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker_t *w,
+                              const proto_outcome_t *o)
 {
-    broker_eval_set_result(&b->evals, e, status, fitness, n_fitness, error);
-    broker_store_note_result(b->store, e);
+    broker_eval_set_result(&b->evals, e, o->status, o->fitness, o->n_fitness, o->error);
+    broker_store_note_result(b->store, e, o, w ? w->name : NULL, w ? w->host : NULL,
+                             w ? w->arch : NULL);
     /* One simulation, charged to the run whose queue it came from; requests
      * that attached to it (single flight) did not cost another. */
     e->home->n_evaluated++;
@@ -119,7 +120,7 @@ void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcom
                      proto_status_name((int)o->status), (unsigned)e->attempts, w->name,
                      o->error ? o->error : "");
         }
-        broker_dispatch_complete(b, e, o->status, o->fitness, o->n_fitness, o->error);
+        broker_dispatch_complete(b, e, w, o);
         return;
     }
     e = broker_evals_orphan_take(&b->evals, o->job_id);
@@ -130,7 +131,7 @@ void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcom
         LOG_INFO("accepted a late result for job %" PRIu64 " from %s", o->job_id,
                  w ? w->name : "a dropped worker");
         s_detach(b, e);
-        broker_dispatch_complete(b, e, o->status, o->fitness, o->n_fitness, o->error);
+        broker_dispatch_complete(b, e, w, o);
         return;
     }
     LOG_DEBUG("ignored a result for stale job %" PRIu64, o->job_id);

@@ -19,10 +19,11 @@ uint64_t broker_dispatch_turn(broker_t *b);
  * know, whose late results may still be accepted for orphaned jobs). */
 void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcome_t *o);
 
-/* Final result for e (detached from any queue or worker first): stores it and
+/* Final result for e (detached from any queue or worker first): stores it
+ * (with the outcome o from worker w, for the record; either may be NULL) and
  * answers every waiting request. */
-void broker_dispatch_complete(broker_t *b, broker_eval_t *e, uint32_t status,
-                              const double *fitness, uint32_t n_fitness, const char *error);
+void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker_t *w,
+                              const proto_outcome_t *o);
 
 /* Drops w: its held jobs go back to the front of their runs (same seed, order
  * kept), their job ids become orphans, the registration is freed. Returns how

@@ -152,6 +152,11 @@ int broker_main_run(const broker_config_t *config)
     sigaction(SIGINT, &sa, &old_int);
     s_reload = 0;
     sigaction(SIGHUP, &sa, &old_hup);
+    if (!b.store) {
+        LOG_ERROR("cannot start without the store%s%s", config->store_dir ? " in " : "",
+                  config->store_dir ? config->store_dir : "");
+        goto cleanup;
+    }
 
     b.ctx = zmq_ctx_new();
     if (!b.ctx) {

@@ -23,8 +23,9 @@ static void s_usage(FILE *out)
             "  --clients EP          bind address for clients, e.g. tcp://0.0.0.0:5555\n"
             "                        (tcp://127.0.0.1:* picks a free port)\n"
             "  --workers EP          bind address for workers, e.g. tcp://0.0.0.0:5556\n"
-            "  --store DIR           durable store folder; accepted, but this version\n"
-            "                        keeps results in memory only (durability comes later)\n"
+            "  --store DIR           durable store folder (SQLite, DIR/fitfarm.db; default\n"
+            "                        ./fitfarm-store). Runs, accepted requests and results\n"
+            "                        survive a restart; one broker per store\n"
             "  --liveness MS         drop a worker silent this long (default 5000)\n"
             "  --heartbeat MS        heartbeat interval to workers (default 1000)\n"
             "  --attempts N          tries of a job that crashes or times out (default 3)\n"
@@ -161,6 +162,8 @@ int main(int argc, char **argv)
             cfg.attempts = (unsigned)n;
         }
     }
+    if (!cfg.store_dir)
+        cfg.store_dir = "fitfarm-store";
     if (!cfg.clients_endpoint)
         return s_bad("%s", "--clients ENDPOINT is required");
     if (!cfg.workers_endpoint)

@@ -252,6 +252,13 @@ void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, br
     }
 }
 
+void broker_runs_redeliver(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
+                           int cached)
+{
+    assert(e->state == BROKER_EVAL_DONE);
+    s_outbox_push(self, run, tag, e, cached);
+}
+
 size_t broker_runs_resend(broker_runs_t *self, broker_run_t *run)
 {
     size_t cur = 0, n = 0;

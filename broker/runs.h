@@ -87,6 +87,11 @@ broker_eval_t *broker_runs_pick(broker_runs_t *self, const broker_worker_t *w);
  * run's outbox. Logs the idle line when it was the run's last outstanding one. */
 void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
                         int cached);
+/* Queues the result of request tag for sending again without counting it as
+ * a new answer: a re-sent SUBMIT of a request already answered, or (at
+ * start) a stored result the client never acknowledged. */
+void broker_runs_redeliver(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
+                           int cached);
 /* Queues every unacked result of run for sending again. Returns how many. */
 size_t broker_runs_resend(broker_runs_t *self, broker_run_t *run);
 /* Pops a run with a non-empty outbox, or NULL. */

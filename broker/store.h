@@ -1,33 +1,73 @@
-/* store.h: the seam where the durable store goes. Today an in-memory stand-in
- * that only counts; a later step replaces store.c with SQLite (WAL, one
- * transaction per loop turn) without touching the callers:
+/* store.h: the broker's durable store, SQLite in WAL mode in one file
+ * (DIR/fitfarm.db). What goes in, and when:
  *
- *   - broker_client_submit calls broker_store_note_request for each accepted
- *     request and holds the ACCEPTED reply until the turn's commit;
- *   - broker_dispatch_complete calls broker_store_note_result;
- *   - the loop's before-sleep step calls broker_store_commit once, then sends
- *     ACCEPTED and RESULTS (only what the commit made durable goes out).
+ *   - broker_client_submit notes each new run, each accepted request (run,
+ *     tag -> key) and each new evaluation (plugin, params, genome, seed), and
+ *     holds the ACCEPTED reply until the turn's commit;
+ *   - broker_dispatch_outcome notes each final result (status, fitness, error,
+ *     attempts, which worker, CPU seconds, peak memory);
+ *   - an ACK marks its requests acked (nothing is ever deleted);
+ *   - HELLO notes each plugin (so a restarted broker knows the catalog before
+ *     any worker is back);
+ *   - the loop's before-sleep step calls broker_store_commit once per turn,
+ *     then sends ACCEPTED and RESULTS: only what the commit made durable goes
+ *     out. A turn's writes are one transaction (group commit): BEGIN at the
+ *     first write, COMMIT here.
  *
- * Not here: the cache lookups themselves (evals.h keeps results in memory). */
+ * broker_store_load (store_load.c) rebuilds the catalog, the runs, every
+ * stored result and the pending evaluations at start. The schema is in
+ * store.c and in the README ("The store"). Not here: cache lookups in memory
+ * (evals.h), what a request means (client_io.c). */
 #ifndef BROKER_STORE_H
 #define BROKER_STORE_H
 
 #include <stdint.h>
 
 #include "evals.h"
+#include "msg.h"
 #include "runs.h"
 
 typedef struct broker_store broker_store_t;
+struct broker;
 
-/* Opens the store in dir (NULL: memory only). Today dir is accepted and
- * ignored (logged once). Caller destroys it. Returns NULL only on failure. */
+/* Opens (creating if needed) DIR/fitfarm.db; dir NULL: a private in-memory
+ * database (unit tests). Caller closes it. Returns NULL after logging why
+ * when the folder or database cannot be opened. */
 broker_store_t *broker_store_open(const char *dir);
+/* Commits what is pending and closes. Accepts NULL. */
 void broker_store_close(broker_store_t **self_p);
 
+/* Rebuilds b's catalog, runs, results and queues from the store (store_load.c).
+ * Returns 0, or -1 after logging why. */
+int broker_store_load(struct broker *b);
+
+/* A run was created or spoke (upsert; last_activity = now). */
+void broker_store_note_run(broker_store_t *self, const broker_run_t *run);
+/* An evaluation was created or reset for a no-cache request: its row holds
+ * what a restarted broker needs to queue it again (status NULL = pending). */
+void broker_store_note_eval(broker_store_t *self, const broker_eval_t *e);
+/* Request tag of run asks for e; cached 1 when it was answered from a stored
+ * result at once. */
 void broker_store_note_request(broker_store_t *self, const broker_run_t *run, uint64_t tag,
-                               const broker_eval_t *e);
-void broker_store_note_result(broker_store_t *self, const broker_eval_t *e);
-/* Makes this turn's notes durable. Returns 0, or -1 (nothing may be sent). */
+                               uint64_t batch_tag, uint32_t replicate, const broker_eval_t *e,
+                               int cached);
+/* Looks up request (run_id, tag). Returns 1 and fills key and *cached when it
+ * is recorded, 0 when not. */
+int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t tag,
+                              uint8_t key[PROTO_KEY_BYTES], int *cached);
+/* e is DONE: records its result. o and worker may be NULL (not from a worker). */
+void broker_store_note_result(broker_store_t *self, const broker_eval_t *e,
+                              const proto_outcome_t *o, const char *worker, const char *host,
+                              const char *arch);
+void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64_t tag);
+void broker_store_note_plugin(broker_store_t *self, const broker_plugin_t *p);
+/* Makes this turn's notes durable. Returns 0, or -1 (nothing may be sent;
+ * the notes are retried with the next commit). */
 int broker_store_commit(broker_store_t *self);
+/* Counters for the log: commits made, statements written. */
+uint64_t broker_store_commits(const broker_store_t *self);
+
+/* The raw handle for store_load.c. Borrowed. */
+struct sqlite3 *broker_store_db(broker_store_t *self);
 
 #endif

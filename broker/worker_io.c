@@ -76,6 +76,10 @@ broker_worker_t *broker_worker_on_hello(broker_t *b, const uint8_t *rid, size_t 
         broker_plugin_t *p = broker_catalog_report(&b->catalog, &h->plugins[i]);
         if (p)
             broker_worker_carry(w, p);
+        /* Remembered, so a restarted broker accepts work for it at once. */
+        const broker_plugin_t *known = broker_catalog_get(&b->catalog, h->plugins[i].name);
+        if (known)
+            broker_store_note_plugin(b->store, known);
         if (used < sizeof list) {
             int k = snprintf(list + used, sizeof list - used, "%s%s %s%s", i ? ", " : "",
                              h->plugins[i].name, h->plugins[i].version,

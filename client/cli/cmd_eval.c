@@ -50,6 +50,13 @@ static const char s_help[] =
     "                     tcp://host:5555; without it an embedded local pool runs\n"
     "  --slots N          embedded pool: worker slots (default: online CPUs)\n"
     "  --plugin-dir DIR   embedded pool: also load plugins from DIR\n"
+    "  --store DIR        embedded pool: keep its durable store in DIR (default: a\n"
+    "                     private temporary one), so --run ID can resume later\n"
+    "  --stats            at the end, print on stderr one line of counts: results,\n"
+    "                     duplicates dropped, requests re-sent after a reconnect\n"
+    "\n"
+    "resuming: run the same input again with the same --run and --seed; lines the\n"
+    "broker has answered are printed from its store without being evaluated again.\n"
     "\n"
     "input, one JSON value per line:\n"
     "  {\"id\": <string|number|bool|null>, \"genome\": [numbers]}   (id optional)\n"
@@ -81,7 +88,8 @@ typedef struct {
 
 typedef struct {
     /* options */
-    const char *plugin, *params, *run_id, *in_path, *out_path, *broker, *plugin_dir;
+    const char *plugin, *params, *run_id, *in_path, *out_path, *broker, *plugin_dir, *store;
+    int stats;
     uint64_t seed, replicates, slots, timeout_s, attempts;
     /* state */
     FILE *out;
@@ -156,6 +164,11 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         STR_OPT("--out", out_path)
         STR_OPT("--broker", broker)
         STR_OPT("--plugin-dir", plugin_dir)
+        STR_OPT("--store", store)
+        if (strcmp(arg, "--stats") == 0) {
+            e->stats = 1;
+            continue;
+        }
         NUM_OPT("--seed", seed, 0, UINT64_MAX)
         NUM_OPT("--replicates", replicates, 1, 10000)
         NUM_OPT("--slots", slots, 0, 4096)
@@ -589,6 +602,7 @@ int cli_cmd_eval(int argc, char **argv)
     opts.broker = e.broker;
     opts.slots = (unsigned)e.slots;
     opts.plugin_dir = e.plugin_dir;
+    opts.store_dir = e.store;
     if (cli_keys_apply(&opts, "fitfarm eval") != 0) {
         rc = 2;
         goto cleanup;
@@ -625,6 +639,13 @@ int cli_cmd_eval(int argc, char **argv)
     rc = s_loop(&e);
     if (rc == 0 && e.any_not_ok)
         rc = 1;
+    if (e.stats) {
+        uint64_t dups = 0, resent = 0;
+        client_run_counters(e.run, &dups, &resent);
+        fprintf(stderr, "fitfarm eval: stats: results %zu, duplicates dropped %llu, "
+                "re-sent requests %llu\n", e.printed_slots, (unsigned long long)dups,
+                (unsigned long long)resent);
+    }
 cleanup:
     if (e.out && e.out != stdout)
         fclose(e.out);

@@ -92,6 +92,8 @@ struct fitfarm_run {
     size_t ready_head, ready_len, ready_cap;
     int64_t retry_at_ms;    /* re-send again then (a restarted broker refused); 0 = no */
     int64_t retry_until_ms; /* give up retrying after this */
+    uint64_t n_duplicates; /* results dropped as already delivered */
+    uint64_t n_resent;     /* requests re-sent after a reconnect or refusal */
     int async_rc; /* a background refusal to report on the next poll/evaluate */
     char async_err[CLIENT_ERR_BYTES];
 };

@@ -72,6 +72,13 @@ static void s_run_broker(const client_pool_t *self, const char *store_dir)
     memset(&config, 0, sizeof config);
     config.clients_endpoint = self->clients_ep;
     config.workers_endpoint = self->workers_ep;
+    /* A private store in the pool's temporary folder (removed with it) unless
+     * the caller named one to keep. */
+    char private_store[300];
+    if (!store_dir) {
+        snprintf(private_store, sizeof private_store, "%s/store", self->dir);
+        store_dir = private_store;
+    }
     config.store_dir = store_dir;
     config.insecure = 1; /* ipc:// in a private 0700 folder: no keys needed */
     common_log_set_tag("pool broker");

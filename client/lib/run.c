@@ -6,9 +6,13 @@
  * Tags. Slot s (= genome index * replicates + replicate) of a batch has tag
  * tag_base + s; a run hands out tag ranges from a counter, so tags are unique
  * within the run and a result maps back to (batch, index, replicate) by a
- * binary search over the run's batches. The counter starts at a random point
- * so that a second process resuming the same run id does not reuse the tags
- * of results the first one never acknowledged.
+ * binary search over the run's batches. The counter starts at 0 and counts
+ * genome x replicate in submission order, so tags are deterministic: a
+ * process that resumes a run id and submits the same genomes in the same
+ * order sends the same tags, and the broker (whose request identity is run
+ * id and tag) answers them from its store without evaluating them again. It
+ * also means one client per run at a time: the broker refuses a recorded tag
+ * that comes with another genome.
  *
  * Not here: the socket and the pump (client.c), result storage (batch.c). */
 #include <sodium.h>
@@ -19,6 +23,7 @@
 #include "common/clock.h"
 #include "internal.h"
 #include "key.h"
+#include "status.h"
 
 #define CLIENT_SUBMIT_WAIT_MS 60000 /* fitfarm_submit: how long ACCEPTED may take */
 #define CLIENT_SEND_MS 5000          /* how long one send may wait for the socket */
@@ -82,12 +87,17 @@ FITFARM_API int fitfarm_run_open(fitfarm_client_t *client, const fitfarm_run_opt
                  (options->replay ? PROTO_SUBMIT_REPLAY : 0);
     run->timeout_s = options->timeout_s;
     run->attempts = options->attempts;
-    /* Random start in [2^32, 2^62): room for 2^62 tags after it. */
-    run->next_tag = ((uint64_t)(randombytes_random() & 0x3fffffffu) + 1u) << 32;
+    run->next_tag = 0; /* deterministic tags: see the top of this file */
     run->next = client->runs;
     client->runs = run;
     *out = run;
     return FITFARM_OK;
+}
+
+void client_run_counters(const fitfarm_run_t *run, uint64_t *duplicates, uint64_t *resent)
+{
+    *duplicates = run ? run->n_duplicates : 0;
+    *resent = run ? run->n_resent : 0;
 }
 
 FITFARM_API const char *fitfarm_run_id(const fitfarm_run_t *run)
@@ -228,6 +238,8 @@ void client_run_on_results(fitfarm_run_t *run, const proto_results_t *results)
             s_async_fail(run, FITFARM_ENOMEM, "out of memory storing a result");
             continue;
         }
+        if (stored == 0)
+            run->n_duplicates++;
         if (stored == 1 && batch->streaming) {
             run->ready[(run->ready_head + run->ready_len) % run->ready_cap] =
                 (client_ready_t){batch, slot};
@@ -384,6 +396,8 @@ static int s_send_slots(fitfarm_run_t *run, fitfarm_batch_t *b, int from, int ba
         c->background = background;
         c->batch_tag = run->client->next_batch_tag++;
         run->n_chunks++;
+        if (background)
+            run->n_resent += c->n_slots;
         for (uint32_t k = 0; k < c->n_slots; k++)
             if (b->slots[c->slots[k]].state == CLIENT_SLOT_UNSENT)
                 b->slots[c->slots[k]].state = CLIENT_SLOT_SENT;
@@ -433,8 +447,8 @@ static int s_refusal(fitfarm_run_t *run, const fitfarm_batch_t *b, const client_
         return client_fail(cl, FITFARM_EREFUSED, "the broker refused the params of plugin "
                            "\"%s\": %s", b->plugin, text);
     case PROTO_REFUSE_RUN_MISMATCH:
-        return client_fail(cl, FITFARM_EREFUSED, "run \"%s\" exists with another seed or seed "
-                           "mode: %s", run->id, text);
+        return client_fail(cl, FITFARM_EREFUSED, "run \"%s\" does not match what the broker "
+                           "recorded for it: %s", run->id, text);
     default:
         return client_fail(cl, FITFARM_EREFUSED, "the broker refused the batch (code %u): %s",
                            c->refuse_code, text);

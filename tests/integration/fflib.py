@@ -49,6 +49,7 @@ class Pool:
         self.clients_ep = None
         self.workers_ep = None
         self.log_prefix = log_prefix
+        self.store = os.path.join(self.tmp, "store")
 
     def __enter__(self):
         return self
@@ -68,8 +69,11 @@ class Pool:
         # that ZeroMQ is reconnecting find it again.
         if self.clients_ep and clients == "tcp://127.0.0.1:*":
             clients, workers = self.clients_ep, self.workers_ep
+        # Each pool keeps its durable store in its own folder (the daemon's
+        # default, ./fitfarm-store, would be shared by tests running at once).
+        store = [] if "--store" in self.broker_args + list(extra) else ["--store", self.store]
         args = [exe("fitfarm-broker"), "--clients", clients, "--workers", workers,
-                "--endpoints-file", epfile] + self.broker_args + list(extra)
+                "--endpoints-file", epfile] + store + self.broker_args + list(extra)
         if "--key" not in args and "--insecure" not in args:
             args += (["--key", self.key("broker.secret"), "--keys", self.keys] if self.secure
                      else ["--insecure"])

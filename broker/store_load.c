@@ -1,0 +1,201 @@
+/* store_load.c: rebuilding the broker's state from the store at start (see
+ * store.h): the plugin catalog (so a SUBMIT that arrives before any worker is
+ * back is not refused), the runs, every stored result (loaded into the
+ * in-memory evaluation table: the cache answers from RAM, about 200 bytes
+ * plus genome per result), and the pending evaluations, queued again in the
+ * run of their first request with every request waiting on them. Results
+ * answered but not acknowledged go to their run's unacked set, so they are
+ * re-sent when the client comes back. Owns nothing after it returns. */
+#include <inttypes.h>
+#include <sqlite3.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "common/log.h"
+#include "core.h"
+
+static int s_fail(sqlite3 *db, const char *what)
+{
+    LOG_ERROR("cannot load the store (%s): %s", what, sqlite3_errmsg(db));
+    return -1;
+}
+
+static uint64_t s_u64(sqlite3_stmt *st, int col)
+{
+    return (uint64_t)sqlite3_column_int64(st, col);
+}
+
+static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
+{
+    sqlite3_stmt *st = NULL;
+    if (sqlite3_prepare_v2(db, "SELECT name, version, objectives, flags, digests FROM plugins",
+                           -1, &st, NULL) != SQLITE_OK)
+        return s_fail(db, "plugins");
+    while (sqlite3_step(st) == SQLITE_ROW) {
+        proto_plugin_info_t info;
+        memset(&info, 0, sizeof info);
+        info.name = (char *)sqlite3_column_text(st, 0);
+        info.version = (char *)sqlite3_column_text(st, 1);
+        info.objectives = (uint32_t)sqlite3_column_int64(st, 2);
+        info.flags = (uint32_t)sqlite3_column_int64(st, 3);
+        const uint8_t *d = sqlite3_column_blob(st, 4);
+        int nd = sqlite3_column_bytes(st, 4) / PROTO_DIGEST_BYTES;
+        if (!info.name || !info.version)
+            continue;
+        for (int i = 0; i < (nd > 0 ? nd : 1); i++) {
+            if (nd > 0)
+                memcpy(info.digest, d + (size_t)i * PROTO_DIGEST_BYTES, PROTO_DIGEST_BYTES);
+            broker_catalog_report(&b->catalog, &info);
+        }
+        (*n)++;
+    }
+    sqlite3_finalize(st);
+    return 0;
+}
+
+static int s_load_runs(broker_t *b, sqlite3 *db, uint32_t *n)
+{
+    sqlite3_stmt *st = NULL;
+    if (sqlite3_prepare_v2(db, "SELECT run_id, seed, seed_mode FROM runs", -1, &st, NULL) !=
+        SQLITE_OK)
+        return s_fail(db, "runs");
+    while (sqlite3_step(st) == SQLITE_ROW) {
+        const char *id = (const char *)sqlite3_column_text(st, 0);
+        if (!id || broker_runs_get(&b->runs, id))
+            continue;
+        broker_runs_new(&b->runs, id, s_u64(st, 1), (uint32_t)sqlite3_column_int(st, 2));
+        (*n)++;
+    }
+    sqlite3_finalize(st);
+    return 0;
+}
+
+/* A new evaluation from columns [key, plugin, params, genome, seed,
+ * timeout_ms, max_attempts] starting at col; NULL (logged) when its plugin
+ * is unknown. */
+static broker_eval_t *s_new_eval(broker_t *b, sqlite3_stmt *st, int col)
+{
+    const uint8_t *key = sqlite3_column_blob(st, col);
+    const char *plugin_name = (const char *)sqlite3_column_text(st, col + 1);
+    const char *params = (const char *)sqlite3_column_text(st, col + 2);
+    if (sqlite3_column_bytes(st, col) != PROTO_KEY_BYTES || !plugin_name || !params)
+        return NULL;
+    broker_plugin_t *plugin = broker_catalog_get(&b->catalog, plugin_name);
+    if (!plugin) {
+        LOG_WARN("store: an evaluation for plugin %s, which the store does not list; skipped",
+                 plugin_name);
+        return NULL;
+    }
+    const uint8_t *genome = sqlite3_column_blob(st, col + 3);
+    int genome_len = sqlite3_column_bytes(st, col + 3);
+    broker_eval_t *e = broker_evals_new(&b->evals, key, plugin, broker_intern(&b->intern, params),
+                                        s_u64(st, col + 4), genome, (uint32_t)genome_len);
+    e->timeout_ms = (uint32_t)sqlite3_column_int64(st, col + 5);
+    e->max_attempts = (uint16_t)sqlite3_column_int(st, col + 6);
+    return e;
+}
+
+static int s_load_results(broker_t *b, sqlite3 *db, uint64_t *n)
+{
+    sqlite3_stmt *st = NULL;
+    if (sqlite3_prepare_v2(db,
+                           "SELECT key, plugin, params, genome, seed, timeout_ms, max_attempts,"
+                           " status, fitness, error, attempts FROM evaluations"
+                           " WHERE status IS NOT NULL",
+                           -1, &st, NULL) != SQLITE_OK)
+        return s_fail(db, "evaluations");
+    double fit[PROTO_MAX_OBJECTIVES];
+    while (sqlite3_step(st) == SQLITE_ROW) {
+        broker_eval_t *e = s_new_eval(b, st, 0);
+        if (!e)
+            continue;
+        const uint8_t *le = sqlite3_column_blob(st, 8);
+        int bytes = sqlite3_column_bytes(st, 8);
+        uint32_t nf = (uint32_t)(bytes / 8);
+        if (nf > PROTO_MAX_OBJECTIVES)
+            nf = PROTO_MAX_OBJECTIVES;
+        for (uint32_t i = 0; i < nf; i++) {
+            uint64_t bits = 0;
+            for (int k = 0; k < 8; k++)
+                bits |= (uint64_t)le[i * 8 + (uint32_t)k] << (8 * k);
+            memcpy(&fit[i], &bits, 8);
+        }
+        e->attempts = (uint16_t)sqlite3_column_int(st, 10);
+        broker_eval_set_result(&b->evals, e, (uint32_t)sqlite3_column_int(st, 7), fit, nf,
+                               (const char *)sqlite3_column_text(st, 9));
+        (*n)++;
+    }
+    sqlite3_finalize(st);
+    return 0;
+}
+
+static int s_waits(broker_eval_t *e, broker_run_t *run, uint64_t tag)
+{
+    for (uint32_t i = 0; i < e->n_waiters; i++) {
+        broker_waiter_t *w = broker_eval_waiter(e, i);
+        if (w->run == run && w->tag == tag)
+            return 1;
+    }
+    return 0;
+}
+
+static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending, uint64_t *unacked)
+{
+    sqlite3_stmt *st = NULL;
+    /* Creation order, so a run's queue comes back oldest first. */
+    if (sqlite3_prepare_v2(db,
+                           "SELECT r.run_id, r.tag, r.cached, r.acked, e.key, e.plugin, e.params,"
+                           " e.genome, e.seed, e.timeout_ms, e.max_attempts, e.status IS NULL"
+                           " FROM requests r JOIN evaluations e ON e.key = r.key"
+                           " WHERE e.status IS NULL OR r.acked = 0 ORDER BY r.created",
+                           -1, &st, NULL) != SQLITE_OK)
+        return s_fail(db, "requests");
+    while (sqlite3_step(st) == SQLITE_ROW) {
+        const char *run_id = (const char *)sqlite3_column_text(st, 0);
+        broker_run_t *run = run_id ? broker_runs_get(&b->runs, run_id) : NULL;
+        const uint8_t *key = sqlite3_column_blob(st, 4);
+        if (!run || sqlite3_column_bytes(st, 4) != PROTO_KEY_BYTES)
+            continue;
+        uint64_t tag = s_u64(st, 1);
+        broker_eval_t *e = broker_evals_get(&b->evals, key);
+        if (!sqlite3_column_int(st, 11)) {
+            /* Answered and not acknowledged: owed to the client when it returns. */
+            if (e && e->state == BROKER_EVAL_DONE) {
+                broker_runs_redeliver(&b->runs, run, tag, e, sqlite3_column_int(st, 2));
+                (*unacked)++;
+            }
+            continue;
+        }
+        if (!e) {
+            e = s_new_eval(b, st, 4);
+            if (!e)
+                continue;
+        }
+        if (e->state == BROKER_EVAL_DONE || s_waits(e, run, tag))
+            continue;
+        broker_eval_add_waiter(e, run, tag);
+        run->outstanding++;
+        if (!e->home) {
+            broker_runs_enqueue(&b->runs, run, e, 0);
+            (*pending)++;
+        }
+    }
+    sqlite3_finalize(st);
+    return 0;
+}
+
+int broker_store_load(broker_t *b)
+{
+    sqlite3 *db = broker_store_db(b->store);
+    uint32_t n_plugins = 0, n_runs = 0;
+    uint64_t n_results = 0, n_pending = 0, n_unacked = 0;
+    if (s_load_plugins(b, db, &n_plugins) != 0 || s_load_runs(b, db, &n_runs) != 0 ||
+        s_load_results(b, db, &n_results) != 0 ||
+        s_load_requests(b, db, &n_pending, &n_unacked) != 0)
+        return -1;
+    if (n_runs || n_plugins)
+        LOG_INFO("store loaded: %u plugins, %u runs, %" PRIu64 " results, %" PRIu64
+                 " pending evaluations queued again, %" PRIu64 " results owed to clients",
+                 n_plugins, n_runs, n_results, n_pending, n_unacked);
+    return 0;
+}
