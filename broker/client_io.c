@@ -265,7 +265,7 @@ static void s_on_ack(broker_t *b, const uint8_t *rid, size_t rid_len, const prot
     broker_run_t *run = broker_runs_get(&b->runs, a->run_id);
     if (!run) {
         char hex[BROKER_RID_HEX];
-        LOG_DEBUG("ignored ACK for unknown run %s from client %s", a->run_id,
+        LOG_WARN("ignored ACK for unknown run %s from client %s", a->run_id,
                   broker_rid_hex(rid, rid_len, hex));
         return;
     }

@@ -134,7 +134,8 @@ void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcom
         broker_dispatch_complete(b, e, w, o);
         return;
     }
-    LOG_DEBUG("ignored a result for stale job %" PRIu64, o->job_id);
+    LOG_INFO("ignored a result for job %" PRIu64 " from %s%s: no such job is held there", o->job_id,
+             w ? "worker " : "an unregistered worker", w ? w->name : "");
 }
 
 uint32_t broker_dispatch_drop_worker(broker_t *b, broker_worker_t *w)

@@ -166,7 +166,12 @@ void broker_registry_add_credits(broker_registry_t *self, broker_worker_t *w, ui
     /* A worker's credits are bounded by what it could sensibly hold; a huge
      * grant is clamped rather than trusted. */
     uint64_t c = (uint64_t)w->credits + credits;
-    w->credits = c > 1000000u ? 1000000u : (uint32_t)c;
+    /* A worker asks for at most 64 jobs per slot (its prefetch cap); a
+     * worker claiming more can hold no more than that, so a hostile one
+     * cannot sit on the whole queue. */
+    uint64_t slots = w->slots ? (w->slots > 4096 ? 4096 : w->slots) : 1;
+    uint64_t cap = slots * 64u < 1024u ? 1024u : slots * 64u;
+    w->credits = c > cap ? (uint32_t)cap : (uint32_t)c;
     s_ready_set(self, w, w->credits > 0);
 }
 
