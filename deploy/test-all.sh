@@ -31,6 +31,7 @@ if [ "$FUZZ_SECONDS" -gt 0 ]; then
     CC=clang cmake -S . -B build-fuzz -DCMAKE_C_COMPILER=clang -DCMAKE_BUILD_TYPE=Debug \
         -DFITFARM_FUZZ=ON -DFITFARM_WERROR=ON >/dev/null
     cmake --build build-fuzz -j"$JOBS" --target fitfarm_fuzzers
+    ran=0
     for f in build-fuzz/tests/fuzz/fuzz_*; do
         [ -x "$f" ] || continue
         name=$(basename "$f" | sed 's/^fuzz_//')
@@ -38,8 +39,22 @@ if [ "$FUZZ_SECONDS" -gt 0 ]; then
         work=build-fuzz/corpus-$name
         mkdir -p "$work"
         echo "-- $f ($corpus)"
+        # No pipe: its exit status would hide a crash. A crash leaves its input
+        # in build-fuzz/crash-*; fix the bug and add that input to the corpus.
+        status=0
         "$f" -max_total_time="$FUZZ_SECONDS" -rss_limit_mb=2048 -print_final_stats=1 \
-            "$work" "$corpus" 2>&1 | tail -n 12
+            -artifact_prefix=build-fuzz/ "$work" "$corpus" >"$work.log" 2>&1 || status=$?
+        tail -n 12 "$work.log"
+        if [ "$status" -ne 0 ]; then
+            echo "test-all: $f failed (exit $status); see $work.log and build-fuzz/crash-*" >&2
+            exit 1
+        fi
+        ran=$((ran + 1))
     done
+    if [ "$ran" -eq 0 ]; then
+        echo "test-all: no fuzz target was built" >&2
+        exit 1
+    fi
+    echo "== $ran fuzz targets ran without a crash"
 fi
 echo "test-all: every stage passed"
