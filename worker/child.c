@@ -1,7 +1,9 @@
 /* child.c: one child process of the pool (child.h). Owns the context cache,
- * the evaluation call, status mapping and per-evaluation measurements. */
+ * the evaluation call, status mapping, per-evaluation measurements, the
+ * running-job status block and the batching of answers. */
 #include "child.h"
 
+#include <errno.h>
 #include <math.h>
 #include <signal.h>
 #include <stdint.h>
@@ -10,9 +12,11 @@
 #include <string.h>
 #include <sys/prctl.h>
 #include <sys/resource.h>
+#include <sys/socket.h>
 #include <time.h>
 #include <unistd.h>
 
+#include "common/clock.h"
 #include "common/log.h"
 #include "frame.h"
 
@@ -96,12 +100,13 @@ static s_context_t *s_context_get(const worker_plugin_t *plugin, const char *par
     return victim;
 }
 
-/* Evaluates job into out (fitness and error malloc'd). */
+/* Evaluates job into out; out->fitness and out->error point into the
+ * caller's buffers (no allocation per job). */
 static void s_evaluate(const worker_registry_t *registry, const proto_job_t *job,
-                       proto_outcome_t *out)
+                       proto_outcome_t *out, double fitness[PROTO_MAX_OBJECTIVES],
+                       char err[PROTO_MAX_ERROR_BYTES])
 {
-    char err[PROTO_MAX_ERROR_BYTES];
-    double fitness[PROTO_MAX_OBJECTIVES];
+    const size_t errsz = PROTO_MAX_ERROR_BYTES;
     uint32_t n_fitness = 0;
     int status = PROTO_STATUS_OK;
     err[0] = '\0';
@@ -111,23 +116,23 @@ static void s_evaluate(const worker_registry_t *registry, const proto_job_t *job
     if (!plugin) {
         char names[512];
         worker_registry_names(registry, names, sizeof names);
-        snprintf(err, sizeof err, "unknown plugin \"%.128s\" (this worker carries: %s)",
+        snprintf(err, errsz, "unknown plugin \"%.128s\" (this worker carries: %s)",
                  job->plugin, names);
         status = PROTO_STATUS_INVALID;
         goto done;
     }
-    s_context_t *c = s_context_get(plugin, job->params, err, sizeof err, &status);
+    s_context_t *c = s_context_get(plugin, job->params, err, errsz, &status);
     if (!c)
         goto done;
     if (c->info.genome_bytes && job->genome_len != c->info.genome_bytes) {
         /* Say it in doubles when it fits: that is how users submit genomes. */
         if (job->genome_len % 8 == 0 && c->info.genome_bytes % 8 == 0)
-            snprintf(err, sizeof err,
+            snprintf(err, errsz,
                      "%s: genome has %u doubles (%u bytes), these params expect %u (%u bytes)",
                      plugin->plugin->name, job->genome_len / 8, job->genome_len,
                      c->info.genome_bytes / 8, c->info.genome_bytes);
         else
-            snprintf(err, sizeof err, "%s: genome is %u bytes, these params expect %u",
+            snprintf(err, errsz, "%s: genome is %u bytes, these params expect %u",
                      plugin->plugin->name, job->genome_len, c->info.genome_bytes);
         status = PROTO_STATUS_INVALID;
         goto done;
@@ -138,21 +143,21 @@ static void s_evaluate(const worker_registry_t *registry, const proto_job_t *job
     static const uint8_t empty[8];
     const uint8_t *genome = job->genome_len ? job->genome : empty;
     int prc = plugin->plugin->evaluate(c->ctx, genome, job->genome_len, job->seed, fitness, err,
-                                       sizeof err);
-    err[sizeof err - 1] = '\0';
+                                       errsz);
+    err[errsz - 1] = '\0';
     if (prc == FITFARM_PLUGIN_EINVAL) {
         status = PROTO_STATUS_INVALID;
     } else if (prc != FITFARM_PLUGIN_OK) {
         status = PROTO_STATUS_FAILED;
         if (prc != FITFARM_PLUGIN_EFAIL && !err[0])
-            snprintf(err, sizeof err, "%s: evaluate returned unknown code %d",
+            snprintf(err, errsz, "%s: evaluate returned unknown code %d",
                      plugin->plugin->name, prc);
     } else {
         n_fitness = c->info.objectives;
         err[0] = '\0';
         for (uint32_t i = 0; i < n_fitness; i++)
             if (!isfinite(fitness[i])) {
-                snprintf(err, sizeof err, "objective %u is %s", i,
+                snprintf(err, errsz, "objective %u is %s", i,
                          isnan(fitness[i]) ? "NaN" : "infinite");
                 status = PROTO_STATUS_FAILED;
                 n_fitness = 0;
@@ -160,7 +165,7 @@ static void s_evaluate(const worker_registry_t *registry, const proto_job_t *job
             }
     }
     if (status != PROTO_STATUS_OK && !err[0])
-        snprintf(err, sizeof err, "%s: evaluation %s without a message", plugin->plugin->name,
+        snprintf(err, errsz, "%s: evaluation %s without a message", plugin->plugin->name,
                  status == PROTO_STATUS_INVALID ? "refused the request" : "failed");
 done:
     out->job_id = job->job_id;
@@ -169,23 +174,13 @@ done:
     struct rusage ru;
     getrusage(RUSAGE_SELF, &ru);
     out->peak_rss_kb = ru.ru_maxrss > 0 ? (uint64_t)ru.ru_maxrss : 0;
-    out->n_fitness = 0;
-    out->fitness = NULL;
-    if (n_fitness) {
-        out->fitness = malloc(n_fitness * sizeof(double));
-        if (out->fitness) {
-            memcpy(out->fitness, fitness, n_fitness * sizeof(double));
-            out->n_fitness = n_fitness;
-        } else {
-            out->status = PROTO_STATUS_FAILED;
-            snprintf(err, sizeof err, "child out of memory for the fitness vector");
-        }
-    }
-    out->error = strdup(err);
+    out->n_fitness = n_fitness;
+    out->fitness = n_fitness ? fitness : NULL;
+    out->error = err;
 }
 
 void worker_child_run(int fd, const worker_registry_t *registry, size_t mem_limit_mb,
-                      pid_t parent)
+                      pid_t parent, worker_child_status_t *status)
 {
     prctl(PR_SET_PDEATHSIG, SIGKILL);
     if (getppid() != parent) /* the parent died before prctl took effect */
@@ -200,42 +195,83 @@ void worker_child_run(int fd, const worker_registry_t *registry, size_t mem_limi
         if (setrlimit(RLIMIT_AS, &rl) != 0)
             LOG_WARN("cannot limit the address space to %zu MB", mem_limit_mb);
     }
+    worker_frame_buf_t in = {0}, out = {0};
+    uint64_t seq = 0;
+    unsigned held = 0; /* answers in out, not yet written */
     for (;;) {
         proto_msg_t *msg = NULL;
-        char err[256];
-        int rc = worker_frame_read(fd, &msg, err, sizeof err);
-        if (rc == 1)
-            break;
+        uint64_t side = 0;
+        char err[PROTO_MAX_ERROR_BYTES];
+        int rc = worker_frame_next(&in, &msg, &side, err, sizeof err);
+        if (rc == 0) {
+            /* No whole job buffered: take what has arrived, else send the
+             * held answers before waiting (the parent needs them to hand
+             * over more work). */
+            ssize_t r = worker_frame_fill(&in, fd, MSG_DONTWAIT);
+            if (r < 0 && errno != EAGAIN && errno != EWOULDBLOCK)
+                _exit(3);
+            if (r > 0)
+                continue;
+            if (r < 0) {
+                if (worker_frame_flush(&out, fd, 1) != 0)
+                    _exit(3);
+                held = 0;
+                r = worker_frame_fill(&in, fd, 0);
+                if (r < 0)
+                    _exit(3);
+            }
+            if (r == 0)
+                break; /* the parent closed our socket */
+            continue;
+        }
         if (rc < 0 || msg->type != PROTO_JOBS || msg->u.jobs.n_jobs != 1) {
             LOG_ERROR("child %d: bad frame from the worker: %s", (int)getpid(),
                       rc < 0 ? err : "not one job");
             proto_msg_destroy(&msg);
             _exit(2);
         }
+        const proto_job_t *job = &msg->u.jobs.jobs[0];
+        int64_t t0 = common_clock_us();
+        atomic_store_explicit(&status->start_us, t0, memory_order_relaxed);
+        atomic_store_explicit(&status->running, ++seq, memory_order_release);
+        double fitness[PROTO_MAX_OBJECTIVES];
         proto_outcome_t outcome;
-        s_evaluate(registry, &msg->u.jobs.jobs[0], &outcome);
-        proto_msg_destroy(&msg);
+        s_evaluate(registry, job, &outcome, fitness, err);
+        int64_t wall = common_clock_us() - t0;
         proto_msg_t reply = {.type = PROTO_DONE};
-        reply.u.done.credits = 0;
         reply.u.done.n_outcomes = 1;
         reply.u.done.outcomes = &outcome;
-        if (!outcome.error) {
-            /* strdup failed: out of memory under the address-space limit. */
-            outcome.error = (char *)"child out of memory";
+        uint8_t *frame = NULL;
+        size_t frame_len = 0;
+        rc = worker_frame_encode(&reply, (uint64_t)(wall < 0 ? 0 : wall), &frame, &frame_len);
+        if (rc == 0)
+            rc = worker_frame_buf_append(&out, frame, frame_len);
+        free(frame);
+        proto_msg_destroy(&msg);
+        if (rc != 0) {
+            /* Out of memory under the address-space limit: say so rather
+             * than die, in a frame that needs no allocation beyond out's. */
+            snprintf(err, sizeof err, "child out of memory for the answer");
             outcome.status = PROTO_STATUS_FAILED;
-            free(outcome.fitness);
-            outcome.fitness = NULL;
             outcome.n_fitness = 0;
-            rc = worker_frame_write(fd, &reply);
-            outcome.error = NULL;
-        } else {
-            rc = worker_frame_write(fd, &reply);
+            outcome.fitness = NULL;
+            outcome.error = err;
+            if (worker_frame_encode(&reply, (uint64_t)wall, &frame, &frame_len) != 0 ||
+                worker_frame_buf_append(&out, frame, frame_len) != 0)
+                _exit(3); /* still marked running: the parent blames this job */
+            free(frame);
         }
-        free(outcome.fitness);
-        free(outcome.error);
-        if (rc != 0)
-            _exit(3);
+        /* The answer is in out: a death from here on is not this job's. */
+        atomic_store_explicit(&status->running, 0, memory_order_release);
+        held++;
+        if (held >= WORKER_CHILD_BATCH || wall >= WORKER_CHILD_BATCH_US) {
+            if (worker_frame_flush(&out, fd, 1) != 0)
+                _exit(3);
+            held = 0;
+        }
     }
+    worker_frame_buf_free(&in);
+    worker_frame_buf_free(&out);
     for (size_t i = 0; i < WORKER_CHILD_CONTEXTS; i++)
         s_context_drop(&s_contexts[i]);
     _exit(0);

@@ -102,3 +102,15 @@ void worker_credits_granted(worker_credits_t *self, uint32_t n, int64_t now_us)
         self->grant_us = now_us;
     }
 }
+
+unsigned worker_credits_child_depth(const worker_credits_t *self)
+{
+    int64_t eval = worker_credits_median_eval_us(self);
+    if (eval < 0)
+        return 1;
+    int64_t depth = WORKER_CREDITS_CHILD_QUEUE_US / (eval < 1 ? 1 : eval);
+    if (depth < 1)
+        return 1;
+    return depth > WORKER_CREDITS_CHILD_DEPTH_MAX ? WORKER_CREDITS_CHILD_DEPTH_MAX
+                                                  : (unsigned)depth;
+}

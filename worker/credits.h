@@ -23,6 +23,10 @@
 #define WORKER_CREDITS_RTT_SAMPLES 16
 #define WORKER_CREDITS_MAX_FACTOR 64
 #define WORKER_CREDITS_START_FACTOR 4
+/* A child process holds about this much work (running plus queued behind
+ * it), bounded to [1, WORKER_CREDITS_CHILD_DEPTH_MAX] jobs. */
+#define WORKER_CREDITS_CHILD_QUEUE_US 1000
+#define WORKER_CREDITS_CHILD_DEPTH_MAX 32
 
 typedef struct {
     unsigned slots;
@@ -54,6 +58,13 @@ uint32_t worker_credits_want(const worker_credits_t *self, size_t held);
 
 /* n credits were sent at now_us. */
 void worker_credits_granted(worker_credits_t *self, uint32_t n, int64_t now_us);
+
+/* Jobs one child process should hold at once: CHILD_QUEUE_US / median
+ * evaluation time, in [1, CHILD_DEPTH_MAX]; 1 until an evaluation has been
+ * measured. Deep for sub-millisecond plugins, so a child rarely waits for
+ * its parent; 1 for slower ones, so no job waits behind another in one child
+ * while a sibling sits idle. */
+unsigned worker_credits_child_depth(const worker_credits_t *self);
 
 /* The median evaluation time and round-trip estimate in microseconds (-1
  * when not yet measured), for logs and tests. */

@@ -1,20 +1,39 @@
 /* pool.c: the pre-forked child processes (pool.h). Owns the children's
- * lifecycle: spawn, hand-over, answer, death, overrun, respawn.
+ * lifecycle: spawn, hand-over, answers, death, overrun, respawn; and which
+ * job a death or an overrun belongs to.
  *
- * A child slot is in one of three states:
- *   dead  pid == 0        fork failed; worker_pool_handle retries each second
- *   idle  pid, !busy      waiting on its socketpair for a job
- *   busy  pid, busy       running job_id until deadline_ms
- * worker_pool_start moves idle -> busy; s_on_answer busy -> idle; s_on_death
- * and s_on_overrun busy/idle -> (respawned) idle, producing CRASHED/TIMEOUT
- * for a busy child. */
+ * A child slot is dead (pid == 0: fork failed; worker_pool_handle retries each
+ * second) or live. A live child holds a FIFO of jobs written (or about to be
+ * written) to its socket: the child evaluates them in order, so answers come
+ * back in that order and the head of the FIFO is the oldest job not answered.
+ * How many it holds is the depth: config.queue_depth, or adaptive from the
+ * median evaluation time the children report (credits.h), 1 until measured.
+ *
+ * Which job is running: the child publishes the sequence number and start time
+ * of the job it evaluates in a status block shared with us (child.h). With
+ * batched answers the head of the FIFO may be finished while a later job runs,
+ * so answer order alone cannot say. The block is untrusted: a sequence number
+ * that names no job we hold is ignored and the head is assumed to run, since
+ * max(its hand-over, the last answer read); a start time is clamped to
+ * [hand-over, now], so a deadline is never earlier than the job could have
+ * started.
+ *
+ * Deaths and overruns: the running job (if any) becomes CRASHED (naming the
+ * signal or exit status) or TIMEOUT; every other job the child held goes,
+ * in order, to the pool's backlog and from there to the first child with room
+ * (usually the respawned one), so it is evaluated once and reported once. A
+ * death while no job was running blames nobody; a job that goes through
+ * S_MAX_BLAMELESS such deaths becomes CRASHED, so a child that dies between
+ * jobs every time cannot keep a job circling for ever. */
 #include "pool.h"
 
 #include <errno.h>
+#include <fcntl.h>
 #include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/mman.h>
 #include <sys/resource.h>
 #include <sys/socket.h>
 #include <sys/wait.h>
@@ -25,28 +44,54 @@
 #include "common/alloc.h"
 #include "common/clock.h"
 #include "common/log.h"
+#include "credits.h"
 #include "frame.h"
 
 #define S_RESPAWN_RETRY_MS 1000
 #define S_REAP_GRACE_MS 2000 /* a child whose socket closed gets this long to be reapable */
+#define S_STUCK_GRACE_US 1000000 /* a child running nothing while holding jobs, past
+                                    the head's deadline by this much, is stuck */
+#define S_MAX_BLAMELESS 3
+#define S_MAX_DEPTH WORKER_CREDITS_CHILD_DEPTH_MAX
+
+typedef struct {
+    uint64_t job_id;
+    uint64_t seq;      /* its number in its child's order (1, 2, ...); 0 in the backlog */
+    uint32_t timeout_ms;
+    unsigned blameless; /* deaths of a holding child while nothing ran */
+    int64_t handed_us; /* when it was given to its current child */
+    uint8_t *frame;    /* the encoded JOBS frame, kept to hand it over again */
+    size_t frame_len;
+} s_job_t;
 
 typedef struct {
     pid_t pid; /* 0: dead */
-    int fd;    /* parent's end of the socketpair; -1 when dead */
-    int busy;
-    uint64_t job_id;
-    int64_t start_us;
-    int64_t deadline_ms;
-    uint32_t timeout_ms;
+    int fd;    /* parent's end of the socketpair, non-blocking; -1 when dead */
+    s_job_t q[S_MAX_DEPTH]; /* ring: [qhead, qhead + qn) */
+    unsigned qhead, qn;
+    uint64_t next_seq;      /* sequence number of the last job handed over */
+    int64_t last_answer_us; /* when its last answer was read (or it started) */
+    worker_frame_buf_t in, out;
 } s_child_t;
 
 struct worker_pool {
     worker_pool_config_t config;
     s_child_t *children;
+    worker_child_status_t *status; /* shared with the children, one per slot */
+    size_t status_bytes;
     worker_pool_result_t *results; /* FIFO: [head, count) */
     size_t head, count, cap;
+    s_job_t *backlog; /* FIFO: [bhead, bcount): jobs whose child died */
+    size_t bhead, bcount, bcap;
+    worker_credits_t timing; /* evaluation times, for the adaptive depth */
+    unsigned depth;
     int64_t respawn_at_ms; /* 0: no dead slot waiting */
 };
+
+static s_job_t *s_at(s_child_t *c, unsigned k)
+{
+    return &c->q[(c->qhead + k) % S_MAX_DEPTH];
+}
 
 static void s_push(worker_pool_t *self, const worker_pool_result_t *r)
 {
@@ -79,9 +124,79 @@ static void s_push_failure(worker_pool_t *self, uint64_t job_id, int64_t start_u
     s_push(self, &r);
 }
 
+static void s_backlog_push(worker_pool_t *self, const s_job_t *j)
+{
+    if (self->bhead > 0 && self->bcount == self->bcap) {
+        memmove(self->backlog, self->backlog + self->bhead,
+                (self->bcount - self->bhead) * sizeof *self->backlog);
+        self->bcount -= self->bhead;
+        self->bhead = 0;
+    }
+    if (self->bcount == self->bcap) {
+        self->bcap = self->bcap ? self->bcap * 2 : 64;
+        self->backlog = common_xrealloc(self->backlog, self->bcap, sizeof *self->backlog);
+    }
+    self->backlog[self->bcount] = *j;
+    self->backlog[self->bcount].seq = 0;
+    self->bcount++;
+}
+
+static int s_has_room(const worker_pool_t *self, const s_child_t *c)
+{
+    return c->pid > 0 && c->qn < self->depth;
+}
+
+/* The live child with room holding the fewest jobs, or -1. */
+static int s_pick(const worker_pool_t *self)
+{
+    int best = -1;
+    for (unsigned i = 0; i < self->config.slots; i++) {
+        const s_child_t *c = &self->children[i];
+        if (s_has_room(self, c) && (best < 0 || c->qn < self->children[best].qn)) {
+            best = (int)i;
+            if (c->qn == 0)
+                break;
+        }
+    }
+    return best;
+}
+
+/* Gives j (its frame now the child's) to child i. A child that was waiting
+ * for work gets it at once; otherwise the write waits for pollitems, so a
+ * turn's jobs leave in one write. */
+static void s_hand(worker_pool_t *self, unsigned i, const s_job_t *j)
+{
+    s_child_t *c = &self->children[i];
+    s_job_t *slot = s_at(c, c->qn);
+    *slot = *j;
+    slot->seq = ++c->next_seq;
+    slot->handed_us = common_clock_us();
+    if (worker_frame_buf_append(&c->out, j->frame, j->frame_len) != 0) {
+        LOG_ERROR("out of memory for a job frame");
+        abort();
+    }
+    c->qn++;
+    if (c->qn == 1)
+        (void)worker_frame_flush(&c->out, c->fd, 0); /* a dead child shows as end of file */
+}
+
+static void s_drain_backlog(worker_pool_t *self)
+{
+    while (self->bhead < self->bcount) {
+        int i = s_pick(self);
+        if (i < 0)
+            return;
+        s_hand(self, (unsigned)i, &self->backlog[self->bhead++]);
+    }
+    self->bhead = self->bcount = 0;
+}
+
 static int s_spawn(worker_pool_t *self, unsigned i)
 {
     s_child_t *c = &self->children[i];
+    worker_child_status_t *st = &self->status[i];
+    atomic_store(&st->running, 0);
+    atomic_store(&st->start_us, 0);
     int sv[2];
     if (socketpair(AF_UNIX, SOCK_STREAM | SOCK_CLOEXEC, 0, sv) != 0) {
         LOG_ERROR("socketpair for child %u failed: %s", i, strerror(errno));
@@ -102,18 +217,23 @@ static int s_spawn(worker_pool_t *self, unsigned i)
             if (j != i && self->children[j].fd >= 0)
                 close(self->children[j].fd);
         close(sv[0]);
-        worker_child_run(sv[1], self->config.registry, self->config.mem_limit_mb, parent);
+        worker_child_run(sv[1], self->config.registry, self->config.mem_limit_mb, parent, st);
     }
     close(sv[1]);
+    /* Non-blocking: a child busy with a long evaluation must never stall the
+     * parent's write of the jobs queued behind it. */
+    int fl = fcntl(sv[0], F_GETFL);
+    if (fl < 0 || fcntl(sv[0], F_SETFL, fl | O_NONBLOCK) != 0)
+        LOG_WARN("cannot make child %u's socket non-blocking: %s", i, strerror(errno));
     c->pid = pid;
     c->fd = sv[0];
-    c->busy = 0;
+    c->next_seq = 0;
+    c->last_answer_us = common_clock_us();
     LOG_DEBUG("child %u started as pid %d", i, (int)pid);
     return 0;
 fail:
     c->pid = 0;
     c->fd = -1;
-    c->busy = 0;
     if (!self->respawn_at_ms)
         self->respawn_at_ms = common_clock_ms() + S_RESPAWN_RETRY_MS;
     return -1;
@@ -157,7 +277,71 @@ static void s_describe_status(int status, char *out, size_t outlen)
     }
 }
 
-/* Closes the slot after its process has been reaped and starts a new one. */
+
+/* Which of child i's jobs is running (index into its FIFO), and since when;
+ * -1 if the status block says none. See the top of the file for trust. */
+static int s_running(const worker_pool_t *self, unsigned i, int64_t *start_us)
+{
+    s_child_t *c = (s_child_t *)&self->children[i];
+    worker_child_status_t *st = &self->status[i];
+    if (c->qn == 0)
+        return -1;
+    uint64_t seq = 0;
+    int64_t start = 0;
+    int consistent = 0;
+    for (int tries = 0; tries < 4 && !consistent; tries++) {
+        seq = atomic_load_explicit(&st->running, memory_order_acquire);
+        start = atomic_load_explicit(&st->start_us, memory_order_relaxed);
+        consistent = atomic_load_explicit(&st->running, memory_order_acquire) == seq;
+    }
+    if (consistent && seq == 0)
+        return -1;
+    uint64_t first = s_at(c, 0)->seq;
+    int64_t now = common_clock_us();
+    if (consistent && seq >= first && seq - first < c->qn) {
+        const s_job_t *j = s_at(c, (unsigned)(seq - first));
+        if (start < j->handed_us)
+            start = j->handed_us;
+        if (start > now)
+            start = now;
+        *start_us = start;
+        return (int)(seq - first);
+    }
+    /* Not believable: the head runs, since it could have started. */
+    const s_job_t *h = s_at(c, 0);
+    *start_us = h->handed_us > c->last_answer_us ? h->handed_us : c->last_answer_us;
+    return 0;
+}
+
+/* Empties child i's FIFO: job k (if >= 0) is the caller's business; the others
+ * go to the backlog. blameless: nothing ran, so each gets a strike. */
+static void s_requeue_all(worker_pool_t *self, unsigned i, int k, int blameless,
+                          const char *why)
+{
+    s_child_t *c = &self->children[i];
+    for (unsigned n = 0; n < c->qn; n++) {
+        s_job_t *j = s_at(c, n);
+        if ((int)n == k)
+            continue;
+        if (blameless && ++j->blameless >= S_MAX_BLAMELESS) {
+            char text[PROTO_MAX_ERROR_BYTES];
+            snprintf(text, sizeof text,
+                     "the child process holding this job died %u times between evaluations "
+                     "(last: %s)",
+                     j->blameless, why);
+            LOG_WARN("job %llu: %s", (unsigned long long)j->job_id, text);
+            s_push_failure(self, j->job_id, j->handed_us, PROTO_STATUS_CRASHED, text, NULL);
+            free(j->frame);
+            continue;
+        }
+        s_backlog_push(self, j);
+    }
+    c->qn = 0;
+    c->qhead = 0;
+}
+
+/* Closes the slot after its process has been reaped and starts a new one;
+ * its jobs must have been moved out. */
 static void s_respawn(worker_pool_t *self, unsigned i)
 {
     s_child_t *c = &self->children[i];
@@ -165,35 +349,44 @@ static void s_respawn(worker_pool_t *self, unsigned i)
         close(c->fd);
     c->fd = -1;
     c->pid = 0;
-    c->busy = 0;
+    c->in.pos = c->in.len = 0;
+    c->out.pos = c->out.len = 0;
     s_spawn(self, i);
 }
 
-/* The child's socket closed or broke: it died. */
+/* The child's socket closed or broke, or it answered nonsense (then why says
+ * so and it has been SIGKILLed): it died. */
 static void s_on_death(worker_pool_t *self, unsigned i, const char *why)
 {
     s_child_t *c = &self->children[i];
+    int64_t start_us = 0;
+    int k = s_running(self, i, &start_us); /* read before the slot is reused */
     struct rusage ru = {0};
     int status = s_reap(c->pid, &ru);
-    if (c->busy) {
-        char text[PROTO_MAX_ERROR_BYTES];
-        s_describe_status(status, text, sizeof text);
-        if (why)
-            snprintf(text + strlen(text), sizeof text - strlen(text), " (%s)", why);
-        LOG_WARN("job %llu: child pid %d: %s; respawning", (unsigned long long)c->job_id,
-                 (int)c->pid, text);
-        s_push_failure(self, c->job_id, c->start_us, PROTO_STATUS_CRASHED, text, &ru);
-    } else if (WIFEXITED(status) && WEXITSTATUS(status) == 0) {
+    char text[PROTO_MAX_ERROR_BYTES];
+    s_describe_status(status, text, sizeof text);
+    if (why)
+        snprintf(text + strlen(text), sizeof text - strlen(text), " (%s)", why);
+    if (k >= 0) {
+        s_job_t *j = s_at(c, (unsigned)k);
+        LOG_WARN("job %llu: child pid %d: %s; respawning (%u other jobs it held go to "
+                 "another child)",
+                 (unsigned long long)j->job_id, (int)c->pid, text, c->qn - 1);
+        s_push_failure(self, j->job_id, start_us, PROTO_STATUS_CRASHED, text, &ru);
+        free(j->frame);
+    } else if (c->qn == 0 && WIFEXITED(status) && WEXITSTATUS(status) == 0) {
         LOG_INFO("idle child pid %d exited; respawning", (int)c->pid);
     } else {
-        char text[PROTO_MAX_ERROR_BYTES];
-        s_describe_status(status, text, sizeof text);
-        LOG_WARN("idle child pid %d ended: %s; respawning", (int)c->pid, text);
+        LOG_WARN("child pid %d ended between evaluations: %s; respawning (%u jobs it held go "
+                 "to another child)",
+                 (int)c->pid, text, c->qn);
     }
+    s_requeue_all(self, i, k, k < 0, text);
     s_respawn(self, i);
 }
 
-static void s_on_overrun(worker_pool_t *self, unsigned i)
+/* Kills child i, whose job k (started at start_us) overran. */
+static void s_on_overrun(worker_pool_t *self, unsigned i, int k, int64_t start_us)
 {
     s_child_t *c = &self->children[i];
     kill(c->pid, SIGKILL);
@@ -201,41 +394,35 @@ static void s_on_overrun(worker_pool_t *self, unsigned i)
     int status = 0;
     while (wait4(c->pid, &status, 0, &ru) < 0 && errno == EINTR)
         ;
+    s_job_t *j = s_at(c, (unsigned)k);
     char text[128];
-    snprintf(text, sizeof text, "evaluation exceeded %g s", c->timeout_ms / 1000.0);
-    LOG_WARN("job %llu: %s; child pid %d killed, respawning", (unsigned long long)c->job_id,
+    snprintf(text, sizeof text, "evaluation exceeded %g s", j->timeout_ms / 1000.0);
+    LOG_WARN("job %llu: %s; child pid %d killed, respawning", (unsigned long long)j->job_id,
              text, (int)c->pid);
-    s_push_failure(self, c->job_id, c->start_us, PROTO_STATUS_TIMEOUT, text, &ru);
+    s_push_failure(self, j->job_id, start_us, PROTO_STATUS_TIMEOUT, text, &ru);
+    free(j->frame);
+    s_requeue_all(self, i, k, 0, text);
     s_respawn(self, i);
 }
 
-static void s_on_readable(worker_pool_t *self, unsigned i)
+/* Replaces child i after an answer showed it near its address-space limit
+ * (leaks, fragmentation) rather than fail the next, innocent job; its other
+ * jobs go to another child, without a strike. */
+static void s_retire(worker_pool_t *self, unsigned i)
 {
     s_child_t *c = &self->children[i];
-    if (!c->busy) {
-        /* Idle children never speak: this is end of file. */
-        s_on_death(self, i, NULL);
-        return;
-    }
-    proto_msg_t *msg = NULL;
-    char err[256];
-    int rc = worker_frame_read(c->fd, &msg, err, sizeof err);
-    if (rc == 1) {
-        s_on_death(self, i, NULL);
-        return;
-    }
-    if (rc < 0 || msg->type != PROTO_DONE || msg->u.done.n_outcomes != 1 ||
-        msg->u.done.outcomes[0].job_id != c->job_id) {
-        if (rc == 0)
-            snprintf(err, sizeof err, "answer is not one outcome for job %llu",
-                     (unsigned long long)c->job_id);
-        proto_msg_destroy(&msg);
-        kill(c->pid, SIGKILL);
-        char why[300];
-        snprintf(why, sizeof why, "bad answer from the child: %s", err);
-        s_on_death(self, i, why);
-        return;
-    }
+    kill(c->pid, SIGKILL);
+    while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
+        ;
+    s_requeue_all(self, i, -1, 0, "replaced");
+    s_respawn(self, i);
+}
+
+static void s_on_answer(worker_pool_t *self, unsigned i, proto_msg_t *msg, uint64_t side,
+                        int *retire)
+{
+    s_child_t *c = &self->children[i];
+    s_job_t *j = s_at(c, 0);
     worker_pool_result_t r = {0};
     r.outcome = msg->u.done.outcomes[0];
     /* Take ownership of the strings; the message frees nothing it lost. */
@@ -243,24 +430,77 @@ static void s_on_readable(worker_pool_t *self, unsigned i)
     msg->u.done.outcomes[0].error = NULL;
     if (!r.outcome.error)
         r.outcome.error = common_xstrdup("");
-    r.wall_us = common_clock_us() - c->start_us;
-    proto_msg_destroy(&msg);
-    c->busy = 0;
-    /* A child that came close to its address-space limit may keep a full heap
-     * (leaks, fragmentation): replace it now rather than fail the next,
-     * innocent job. Decided here, not in the child, so no job is ever handed
-     * to a child that is about to leave. */
+    int64_t now = common_clock_us();
+    /* The child's own measure; it cannot have run longer than it has had the job. */
+    int64_t most = now - j->handed_us;
+    r.wall_us = side > (uint64_t)(most < 0 ? 0 : most) ? most : (int64_t)side;
+    worker_credits_eval(&self->timing, r.wall_us);
+    free(j->frame);
+    c->qhead = (c->qhead + 1) % S_MAX_DEPTH;
+    c->qn--;
+    c->last_answer_us = now;
     uint64_t limit_kb = (uint64_t)self->config.mem_limit_mb * 1024u;
-    if (limit_kb && r.outcome.peak_rss_kb >= limit_kb / 4u * 3u) {
+    if (limit_kb && r.outcome.peak_rss_kb >= limit_kb / 4u * 3u && !*retire) {
         LOG_INFO("child pid %d peaked at %llu kB of its %llu kB limit; replacing it",
                  (int)c->pid, (unsigned long long)r.outcome.peak_rss_kb,
                  (unsigned long long)limit_kb);
-        kill(c->pid, SIGKILL);
-        while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
-            ;
-        s_respawn(self, i);
+        *retire = 1;
     }
     s_push(self, &r);
+}
+
+static void s_update_depth(worker_pool_t *self)
+{
+    unsigned d = self->config.queue_depth ? self->config.queue_depth
+                                          : worker_credits_child_depth(&self->timing);
+    self->depth = d < 1 ? 1 : d > S_MAX_DEPTH ? S_MAX_DEPTH : d;
+}
+
+static void s_on_readable(worker_pool_t *self, unsigned i)
+{
+    s_child_t *c = &self->children[i];
+    ssize_t got = worker_frame_fill(&c->in, c->fd, MSG_DONTWAIT);
+    if (got < 0 && (errno == EAGAIN || errno == EWOULDBLOCK))
+        return;
+    int retire = 0;
+    size_t answers = 0;
+    for (;;) {
+        proto_msg_t *msg = NULL;
+        uint64_t side = 0;
+        char err[256];
+        int rc = worker_frame_next(&c->in, &msg, &side, err, sizeof err);
+        if (rc == 0)
+            break;
+        if (rc == 1 && (c->qn == 0 || msg->type != PROTO_DONE ||
+                        msg->u.done.n_outcomes != 1 ||
+                        msg->u.done.outcomes[0].job_id != s_at(c, 0)->job_id)) {
+            if (c->qn == 0)
+                snprintf(err, sizeof err, "an answer while it held no job");
+            else
+                snprintf(err, sizeof err, "answer is not one outcome for job %llu",
+                         (unsigned long long)s_at(c, 0)->job_id);
+            rc = -1;
+        }
+        if (rc < 0) {
+            proto_msg_destroy(&msg);
+            kill(c->pid, SIGKILL);
+            char why[300];
+            snprintf(why, sizeof why, "bad answer from the child: %s", err);
+            s_on_death(self, i, why);
+            return;
+        }
+        s_on_answer(self, i, msg, side, &retire);
+        proto_msg_destroy(&msg);
+        answers++;
+    }
+    if (answers)
+        s_update_depth(self);
+    if (got <= 0) {
+        s_on_death(self, i, NULL); /* end of file (or a broken socket) */
+        return;
+    }
+    if (retire)
+        s_retire(self, i);
 }
 
 worker_pool_t *worker_pool_new(const worker_pool_config_t *config)
@@ -273,9 +513,22 @@ worker_pool_t *worker_pool_new(const worker_pool_config_t *config)
     self->config = *config;
     if (!self->config.default_timeout_ms)
         self->config.default_timeout_ms = 3600u * 1000u;
+    worker_credits_init(&self->timing, config->slots);
+    s_update_depth(self);
     self->children = common_xcalloc(config->slots, sizeof *self->children);
     for (unsigned i = 0; i < config->slots; i++)
         self->children[i].fd = -1;
+    /* Shared with the children: mapped once, before any fork. */
+    self->status_bytes = config->slots * sizeof *self->status;
+    void *map = mmap(NULL, self->status_bytes, PROT_READ | PROT_WRITE,
+                     MAP_SHARED | MAP_ANONYMOUS, -1, 0);
+    if (map == MAP_FAILED) {
+        LOG_ERROR("cannot map the children's status blocks: %s", strerror(errno));
+        free(self->children);
+        free(self);
+        return NULL;
+    }
+    self->status = map;
     unsigned live = 0;
     for (unsigned i = 0; i < config->slots; i++)
         live += s_spawn(self, i) == 0;
@@ -284,6 +537,14 @@ worker_pool_t *worker_pool_new(const worker_pool_config_t *config)
         return NULL;
     }
     return self;
+}
+
+static void s_drop_jobs(s_child_t *c)
+{
+    for (unsigned n = 0; n < c->qn; n++)
+        free(s_at(c, n)->frame);
+    c->qn = 0;
+    c->qhead = 0;
 }
 
 void worker_pool_destroy(worker_pool_t **self_p)
@@ -300,11 +561,19 @@ void worker_pool_destroy(worker_pool_t **self_p)
         }
         if (c->fd >= 0)
             close(c->fd);
+        s_drop_jobs(c);
+        worker_frame_buf_free(&c->in);
+        worker_frame_buf_free(&c->out);
     }
+    for (size_t i = self->bhead; i < self->bcount; i++)
+        free(self->backlog[i].frame);
+    free(self->backlog);
     for (size_t i = self->head; i < self->count; i++)
         worker_pool_result_clear(&self->results[i]);
     free(self->results);
     free(self->children);
+    if (self->status)
+        munmap(self->status, self->status_bytes);
     free(self);
     *self_p = NULL;
 }
@@ -314,102 +583,151 @@ unsigned worker_pool_slots(const worker_pool_t *self)
     return self->config.slots;
 }
 
+unsigned worker_pool_depth(const worker_pool_t *self)
+{
+    return self->depth;
+}
+
 unsigned worker_pool_idle(const worker_pool_t *self)
 {
     unsigned n = 0;
     for (unsigned i = 0; i < self->config.slots; i++)
-        n += self->children[i].pid > 0 && !self->children[i].busy;
+        n += s_has_room(self, &self->children[i]);
     return n;
 }
 
 unsigned worker_pool_busy(const worker_pool_t *self)
 {
-    unsigned n = 0;
+    size_t n = self->bcount - self->bhead;
     for (unsigned i = 0; i < self->config.slots; i++)
-        n += self->children[i].busy != 0;
-    return n;
+        n += self->children[i].qn;
+    return (unsigned)n;
 }
 
 int worker_pool_start(worker_pool_t *self, const proto_job_t *job)
 {
+    s_drain_backlog(self);
+    if (self->bhead < self->bcount)
+        return -1;
+    int i = s_pick(self);
+    if (i < 0)
+        return -1;
     proto_msg_t msg = {.type = PROTO_JOBS};
     msg.u.jobs.n_jobs = 1;
     msg.u.jobs.jobs = (proto_job_t *)job; /* the encoder only reads it */
-    uint32_t timeout_ms = job->timeout_ms ? job->timeout_ms : self->config.default_timeout_ms;
-    int64_t start_us = common_clock_us();
-    for (int attempt = 0; attempt < 2; attempt++) {
-        unsigned i;
-        for (i = 0; i < self->config.slots; i++)
-            if (self->children[i].pid > 0 && !self->children[i].busy)
-                break;
-        if (i == self->config.slots)
-            return attempt == 0 ? -1 : 0;
-        s_child_t *c = &self->children[i];
-        if (worker_frame_write(c->fd, &msg) == 0) {
-            c->busy = 1;
-            c->job_id = job->job_id;
-            c->start_us = start_us;
-            c->timeout_ms = timeout_ms;
-            c->deadline_ms = common_clock_ms() + timeout_ms;
-            return 0;
-        }
-        /* The child died while idle; its end of file is still unread. */
-        s_on_death(self, i, NULL);
+    s_job_t j = {.job_id = job->job_id,
+                 .timeout_ms = job->timeout_ms ? job->timeout_ms
+                                               : self->config.default_timeout_ms};
+    if (worker_frame_encode(&msg, 0, &j.frame, &j.frame_len) != 0) {
+        s_push_failure(self, job->job_id, common_clock_us(), PROTO_STATUS_CRASHED,
+                       "could not hand the job to a child process (it does not encode "
+                       "into one frame)",
+                       NULL);
+        return 0;
     }
-    s_push_failure(self, job->job_id, start_us, PROTO_STATUS_CRASHED,
-                   "could not hand the job to a child process", NULL);
+    s_hand(self, (unsigned)i, &j);
     return 0;
 }
 
-size_t worker_pool_pollitems(const worker_pool_t *self, zmq_pollitem_t *items, size_t max)
+size_t worker_pool_pollitems(worker_pool_t *self, zmq_pollitem_t *items, size_t max)
 {
     size_t n = 0;
-    for (unsigned i = 0; i < self->config.slots && n < max; i++)
-        if (self->children[i].pid > 0) {
-            items[n].socket = NULL;
-            items[n].fd = self->children[i].fd;
-            items[n].events = ZMQ_POLLIN;
-            items[n].revents = 0;
-            n++;
-        }
+    for (unsigned i = 0; i < self->config.slots && n < max; i++) {
+        s_child_t *c = &self->children[i];
+        if (c->pid <= 0)
+            continue;
+        if (worker_frame_buf_pending(&c->out))
+            (void)worker_frame_flush(&c->out, c->fd, 0); /* a dead child shows as end of file */
+        items[n].socket = NULL;
+        items[n].fd = c->fd;
+        items[n].events = ZMQ_POLLIN;
+        if (worker_frame_buf_pending(&c->out))
+            items[n].events |= ZMQ_POLLOUT;
+        items[n].revents = 0;
+        n++;
+    }
     return n;
+}
+
+/* Deadline of child i's running job (absolute, microseconds), or INT64_MAX;
+ * *k and *start_us say which job and since when (*k < 0: none runs). */
+static int64_t s_deadline(const worker_pool_t *self, unsigned i, int *k, int64_t *start_us)
+{
+    const s_child_t *c = &self->children[i];
+    *k = -1;
+    if (c->pid <= 0 || c->qn == 0)
+        return INT64_MAX;
+    *k = s_running(self, i, start_us);
+    if (*k >= 0)
+        return *start_us + (int64_t)s_at((s_child_t *)c, (unsigned)*k)->timeout_ms * 1000;
+    /* Nothing runs, yet it holds jobs: it is between two, or stuck there. */
+    const s_job_t *h = s_at((s_child_t *)c, 0);
+    int64_t since = h->handed_us > c->last_answer_us ? h->handed_us : c->last_answer_us;
+    *start_us = since;
+    return since + (int64_t)h->timeout_ms * 1000 + S_STUCK_GRACE_US;
 }
 
 void worker_pool_handle(worker_pool_t *self, const zmq_pollitem_t *items, size_t n)
 {
-    for (size_t k = 0; k < n; k++) {
-        if (!(items[k].revents & (ZMQ_POLLIN | ZMQ_POLLERR)))
+    for (size_t m = 0; m < n; m++) {
+        if (!(items[m].revents & (ZMQ_POLLIN | ZMQ_POLLERR | ZMQ_POLLOUT)))
             continue;
-        for (unsigned i = 0; i < self->config.slots; i++)
-            if (self->children[i].pid > 0 && self->children[i].fd == items[k].fd) {
+        for (unsigned i = 0; i < self->config.slots; i++) {
+            s_child_t *c = &self->children[i];
+            if (c->pid <= 0 || c->fd != items[m].fd)
+                continue;
+            if ((items[m].revents & ZMQ_POLLOUT) && worker_frame_buf_pending(&c->out))
+                (void)worker_frame_flush(&c->out, c->fd, 0);
+            if (items[m].revents & (ZMQ_POLLIN | ZMQ_POLLERR))
                 s_on_readable(self, i);
-                break;
-            }
+            break;
+        }
     }
-    int64_t now = common_clock_ms();
+    int64_t now = common_clock_us();
     for (unsigned i = 0; i < self->config.slots; i++) {
-        s_child_t *c = &self->children[i];
-        if (c->pid > 0 && c->busy && now >= c->deadline_ms)
-            s_on_overrun(self, i);
+        int k;
+        int64_t start_us = 0;
+        if (now < s_deadline(self, i, &k, &start_us))
+            continue;
+        if (k >= 0) {
+            s_on_overrun(self, i, k, start_us);
+        } else {
+            kill(self->children[i].pid, SIGKILL);
+            s_on_death(self, i, "stuck between evaluations");
+        }
     }
-    if (self->respawn_at_ms && now >= self->respawn_at_ms) {
+    if (self->respawn_at_ms && common_clock_ms() >= self->respawn_at_ms) {
         self->respawn_at_ms = 0;
         for (unsigned i = 0; i < self->config.slots; i++)
             if (self->children[i].pid == 0)
                 s_spawn(self, i);
     }
+    s_drain_backlog(self);
 }
 
 long worker_pool_timeout_ms(const worker_pool_t *self)
 {
-    int64_t next = self->respawn_at_ms ? self->respawn_at_ms : INT64_MAX;
-    for (unsigned i = 0; i < self->config.slots; i++)
-        if (self->children[i].pid > 0 && self->children[i].busy &&
-            self->children[i].deadline_ms < next)
-            next = self->children[i].deadline_ms;
+    int64_t now = common_clock_us();
+    int64_t next = self->respawn_at_ms ? self->respawn_at_ms * 1000 : INT64_MAX;
+    for (unsigned i = 0; i < self->config.slots; i++) {
+        const s_child_t *c = &self->children[i];
+        int k;
+        int64_t start_us;
+        int64_t d = s_deadline(self, i, &k, &start_us);
+        if (d < next)
+            next = d;
+        /* Jobs behind the running one start no earlier than now. */
+        for (unsigned m = (unsigned)(k < 0 ? 0 : k + 1); c->pid > 0 && m < c->qn; m++) {
+            int64_t later = now + (int64_t)c->q[(c->qhead + m) % S_MAX_DEPTH].timeout_ms * 1000;
+            if (later < next)
+                next = later;
+        }
+    }
+    if (self->bhead < self->bcount && next > now)
+        next = now; /* jobs wait for a child with room: come back soon */
     if (next == INT64_MAX)
         return -1;
-    int64_t left = next - common_clock_ms();
+    int64_t left = (next - now + 999) / 1000;
     return left < 0 ? 0 : (long)left;
 }
 
@@ -456,14 +774,19 @@ void worker_pool_kill_busy(worker_pool_t *self)
 {
     for (unsigned i = 0; i < self->config.slots; i++) {
         s_child_t *c = &self->children[i];
-        if (c->pid > 0 && c->busy) {
+        if (c->pid > 0 && c->qn > 0) {
             kill(c->pid, SIGKILL);
             while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
                 ;
             close(c->fd);
             c->fd = -1;
             c->pid = 0;
-            c->busy = 0;
+            s_drop_jobs(c);
+            c->in.pos = c->in.len = 0;
+            c->out.pos = c->out.len = 0;
         }
     }
+    for (size_t i = self->bhead; i < self->bcount; i++)
+        free(self->backlog[i].frame);
+    self->bhead = self->bcount = 0;
 }

@@ -1,9 +1,12 @@
 /* pool.h: the worker's pre-forked child processes. Internal to the worker.
  *
- * Owns: forking N children (each with a socketpair), handing one job to an
- * idle child, reading its outcome, noticing a child's death or overrun and
- * turning it into a CRASHED or TIMEOUT outcome, killing (by PID) and
- * respawning children. The worker never dies from a plugin: everything a
+ * Owns: forking N children (each with a socketpair), handing jobs to
+ * children (a small queue per child, sized from the measured evaluation time:
+ * deep for trivial plugins so one context switch serves many jobs, one job for
+ * slow ones), reading their outcomes, noticing a child's death or overrun and
+ * turning it into a CRASHED or TIMEOUT outcome for the one job it was running,
+ * handing the jobs it held but had not finished to a live child, killing (by
+ * PID) and respawning children. The worker never dies from a plugin: everything a
  * plugin can do ends as an outcome here. Not owned: which job runs next, the
  * network, credits (loop.c); the evaluation itself (child.c).
  *
@@ -26,13 +29,14 @@ typedef struct {
     const worker_registry_t *registry; /* borrowed; must outlive the pool */
     size_t mem_limit_mb;           /* address-space limit per child; 0 = none */
     uint32_t default_timeout_ms;   /* for jobs with timeout_ms 0; 0 = 3600 s */
+    unsigned queue_depth;          /* jobs per child; 0 = adaptive (credits.h) */
 } worker_pool_config_t;
 
 /* A finished job. outcome.fitness and outcome.error are malloc'd (error is
  * never NULL); release with worker_pool_result_clear. */
 typedef struct {
     proto_outcome_t outcome;
-    int64_t wall_us; /* from hand-over to answer */
+    int64_t wall_us; /* the evaluation's wall time (from its start, not hand-over) */
 } worker_pool_result_t;
 
 typedef struct worker_pool worker_pool_t;
@@ -46,24 +50,35 @@ worker_pool_t *worker_pool_new(const worker_pool_config_t *config);
 void worker_pool_destroy(worker_pool_t **self_p);
 
 unsigned worker_pool_slots(const worker_pool_t *self);
-unsigned worker_pool_idle(const worker_pool_t *self); /* live children without a job */
-unsigned worker_pool_busy(const worker_pool_t *self); /* children running a job */
+/* Live children that can take another job now (their queue is not full). */
+unsigned worker_pool_idle(const worker_pool_t *self);
+/* Jobs the pool holds: running or queued in a child, or waiting for a child
+ * after theirs died. */
+unsigned worker_pool_busy(const worker_pool_t *self);
+/* Jobs a child holds at most right now (the fixed or adaptive depth). */
+unsigned worker_pool_depth(const worker_pool_t *self);
 
-/* Hands job to an idle child (copies what it needs; job stays the caller's).
- * Returns 0, or -1 if no child is idle. If the child turns out dead, the job
- * goes to a fresh one; if that fails too, the job ends as a CRASHED result. */
+/* Hands job to the least loaded child with room (copies what it needs; job
+ * stays the caller's). Returns 0, or -1 if no child has room. If the child
+ * turns out dead, the job goes to its replacement; a job that cannot be
+ * encoded ends as a CRASHED result. */
 int worker_pool_start(worker_pool_t *self, const proto_job_t *job);
 
-/* Fills items with one ZMQ_POLLIN entry per live child (at most max).
- * Returns the count. */
-size_t worker_pool_pollitems(const worker_pool_t *self, zmq_pollitem_t *items, size_t max);
+/* Writes the jobs handed over since the last call (one write per child, as
+ * far as the sockets take them without blocking), then fills items with one
+ * entry per live child (ZMQ_POLLIN, plus ZMQ_POLLOUT while jobs wait to be
+ * written), at most max. Returns the count. */
+size_t worker_pool_pollitems(worker_pool_t *self, zmq_pollitem_t *items, size_t max);
 
-/* After zmq_poll on items from worker_pool_pollitems: reads answers, reaps
- * dead children (respawning them), kills children past their deadline. Also
- * safe to call with n == 0 (only deadlines and respawns). */
+/* After zmq_poll on items from worker_pool_pollitems: reads answers, writes
+ * pending jobs, reaps dead children (respawning them), kills children whose
+ * running evaluation is past its deadline. Also safe to call with n == 0
+ * (only deadlines and respawns). */
 void worker_pool_handle(worker_pool_t *self, const zmq_pollitem_t *items, size_t n);
 
-/* Milliseconds until the next deadline or respawn attempt, or -1 if none. */
+/* Milliseconds until the next deadline or respawn attempt, or -1 if none.
+ * A child may move on to its next job at any time, so this is a lower bound:
+ * callers wake up, call worker_pool_handle and ask again. */
 long worker_pool_timeout_ms(const worker_pool_t *self);
 
 /* Pops one finished result into *out. Returns 1, or 0 if none is ready. */
@@ -77,7 +92,7 @@ void worker_pool_result_clear(worker_pool_result_t *r);
  * for simple callers that own no other socket. */
 size_t worker_pool_wait(worker_pool_t *self, int timeout_ms);
 
-/* SIGKILLs the running children (a forced stop). Their jobs produce no
+/* SIGKILLs the children holding jobs (a forced stop). Their jobs produce no
  * results. */
 void worker_pool_kill_busy(worker_pool_t *self);
 

@@ -82,13 +82,39 @@ static void test_reset_regrants(void **state)
     assert_int_equal(worker_credits_want(&c, 3), 5);
 }
 
+/* Jobs per child process: 1 until measured; 1000 us of work over the median
+ * evaluation time, rounded down, within [1, 32]. Expected values worked out
+ * by hand from that rule (credits.h). */
+static void test_child_depth(void **state)
+{
+    (void)state;
+    worker_credits_t c;
+    worker_credits_init(&c, 2);
+    assert_int_equal(worker_credits_child_depth(&c), 1); /* nothing measured */
+    for (int i = 0; i < 31; i++)
+        worker_credits_eval(&c, 10); /* 1000 / 10 = 100, capped */
+    assert_int_equal(worker_credits_child_depth(&c), WORKER_CREDITS_CHILD_DEPTH_MAX);
+    for (int i = 0; i < 31; i++)
+        worker_credits_eval(&c, 300); /* 1000 / 300 = 3.33 */
+    assert_int_equal(worker_credits_child_depth(&c), 3);
+    for (int i = 0; i < 31; i++)
+        worker_credits_eval(&c, 600); /* 1000 / 600 < 2 */
+    assert_int_equal(worker_credits_child_depth(&c), 1);
+    for (int i = 0; i < 31; i++)
+        worker_credits_eval(&c, 5000000); /* a 5 s plugin: one job per child */
+    assert_int_equal(worker_credits_child_depth(&c), 1);
+    /* The median decides: 15 slow outliers among 31 do not make it shallow. */
+    for (int i = 0; i < 16; i++)
+        worker_credits_eval(&c, 50);
+    assert_int_equal(worker_credits_child_depth(&c), 20);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_usage_example),
-        cmocka_unit_test(test_depth_follows_times),
-        cmocka_unit_test(test_robust_estimates),
-        cmocka_unit_test(test_reset_regrants),
+        cmocka_unit_test(test_usage_example),    cmocka_unit_test(test_depth_follows_times),
+        cmocka_unit_test(test_robust_estimates), cmocka_unit_test(test_reset_regrants),
+        cmocka_unit_test(test_child_depth),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -281,6 +281,143 @@ static void test_mem_limit(void **state)
     worker_pool_destroy(&pool);
 }
 
+/* Hands job_id (behaviour chosen by x0) to the pool without waiting. */
+static void s_hand(worker_pool_t *pool, uint64_t job_id, double x0, uint32_t timeout_ms)
+{
+    uint8_t genome[8];
+    s_genome1(genome, x0);
+    proto_job_t job = {.job_id = job_id, .plugin = "fault", .params = "{}", .seed = 42,
+                       .timeout_ms = timeout_ms, .genome_len = 8, .genome = genome};
+    assert_int_equal(worker_pool_start(pool, &job), 0);
+}
+
+/* Collects n results into by_id[job_id] (ids 1..n), failing on a duplicate
+ * or an unknown id. */
+static void s_collect_n(worker_pool_t *pool, worker_pool_result_t *by_id, unsigned n)
+{
+    unsigned got = 0;
+    int64_t until = common_clock_ms() + 60000;
+    while (got < n) {
+        worker_pool_result_t r;
+        while (worker_pool_take(pool, &r)) {
+            assert_true(r.outcome.job_id >= 1 && r.outcome.job_id <= n);
+            assert_null(by_id[r.outcome.job_id].outcome.error); /* reported once */
+            by_id[r.outcome.job_id] = r;
+            got++;
+        }
+        assert_true(common_clock_ms() < until);
+        if (got < n)
+            worker_pool_wait(pool, 1000);
+    }
+    worker_pool_result_t extra;
+    worker_pool_wait(pool, 100);
+    assert_int_equal(worker_pool_take(pool, &extra), 0); /* nothing reported twice */
+}
+
+static void s_assert_ok(const worker_pool_result_t *r, double x0)
+{
+    assert_int_equal(r->outcome.status, PROTO_STATUS_OK);
+    assert_int_equal(r->outcome.n_fitness, 1);
+    assert_true(r->outcome.fitness[0] == x0); /* behaviour 0 returns x0 bit for bit */
+}
+
+/* One child holding a queue of eight jobs, two of which kill it (SIGSEGV,
+ * then exit(3)): exactly those two are CRASHED, each naming its own cause,
+ * and the six good ones are evaluated and reported once each, by the
+ * respawned children. */
+static void test_queue_crash_blames_only_the_running_job(void **state)
+{
+    (void)state;
+    worker_pool_config_t config = {.slots = 1, .registry = s_registry, .queue_depth = 8};
+    worker_pool_t *pool = worker_pool_new(&config);
+    assert_non_null(pool);
+    const double x0[9] = {0, 0.125, 0.25, 1.0, 0.375, 0.5, 7.0, 0.625, 0.75};
+    for (uint64_t id = 1; id <= 8; id++)
+        s_hand(pool, id, x0[id], 0);
+    assert_int_equal(worker_pool_busy(pool), 8);
+    assert_int_equal(worker_pool_idle(pool), 0); /* the one child's queue is full */
+    worker_pool_result_t by_id[9];
+    memset(by_id, 0, sizeof by_id);
+    s_collect_n(pool, by_id, 8);
+    for (uint64_t id = 1; id <= 8; id++) {
+        if (id == 3) {
+            assert_int_equal(by_id[id].outcome.status, PROTO_STATUS_CRASHED);
+            assert_non_null(strstr(by_id[id].outcome.error, "signal 11 (SIGSEGV)"));
+        } else if (id == 6) {
+            assert_int_equal(by_id[id].outcome.status, PROTO_STATUS_CRASHED);
+            assert_non_null(strstr(by_id[id].outcome.error, "exit status 3"));
+        } else {
+            s_assert_ok(&by_id[id], x0[id]);
+        }
+        worker_pool_result_clear(&by_id[id]);
+    }
+    assert_int_equal(worker_pool_busy(pool), 0);
+    s_assert_serves(pool, 9);
+    worker_pool_destroy(&pool);
+}
+
+/* A hang with three jobs queued behind it, all with a 1 s time-out: only the
+ * hung one times out; the others wait more than their own 1 s in the queue
+ * yet are not charged for it, since a deadline starts when the child starts
+ * the job. */
+static void test_queue_hang_times_out_only_the_hung_job(void **state)
+{
+    (void)state;
+    worker_pool_config_t config = {.slots = 1, .registry = s_registry, .queue_depth = 8};
+    worker_pool_t *pool = worker_pool_new(&config);
+    assert_non_null(pool);
+    const double x0[5] = {0, 0.125, 3.0, 0.25, 0.375};
+    int64_t t0 = common_clock_ms();
+    for (uint64_t id = 1; id <= 4; id++)
+        s_hand(pool, id, x0[id], 1000);
+    worker_pool_result_t by_id[5];
+    memset(by_id, 0, sizeof by_id);
+    s_collect_n(pool, by_id, 4);
+    int64_t took = common_clock_ms() - t0;
+    assert_true(took >= 1000);
+    assert_true(took < 5000);
+    for (uint64_t id = 1; id <= 4; id++) {
+        if (id == 2) {
+            assert_int_equal(by_id[id].outcome.status, PROTO_STATUS_TIMEOUT);
+            assert_string_equal(by_id[id].outcome.error, "evaluation exceeded 1 s");
+            assert_true(by_id[id].wall_us >= 1000000);
+        } else {
+            s_assert_ok(&by_id[id], x0[id]);
+            assert_true(by_id[id].wall_us < 1000000);
+        }
+        worker_pool_result_clear(&by_id[id]);
+    }
+    s_assert_serves(pool, 5);
+    worker_pool_destroy(&pool);
+}
+
+/* Adaptive depth: one job per child until an evaluation is measured, then
+ * deep for a trivial plugin; jobs spread over both children. */
+static void test_adaptive_depth(void **state)
+{
+    (void)state;
+    worker_pool_t *pool = s_pool(2, 0);
+    assert_int_equal(worker_pool_depth(pool), 1);
+    worker_pool_result_t r = s_run(pool, 1, "fault", "{}", 0.5, 0);
+    worker_pool_result_clear(&r);
+    assert_true(worker_pool_depth(pool) > 1); /* behaviour 0 takes microseconds */
+    unsigned depth = worker_pool_depth(pool);
+    worker_pool_result_t *by_id = calloc(2 * depth + 1, sizeof *by_id);
+    assert_non_null(by_id);
+    for (uint64_t id = 1; id <= 2 * depth; id++)
+        s_hand(pool, id, 0.5, 0);
+    assert_int_equal(worker_pool_idle(pool), 0);
+    proto_job_t more = {.job_id = 99, .plugin = "fault", .params = "{}", .genome_len = 0};
+    assert_int_equal(worker_pool_start(pool, &more), -1); /* every queue is full */
+    s_collect_n(pool, by_id, 2 * depth);
+    for (uint64_t id = 1; id <= 2 * depth; id++) {
+        s_assert_ok(&by_id[id], 0.5);
+        worker_pool_result_clear(&by_id[id]);
+    }
+    free(by_id);
+    worker_pool_destroy(&pool);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -293,6 +430,9 @@ int main(void)
         cmocka_unit_test(test_plugin_errors_are_statuses),
         cmocka_unit_test(test_slots_run_in_parallel),
         cmocka_unit_test(test_mem_limit),
+        cmocka_unit_test(test_queue_crash_blames_only_the_running_job),
+        cmocka_unit_test(test_queue_hang_times_out_only_the_hung_job),
+        cmocka_unit_test(test_adaptive_depth),
     };
     return cmocka_run_group_tests(tests, s_setup, s_teardown);
 }
