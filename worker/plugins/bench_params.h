@@ -14,6 +14,7 @@
 #include <stdarg.h>
 #include <stdint.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "fitfarm_plugin.h"
@@ -137,6 +138,39 @@ static inline size_t bench_genome_check(const char *plugin, const uint8_t *genom
         }
     }
     return have;
+}
+
+/* Context of the plugins whose one param is an optional dimension {"n": N}
+ * (0: any length of at least one double). */
+typedef struct {
+    size_t n;
+} bench_dim_ctx_t;
+
+/* create() for such plugins: parses {"n"}, fills info with objectives and the
+ * expected genome size. Returns a FITFARM_PLUGIN_* code. */
+static inline int bench_dim_create(const char *plugin, uint32_t objectives,
+                                   const char *params_json, void **ctx,
+                                   fitfarm_plugin_info_t *info, char *err, size_t errlen)
+{
+    static const char *const allowed[] = {"n", NULL};
+    json_t *root = bench_params_open(plugin, params_json, allowed, err, errlen);
+    if (!root)
+        return FITFARM_PLUGIN_EINVAL;
+    long long n = 0;
+    int rc = bench_params_int(plugin, root, "n", 1, BENCH_MAX_DOUBLES, &n, err, errlen);
+    json_decref(root);
+    if (rc < 0)
+        return FITFARM_PLUGIN_EINVAL;
+    bench_dim_ctx_t *self = malloc(sizeof *self);
+    if (!self) {
+        bench_errf(err, errlen, "%s: out of memory", plugin);
+        return FITFARM_PLUGIN_EFAIL;
+    }
+    self->n = (size_t)n;
+    info->objectives = objectives;
+    info->genome_bytes = (uint32_t)(self->n * 8);
+    *ctx = self;
+    return FITFARM_PLUGIN_OK;
 }
 
 #endif

@@ -10,39 +10,17 @@
 
 #include "bench_params.h"
 
-typedef struct {
-    size_t n; /* 0: any length */
-} sphere_ctx_t;
-
 static int s_create(const char *params_json, void **ctx, fitfarm_plugin_info_t *info, char *err,
                     size_t errlen)
 {
-    static const char *const allowed[] = {"n", NULL};
-    json_t *root = bench_params_open("sphere", params_json, allowed, err, errlen);
-    if (!root)
-        return FITFARM_PLUGIN_EINVAL;
-    long long n = 0;
-    int rc = bench_params_int("sphere", root, "n", 1, BENCH_MAX_DOUBLES, &n, err, errlen);
-    json_decref(root);
-    if (rc < 0)
-        return FITFARM_PLUGIN_EINVAL;
-    sphere_ctx_t *self = malloc(sizeof *self);
-    if (!self) {
-        bench_errf(err, errlen, "sphere: out of memory");
-        return FITFARM_PLUGIN_EFAIL;
-    }
-    self->n = (size_t)n;
-    info->objectives = 1;
-    info->genome_bytes = (uint32_t)(self->n * 8);
-    *ctx = self;
-    return FITFARM_PLUGIN_OK;
+    return bench_dim_create("sphere", 1, params_json, ctx, info, err, errlen);
 }
 
 static int s_evaluate(void *ctx, const uint8_t *genome, size_t genome_len, uint64_t seed,
                       double *fitness, char *err, size_t errlen)
 {
     (void)seed;
-    const sphere_ctx_t *self = ctx;
+    const bench_dim_ctx_t *self = ctx;
     size_t n = bench_genome_check("sphere", genome, genome_len, self->n, 1, 1.0, 0.0, err,
                                   errlen);
     if (!n)
