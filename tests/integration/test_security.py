@@ -104,7 +104,9 @@ with fflib.Pool(secure=True) as pool:
     # Plaintext to a CURVE endpoint:
     r = eval_cmd(pool, ["--broker", pool.clients_ep, "--insecure"], one, timeout=30)
     check.ok(r.returncode != 0 and not r.stdout.strip(), "plaintext client to a CURVE endpoint gets nothing")
-    check.ok(wait_log(pool, "broker", "refused a connection on the clients endpoint: not a CURVE handshake"),
+    # ZeroMQ reports a mechanism mismatch as a protocol error or, when the peer
+    # hangs up first, without detail: either is a refusal line for the endpoint.
+    check.ok(wait_log(pool, "broker", "refused a connection on the clients endpoint: "),
              "plaintext peer refused and logged")
     # A wrong broker key (the client's own public key as the server key): no connection.
     r = eval_cmd(pool, ["--broker", pool.clients_ep, "--key", pool.key("client.secret"),
