@@ -23,11 +23,13 @@ with fflib.Pool(secure=True, broker_args=["--max-message-bytes", "3145728"]) as 
     pool.start_worker(slots=2, name="good")
     pool.wait_workers(1)
     gs = fflib.genomes(3000, 30, seed=77)
+    # Files, not pipes: the good client runs while this script drives the peers.
+    gin = os.path.join(pool.tmp, "good.in")
+    open(gin, "w").write(fflib.jsonl(gs))
+    gout, gerr = os.path.join(pool.tmp, "good.out"), os.path.join(pool.tmp, "good.err")
     good = subprocess.Popen([fflib.exe("fitfarm"), "eval", "--plugin", "zdt1", "--params", '{"n": 30}']
-                            + pool.client_args(), stdin=subprocess.PIPE, stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True)
-    good.stdin.write(fflib.jsonl(gs))
-    good.stdin.close()
+                            + pool.client_args(), stdin=open(gin), stdout=open(gout, "w"),
+                            stderr=open(gerr, "w"))
 
     worker_attacks = ["garbage", "truncated", "mistyped", "unknown_type", "wrong_direction",
                       "huge_count", "oversized_field", "multi_frame", "done_never_held", "hello",
@@ -46,9 +48,8 @@ with fflib.Pool(secure=True, broker_args=["--max-message-bytes", "3145728"]) as 
     check.ok(pw.returncode == 0 and wout.count("sent ") == len(worker_attacks), f"hostile worker ran: {wout} {werr}")
     check.ok(pc.returncode == 0 and cout.count("sent ") == len(client_attacks), f"hostile client ran: {cout} {cerr}")
 
-    out = good.stdout.read()
-    err = good.stderr.read()
     good.wait(timeout=300)
+    out, err = open(gout).read(), open(gerr).read()
     lines = [fflib.json.loads(l) for l in out.splitlines() if l.strip()]
     check.ok(good.returncode == 0 and len(lines) == len(gs), f"good client: exit {good.returncode}, {len(lines)} lines, {err[-600:]}")
     bad = sum(1 for g, o in zip(gs, lines) if o.get("status") != "ok" or not refs.close(o["fitness"], refs.zdt(1, g)))
