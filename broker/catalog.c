@@ -72,8 +72,19 @@ broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugi
     int seen = 0;
     for (uint32_t i = 0; i < p->n_digests; i++)
         seen |= memcmp(p->digests[i], info->digest, PROTO_DIGEST_BYTES) == 0;
-    if (!seen && p->n_digests < BROKER_CATALOG_MAX_DIGESTS)
+    if (!seen && p->n_digests < BROKER_CATALOG_MAX_DIGESTS) {
         memcpy(p->digests[p->n_digests++], info->digest, PROTO_DIGEST_BYTES);
+        if (p->n_digests > 1) {
+            char a[2 * PROTO_DIGEST_BYTES + 1], d[2 * PROTO_DIGEST_BYTES + 1];
+            proto_hex(p->digests[0], PROTO_DIGEST_BYTES, a);
+            proto_hex(info->digest, PROTO_DIGEST_BYTES, d);
+            LOG_WARN("plugin %s %s is reported with another build (digest %.16s, pinned %.16s);"
+                     " jobs go only to workers with the pinned build", p->name, p->version, d, a);
+        }
+    }
+    /* One build per name and version (see the top of catalog.h). */
+    if (p->n_digests > 0 && memcmp(p->digests[0], info->digest, PROTO_DIGEST_BYTES) != 0)
+        return NULL;
     return p;
 }
 
@@ -116,11 +127,12 @@ uint32_t broker_catalog_warnings(const broker_catalog_t *self, char ***warnings,
             char a[2 * PROTO_DIGEST_BYTES + 1], b[2 * PROTO_DIGEST_BYTES + 1];
             proto_hex(p->digests[0], PROTO_DIGEST_BYTES, a);
             proto_hex(p->digests[1], PROTO_DIGEST_BYTES, b);
-            a[4] = b[4] = '\0';
+            a[12] = b[12] = '\0';
             snprintf(text, sizeof text,
                      "plugin %s %s is reported with %s different builds (digests %s…, %s…): "
-                     "results may differ bitwise",
-                     p->name, p->version, p->n_digests == 2 ? "two" : "several", a, b);
+                     "results may differ bitwise; only workers with build %s… (the first one "
+                     "this store saw) get its jobs. Give a new build a new plugin version.",
+                     p->name, p->version, p->n_digests == 2 ? "two" : "several", a, b, a);
             s_push(warnings, &n, common_xstrdup(text));
         }
         if (p->other_version) {

@@ -5,7 +5,14 @@
  *
  * The first version reported for a name is the catalog's version; a worker
  * reporting another version of that name does not get its jobs, and STATUS
- * warns. Not here: which worker carries what (registry.h). */
+ * warns. Likewise the first build digest reported for that name and version
+ * (remembered in the store across restarts) is pinned: a worker reporting
+ * another build does not get its jobs, and STATUS warns that results may
+ * differ bitwise. Keeping one build per version keeps the cache honest: a
+ * content key names one computation, and the key is fixed at submit, before
+ * anyone knows which worker will run the job, so it cannot name the build of
+ * that worker. A new build is given a new plugin version (a new key space).
+ * Not here: which worker carries what (registry.h). */
 #ifndef BROKER_CATALOG_H
 #define BROKER_CATALOG_H
 
@@ -41,8 +48,8 @@ void broker_catalog_fini(broker_catalog_t *self);
 /* Borrowed entry for name, valid until fini; NULL if never seen. */
 broker_plugin_t *broker_catalog_get(const broker_catalog_t *self, const char *name);
 /* Records one plugin from a HELLO. Returns the entry the worker may take jobs
- * for, or NULL when it reports another version than the catalog's (that
- * worker must not get jobs keyed to the catalog's version). */
+ * for, or NULL when it reports another version than the catalog's or another
+ * build than the pinned one (that worker must not get jobs keyed to them). */
 broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugin_info_t *info);
 /* Writes "a, b, c" (names in sorted order) into out; "" when empty. */
 void broker_catalog_names(const broker_catalog_t *self, char *out, size_t outlen);

@@ -165,9 +165,14 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     for (uint32_t i = 0; run && i < s->n_items; i++) {
         uint8_t old[PROTO_KEY_BYTES];
         int cached = 0;
-        if (!broker_store_find_request(b->store, run->id, s->items[i].tag, old, &cached))
+        if (!broker_store_find_request(b->store, run->id, s->items[i].tag, old, &cached)) {
+            if (s->flags & PROTO_SUBMIT_REPLAY)
+                break; /* refused below, naming this request */
             continue;
+        }
         if (memcmp(old, keys[i], PROTO_KEY_BYTES) != 0) {
+            if (s->flags & PROTO_SUBMIT_REPLAY)
+                break; /* other content under a recorded tag: never seen, refused below */
             snprintf(text, sizeof text,
                      "run %s request %" PRIu64 " (item %u of the batch) was recorded with "
                      "another genome or params; one client per run at a time, and a resumed "
@@ -180,12 +185,17 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         recorded[i] = (uint8_t)(1 + (cached != 0));
     }
     if (s->flags & PROTO_SUBMIT_REPLAY) {
+        /* Replay answers only what this run recorded, in the order it was
+         * recorded: a request the run never saw (its tag unknown, or known
+         * with other content, refused above) stops the replay, so nothing is
+         * ever simulated. A recorded request still in flight is waited for. */
         for (uint32_t i = 0; i < s->n_items; i++) {
             broker_eval_t *e = broker_evals_get(&b->evals, keys[i]);
-            if (!e || e->state != BROKER_EVAL_DONE) {
+            if (!run || !recorded[i] || !e) {
                 snprintf(text, sizeof text,
-                         "replay: item %u (tag %" PRIu64 ") has no recorded result", i,
-                         s->items[i].tag);
+                         "replay: run %s never recorded request tag %" PRIu64
+                         " (item %u of the batch)%s",
+                         s->run_id, s->items[i].tag, i, run ? "" : "; the run is unknown");
                 rc = PROTO_REFUSE_NOT_RECORDED;
                 s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
                 goto cleanup;
@@ -215,7 +225,9 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         const proto_item_t *it = &s->items[i];
         broker_eval_t *e = broker_evals_get(&b->evals, keys[i]);
         if (recorded[i] && e) {
-            if (e->state == BROKER_EVAL_DONE) {
+            if (e->again && s_waits(e->again, run, it->tag)) {
+                continue; /* a no-cache request still waiting on its re-evaluation */
+            } else if (e->state == BROKER_EVAL_DONE) {
                 broker_runs_redeliver(&b->runs, run, it->tag, e, recorded[i] == 2);
             } else if (!s_waits(e, run, it->tag)) {
                 run->outstanding++;
@@ -238,12 +250,18 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             broker_runs_enqueue(&b->runs, run, e, 0);
             broker_store_note_eval(b->store, e);
         } else if (e->state == BROKER_EVAL_DONE) {
-            broker_eval_reset(e); /* no-cache: evaluate again */
-            e->timeout_ms = s->timeout_ms;
-            e->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
-            broker_eval_add_waiter(e, run, it->tag);
-            broker_runs_enqueue(&b->runs, run, e, 0);
-            broker_store_note_eval(b->store, e);
+            /* No-cache: evaluate again, keeping the cached result (evals.h,
+             * "Re-evaluations"); no-cache requests for the key share one. */
+            if (!e->again) {
+                broker_eval_t *f = broker_evals_new_fresh(&b->evals, e);
+                f->timeout_ms = s->timeout_ms;
+                f->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
+                broker_eval_add_waiter(f, run, it->tag);
+                broker_runs_enqueue(&b->runs, run, f, 0);
+            } else {
+                broker_eval_add_waiter(e->again, run, it->tag);
+            }
+            e = e->again;
         } else {
             broker_eval_add_waiter(e, run, it->tag); /* single flight */
         }

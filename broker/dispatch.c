@@ -76,6 +76,11 @@ void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker
     broker_eval_set_result(&b->evals, e, o->status, o->fitness, o->n_fitness, o->error);
     broker_store_note_result(b->store, e, o, w ? w->name : NULL, w ? w->host : NULL,
                              w ? w->arch : NULL);
+    if (e->fresh && e->origin) {
+        /* A re-evaluation is done: later no-cache requests start another. */
+        e->origin->again = NULL;
+        e->origin = NULL;
+    }
     /* One simulation, charged to the run whose queue it came from; requests
      * that attached to it (single flight) did not cost another. */
     e->home->n_evaluated++;

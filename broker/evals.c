@@ -20,6 +20,7 @@ void broker_evals_init(broker_evals_t *self)
     self->by_job = broker_table_new();
     self->orphans = broker_table_new();
     self->n_done = 0;
+    self->fresh_head = NULL;
 }
 
 void broker_evals_fini(broker_evals_t *self)
@@ -31,6 +32,13 @@ void broker_evals_fini(broker_evals_t *self)
     cur = 0;
     broker_eval_t *e;
     while ((e = broker_table_next(self->by_key, &cur))) {
+        free(e->more);
+        free(e->fitness);
+        free(e->error);
+        free(e);
+    }
+    while ((e = self->fresh_head)) {
+        self->fresh_head = e->fresh_next;
         free(e->more);
         free(e->fitness);
         free(e->error);
@@ -63,6 +71,37 @@ broker_eval_t *broker_evals_new(broker_evals_t *self, const uint8_t key[PROTO_KE
     assert(prev == NULL);
     (void)prev;
     return e;
+}
+
+static broker_eval_t *s_fresh_copy(broker_evals_t *self, const broker_eval_t *like)
+{
+    broker_eval_t *e = common_xcalloc(1, sizeof *e + like->genome_len);
+    memcpy(e->key, like->key, PROTO_KEY_BYTES);
+    e->state = BROKER_EVAL_QUEUED;
+    e->fresh = 1;
+    e->plugin = like->plugin;
+    e->params = like->params;
+    e->seed = like->seed;
+    e->genome_len = like->genome_len;
+    if (like->genome_len)
+        memcpy(e->genome, like->genome, like->genome_len);
+    e->fresh_next = self->fresh_head;
+    self->fresh_head = e;
+    return e;
+}
+
+broker_eval_t *broker_evals_new_fresh(broker_evals_t *self, broker_eval_t *origin)
+{
+    assert(origin->state == BROKER_EVAL_DONE && origin->again == NULL && !origin->fresh);
+    broker_eval_t *e = s_fresh_copy(self, origin);
+    e->origin = origin;
+    origin->again = e;
+    return e;
+}
+
+broker_eval_t *broker_evals_new_fresh_stored(broker_evals_t *self, const broker_eval_t *like)
+{
+    return s_fresh_copy(self, like);
 }
 
 void broker_eval_add_waiter(broker_eval_t *e, struct broker_run *run, uint64_t tag)
@@ -170,8 +209,15 @@ void broker_eval_reset(broker_eval_t *e)
 
 int broker_eval_check(const broker_evals_t *self, const broker_eval_t *e)
 {
-    if (broker_evals_get(self, e->key) != e)
+    if (e->fresh) {
+        /* Not in by_key; linked from its origin exactly while in flight. */
+        if (e->state != BROKER_EVAL_DONE && (!e->origin || e->origin->again != e))
+            return 0;
+        if (e->state == BROKER_EVAL_DONE && e->origin)
+            return 0;
+    } else if (broker_evals_get(self, e->key) != e) {
         return 0;
+    }
     switch (e->state) {
     case BROKER_EVAL_QUEUED:
         return e->job_id == 0 && e->worker == NULL && e->n_waiters >= 1 && e->home != NULL;

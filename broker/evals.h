@@ -24,6 +24,14 @@
  * Never DONE twice without passing through QUEUED: a result for a stale job
  * id of a DONE evaluation is ignored, so no request is answered twice.
  *
+ * Re-evaluations. A no-cache request for a key that is DONE does not touch the
+ * cached result (earlier runs, replays and verify keep reading it): it gets a
+ * separate "fresh" evaluation, not indexed by key, that goes through the same
+ * states and answers only the no-cache requests attached to it. While one is
+ * QUEUED or RUNNING the cached evaluation points at it (again), so no-cache
+ * requests for the key share it (single flight); once DONE it is unlinked and
+ * stays in memory only as long as the evaluation table (deliveries point at it).
+ *
  * Not here: queue order and fairness (runs.h), sending (dispatch.c). */
 #ifndef BROKER_EVALS_H
 #define BROKER_EVALS_H
@@ -48,6 +56,7 @@ typedef struct {
 typedef struct broker_eval {
     uint8_t key[PROTO_KEY_BYTES];
     uint8_t state;    /* broker_eval_state_t */
+    uint8_t fresh;    /* a re-evaluation for no-cache requests, not in by_key */
     uint8_t status;   /* proto_status_t once DONE */
     uint16_t attempts;/* dispatches that ended CRASHED or TIMEOUT */
     uint16_t max_attempts; /* from the submitting run's SUBMIT; 0 = the broker's --attempts */
@@ -61,6 +70,9 @@ typedef struct broker_eval {
     struct broker_run *home; /* run whose queue it is charged to */
     struct broker_worker *worker;
     struct broker_eval *prev, *next; /* run queue when QUEUED, worker list when RUNNING */
+    struct broker_eval *again;  /* cached evaluation: its fresh one in flight, or NULL */
+    struct broker_eval *origin; /* fresh evaluation: the cached one, NULL once DONE */
+    struct broker_eval *fresh_next; /* every fresh evaluation, for fini */
     /* waiters: the first inline (the common case), the rest in more[] */
     broker_waiter_t w0;
     broker_waiter_t *more;
@@ -77,6 +89,7 @@ typedef struct {
     broker_table_t *by_key;
     broker_table_t *by_job;    /* job id -> RUNNING evaluation */
     broker_table_t *orphans;   /* job id -> evaluation, for dropped workers' jobs */
+    broker_eval_t *fresh_head; /* every fresh evaluation (re-evaluations), newest first */
     uint64_t n_done;
 } broker_evals_t;
 
@@ -91,6 +104,15 @@ broker_eval_t *broker_evals_get(const broker_evals_t *self, const uint8_t key[PR
 broker_eval_t *broker_evals_new(broker_evals_t *self, const uint8_t key[PROTO_KEY_BYTES],
                                 broker_plugin_t *plugin, const char *params, uint64_t seed,
                                 const uint8_t *genome, uint32_t genome_len);
+
+/* New QUEUED fresh evaluation of DONE origin's content (key, plugin, params,
+ * seed, genome), not indexed by key, linked as origin->again; not yet in any
+ * queue. Borrowed, valid until fini. */
+broker_eval_t *broker_evals_new_fresh(broker_evals_t *self, broker_eval_t *origin);
+/* A fresh evaluation for a stored re-evaluation result (store_load.c): a copy
+ * of like's content, linked to no origin; the caller gives it its result at
+ * once with broker_eval_set_result. Borrowed, valid until fini. */
+broker_eval_t *broker_evals_new_fresh_stored(broker_evals_t *self, const broker_eval_t *like);
 
 void broker_eval_add_waiter(broker_eval_t *e, struct broker_run *run, uint64_t tag);
 /* Waiter i (0-based, < n_waiters). */

@@ -50,8 +50,15 @@ static const char s_schema[] =
     " run_id TEXT NOT NULL, tag INTEGER NOT NULL, batch_tag INTEGER NOT NULL,"
     " replicate INTEGER NOT NULL, key BLOB NOT NULL, cached INTEGER NOT NULL,"
     " acked INTEGER NOT NULL DEFAULT 0, created REAL NOT NULL,"
+    " fresh INTEGER NOT NULL DEFAULT 0,"
     " PRIMARY KEY(run_id, tag)) WITHOUT ROWID;"
     "CREATE INDEX IF NOT EXISTS requests_by_key ON requests(key);"
+    "CREATE TABLE IF NOT EXISTS results("
+    " key BLOB NOT NULL, run_id TEXT NOT NULL, fresh INTEGER NOT NULL,"
+    " status INTEGER NOT NULL, status_name TEXT NOT NULL, fitness BLOB, fitness_json TEXT,"
+    " error TEXT, attempts INTEGER, worker TEXT, host TEXT, arch TEXT, digest BLOB,"
+    " cpu_seconds REAL, peak_rss_kb INTEGER, finished_at REAL NOT NULL);"
+    "CREATE INDEX IF NOT EXISTS results_by_run ON results(run_id, key);"
     "CREATE TABLE IF NOT EXISTS plugins("
     " name TEXT PRIMARY KEY, version TEXT NOT NULL, objectives INTEGER NOT NULL,"
     " flags INTEGER NOT NULL, digests BLOB NOT NULL, last_seen REAL NOT NULL);";
@@ -61,7 +68,7 @@ enum {
     S_COMMIT,
     S_RUN,
     S_EVAL,
-    S_EVAL_RESET,
+    S_HISTORY,
     S_REQUEST,
     S_FIND_REQUEST,
     S_RESULT,
@@ -78,11 +85,12 @@ static const char *const s_sql[S_COUNT_] = {
               " ON CONFLICT(run_id) DO UPDATE SET last_activity = ?4",
     [S_EVAL] = "INSERT OR IGNORE INTO evaluations(key, plugin, version, params, genome, seed,"
                " timeout_ms, max_attempts, created) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
-    [S_EVAL_RESET] = "UPDATE evaluations SET status = NULL, status_name = NULL, fitness = NULL,"
-                     " fitness_json = NULL, error = NULL, attempts = NULL, timeout_ms = ?2,"
-                     " max_attempts = ?3 WHERE key = ?1",
+    [S_HISTORY] = "INSERT INTO results(key, run_id, fresh, status, status_name, fitness,"
+                  " fitness_json, error, attempts, worker, host, arch, digest, cpu_seconds,"
+                  " peak_rss_kb, finished_at) VALUES(?1, ?15, ?16, ?2, ?3, ?4, ?5, ?6, ?7, ?8,"
+                  " ?9, ?10, ?11, ?12, ?13, ?14)",
     [S_REQUEST] = "INSERT OR IGNORE INTO requests(run_id, tag, batch_tag, replicate, key, cached,"
-                  " created) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7)",
+                  " created, fresh) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
     [S_FIND_REQUEST] = "SELECT key, cached FROM requests WHERE run_id = ?1 AND tag = ?2",
     [S_RESULT] = "UPDATE evaluations SET status = ?2, status_name = ?3, fitness = ?4,"
                  " fitness_json = ?5, error = ?6, attempts = ?7, worker = ?8, host = ?9,"
@@ -173,6 +181,11 @@ broker_store_t *broker_store_open(const char *dir)
              STORE_SCHEMA_VERSION);
     if (s_exec(self, sql) != 0 || s_exec(self, "COMMIT") != 0)
         goto fail;
+    /* Stores made before re-evaluations were kept apart lack requests.fresh. */
+    if (sqlite3_exec(self->db, "SELECT fresh FROM requests LIMIT 0", NULL, NULL, NULL) !=
+            SQLITE_OK &&
+        s_exec(self, "ALTER TABLE requests ADD COLUMN fresh INTEGER NOT NULL DEFAULT 0") != 0)
+        goto fail;
     for (int i = 0; i < S_COUNT_; i++) {
         if (sqlite3_prepare_v3(self->db, s_sql[i], -1, SQLITE_PREPARE_PERSISTENT, &self->stmt[i],
                                NULL) != SQLITE_OK) {
@@ -258,12 +271,6 @@ void broker_store_note_eval(broker_store_t *self, const broker_eval_t *e)
     sqlite3_bind_int(st, 8, e->max_attempts);
     sqlite3_bind_double(st, 9, s_now());
     s_step(self, S_EVAL);
-    /* A no-cache request re-queues a stored key: it is pending again. */
-    st = self->stmt[S_EVAL_RESET];
-    sqlite3_bind_blob(st, 1, e->key, PROTO_KEY_BYTES, SQLITE_STATIC);
-    sqlite3_bind_int64(st, 2, e->timeout_ms);
-    sqlite3_bind_int(st, 3, e->max_attempts);
-    s_step(self, S_EVAL_RESET);
 }
 
 void broker_store_note_request(broker_store_t *self, const broker_run_t *run, uint64_t tag,
@@ -278,6 +285,7 @@ void broker_store_note_request(broker_store_t *self, const broker_run_t *run, ui
     sqlite3_bind_blob(st, 5, e->key, PROTO_KEY_BYTES, SQLITE_STATIC);
     sqlite3_bind_int(st, 6, cached != 0);
     sqlite3_bind_double(st, 7, s_now());
+    sqlite3_bind_int(st, 8, e->fresh != 0);
     s_step(self, S_REQUEST);
 }
 
@@ -314,11 +322,28 @@ static char *s_fitness_json(const double *f, uint32_t n)
     return out;
 }
 
+/* Binds one result to S_RESULT or S_HISTORY (same parameter numbers). */
+static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *e,
+                          const proto_outcome_t *o, const char *worker, const char *host,
+                          const char *arch);
+
 void broker_store_note_result(broker_store_t *self, const broker_eval_t *e,
                               const proto_outcome_t *o, const char *worker, const char *host,
                               const char *arch)
 {
-    sqlite3_stmt *st = self->stmt[S_RESULT];
+    /* The cache row changes only for a first evaluation; a no-cache
+     * re-evaluation leaves it as it was. Every result, either kind, is
+     * appended to the results history with the run that paid for it. */
+    if (!e->fresh)
+        s_bind_result(self, S_RESULT, e, o, worker, host, arch);
+    s_bind_result(self, S_HISTORY, e, o, worker, host, arch);
+}
+
+static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *e,
+                          const proto_outcome_t *o, const char *worker, const char *host,
+                          const char *arch)
+{
+    sqlite3_stmt *st = self->stmt[which];
     uint8_t *le = NULL;
     char *json = NULL;
     sqlite3_bind_blob(st, 1, e->key, PROTO_KEY_BYTES, SQLITE_STATIC);
@@ -346,15 +371,20 @@ void broker_store_note_result(broker_store_t *self, const broker_eval_t *e,
         sqlite3_bind_text(st, 9, host, -1, SQLITE_STATIC);
         sqlite3_bind_text(st, 10, arch, -1, SQLITE_STATIC);
     }
-    /* The build is known only when the pool has one build of the plugin. */
-    if (e->plugin->n_digests == 1)
+    /* Only workers with the plugin's pinned build get its jobs (catalog.h),
+     * so the pinned digest is the build that computed this result. */
+    if (worker && e->plugin->n_digests > 0)
         sqlite3_bind_blob(st, 11, e->plugin->digests[0], PROTO_DIGEST_BYTES, SQLITE_STATIC);
     if (o) {
         sqlite3_bind_double(st, 12, o->cpu_seconds);
         s_bind_u64(st, 13, o->peak_rss_kb);
     }
     sqlite3_bind_double(st, 14, s_now());
-    s_step(self, S_RESULT);
+    if (which == S_HISTORY) {
+        sqlite3_bind_text(st, 15, e->home ? e->home->id : "", -1, SQLITE_STATIC);
+        sqlite3_bind_int(st, 16, e->fresh != 0);
+    }
+    s_step(self, which);
     free(le);
     free(json);
 }

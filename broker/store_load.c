@@ -147,7 +147,8 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending, uint64_t
                            "SELECT r.run_id, r.tag, r.cached, r.acked, e.key, e.plugin, e.params,"
                            " e.genome, e.seed, e.timeout_ms, e.max_attempts, e.status IS NULL"
                            " FROM requests r JOIN evaluations e ON e.key = r.key"
-                           " WHERE e.status IS NULL OR r.acked = 0 ORDER BY r.created",
+                           " WHERE r.fresh = 0 AND (e.status IS NULL OR r.acked = 0)"
+                           " ORDER BY r.created",
                            -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "requests");
     while (sqlite3_step(st) == SQLITE_ROW) {
@@ -184,6 +185,77 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending, uint64_t
     return 0;
 }
 
+/* Fitness doubles from a little-endian blob; returns how many (capped). */
+static uint32_t s_fitness(sqlite3_stmt *st, int col, double *fit)
+{
+    const uint8_t *le = sqlite3_column_blob(st, col);
+    uint32_t nf = (uint32_t)(sqlite3_column_bytes(st, col) / 8);
+    if (nf > PROTO_MAX_OBJECTIVES)
+        nf = PROTO_MAX_OBJECTIVES;
+    for (uint32_t i = 0; i < nf; i++) {
+        uint64_t bits = 0;
+        for (int k = 0; k < 8; k++)
+            bits |= (uint64_t)le[i * 8 + (uint32_t)k] << (8 * k);
+        memcpy(&fit[i], &bits, 8);
+    }
+    return nf;
+}
+
+/* No-cache requests not yet acknowledged: answered ones (a results row of
+ * their run with fresh = 1) are owed to the client with that result; the
+ * others wait on a re-evaluation queued again. The cached result of their
+ * key was loaded by s_load_results. */
+static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending, uint64_t *unacked)
+{
+    sqlite3_stmt *st = NULL;
+    if (sqlite3_prepare_v2(db,
+                           "SELECT r.run_id, r.tag, r.key, x.status, x.fitness, x.error,"
+                           " e.timeout_ms, e.max_attempts FROM requests r"
+                           " JOIN evaluations e ON e.key = r.key"
+                           " LEFT JOIN results x ON x.rowid = (SELECT max(rowid) FROM results y"
+                           "  WHERE y.run_id = r.run_id AND y.key = r.key AND y.fresh = 1)"
+                           " WHERE r.fresh = 1 AND r.acked = 0 ORDER BY r.created",
+                           -1, &st, NULL) != SQLITE_OK)
+        return s_fail(db, "no-cache requests");
+    double fit[PROTO_MAX_OBJECTIVES];
+    while (sqlite3_step(st) == SQLITE_ROW) {
+        const char *run_id = (const char *)sqlite3_column_text(st, 0);
+        broker_run_t *run = run_id ? broker_runs_get(&b->runs, run_id) : NULL;
+        const uint8_t *key = sqlite3_column_blob(st, 2);
+        if (!run || sqlite3_column_bytes(st, 2) != PROTO_KEY_BYTES)
+            continue;
+        broker_eval_t *origin = broker_evals_get(&b->evals, key);
+        if (!origin || origin->state != BROKER_EVAL_DONE)
+            continue;
+        uint64_t tag = s_u64(st, 1);
+        if (sqlite3_column_type(st, 3) != SQLITE_NULL) {
+            broker_eval_t *f = broker_evals_new_fresh_stored(&b->evals, origin);
+            uint32_t nf = s_fitness(st, 4, fit);
+            broker_eval_set_result(&b->evals, f, (uint32_t)sqlite3_column_int(st, 3), fit, nf,
+                                   (const char *)sqlite3_column_text(st, 5));
+            broker_runs_redeliver(&b->runs, run, tag, f, 0);
+            (*unacked)++;
+            continue;
+        }
+        broker_eval_t *f = origin->again;
+        if (!f) {
+            f = broker_evals_new_fresh(&b->evals, origin);
+            f->timeout_ms = (uint32_t)sqlite3_column_int64(st, 6);
+            f->max_attempts = (uint16_t)sqlite3_column_int(st, 7);
+        }
+        if (s_waits(f, run, tag))
+            continue;
+        broker_eval_add_waiter(f, run, tag);
+        run->outstanding++;
+        if (!f->home) {
+            broker_runs_enqueue(&b->runs, run, f, 0);
+            (*pending)++;
+        }
+    }
+    sqlite3_finalize(st);
+    return 0;
+}
+
 int broker_store_load(broker_t *b)
 {
     sqlite3 *db = broker_store_db(b->store);
@@ -191,7 +263,8 @@ int broker_store_load(broker_t *b)
     uint64_t n_results = 0, n_pending = 0, n_unacked = 0;
     if (s_load_plugins(b, db, &n_plugins) != 0 || s_load_runs(b, db, &n_runs) != 0 ||
         s_load_results(b, db, &n_results) != 0 ||
-        s_load_requests(b, db, &n_pending, &n_unacked) != 0)
+        s_load_requests(b, db, &n_pending, &n_unacked) != 0 ||
+        s_load_fresh(b, db, &n_pending, &n_unacked) != 0)
         return -1;
     if (n_runs || n_plugins)
         LOG_INFO("store loaded: %u plugins, %u runs, %" PRIu64 " results, %" PRIu64

@@ -83,7 +83,7 @@ broker_worker_t *broker_worker_on_hello(broker_t *b, const uint8_t *rid, size_t 
         if (used < sizeof list) {
             int k = snprintf(list + used, sizeof list - used, "%s%s %s%s", i ? ", " : "",
                              h->plugins[i].name, h->plugins[i].version,
-                             p ? "" : " (version differs: no jobs)");
+                             p ? "" : " (another version or build: no jobs)");
             if (k > 0)
                 used += (size_t)k;
         }

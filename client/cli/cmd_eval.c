@@ -8,6 +8,7 @@
  * line parser (jsonl.c), the protocol (the library). */
 #include <errno.h>
 #include <fcntl.h>
+#include <math.h>
 #include <poll.h>
 #include <signal.h>
 #include <stdint.h>
@@ -41,6 +42,18 @@ static const char s_help[] =
     "  --run ID           run id (default: a new random one); same id and seed resume a run\n"
     "  --seed N           run seed, 0..2^64-1 (default 0)\n"
     "  --replicates K     evaluations per genome with different seeds (default 1)\n"
+    "  --aggregate HOW    mean, median or none (default none): after the K result\n"
+    "                     lines of a genome, one summary line with the per-objective\n"
+    "                     mean or median and the sample standard deviation over its\n"
+    "                     ok replicates\n"
+    "  --seed-mode MODE   genome (default): each evaluation's seed derives from the\n"
+    "                     run seed, the genome and the replicate index; common: from\n"
+    "                     the run seed and replicate index only, so every genome sees\n"
+    "                     the same noise (common random numbers)\n"
+    "  --no-cache         evaluate again even when the store holds the result (both\n"
+    "                     results are kept; the cached one keeps answering others)\n"
+    "  --replay           answer only from the store what run --run recorded, never\n"
+    "                     simulate; stops at the first line the run never saw\n"
     "  --timeout SECONDS  per-evaluation time limit (default: the worker's)\n"
     "  --attempts N       tries of an evaluation that crashes or times out, each on\n"
     "                     another worker where possible (default 3)\n"
@@ -72,7 +85,10 @@ static const char s_help[] =
     "  \"fitness\" is null and an \"error\" key follows \"key\". An input line that\n"
     "  cannot be read gets, per replicate,\n"
     "  {\"id\": ..., \"line\": L, \"replicate\": R, \"status\": \"invalid\", \"error\": \"...\"}\n"
-    "  and every other line is still evaluated.\n"
+    "  and every other line is still evaluated. With --aggregate, after a line's\n"
+    "  replicates: {\"id\": ..., \"line\": L, \"aggregate\": \"mean\", \"replicates\": K,\n"
+    "   \"ok\": N, \"fitness\": [numbers], \"std\": [numbers]}  (null when N is 0; std\n"
+    "  null when N < 2).\n"
     "\n"
     "exit status: 0 every line ok, 1 some line not ok (or the pool failed),\n"
     "2 usage error (bad option, unreadable file, unknown plugin).\n";
@@ -89,7 +105,9 @@ typedef struct {
 typedef struct {
     /* options */
     const char *plugin, *params, *run_id, *in_path, *out_path, *broker, *plugin_dir, *store;
-    int stats;
+    const char *seed_mode_name, *aggregate_name;
+    int stats, no_cache, replay, seed_mode;
+    int aggregate; /* 0 none, 1 mean, 2 median */
     uint64_t seed, replicates, slots, timeout_s, attempts;
     /* state */
     FILE *out;
@@ -165,8 +183,18 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         STR_OPT("--broker", broker)
         STR_OPT("--plugin-dir", plugin_dir)
         STR_OPT("--store", store)
+        STR_OPT("--seed-mode", seed_mode_name)
+        STR_OPT("--aggregate", aggregate_name)
         if (strcmp(arg, "--stats") == 0) {
             e->stats = 1;
+            continue;
+        }
+        if (strcmp(arg, "--no-cache") == 0) {
+            e->no_cache = 1;
+            continue;
+        }
+        if (strcmp(arg, "--replay") == 0) {
+            e->replay = 1;
             continue;
         }
         NUM_OPT("--seed", seed, 0, UINT64_MAX)
@@ -189,6 +217,32 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
     }
     if (!e->plugin) {
         *exit_code = s_usage("--plugin NAME is required%s", NULL);
+        return -1;
+    }
+    if (e->seed_mode_name && strcmp(e->seed_mode_name, "genome") == 0) {
+        e->seed_mode = 0;
+    } else if (e->seed_mode_name && strcmp(e->seed_mode_name, "common") == 0) {
+        e->seed_mode = 1;
+    } else if (e->seed_mode_name) {
+        *exit_code = s_usage("--seed-mode is genome or common, not '%s'", e->seed_mode_name);
+        return -1;
+    }
+    if (!e->aggregate_name || strcmp(e->aggregate_name, "none") == 0) {
+        e->aggregate = 0;
+    } else if (strcmp(e->aggregate_name, "mean") == 0) {
+        e->aggregate = 1;
+    } else if (strcmp(e->aggregate_name, "median") == 0) {
+        e->aggregate = 2;
+    } else {
+        *exit_code = s_usage("--aggregate is mean, median or none, not '%s'", e->aggregate_name);
+        return -1;
+    }
+    if (e->replay && !e->run_id) {
+        *exit_code = s_usage("--replay needs --run ID (the run to replay)%s", NULL);
+        return -1;
+    }
+    if (e->replay && e->no_cache) {
+        *exit_code = s_usage("--replay and --no-cache contradict each other%s", NULL);
         return -1;
     }
     if (!*e->plugin || strlen(e->plugin) > PROTO_MAX_NAME_BYTES) {
@@ -329,6 +383,29 @@ static int s_take_line(eval_t *e, const char *text, size_t len, size_t line_no, 
     return 0;
 }
 
+/* Replay met a request the recorded run never saw: name its input line. */
+static int s_not_recorded(eval_t *e, const fitfarm_batch_t *b)
+{
+    const char *msg = fitfarm_client_error(e->client);
+    const char *g = strstr(msg, "genome ");
+    unsigned long long index = 0;
+    size_t line = 0;
+    if (g && sscanf(g + 7, "%llu", &index) == 1) {
+        for (size_t i = e->cursor; i < e->n_records; i++)
+            if (e->records[i].batch == b && e->records[i].index == index) {
+                line = e->records[i].line;
+                break;
+            }
+    }
+    if (line)
+        fprintf(stderr, "fitfarm eval: replay of run %s stopped: input line %zu was never seen "
+                "by the recorded run (other genome, params, plugin, seed or order); nothing "
+                "was simulated\n", e->run_id, line);
+    else
+        fprintf(stderr, "fitfarm eval: %s\n", msg);
+    return 1;
+}
+
 static int s_submit_building(eval_t *e)
 {
     if (!e->building)
@@ -353,6 +430,8 @@ static int s_submit_building(eval_t *e)
     int rc = fitfarm_submit(e->run, b);
     if (rc == FITFARM_EPLUGIN)
         return s_unknown_plugin(e, fitfarm_client_error(e->client));
+    if (rc == FITFARM_ENOTRECORDED)
+        return s_not_recorded(e, b);
     if (rc != 0) {
         fprintf(stderr, "fitfarm eval: %s\n", fitfarm_client_error(e->client));
         return 1;
@@ -394,6 +473,75 @@ static void s_print_result(eval_t *e, const eval_record_t *rec, const fitfarm_re
     fputs("}\n", e->out);
 }
 
+static int s_cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+/* The --aggregate line of a record whose replicates are all in. */
+static void s_print_aggregate(eval_t *e, const eval_record_t *rec)
+{
+    unsigned k = (unsigned)e->replicates;
+    fitfarm_result_t res;
+    size_t n_obj = 0;
+    unsigned n_ok = 0;
+    for (unsigned r = 0; r < k; r++)
+        if (fitfarm_batch_result(rec->batch, rec->index, r, &res) == 0 &&
+            res.status == FITFARM_STATUS_OK) {
+            if (n_ok == 0)
+                n_obj = res.n_fitness;
+            if (res.n_fitness == n_obj)
+                n_ok++;
+        }
+    fprintf(e->out, "{\"id\": %s, \"line\": %zu, \"aggregate\": \"%s\", \"replicates\": %u, "
+            "\"ok\": %u", rec->id_json, rec->line, e->aggregate == 1 ? "mean" : "median", k, n_ok);
+    double *v = n_ok ? malloc(n_ok * sizeof *v) : NULL;
+    if (n_ok == 0 || !v) {
+        fputs(", \"fitness\": null, \"std\": null}\n", e->out);
+        free(v);
+        return;
+    }
+    char num[32];
+    for (int pass = 0; pass < 2; pass++) {
+        fputs(pass == 0 ? ", \"fitness\": [" : ", \"std\": ", e->out);
+        if (pass == 1 && n_ok < 2) {
+            fputs("null", e->out);
+            break;
+        }
+        if (pass == 1)
+            fputs("[", e->out);
+        for (size_t j = 0; j < n_obj; j++) {
+            unsigned n = 0;
+            for (unsigned r = 0; r < k; r++)
+                if (fitfarm_batch_result(rec->batch, rec->index, r, &res) == 0 &&
+                    res.status == FITFARM_STATUS_OK && res.n_fitness == n_obj)
+                    v[n++] = res.fitness[j];
+            /* Sums in replicate order, so the bits depend on the results only. */
+            double sum = 0.0;
+            for (unsigned i = 0; i < n; i++)
+                sum += v[i];
+            double mean = sum / n, out;
+            if (pass == 0 && e->aggregate == 2) {
+                qsort(v, n, sizeof *v, s_cmp_double);
+                out = n % 2 ? v[n / 2] : (v[n / 2 - 1] + v[n / 2]) / 2.0;
+            } else if (pass == 0) {
+                out = mean;
+            } else {
+                double ss = 0.0; /* sample standard deviation (n - 1) */
+                for (unsigned i = 0; i < n; i++)
+                    ss += (v[i] - mean) * (v[i] - mean);
+                out = sqrt(ss / (n - 1));
+            }
+            proto_format_double(out, num);
+            fprintf(e->out, "%s%s", j ? ", " : "", num);
+        }
+        fputs("]", e->out);
+    }
+    fputs("}\n", e->out);
+    free(v);
+}
+
 /* Prints every record whose turn has come; frees batches fully printed. */
 static void s_flush_prefix(eval_t *e)
 {
@@ -418,6 +566,8 @@ static void s_flush_prefix(eval_t *e)
             }
             if (e->cursor_r < e->replicates)
                 break;
+            if (e->aggregate)
+                s_print_aggregate(e, rec);
         }
         wrote = 1;
         free(rec->id_json);
@@ -629,6 +779,9 @@ int cli_cmd_eval(int argc, char **argv)
     memset(&ropts, 0, sizeof ropts);
     ropts.run_id = e.run_id;
     ropts.seed = e.seed;
+    ropts.seed_mode = e.seed_mode;
+    ropts.no_cache = e.no_cache;
+    ropts.replay = e.replay;
     ropts.timeout_s = (unsigned)e.timeout_s;
     ropts.attempts = (unsigned)e.attempts;
     if (fitfarm_run_open(e.client, &ropts, &e.run) != 0) {

@@ -10,5 +10,8 @@ int cli_cmd_status(int argc, char **argv); /* cmd_status.c */
 int cli_cmd_keygen(int argc, char **argv); /* cmd_keygen.c: a CURVE key pair in two files */
 int cli_cmd_allow(int argc, char **argv);  /* cmd_allow.c: admit a key to a broker allow-list */
 int cli_cmd_sim(int argc, char **argv);    /* cmd_sim.c: one evaluation in-process, optional trace */
+int cli_cmd_runs(int argc, char **argv);   /* cmd_runs.c: the runs a store holds */
+int cli_cmd_export(int argc, char **argv); /* cmd_runs.c: one run's requests and results */
+int cli_cmd_verify(int argc, char **argv); /* cmd_verify.c: re-simulate stored results */
 
 #endif

@@ -13,6 +13,9 @@ static const char s_usage[] =
     "commands:\n"
     "  eval      evaluate genomes from JSON Lines (a local pool, or --broker)\n"
     "  status    show a pool's workers, runs and warnings\n"
+    "  runs      list the runs a store holds (--store DIR)\n"
+    "  export    write one run's requests and results with provenance (jsonl, csv)\n"
+    "  verify    re-simulate a stored run on a pool and report every bit that differs\n"
     "  keygen    make a CURVE key pair (NAME.public, NAME.secret)\n"
     "  allow     admit a public key to a broker's clients or workers allow-list\n"
 #ifdef FITFARM_HAVE_SIM
@@ -45,6 +48,12 @@ int main(int argc, char **argv)
         return cli_cmd_eval(argc - 1, argv + 1);
     if (strcmp(cmd, "status") == 0)
         return cli_cmd_status(argc - 1, argv + 1);
+    if (strcmp(cmd, "runs") == 0)
+        return cli_cmd_runs(argc - 1, argv + 1);
+    if (strcmp(cmd, "export") == 0)
+        return cli_cmd_export(argc - 1, argv + 1);
+    if (strcmp(cmd, "verify") == 0)
+        return cli_cmd_verify(argc - 1, argv + 1);
     if (strcmp(cmd, "keygen") == 0)
         return cli_cmd_keygen(argc - 1, argv + 1);
     if (strcmp(cmd, "allow") == 0)

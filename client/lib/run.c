@@ -441,8 +441,21 @@ static int s_refusal(fitfarm_run_t *run, const fitfarm_batch_t *b, const client_
                            text);
     case PROTO_REFUSE_QUEUE_FULL:
         return client_fail(cl, FITFARM_EQUEUEFULL, "the broker's queue is full: %s", text);
-    case PROTO_REFUSE_NOT_RECORDED:
+    case PROTO_REFUSE_NOT_RECORDED: {
+        /* Name the genome in the caller's terms: the broker names the tag. */
+        const char *t = strstr(text, "tag ");
+        unsigned long long tag = 0;
+        if (t && sscanf(t + 4, "%llu", &tag) == 1 && tag >= b->tag_base &&
+            tag - b->tag_base < (uint64_t)b->n * b->replicates) {
+            uint64_t slot = tag - b->tag_base;
+            return client_fail(cl, FITFARM_ENOTRECORDED,
+                               "replay of run \"%s\": genome %llu, replicate %u of the batch "
+                               "was never recorded by the run; nothing was simulated (%s)",
+                               run->id, (unsigned long long)(slot / b->replicates),
+                               (unsigned)(slot % b->replicates), text);
+        }
         return client_fail(cl, FITFARM_ENOTRECORDED, "replay of run \"%s\": %s", run->id, text);
+    }
     case PROTO_REFUSE_BAD_PARAMS:
         return client_fail(cl, FITFARM_EREFUSED, "the broker refused the params of plugin "
                            "\"%s\": %s", b->plugin, text);

@@ -330,9 +330,13 @@ static void test_broker_over_the_wire(void **state)
     uint64_t lost_job = m->u.jobs.jobs[0].job_id;
     assert_int_equal(m->u.jobs.jobs[0].seed, seed1);
     proto_msg_destroy(&m);
-    /* w1 now says nothing; w2 joins (another build: the pool gets a warning) */
+    /* w3 joins with another build of spin 1.0: it gets no jobs (the first
+     * build is pinned) and the pool gets a warning. */
+    void *w3 = s_dealer(ctx, s_workers_ep);
+    s_hello(w3, "w3", 0xcd, 10);
+    /* w1 now says nothing; w2 joins with w1's build */
     void *w2 = s_dealer(ctx, s_workers_ep);
-    s_hello(w2, "w2", 0xcd, 10);
+    s_hello(w2, "w2", 0xab, 10);
     int64_t joined = s_now_ms();
     proto_msg_t *jobs = NULL;
     deadline = s_now_ms() + 10000;
@@ -360,16 +364,32 @@ static void test_broker_over_the_wire(void **state)
     m = s_expect(w1, PROTO_REHELLO);
     proto_msg_destroy(&m);
 
+    /* w3 (the other build) never got a job */
+    m = s_recv(w3, 200);
+    assert_true(m == NULL || m->type != PROTO_JOBS);
+    proto_msg_destroy(&m);
     m = s_status(client);
-    assert_int_equal(m->u.status.n_workers, 1);
-    assert_string_equal(m->u.status.workers[0].name, "w2");
-    assert_string_equal(m->u.status.workers[0].plugins[0], "spin@1.0");
+    int found_w2 = 0;
+    for (uint32_t i = 0; i < m->u.status.n_workers; i++) {
+        const proto_worker_info_t *wi = &m->u.status.workers[i];
+        if (strcmp(wi->name, "w2") == 0) {
+            found_w2 = 1;
+            assert_int_equal(wi->n_plugins, 1);
+            assert_string_equal(wi->plugins[0], "spin@1.0");
+        } else if (strcmp(wi->name, "w3") == 0) {
+            assert_int_equal(wi->n_plugins, 0); /* carries no plugin the broker uses */
+        }
+    }
+    assert_true(found_w2);
     assert_int_equal(m->u.status.n_warnings, 1);
     assert_string_equal(m->u.status.warnings[0],
-                        "plugin spin 1.0 is reported with two different builds (digests abab…, "
-                        "cdcd…): results may differ bitwise");
+                        "plugin spin 1.0 is reported with two different builds (digests "
+                        "abababababab…, cdcdcdcdcdcd…): results may differ bitwise; only workers "
+                        "with build abababababab… (the first one this store saw) get its jobs. "
+                        "Give a new build a new plugin version.");
     proto_msg_destroy(&m);
 
+    zmq_close(w3);
     zmq_close(w2);
     zmq_close(w1);
     zmq_close(client);
