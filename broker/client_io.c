@@ -78,13 +78,36 @@ static void s_item_key(const broker_plugin_t *plugin, const char *params, uint64
         abort(); /* libsodium cannot initialise: nothing sensible can follow */
 }
 
+/* A recorded no-cache request asked again (resume or replay): it is answered
+ * with its own re-evaluation, not the cached result: from the unacknowledged
+ * delivery when there is one, else from the results history. */
+static void s_redeliver_fresh(broker_t *b, broker_run_t *run, uint64_t tag, broker_eval_t *e)
+{
+    broker_delivery_t *d = broker_table_get(run->unacked, &tag, sizeof tag);
+    if (d && d->eval->fresh) {
+        broker_runs_redeliver(&b->runs, run, tag, d->eval, 0);
+        return;
+    }
+    double fit[PROTO_MAX_OBJECTIVES];
+    uint32_t status = 0, nf = 0;
+    char err[1024];
+    if (!broker_store_find_fresh_result(b->store, run->id, e->key, &status, fit, &nf, err,
+                                        sizeof err)) {
+        broker_runs_redeliver(&b->runs, run, tag, e, 0); /* a store from before the history */
+        return;
+    }
+    broker_eval_t *f = broker_evals_new_fresh_stored(&b->evals, e);
+    broker_eval_set_result(&b->evals, f, status, fit, nf, err);
+    broker_runs_redeliver(&b->runs, run, tag, f, 0);
+}
+
 int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const proto_submit_t *s)
 {
     int rc = 0;
     char *canon = NULL;
     uint8_t(*keys)[PROTO_KEY_BYTES] = NULL;
     uint64_t *seeds = NULL;
-    uint8_t *recorded = NULL; /* per item: 0 new, 1 recorded (answered), 2 recorded cached */
+    uint8_t *recorded = NULL; /* per item: 0 new, 1 recorded, 2 recorded cached, 3 recorded no-cache */
     char text[2048];
     char hex[BROKER_RID_HEX];
 
@@ -164,8 +187,8 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     recorded = common_xcalloc(s->n_items ? s->n_items : 1, 1);
     for (uint32_t i = 0; run && i < s->n_items; i++) {
         uint8_t old[PROTO_KEY_BYTES];
-        int cached = 0;
-        if (!broker_store_find_request(b->store, run->id, s->items[i].tag, old, &cached)) {
+        int cached = 0, fresh = 0;
+        if (!broker_store_find_request(b->store, run->id, s->items[i].tag, old, &cached, &fresh)) {
             if (s->flags & PROTO_SUBMIT_REPLAY)
                 break; /* refused below, naming this request */
             continue;
@@ -182,7 +205,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
             goto cleanup;
         }
-        recorded[i] = (uint8_t)(1 + (cached != 0));
+        recorded[i] = (uint8_t)(fresh ? 3 : 1 + (cached != 0));
     }
     if (s->flags & PROTO_SUBMIT_REPLAY) {
         /* Replay answers only what this run recorded, in the order it was
@@ -227,6 +250,8 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         if (recorded[i] && e) {
             if (e->again && s_waits(e->again, run, it->tag)) {
                 continue; /* a no-cache request still waiting on its re-evaluation */
+            } else if (recorded[i] == 3 && e->state == BROKER_EVAL_DONE) {
+                s_redeliver_fresh(b, run, it->tag, e);
             } else if (e->state == BROKER_EVAL_DONE) {
                 broker_runs_redeliver(&b->runs, run, it->tag, e, recorded[i] == 2);
             } else if (!s_waits(e, run, it->tag)) {

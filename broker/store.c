@@ -71,6 +71,7 @@ enum {
     S_HISTORY,
     S_REQUEST,
     S_FIND_REQUEST,
+    S_FIND_FRESH,
     S_RESULT,
     S_ACK,
     S_PLUGIN,
@@ -91,7 +92,9 @@ static const char *const s_sql[S_COUNT_] = {
                   " ?9, ?10, ?11, ?12, ?13, ?14)",
     [S_REQUEST] = "INSERT OR IGNORE INTO requests(run_id, tag, batch_tag, replicate, key, cached,"
                   " created, fresh) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
-    [S_FIND_REQUEST] = "SELECT key, cached FROM requests WHERE run_id = ?1 AND tag = ?2",
+    [S_FIND_REQUEST] = "SELECT key, cached, fresh FROM requests WHERE run_id = ?1 AND tag = ?2",
+    [S_FIND_FRESH] = "SELECT status, fitness, error FROM results WHERE run_id = ?1 AND key = ?2"
+                     " AND fresh = 1 ORDER BY rowid DESC LIMIT 1",
     [S_RESULT] = "UPDATE evaluations SET status = ?2, status_name = ?3, fitness = ?4,"
                  " fitness_json = ?5, error = ?6, attempts = ?7, worker = ?8, host = ?9,"
                  " arch = ?10, digest = ?11, cpu_seconds = ?12, peak_rss_kb = ?13,"
@@ -290,7 +293,7 @@ void broker_store_note_request(broker_store_t *self, const broker_run_t *run, ui
 }
 
 int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t tag,
-                              uint8_t key[PROTO_KEY_BYTES], int *cached)
+                              uint8_t key[PROTO_KEY_BYTES], int *cached, int *fresh)
 {
     sqlite3_stmt *st = self->stmt[S_FIND_REQUEST];
     sqlite3_bind_text(st, 1, run_id, -1, SQLITE_STATIC);
@@ -299,6 +302,37 @@ int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t
     if (sqlite3_step(st) == SQLITE_ROW && sqlite3_column_bytes(st, 0) == PROTO_KEY_BYTES) {
         memcpy(key, sqlite3_column_blob(st, 0), PROTO_KEY_BYTES);
         *cached = sqlite3_column_int(st, 1);
+        *fresh = sqlite3_column_int(st, 2);
+        found = 1;
+    }
+    sqlite3_reset(st);
+    sqlite3_clear_bindings(st);
+    return found;
+}
+
+int broker_store_find_fresh_result(broker_store_t *self, const char *run_id,
+                                   const uint8_t key[PROTO_KEY_BYTES], uint32_t *status,
+                                   double *fitness, uint32_t *n_fitness, char *err, size_t errlen)
+{
+    sqlite3_stmt *st = self->stmt[S_FIND_FRESH];
+    sqlite3_bind_text(st, 1, run_id, -1, SQLITE_STATIC);
+    sqlite3_bind_blob(st, 2, key, PROTO_KEY_BYTES, SQLITE_STATIC);
+    int found = 0;
+    if (sqlite3_step(st) == SQLITE_ROW) {
+        *status = (uint32_t)sqlite3_column_int(st, 0);
+        const uint8_t *le = sqlite3_column_blob(st, 1);
+        uint32_t nf = (uint32_t)(sqlite3_column_bytes(st, 1) / 8);
+        if (nf > PROTO_MAX_OBJECTIVES)
+            nf = PROTO_MAX_OBJECTIVES;
+        for (uint32_t i = 0; i < nf; i++) {
+            uint64_t bits = 0;
+            for (int k = 0; k < 8; k++)
+                bits |= (uint64_t)le[i * 8 + (uint32_t)k] << (8 * k);
+            memcpy(&fitness[i], &bits, 8);
+        }
+        *n_fitness = nf;
+        const char *e = (const char *)sqlite3_column_text(st, 2);
+        snprintf(err, errlen, "%s", e ? e : "");
         found = 1;
     }
     sqlite3_reset(st);

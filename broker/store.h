@@ -51,10 +51,17 @@ void broker_store_note_eval(broker_store_t *self, const broker_eval_t *e);
 void broker_store_note_request(broker_store_t *self, const broker_run_t *run, uint64_t tag,
                                uint64_t batch_tag, uint32_t replicate, const broker_eval_t *e,
                                int cached);
-/* Looks up request (run_id, tag). Returns 1 and fills key and *cached when it
- * is recorded, 0 when not. */
+/* Looks up request (run_id, tag). Returns 1 and fills key, *cached and *fresh
+ * (1: a no-cache request) when it is recorded, 0 when not. */
 int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t tag,
-                              uint8_t key[PROTO_KEY_BYTES], int *cached);
+                              uint8_t key[PROTO_KEY_BYTES], int *cached, int *fresh);
+/* The latest re-evaluation result of key paid for by run_id (results history,
+ * fresh = 1). Returns 1 and fills *status, fitness[0..*n_fitness) (at most
+ * PROTO_MAX_OBJECTIVES) and err (NUL-terminated, truncated to errlen) when
+ * there is one, 0 when not. */
+int broker_store_find_fresh_result(broker_store_t *self, const char *run_id,
+                                   const uint8_t key[PROTO_KEY_BYTES], uint32_t *status,
+                                   double *fitness, uint32_t *n_fitness, char *err, size_t errlen);
 /* e is DONE: records its result. o and worker may be NULL (not from a worker). */
 void broker_store_note_result(broker_store_t *self, const broker_eval_t *e,
                               const proto_outcome_t *o, const char *worker, const char *host,

@@ -123,6 +123,7 @@ with fflib.Pool(log_prefix="kill") as pool:
     p.stdin.write(text)
     p.stdin.close()
     time.sleep(1.0)
+    check.ok(p.poll() is None, "the run was still going when the worker was killed")
     pool.kill(victim)
     out_text = p.stdout.read()
     p.wait(timeout=300)
@@ -197,7 +198,8 @@ with fflib.Pool(log_prefix="cache") as pool:
     check.ok(runs["mix"]["evaluated"] == 50, f"replay simulated nothing: {runs['mix']}")
 
     # 5. --no-cache evaluates again and keeps both results
-    rc, nc, _ = fflib.run_eval(ep + sphere + ["--run", "again", "--no-cache"], fflib.jsonl(det[:10]))
+    again_args = ep + sphere + ["--run", "again", "--no-cache"]
+    rc, nc, _ = fflib.run_eval(again_args, fflib.jsonl(det[:10]))
     check.ok(rc == 0 and not any(r["cached"] for r in nc) and bits(nc) == bits(a[:10]),
              "--no-cache: evaluated again, same bits")
     db = sqlite3.connect(f"file:{os.path.join(pool.store, 'fitfarm.db')}?mode=ro", uri=True)
@@ -231,10 +233,21 @@ with fflib.Pool(log_prefix="cache") as pool:
         ok &= np.allclose(summ["std"], np.std(reps, axis=0, ddof=1), rtol=1e-12, atol=1e-300)
     check.ok(ok, "--aggregate mean: numpy mean and sample std (ddof=1)")
 
-    # 2b. after a broker restart the cache still answers, flagged cached
+    # 2b. after a broker restart the cache still answers, flagged cached.
+    # While it is down, mark the no-cache run's own results (a white-box edit
+    # of the history) so that its replay shows which result it reads.
     pool.kill(pool.broker, signal.SIGTERM)
+    db = sqlite3.connect(os.path.join(pool.store, "fitfarm.db"))
+    db.execute("UPDATE results SET fitness = ? WHERE run_id = 'again' AND fresh = 1",
+               (struct.pack("<d", 123.5),))
+    db.commit()
+    db.close()
     pool.start_broker()
     pool.wait_workers(1)
+    replay_args = [a for a in again_args if a != "--no-cache"] + ["--replay"]
+    rc, ra, err = fflib.run_eval(replay_args, fflib.jsonl(det[:10]))
+    check.ok(rc == 0 and len(ra) == 10 and all(r["fitness"] == [123.5] and not r["cached"] for r in ra),
+             f"replay of a --no-cache run reads its own re-evaluations: {ra[:1]} {err[-300:]}")
     rc, c, _ = fflib.run_eval(ep + sphere + ["--run", "det-c"], det_text)
     check.ok(rc == 0 and all(r["cached"] for r in c) and bits(c) == bits(a),
              "after a broker restart: answered from the store, cached true")
