@@ -10,6 +10,40 @@
 #include "common/alloc.h"
 #include "common/log.h"
 #include "key.h"
+#include "params.h"
+
+static void s_free_seed_params(broker_plugin_t *p)
+{
+    for (uint32_t i = 0; i < p->n_seed_params; i++)
+        free(p->seed_params[i]);
+    free(p->seed_params);
+    p->seed_params = NULL;
+    p->n_seed_params = 0;
+}
+
+static int s_same_seed_params(const broker_plugin_t *p, const proto_plugin_info_t *info)
+{
+    if (p->n_seed_params != info->n_seed_params)
+        return 0;
+    for (uint32_t i = 0; i < p->n_seed_params; i++)
+        if (strcmp(p->seed_params[i], info->seed_params[i]) != 0)
+            return 0;
+    return 1;
+}
+
+/* Takes the list from a report. The store loader reports a NULL list with a
+ * count of UINT32_MAX for "not recorded" (a store older than the list). */
+static void s_take_seed_params(broker_plugin_t *p, const proto_plugin_info_t *info)
+{
+    s_free_seed_params(p);
+    p->seed_params_known = info->n_seed_params != UINT32_MAX;
+    if (!p->seed_params_known || info->n_seed_params == 0)
+        return;
+    p->seed_params = common_xcalloc(info->n_seed_params, sizeof *p->seed_params);
+    for (uint32_t i = 0; i < info->n_seed_params; i++)
+        p->seed_params[i] = common_xstrdup(info->seed_params[i]);
+    p->n_seed_params = info->n_seed_params;
+}
 
 void broker_catalog_init(broker_catalog_t *self)
 {
@@ -23,6 +57,7 @@ void broker_catalog_fini(broker_catalog_t *self)
         free(self->list[i]->name);
         free(self->list[i]->version);
         free(self->list[i]->other_version);
+        s_free_seed_params(self->list[i]);
         free(self->list[i]);
     }
     free(self->list);
@@ -35,9 +70,11 @@ broker_plugin_t *broker_catalog_get(const broker_catalog_t *self, const char *na
     return broker_table_get(self->by_name, name, strlen(name));
 }
 
-int broker_plugin_stochastic(const broker_plugin_t *plugin)
+int broker_plugin_stochastic(const broker_plugin_t *plugin, const char *canonical_params)
 {
-    return !(plugin->flags & PROTO_PLUGIN_DETERMINISTIC);
+    if (plugin->flags & PROTO_PLUGIN_DETERMINISTIC)
+        return 0;
+    return !proto_params_all_zero(canonical_params, plugin->seed_params, plugin->n_seed_params);
 }
 
 broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugin_info_t *info)
@@ -50,6 +87,7 @@ broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugi
         p->version = common_xstrdup(info->version);
         p->objectives = info->objectives;
         p->flags = info->flags;
+        s_take_seed_params(p, info);
         if (self->n == self->cap) {
             self->cap = self->cap ? self->cap * 2 : 8;
             self->list = common_xrealloc(self->list, self->cap, sizeof *self->list);
@@ -69,6 +107,11 @@ broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugi
     if (p->flags != info->flags)
         LOG_WARN("plugin %s %s is reported with flags %u and %u; keeping %u", p->name,
                  p->version, p->flags, info->flags, p->flags);
+    if (p->seed_params_known && info->n_seed_params != UINT32_MAX &&
+        !s_same_seed_params(p, info))
+        LOG_WARN("plugin %s %s is reported with another list of seed params (%u names, "
+                 "first %u); keeping the first",
+                 p->name, p->version, info->n_seed_params, p->n_seed_params);
     int seen = 0;
     for (uint32_t i = 0; i < p->n_digests; i++)
         seen |= memcmp(p->digests[i], info->digest, PROTO_DIGEST_BYTES) == 0;
@@ -85,6 +128,9 @@ broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugi
     /* One build per name and version (see the top of catalog.h). */
     if (p->n_digests > 0 && memcmp(p->digests[0], info->digest, PROTO_DIGEST_BYTES) != 0)
         return NULL;
+    /* Only the pinned build may fill a list the store did not record. */
+    if (!p->seed_params_known)
+        s_take_seed_params(p, info);
     return p;
 }
 

@@ -32,6 +32,13 @@ typedef struct {
     uint32_t flags; /* PROTO_PLUGIN_* */
     uint8_t digests[BROKER_CATALOG_MAX_DIGESTS][PROTO_DIGEST_BYTES];
     uint32_t n_digests;
+    /* The plugin's seed params (msg.h proto_plugin_info_t): a request whose
+     * params give each of them as 0 is keyed without the seed. First report
+     * wins, like flags; seed_params_known is 0 for an entry reloaded from a
+     * store that predates the list, which the next HELLO then fills. */
+    char **seed_params;
+    uint32_t n_seed_params;
+    int seed_params_known;
     char *other_version; /* a different version seen for this name, or NULL */
     uint32_t carriers;   /* connected workers that carry it */
 } broker_plugin_t;
@@ -47,7 +54,8 @@ void broker_catalog_fini(broker_catalog_t *self);
 
 /* Borrowed entry for name, valid until fini; NULL if never seen. */
 broker_plugin_t *broker_catalog_get(const broker_catalog_t *self, const char *name);
-/* Records one plugin from a HELLO. Returns the entry the worker may take jobs
+/* Records one plugin from a HELLO (or the store: there info->n_seed_params
+ * UINT32_MAX means the list was not recorded). Returns the entry the worker may take jobs
  * for, or NULL when it reports another version than the catalog's or another
  * build than the pinned one (that worker must not get jobs keyed to them). */
 broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugin_info_t *info);
@@ -56,7 +64,9 @@ void broker_catalog_names(const broker_catalog_t *self, char *out, size_t outlen
 /* Appends warnings (malloc'd strings, caller frees each and the array) about
  * mixed builds and versions. Returns the new count. */
 uint32_t broker_catalog_warnings(const broker_catalog_t *self, char ***warnings, uint32_t n);
-/* 1 when the seed is part of the key. */
-int broker_plugin_stochastic(const broker_plugin_t *plugin);
+/* 1 when the seed is part of the key of a request with these canonical
+ * params: the plugin is not deterministic, and its seed params are not all
+ * given as 0 (proto_params_all_zero). */
+int broker_plugin_stochastic(const broker_plugin_t *plugin, const char *canonical_params);
 
 #endif

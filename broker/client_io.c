@@ -58,10 +58,13 @@ static void s_queue_accept(broker_t *b, const uint8_t *rid, size_t rid_len, brok
     a->n_accepted = n;
 }
 
-/* Seed and key of one item, recomputed here: the client's word is not taken. */
-static void s_item_key(const broker_plugin_t *plugin, const char *params, uint64_t run_seed,
-                       uint32_t seed_mode, const proto_item_t *it, uint64_t *seed,
-                       uint8_t key[PROTO_KEY_BYTES])
+/* Seed and key of one item, recomputed here: the client's word is not taken.
+ * stochastic is broker_plugin_stochastic for these params (once per SUBMIT:
+ * it parses the params). The seed is derived either way: the worker gets it
+ * and the result reports it, even when the key leaves it out. */
+static void s_item_key(const broker_plugin_t *plugin, const char *params, int stochastic,
+                       uint64_t run_seed, uint32_t seed_mode, const proto_item_t *it,
+                       uint64_t *seed, uint8_t key[PROTO_KEY_BYTES])
 {
     *seed = proto_seed_derive(run_seed, (int)seed_mode, it->genome, it->genome_len, it->replicate);
     proto_key_input_t in = {
@@ -70,7 +73,7 @@ static void s_item_key(const broker_plugin_t *plugin, const char *params, uint64
         .params = params,
         .genome = it->genome,
         .genome_len = it->genome_len,
-        .stochastic = broker_plugin_stochastic(plugin),
+        .stochastic = stochastic,
         .seed = *seed,
         .digest = NULL,
     };
@@ -179,8 +182,10 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     /* Keys first, so a replay can be refused before anything changes. */
     keys = common_xcalloc(s->n_items ? s->n_items : 1, sizeof *keys);
     seeds = common_xcalloc(s->n_items ? s->n_items : 1, sizeof *seeds);
+    int stochastic = broker_plugin_stochastic(plugin, canon);
     for (uint32_t i = 0; i < s->n_items; i++)
-        s_item_key(plugin, canon, s->run_seed, s->seed_mode, &s->items[i], &seeds[i], keys[i]);
+        s_item_key(plugin, canon, stochastic, s->run_seed, s->seed_mode, &s->items[i], &seeds[i],
+                   keys[i]);
     /* Request identity is (run, tag): a tag the store already holds must ask
      * for the same key (a resumed client re-sends the same requests); it is
      * then answered from the record, never evaluated again. */

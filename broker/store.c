@@ -17,6 +17,7 @@
 
 #include <errno.h>
 #include <inttypes.h>
+#include <jansson.h>
 #include <sqlite3.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -61,7 +62,8 @@ static const char s_schema[] =
     "CREATE INDEX IF NOT EXISTS results_by_run ON results(run_id, key);"
     "CREATE TABLE IF NOT EXISTS plugins("
     " name TEXT PRIMARY KEY, version TEXT NOT NULL, objectives INTEGER NOT NULL,"
-    " flags INTEGER NOT NULL, digests BLOB NOT NULL, last_seen REAL NOT NULL);";
+    " flags INTEGER NOT NULL, digests BLOB NOT NULL, last_seen REAL NOT NULL,"
+    " seed_params TEXT);";
 
 enum {
     S_BEGIN,
@@ -100,9 +102,10 @@ static const char *const s_sql[S_COUNT_] = {
                  " arch = ?10, digest = ?11, cpu_seconds = ?12, peak_rss_kb = ?13,"
                  " finished_at = ?14 WHERE key = ?1",
     [S_ACK] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag = ?2",
-    [S_PLUGIN] = "INSERT INTO plugins(name, version, objectives, flags, digests, last_seen)"
-                 " VALUES(?1, ?2, ?3, ?4, ?5, ?6) ON CONFLICT(name) DO UPDATE SET"
-                 " version = ?2, objectives = ?3, flags = ?4, digests = ?5, last_seen = ?6",
+    [S_PLUGIN] = "INSERT INTO plugins(name, version, objectives, flags, digests, last_seen,"
+                 " seed_params) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7) ON CONFLICT(name) DO UPDATE"
+                 " SET version = ?2, objectives = ?3, flags = ?4, digests = ?5, last_seen = ?6,"
+                 " seed_params = ?7",
 };
 
 struct broker_store {
@@ -188,6 +191,12 @@ broker_store_t *broker_store_open(const char *dir)
     if (sqlite3_exec(self->db, "SELECT fresh FROM requests LIMIT 0", NULL, NULL, NULL) !=
             SQLITE_OK &&
         s_exec(self, "ALTER TABLE requests ADD COLUMN fresh INTEGER NOT NULL DEFAULT 0") != 0)
+        goto fail;
+    /* Stores made before plugins listed seed params lack plugins.seed_params
+     * (NULL there means "not recorded": the next HELLO fills it). */
+    if (sqlite3_exec(self->db, "SELECT seed_params FROM plugins LIMIT 0", NULL, NULL, NULL) !=
+            SQLITE_OK &&
+        s_exec(self, "ALTER TABLE plugins ADD COLUMN seed_params TEXT") != 0)
         goto fail;
     for (int i = 0; i < S_COUNT_; i++) {
         if (sqlite3_prepare_v3(self->db, s_sql[i], -1, SQLITE_PREPARE_PERSISTENT, &self->stmt[i],
@@ -441,6 +450,21 @@ void broker_store_note_plugin(broker_store_t *self, const broker_plugin_t *p)
     sqlite3_bind_blob(st, 5, p->digests, (int)(p->n_digests * PROTO_DIGEST_BYTES),
                       SQLITE_STATIC);
     sqlite3_bind_double(st, 6, s_now());
+    /* seed params as a JSON array of names; NULL while not known */
+    char *seeds = NULL;
+    if (p->seed_params_known) {
+        json_t *a = json_array();
+        for (uint32_t i = 0; a && i < p->n_seed_params; i++)
+            json_array_append_new(a, json_string(p->seed_params[i]));
+        /* out of memory gives NULL: recorded as not known, refilled by a HELLO */
+        seeds = a ? json_dumps(a, JSON_COMPACT) : NULL;
+        json_decref(a);
+    }
+    if (seeds)
+        sqlite3_bind_text(st, 7, seeds, -1, SQLITE_TRANSIENT);
+    else
+        sqlite3_bind_null(st, 7);
+    free(seeds);
     s_step(self, S_PLUGIN);
 }
 

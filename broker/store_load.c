@@ -7,6 +7,7 @@
  * answered but not acknowledged go to their run's unacked set, so they are
  * re-sent when the client comes back. Owns nothing after it returns. */
 #include <inttypes.h>
+#include <jansson.h>
 #include <sqlite3.h>
 #include <stdio.h>
 #include <string.h>
@@ -25,15 +26,48 @@ static uint64_t s_u64(sqlite3_stmt *st, int col)
     return (uint64_t)sqlite3_column_int64(st, col);
 }
 
+/* plugins.seed_params: a JSON array of at most PROTO_MAX_SEED_PARAMS names,
+ * or NULL (a store older than the list). Anything else is reported as not
+ * recorded (count UINT32_MAX, catalog.c), so the next HELLO fills it, rather
+ * than as "none", which would key requests with the seed for good. Returns
+ * the parsed array (caller decrefs) or NULL. */
+static json_t *s_seed_params(sqlite3_stmt *st, int col, const char *plugin,
+                             proto_plugin_info_t *info, char **names)
+{
+    info->n_seed_params = UINT32_MAX;
+    const char *text = (const char *)sqlite3_column_text(st, col);
+    if (!text)
+        return NULL;
+    json_t *a = json_loads(text, 0, NULL);
+    size_t n = json_array_size(a);
+    int ok = json_is_array(a) && n <= PROTO_MAX_SEED_PARAMS;
+    for (size_t i = 0; ok && i < n; i++) {
+        names[i] = (char *)json_string_value(json_array_get(a, i));
+        ok = names[i] != NULL;
+    }
+    if (!ok) {
+        LOG_WARN("store: plugin %s has unreadable seed params %.64s; waiting for a worker's",
+                 plugin, text);
+        json_decref(a);
+        return NULL;
+    }
+    info->n_seed_params = (uint32_t)n;
+    info->seed_params = n ? names : NULL;
+    return a;
+}
+
 static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
 {
     sqlite3_stmt *st = NULL;
-    if (sqlite3_prepare_v2(db, "SELECT name, version, objectives, flags, digests FROM plugins",
+    if (sqlite3_prepare_v2(db,
+                           "SELECT name, version, objectives, flags, digests, seed_params"
+                           " FROM plugins",
                            -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "plugins");
     while (sqlite3_step(st) == SQLITE_ROW) {
         proto_plugin_info_t info;
         memset(&info, 0, sizeof info);
+        char *names[PROTO_MAX_SEED_PARAMS];
         info.name = (char *)sqlite3_column_text(st, 0);
         info.version = (char *)sqlite3_column_text(st, 1);
         info.objectives = (uint32_t)sqlite3_column_int64(st, 2);
@@ -42,11 +76,13 @@ static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
         int nd = sqlite3_column_bytes(st, 4) / PROTO_DIGEST_BYTES;
         if (!info.name || !info.version)
             continue;
+        json_t *seeds = s_seed_params(st, 5, info.name, &info, names);
         for (int i = 0; i < (nd > 0 ? nd : 1); i++) {
             if (nd > 0)
                 memcpy(info.digest, d + (size_t)i * PROTO_DIGEST_BYTES, PROTO_DIGEST_BYTES);
             broker_catalog_report(&b->catalog, &info);
         }
+        json_decref(seeds);
         (*n)++;
     }
     sqlite3_finalize(st);

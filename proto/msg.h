@@ -194,13 +194,20 @@ typedef struct {
 /* Plugin flags reported in HELLO. */
 #define PROTO_PLUGIN_DETERMINISTIC 0x1u
 
-/* [name str, version str, objectives uint, flags uint, digest bin(32)] */
+/* [name str, version str, objectives uint, flags uint, digest bin(32),
+ *  seed_params array of str]
+ * seed_params: the plugin's fitfarm_plugin_seed_params, at most
+ * PROTO_MAX_SEED_PARAMS names of at most name_bytes each; empty when none.
+ * A stochastic plugin's request whose canonical params hold every listed name
+ * with the number 0 is keyed without the seed (proto_params_all_zero). */
 typedef struct {
     char *name;
     char *version;
     uint32_t objectives; /* default number of objectives (params may change it) */
     uint32_t flags;      /* PROTO_PLUGIN_* */
     uint8_t digest[PROTO_DIGEST_BYTES]; /* BLAKE2b-256 of the shared object file */
+    uint32_t n_seed_params;
+    char **seed_params; /* NULL when n_seed_params is 0 */
 } proto_plugin_info_t;
 
 /* [v, HELLO, name str, host str, arch str, slots uint, plugins array] */

@@ -180,12 +180,16 @@ static int s_pack_hello(msgpack_packer *pk, const proto_hello_t *h)
     PACK(msgpack_pack_array(pk, h->n_plugins));
     for (uint32_t i = 0; i < h->n_plugins; i++) {
         const proto_plugin_info_t *p = &h->plugins[i];
-        PACK(msgpack_pack_array(pk, 5));
+        REQUIRE(p->seed_params || p->n_seed_params == 0);
+        PACK(msgpack_pack_array(pk, 6));
         STR(p->name);
         STR(p->version);
         U64(p->objectives);
         U64(p->flags);
         BIN(p->digest, PROTO_DIGEST_BYTES);
+        PACK(msgpack_pack_array(pk, p->n_seed_params));
+        for (uint32_t j = 0; j < p->n_seed_params; j++)
+            STR(p->seed_params[j]);
     }
 cleanup:
     return rc;

@@ -98,6 +98,10 @@ void proto_msg_destroy(proto_msg_t **msg_p)
             for (uint32_t i = 0; i < h->n_plugins; i++) {
                 free(h->plugins[i].name);
                 free(h->plugins[i].version);
+                if (h->plugins[i].seed_params)
+                    for (uint32_t j = 0; j < h->plugins[i].n_seed_params; j++)
+                        free(h->plugins[i].seed_params[j]);
+                free(h->plugins[i].seed_params);
             }
         free(h->plugins);
         break;

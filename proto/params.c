@@ -1,5 +1,5 @@
-/* params.c: plugin parameters in canonical JSON (jansson), and round-trip
- * printing of doubles.
+/* params.c: plugin parameters in canonical JSON (jansson), round-trip
+ * printing of doubles, and the all-zero test of seed params.
  *
  * Canonical form, chosen so that equal parameters give equal bytes and hence
  * equal content keys: a JSON object, dumped with JSON_COMPACT (no spaces),
@@ -105,4 +105,27 @@ int proto_format_double(double v, char out[32])
      * 5.12.2); the longest output, e.g. "-2.2250738585072014e-308", is 24. */
     int n = snprintf(out, 32, "%.17g", v);
     return n;
+}
+
+int proto_params_all_zero(const char *canonical_json, char *const *names, uint32_t n)
+{
+    int all = 0;
+    json_t *root = NULL;
+    if (n == 0 || !names || !canonical_json)
+        goto cleanup;
+    size_t len = strnlen(canonical_json, S_MAX_INPUT_BYTES + 1);
+    if (len > S_MAX_INPUT_BYTES)
+        goto cleanup;
+    root = json_loadb(canonical_json, len, JSON_REJECT_DUPLICATES, NULL);
+    if (!json_is_object(root))
+        goto cleanup;
+    all = 1;
+    for (uint32_t i = 0; i < n && all; i++) {
+        const json_t *v = names[i] ? json_object_get(root, names[i]) : NULL;
+        /* json_number_value reads integers and reals alike; -0.0 == 0 */
+        all = json_is_number(v) && json_number_value(v) == 0.0;
+    }
+cleanup:
+    json_decref(root);
+    return all;
 }

@@ -134,6 +134,8 @@ static void s_register(s_worker_t *self)
         infos[i].flags =
             (p->plugin->flags & FITFARM_PLUGIN_DETERMINISTIC) ? PROTO_PLUGIN_DETERMINISTIC : 0;
         memcpy(infos[i].digest, p->digest, PROTO_DIGEST_BYTES);
+        infos[i].n_seed_params = p->n_seed_params;
+        infos[i].seed_params = (char **)p->seed_params;
     }
     proto_msg_t msg = {.type = PROTO_HELLO};
     msg.u.hello.name = self->name;

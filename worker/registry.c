@@ -117,10 +117,72 @@ static void s_log_loaded(const worker_plugin_t *e)
 {
     char hex[2 * PROTO_DIGEST_BYTES + 1];
     proto_hex(e->digest, PROTO_DIGEST_BYTES, hex);
-    LOG_INFO("plugin %s %s (%u objectives, %s) from %s, digest %.16s", e->plugin->name,
+    char seeds[FITFARM_PLUGIN_MAX_SEED_PARAMS * (FITFARM_PLUGIN_MAX_SEED_PARAM_CHARS + 2) + 64] = "";
+    size_t used = 0;
+    for (uint32_t i = 0; i < e->n_seed_params; i++)
+        used += (size_t)snprintf(seeds + used, sizeof seeds - used, "%s%s",
+                                 i ? ", " : "; deterministic when 0: ", e->seed_params[i]);
+    LOG_INFO("plugin %s %s (%u objectives, %s%s) from %s, digest %.16s", e->plugin->name,
              e->plugin->version, e->plugin->objectives,
              (e->plugin->flags & FITFARM_PLUGIN_DETERMINISTIC) ? "deterministic" : "stochastic",
-             e->origin, hex);
+             seeds, e->origin, hex);
+}
+
+/* The optional seed params list (fitfarm_plugin.h): at most
+ * FITFARM_PLUGIN_MAX_SEED_PARAMS names of 1..FITFARM_PLUGIN_MAX_SEED_PARAM_CHARS
+ * characters of [a-z0-9_], no name twice. The list is read with bounded
+ * scans, so a list without its NULL terminator or a name without its NUL is
+ * caught at the bound (the memory is the plugin's own data). Anything else
+ * refuses the plugin: a wrong list would key requests without a seed that
+ * they depend on. Returns 0 (e filled, or left empty when not exported) or
+ * -1 with a sentence in err. */
+static int s_seed_params(void *dl, const char *plugin, worker_plugin_t *e, char *err,
+                         size_t errlen)
+{
+    dlerror();
+    void *sym = dlsym(dl, FITFARM_PLUGIN_SEED_PARAMS_SYMBOL);
+    if (!sym)
+        return 0;
+    const char *const *list = *(const char *const *const *)sym;
+    if (!list) {
+        snprintf(err, errlen, "plugin %s: %s is a NULL pointer (do not export it, or point it at "
+                 "a NULL-terminated list)", plugin, FITFARM_PLUGIN_SEED_PARAMS_SYMBOL);
+        return -1;
+    }
+    uint32_t n = 0;
+    for (; list[n]; n++) {
+        if (n == FITFARM_PLUGIN_MAX_SEED_PARAMS) {
+            snprintf(err, errlen, "plugin %s: %s lists more than %d names (or lacks its NULL "
+                     "terminator)", plugin, FITFARM_PLUGIN_SEED_PARAMS_SYMBOL,
+                     FITFARM_PLUGIN_MAX_SEED_PARAMS);
+            return -1;
+        }
+        const char *name = list[n];
+        size_t len = strnlen(name, FITFARM_PLUGIN_MAX_SEED_PARAM_CHARS + 1);
+        if (len == 0 || len > FITFARM_PLUGIN_MAX_SEED_PARAM_CHARS) {
+            snprintf(err, errlen, "plugin %s: %s name %u is %s; names are 1 to %d characters",
+                     plugin, FITFARM_PLUGIN_SEED_PARAMS_SYMBOL, (unsigned)n,
+                     len ? "too long" : "empty", FITFARM_PLUGIN_MAX_SEED_PARAM_CHARS);
+            return -1;
+        }
+        for (size_t i = 0; i < len; i++) {
+            char c = name[i];
+            if (!((c >= 'a' && c <= 'z') || (c >= '0' && c <= '9') || c == '_')) {
+                snprintf(err, errlen, "plugin %s: %s name \"%.64s\" has a character outside "
+                         "[a-z0-9_]", plugin, FITFARM_PLUGIN_SEED_PARAMS_SYMBOL, name);
+                return -1;
+            }
+        }
+        for (uint32_t j = 0; j < n; j++)
+            if (strcmp(list[j], name) == 0) {
+                snprintf(err, errlen, "plugin %s: %s lists \"%s\" twice", plugin,
+                         FITFARM_PLUGIN_SEED_PARAMS_SYMBOL, name);
+                return -1;
+            }
+    }
+    e->seed_params = n ? list : NULL;
+    e->n_seed_params = n;
+    return 0;
 }
 
 int worker_registry_load_file(worker_registry_t *self, const char *path, char *err,
@@ -151,7 +213,10 @@ int worker_registry_load_file(worker_registry_t *self, const char *path, char *e
                  plugin->name, dup->origin);
         goto cleanup;
     }
-    worker_plugin_t e = {.plugin = plugin, .dl = dl, .origin = common_xstrdup(path)};
+    worker_plugin_t e = {.plugin = plugin, .dl = dl};
+    if (s_seed_params(dl, plugin->name, &e, err, errlen) != 0)
+        goto cleanup;
+    e.origin = common_xstrdup(path);
     if (proto_digest_file(path, e.digest) != 0) {
         snprintf(err, errlen, "cannot read the file to digest it");
         free(e.origin);

@@ -21,6 +21,10 @@ typedef struct {
     char *origin; /* the file it came from, or "exec:NAME" */
     void *dl;     /* dlopen handle; NULL for an exec plugin */
     int exec;     /* nonzero: release with worker_exec_plugin_destroy */
+    /* fitfarm_plugin_seed_params, checked; borrowed from the shared object.
+     * NULL and 0 when the plugin exports none. */
+    const char *const *seed_params;
+    uint32_t n_seed_params;
 } worker_plugin_t;
 
 typedef struct worker_registry worker_registry_t;

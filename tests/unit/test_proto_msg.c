@@ -93,6 +93,7 @@ static uint64_t s_tags[] = {0, 1, 127, 128, 255, 256, 65535, 65536, UINT32_MAX,
                             (uint64_t)UINT32_MAX + 1, UINT64_MAX};
 static char *s_plugins_a[] = {"zdt1@1.0", "granular@2.3"};
 static char *s_warnings[] = {"two builds of zdt1@1.0 in the pool", ""};
+static char *s_seed_params[] = {"scatter_radius", "jitter"};
 
 static proto_msg_t s_sample(uint32_t type)
 {
@@ -155,7 +156,8 @@ static proto_msg_t s_sample(uint32_t type)
                                          .flags = PROTO_PLUGIN_DETERMINISTIC};
         memset(pinfo[0].digest, 0xab, PROTO_DIGEST_BYTES);
         pinfo[1] = (proto_plugin_info_t){.name = "granular", .version = "2.3",
-                                         .objectives = PROTO_MAX_OBJECTIVES, .flags = 0};
+                                         .objectives = PROTO_MAX_OBJECTIVES, .flags = 0,
+                                         .n_seed_params = 2, .seed_params = s_seed_params};
         m.u.hello = (proto_hello_t){.name = "w1", .host = "lab-3", .arch = "x86_64",
                                     .slots = UINT32_MAX, .n_plugins = 2, .plugins = pinfo};
         break;
@@ -332,6 +334,11 @@ static void test_decoded_fields(void **state)
     assert_int_equal(d->u.hello.plugins[0].flags, PROTO_PLUGIN_DETERMINISTIC);
     assert_int_equal(d->u.hello.plugins[0].digest[31], 0xab);
     assert_int_equal(d->u.hello.slots, UINT32_MAX);
+    assert_int_equal(d->u.hello.plugins[0].n_seed_params, 0);
+    assert_null(d->u.hello.plugins[0].seed_params);
+    assert_int_equal(d->u.hello.plugins[1].n_seed_params, 2);
+    assert_string_equal(d->u.hello.plugins[1].seed_params[0], "scatter_radius");
+    assert_string_equal(d->u.hello.plugins[1].seed_params[1], "jitter");
     proto_msg_destroy(&d);
 }
 
@@ -645,6 +652,71 @@ static void test_mistyped_fields(void **state)
     s_expect_refused(s4, sizeof s4, NULL, PROTO_ETYPE, "SUBMIT.items: map, expected array");
 }
 
+/* HELLO plugin info, written by hand from the MessagePack spec: its sixth
+ * element, seed_params, must be an array of at most PROTO_MAX_SEED_PARAMS
+ * str; the five-element form of before is refused by count. */
+static size_t s_hello_head(uint8_t *b, uint8_t info_header)
+{
+    size_t n = 0;
+    b[n++] = 0x97; /* fixarray, 7: version, type, name, host, arch, slots, plugins */
+    b[n++] = 0x01, b[n++] = 0x14; /* version 1, type 20 = HELLO */
+    b[n++] = 0xa1, b[n++] = 'w', b[n++] = 0xa1, b[n++] = 'h', b[n++] = 0xa1, b[n++] = 'a';
+    b[n++] = 0x01; /* slots 1 */
+    b[n++] = 0x91; /* fixarray, 1 plugin */
+    b[n++] = info_header;
+    b[n++] = 0xa1, b[n++] = 'p', b[n++] = 0xa1, b[n++] = '1'; /* name, version */
+    b[n++] = 0x01, b[n++] = 0x00;                             /* objectives 1, flags 0 */
+    b[n++] = 0xc4, b[n++] = 0x20; /* bin 8 of 32 bytes: digest */
+    for (int i = 0; i < 32; i++)
+        b[n++] = 0x11;
+    return n;
+}
+
+static void test_hello_seed_params(void **state)
+{
+    (void)state;
+    uint8_t b[256];
+    size_t n = s_hello_head(b, 0x96);
+    b[n++] = 0x92, b[n++] = 0xa1, b[n++] = 'x', b[n++] = 0xa1, b[n++] = 'y'; /* ["x", "y"] */
+    proto_msg_t *d = NULL;
+    proto_err_t err;
+    if (proto_msg_decode(b, n, NULL, &d, &err) != PROTO_OK)
+        fail_msg("valid HELLO refused: %s", err.text);
+    assert_int_equal(d->u.hello.plugins[0].n_seed_params, 2);
+    assert_string_equal(d->u.hello.plugins[0].seed_params[1], "y");
+    proto_msg_destroy(&d);
+
+    n = s_hello_head(b, 0x96);
+    b[n++] = 0xa1, b[n++] = 'x'; /* a str where the array belongs */
+    s_expect_refused(b, n, NULL, PROTO_ETYPE, "HELLO.plugins[0].seed_params: str, expected array");
+    n = s_hello_head(b, 0x96);
+    b[n++] = 0x91, b[n++] = 0x00; /* [0]: a uint where a name belongs */
+    s_expect_refused(b, n, NULL, PROTO_ETYPE, "HELLO.plugins[0].seed_params[0]: uint, expected str");
+    n = s_hello_head(b, 0x96);
+    b[n++] = 0xdc, b[n++] = 0x00, b[n++] = 17; /* array 16 of 17 names */
+    for (int i = 0; i < 17; i++)
+        b[n++] = 0xa1, b[n++] = (uint8_t)('a' + i);
+    s_expect_refused(b, n, NULL, PROTO_ELIMIT, "HELLO.plugins[0].seed_params: 17 elements, limit 16");
+    n = s_hello_head(b, 0x96);
+    b[n++] = 0x91, b[n++] = 0xa5, b[n++] = 'a', b[n++] = 'b', b[n++] = 'c', b[n++] = 'd', b[n++] = 'e';
+    proto_limits_t lim = proto_limits_default();
+    lim.name_bytes = 4;
+    s_expect_refused(b, n, &lim, PROTO_ELIMIT, "seed_params[0]: 5 bytes, limit 4");
+    n = s_hello_head(b, 0x95); /* the old five-element form */
+    b[n++] = 0x00;             /* a spare byte, so the count is what is refused */
+    s_expect_refused(b, n, NULL, PROTO_ECOUNT, "HELLO.plugins[0]: 5 elements, expected 6");
+    /* the encoder refuses a count without names */
+    proto_msg_t m = s_sample(PROTO_HELLO);
+    proto_plugin_info_t pi = m.u.hello.plugins[1];
+    pi.seed_params = NULL;
+    m.u.hello.plugins = &pi;
+    m.u.hello.n_plugins = 1;
+    uint8_t *buf = NULL;
+    size_t len = 0;
+    assert_int_equal(proto_msg_encode(&m, &buf, &len), PROTO_EVALUE);
+    assert_null(buf);
+}
+
 static void test_envelope_errors(void **state)
 {
     (void)state;
@@ -748,6 +820,7 @@ int main(void)
         cmocka_unit_test(test_limits_lowered),
         cmocka_unit_test(test_huge_declared_counts),
         cmocka_unit_test(test_mistyped_fields),
+        cmocka_unit_test(test_hello_seed_params),
         cmocka_unit_test(test_envelope_errors),
         cmocka_unit_test(test_encode_refuses_invalid),
         cmocka_unit_test(test_destroy_hand_built),

@@ -231,6 +231,64 @@ static void test_format_double_non_finite(void **state)
     assert_string_equal(buf, "null");
 }
 
+/* Seed params are zero only when present with a JSON number equal to 0.
+ * References: RFC 8259 section 6 (0, 0.0 and -0.0 are numbers; "0" is a
+ * string, null and false are not numbers), IEEE 754-2008 section 5.11 (-0
+ * compares equal to +0; 1e-300 is a normal number, not zero). Each expected
+ * answer is also computed by Python's json module (an independent parser). */
+static void test_all_zero(void **state)
+{
+    (void)state;
+    static const struct {
+        const char *params;
+        int want;
+    } cases[] = {
+        {"{\"jitter\":0,\"scatter_radius\":0}", 1},
+        {"{\"jitter\":0.0,\"scatter_radius\":-0.0,\"rows\":2}", 1},
+        {"{\"jitter\":-0,\"scatter_radius\":0e5}", 1},
+        {"{\"jitter\":0}", 0},                                /* scatter_radius absent */
+        {"{\"jitter\":0,\"scatter_radius\":1e-300}", 0},
+        {"{\"jitter\":0,\"scatter_radius\":\"0\"}", 0},
+        {"{\"jitter\":0,\"scatter_radius\":null}", 0},
+        {"{\"jitter\":0,\"scatter_radius\":false}", 0},
+        {"{\"jitter\":0,\"scatter_radius\":[0]}", 0},
+        {"{\"jitter\":0,\"scatter_radius\":{\"a\":0}}", 0},
+        {"{\"jitter\":0,\"scatter_radius\":0.05}", 0},
+        {"{}", 0},
+    };
+    char *names[] = {"scatter_radius", "jitter"};
+    const char *py = getenv("PYTHON");
+    if (!py || !py[0])
+        py = "/usr/bin/python3";
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        char *canon = s_canon(cases[i].params);
+        int got = proto_params_all_zero(canon, names, 2);
+        if (got != cases[i].want)
+            fail_msg("%s: got %d, want %d", canon, got, cases[i].want);
+        char cmd[1024];
+        snprintf(cmd, sizeof cmd,
+                 "'%s' -c 'import json,sys; d=json.loads(sys.argv[1]); "
+                 "print(int(all(k in d and type(d[k]) in (int, float) and d[k] == 0 "
+                 "for k in (\"scatter_radius\", \"jitter\"))))' '%s'",
+                 py, cases[i].params);
+        FILE *p = popen(cmd, "r");
+        assert_non_null(p);
+        char line[16] = "";
+        assert_non_null(fgets(line, sizeof line, p));
+        assert_int_equal(pclose(p), 0);
+        if (atoi(line) != cases[i].want)
+            fail_msg("%s: Python says %s", cases[i].params, line);
+        free(canon);
+    }
+    /* no names, or not an object: never zero */
+    assert_int_equal(proto_params_all_zero("{\"jitter\":0}", names, 0), 0);
+    assert_int_equal(proto_params_all_zero("[0]", names, 1), 0);
+    assert_int_equal(proto_params_all_zero("not json", names, 1), 0);
+    assert_int_equal(proto_params_all_zero(NULL, names, 1), 0);
+    char *one[] = {"jitter"};
+    assert_int_equal(proto_params_all_zero("{\"jitter\":0}", one, 1), 1);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -240,6 +298,7 @@ int main(void)
         cmocka_unit_test(test_refusals),
         cmocka_unit_test(test_format_double_round_trip),
         cmocka_unit_test(test_format_double_non_finite),
+        cmocka_unit_test(test_all_zero),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -15,7 +15,9 @@
  * through fitfarm_rng.h, and is built with -ffp-contract=off and without
  * fast-math, so one build gives the same bits on every x86-64 node. A plugin
  * whose results do not depend on the seed sets FITFARM_PLUGIN_DETERMINISTIC:
- * then all replicates and runs share one cached result.
+ * then all replicates and runs share one cached result. One whose results do
+ * not depend on the seed for some params only lists the params that switch
+ * the randomness off (fitfarm_plugin_seed_params, at the end).
  *
  * Genomes arrive as bytes. Genomes submitted as vectors of doubles are
  * little-endian IEEE 754 binary64; fitfarm_genome_f64() reads them. */
@@ -97,5 +99,26 @@ typedef int (*fitfarm_plugin_trace_fn)(const char *params_json, const uint8_t *g
                                        size_t genome_len, uint64_t seed, const char *path,
                                        char *err, size_t errlen);
 #define FITFARM_PLUGIN_TRACE_SYMBOL "fitfarm_plugin_trace"
+
+/* Optional: a stochastic plugin may also export
+ *
+ *     static const char *const s_seed_params[] = {"scatter_radius", "jitter", NULL};
+ *     FITFARM_PLUGIN_EXPORT const char *const *fitfarm_plugin_seed_params = s_seed_params;
+ *
+ * a pointer to a NULL-terminated list of parameter names (the declaration
+ * below makes the compiler check the type). A stochastic plugin whose
+ * results do not depend on the seed when every listed parameter is present in
+ * params with the number 0 (integer or real) lists them here; the broker then
+ * keys such requests without the seed, so all replicates and runs share one
+ * cached result, exactly as for a FITFARM_PLUGIN_DETERMINISTIC plugin. The
+ * seed is still passed to evaluate (the plugin ignores it) and reported with
+ * the result. At most 16 names, each 1 to 64 characters of [a-z0-9_]; a
+ * plugin exporting a longer list or another name is refused by the worker.
+ * A parameter absent from params counts as not zero, even if its default is 0.
+ * Read once when the worker loads the plugin. */
+extern FITFARM_PLUGIN_EXPORT const char *const *fitfarm_plugin_seed_params;
+#define FITFARM_PLUGIN_SEED_PARAMS_SYMBOL "fitfarm_plugin_seed_params"
+#define FITFARM_PLUGIN_MAX_SEED_PARAMS 16
+#define FITFARM_PLUGIN_MAX_SEED_PARAM_CHARS 64
 
 #endif

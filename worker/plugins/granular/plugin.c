@@ -3,9 +3,10 @@
  * Owns decoding the genome and turning results into a fitness vector; the
  * simulation is pad.c's.
  *
- * Not deterministic: the seed draws manufacturing scatter (pad.h). The
- * descriptor's flags are static, so even params with scatter_radius = 0 and
- * jitter = 0 (where the seed changes nothing) are cached per seed. */
+ * Not deterministic: the seed draws manufacturing scatter (pad.h). With
+ * scatter_radius = 0 and jitter = 0 the seed changes nothing (every draw is
+ * multiplied by zero), so those two are the plugin's seed params: requests
+ * giving both as 0 are keyed without the seed and share one result. */
 #include <jansson.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -103,6 +104,10 @@ FITFARM_PLUGIN_EXPORT const fitfarm_plugin_t *fitfarm_plugin(void)
 {
     return &s_plugin;
 }
+
+/* Both zero: radii are exactly r and positions exactly the lattice sites. */
+static const char *const s_seed_params[] = {"scatter_radius", "jitter", NULL};
+FITFARM_PLUGIN_EXPORT const char *const *fitfarm_plugin_seed_params = s_seed_params;
 
 /* The optional trace entry point (fitfarm_plugin_trace_fn): one evaluation
  * exactly as evaluate() does it, with the time series written to path as
