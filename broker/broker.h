@@ -31,10 +31,22 @@ typedef struct {
     uint32_t max_string_bytes; /* run ids, plugin, worker and host names */
     uint64_t max_queued_per_run;    /* accepted, not yet answered, per run */
     uint64_t max_queued_per_client; /* the same summed over a client connection's runs */
+    /* Memory bounds; 0 = the default below. Results owed to a client past
+     * the unacked caps stay in the store and are paged back when it can take
+     * them; finished results past the cache caps are dropped from RAM and
+     * read back from the store on a miss. */
+    uint64_t max_unacked_per_run; /* results held in RAM for one run's client */
+    uint64_t max_unacked;         /* the same over all runs */
+    uint64_t cache_entries;       /* finished results kept in RAM */
+    uint64_t cache_bytes;         /* their approximate bytes */
 } broker_config_t;
 
 #define BROKER_DEFAULT_QUEUED_PER_RUN 1000000u
 #define BROKER_DEFAULT_QUEUED_PER_CLIENT 4000000u
+#define BROKER_DEFAULT_UNACKED_PER_RUN 100000u
+#define BROKER_DEFAULT_UNACKED 1000000u
+#define BROKER_DEFAULT_CACHE_ENTRIES 1000000u
+#define BROKER_DEFAULT_CACHE_BYTES (256u * 1024u * 1024u)
 
 /* Runs the broker until SIGTERM or SIGINT (handlers installed here set a flag
  * that the loop reads). Returns 0 on a clean stop, or 1 after logging why it

@@ -9,6 +9,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "backlog.h"
+#include "cache.h"
 #include "common/alloc.h"
 #include "common/log.h"
 #include "envelope.h"
@@ -81,14 +83,23 @@ static void s_item_key(const broker_plugin_t *plugin, const char *params, int st
         abort(); /* libsodium cannot initialise: nothing sensible can follow */
 }
 
+/* A re-sent request past the delivery cap stays owed from the store. */
+static void s_redeliver(broker_t *b, broker_run_t *run, uint64_t tag, broker_eval_t *e, int cached)
+{
+    if (!broker_runs_redeliver(&b->runs, run, tag, e, cached))
+        broker_store_note_unack(b->store, run, tag);
+}
+
 /* A recorded no-cache request asked again (resume or replay): it is answered
  * with its own re-evaluation, not the cached result: from the unacknowledged
  * delivery when there is one, else from the results history. */
 static void s_redeliver_fresh(broker_t *b, broker_run_t *run, uint64_t tag, broker_eval_t *e)
 {
     broker_delivery_t *d = broker_table_get(run->unacked, &tag, sizeof tag);
-    if (d && d->eval->fresh) {
-        broker_runs_redeliver(&b->runs, run, tag, d->eval, 0);
+    if (d && d->fresh) {
+        broker_delivery_t copy = *d; /* the push copies fitness and error */
+        if (!broker_runs_redeliver_copy(&b->runs, run, &copy))
+            broker_store_note_unack(b->store, run, tag);
         return;
     }
     double fit[PROTO_MAX_OBJECTIVES];
@@ -96,12 +107,14 @@ static void s_redeliver_fresh(broker_t *b, broker_run_t *run, uint64_t tag, brok
     char err[1024];
     if (!broker_store_find_fresh_result(b->store, run->id, e->key, &status, fit, &nf, err,
                                         sizeof err)) {
-        broker_runs_redeliver(&b->runs, run, tag, e, 0); /* a store from before the history */
+        s_redeliver(b, run, tag, e, 0); /* a store from before the history */
         return;
     }
-    broker_eval_t *f = broker_evals_new_fresh_stored(&b->evals, e);
-    broker_eval_set_result(&b->evals, f, status, fit, nf, err);
-    broker_runs_redeliver(&b->runs, run, tag, f, 0);
+    broker_delivery_t t = {.tag = tag, .seed = e->seed, .status = (uint8_t)status, .fresh = 1,
+                           .n_fitness = nf, .fitness = fit, .error = err};
+    memcpy(t.key, e->key, PROTO_KEY_BYTES);
+    if (!broker_runs_redeliver_copy(&b->runs, run, &t))
+        broker_store_note_unack(b->store, run, tag);
 }
 
 int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const proto_submit_t *s)
@@ -218,7 +231,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
          * with other content, refused above) stops the replay, so nothing is
          * ever simulated. A recorded request still in flight is waited for. */
         for (uint32_t i = 0; i < s->n_items; i++) {
-            broker_eval_t *e = broker_evals_get(&b->evals, keys[i]);
+            broker_eval_t *e = run && recorded[i] ? broker_cache_lookup(b, keys[i]) : NULL;
             if (!run || !recorded[i] || !e) {
                 snprintf(text, sizeof text,
                          "replay: run %s never recorded request tag %" PRIu64
@@ -251,14 +264,14 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     int no_cache = (s->flags & PROTO_SUBMIT_NO_CACHE) != 0;
     for (uint32_t i = 0; i < s->n_items; i++) {
         const proto_item_t *it = &s->items[i];
-        broker_eval_t *e = broker_evals_get(&b->evals, keys[i]);
+        broker_eval_t *e = broker_cache_lookup(b, keys[i]); /* RAM, else the store */
         if (recorded[i] && e) {
             if (e->again && s_waits(e->again, run, it->tag)) {
                 continue; /* a no-cache request still waiting on its re-evaluation */
             } else if (recorded[i] == 3 && e->state == BROKER_EVAL_DONE) {
                 s_redeliver_fresh(b, run, it->tag, e);
             } else if (e->state == BROKER_EVAL_DONE) {
-                broker_runs_redeliver(&b->runs, run, it->tag, e, recorded[i] == 2);
+                s_redeliver(b, run, it->tag, e, recorded[i] == 2);
             } else if (!s_waits(e, run, it->tag)) {
                 run->outstanding++;
                 broker_eval_add_waiter(e, run, it->tag);
@@ -422,17 +435,16 @@ static void s_flush_run(broker_t *b, broker_run_t *run)
         while (done + n < run->n_outbox && n < BROKER_RESULTS_PER_MSG &&
                bytes < BROKER_MSG_SOFT_BYTES) {
             const broker_delivery_t *d = &run->outbox[done + n];
-            const broker_eval_t *e = d->eval;
             proto_result_t *r = &b->results[n++];
             r->tag = d->tag;
-            r->status = e->status;
+            r->status = d->status;
             r->cached = d->cached;
-            r->seed = e->seed;
-            memcpy(r->key, e->key, PROTO_KEY_BYTES);
-            r->n_fitness = e->n_fitness;
-            r->fitness = e->fitness;
-            r->error = e->error ? e->error : (char *)"";
-            bytes += 64 + (size_t)e->n_fitness * 9 + (e->error ? strlen(e->error) : 0);
+            r->seed = d->seed;
+            memcpy(r->key, d->key, PROTO_KEY_BYTES);
+            r->n_fitness = d->n_fitness;
+            r->fitness = d->fitness;
+            r->error = d->error ? d->error : (char *)"";
+            bytes += 64 + (size_t)d->n_fitness * 9 + (d->error ? strlen(d->error) : 0);
         }
         if (b->clients && run->client_len) {
             proto_msg_t msg = {.type = PROTO_RESULTS};
@@ -461,6 +473,10 @@ void broker_client_flush(broker_t *b)
     }
     b->n_accepts = 0;
     broker_run_t *run;
+    while ((run = broker_runs_take_dirty(&b->runs)))
+        s_flush_run(b, run);
+    /* Then what runs owe from the store, as far as their caps have room. */
+    b->backlog_more = broker_backlog_turn(b);
     while ((run = broker_runs_take_dirty(&b->runs)))
         s_flush_run(b, run);
 }

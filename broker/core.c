@@ -6,25 +6,38 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "backlog.h"
+#include "cache.h"
 #include "common/alloc.h"
 
 void broker_core_init(broker_t *b, int liveness_ms, int heartbeat_ms, unsigned attempts,
                       const char *store_dir)
 {
+    broker_config_t config = {.liveness_ms = liveness_ms,
+                              .heartbeat_ms = heartbeat_ms,
+                              .attempts = attempts,
+                              .store_dir = store_dir};
+    broker_core_init_config(b, &config);
+}
+
+void broker_core_init_config(broker_t *b, const broker_config_t *config)
+{
     memset(b, 0, sizeof *b);
-    b->liveness_ms = liveness_ms > 0 ? liveness_ms : 5000;
-    b->heartbeat_ms = heartbeat_ms > 0 ? heartbeat_ms : 1000;
-    b->attempts = attempts > 0 ? attempts : 3;
+    b->liveness_ms = config->liveness_ms > 0 ? config->liveness_ms : 5000;
+    b->heartbeat_ms = config->heartbeat_ms > 0 ? config->heartbeat_ms : 1000;
+    b->attempts = config->attempts > 0 ? config->attempts : 3;
     b->limits = proto_limits_default();
     b->max_queued_per_run = BROKER_DEFAULT_QUEUED_PER_RUN;
     b->max_queued_per_client = BROKER_DEFAULT_QUEUED_PER_CLIENT;
     broker_catalog_init(&b->catalog);
     broker_registry_init(&b->registry);
     broker_evals_init(&b->evals);
+    broker_evals_set_caps(&b->evals, config->cache_entries, config->cache_bytes);
     broker_runs_init(&b->runs);
+    broker_runs_set_caps(&b->runs, config->max_unacked_per_run, config->max_unacked);
     broker_intern_init(&b->intern);
     broker_timers_init(&b->timers);
-    b->store = broker_store_open(store_dir);
+    b->store = broker_store_open(config->store_dir);
     /* NULL store: broker_main_run refuses to start (the open logged why). */
     if (b->store && broker_store_load(b) != 0)
         broker_store_close(&b->store);
@@ -46,6 +59,8 @@ void broker_core_fini(broker_t *b)
     broker_catalog_fini(&b->catalog);
     broker_intern_fini(&b->intern);
     broker_timers_fini(&b->timers);
+    broker_cache_fini(b); /* statements on the store's connection go first */
+    broker_backlog_fini(b);
     broker_store_close(&b->store);
     free(b->jobs);
     free(b->results);

@@ -18,6 +18,8 @@
 #include "store.h"
 #include "timers.h"
 
+struct sqlite3_stmt;
+
 #define BROKER_MSGS_PER_TURN 512     /* per socket per loop turn */
 #define BROKER_JOBS_PER_MSG 4096     /* jobs in one JOBS message */
 #define BROKER_RESULTS_PER_MSG 4096  /* results in one RESULTS message */
@@ -70,11 +72,17 @@ typedef struct broker {
     struct broker_zap *zap;
     proto_limits_t limits;
     uint64_t max_queued_per_run, max_queued_per_client;
+    /* prepared statements of cache.c and backlog.c on the store's connection */
+    struct sqlite3_stmt *cache_lookup, *backlog_page;
+    int backlog_more; /* the backlog could page more at once: do not sleep */
 } broker_t;
 
 /* Sets up every module (no sockets). attempts etc. already resolved. */
 void broker_core_init(broker_t *b, int liveness_ms, int heartbeat_ms, unsigned attempts,
                       const char *store_dir);
+/* The same from a configuration: also the memory caps (cache and delivery),
+ * which must be known before the store is loaded. */
+void broker_core_init_config(broker_t *b, const broker_config_t *config);
 /* Frees every module's state (not the sockets). */
 void broker_core_fini(broker_t *b);
 

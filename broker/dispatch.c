@@ -76,9 +76,11 @@ void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker
     broker_eval_set_result(&b->evals, e, o->status, o->fitness, o->n_fitness, o->error);
     broker_store_note_result(b->store, e, o, w ? w->name : NULL, w ? w->host : NULL,
                              w ? w->arch : NULL);
+    broker_eval_t *origin = NULL;
     if (e->fresh && e->origin) {
         /* A re-evaluation is done: later no-cache requests start another. */
-        e->origin->again = NULL;
+        origin = e->origin;
+        origin->again = NULL;
         e->origin = NULL;
     }
     /* One simulation, charged to the run whose queue it came from; requests
@@ -91,6 +93,11 @@ void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker
     }
     broker_eval_clear_waiters(e);
     assert(broker_eval_check(&b->evals, e));
+    /* Into the bounded cache (or freed, a re-evaluation: deliveries hold
+     * copies); its origin is no longer pinned. */
+    broker_evals_settle(&b->evals, e);
+    if (origin)
+        broker_evals_settle(&b->evals, origin);
 }
 
 static int s_retryable(uint32_t status)
@@ -139,6 +146,8 @@ void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcom
         broker_dispatch_complete(b, e, w, o);
         return;
     }
+    if (e)
+        broker_evals_settle(&b->evals, e); /* no longer pinned by the orphan record */
     LOG_INFO("ignored a result for job %" PRIu64 " from %s%s: no such job is held there", o->job_id,
              w ? "worker " : "an unregistered worker", w ? w->name : "");
 }

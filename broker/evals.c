@@ -1,12 +1,15 @@
-/* evals.c: the evaluation table (see evals.h for the job lifecycle). Owns the
- * evaluations (one allocation each, genome inline), their waiter arrays and
- * results, and the orphan records. Does not own plugins, params or runs. */
+/* evals.c: the evaluation table (see evals.h for the job lifecycle and the
+ * memory bound). Owns the evaluations (one allocation each, genome inline),
+ * their waiter arrays and results, the LRU list of DONE ones, and the orphan
+ * records. Does not own plugins, params or runs; does not read the store
+ * (cache.c does, on a miss). */
 #include "evals.h"
 
 #include <assert.h>
 #include <stdlib.h>
 #include <string.h>
 
+#include "broker.h"
 #include "common/alloc.h"
 
 typedef struct {
@@ -21,6 +24,19 @@ void broker_evals_init(broker_evals_t *self)
     self->orphans = broker_table_new();
     self->n_done = 0;
     self->fresh_head = NULL;
+    self->lru_head = self->lru_tail = NULL;
+    self->n_cached = self->cached_bytes = self->peak_cached = 0;
+    self->n_done_ram = self->peak_done_ram = self->evictions = self->store_hits = 0;
+    self->orphan_sweep_at = 1024;
+    broker_evals_set_caps(self, 0, 0);
+}
+
+static void s_free(broker_eval_t *e)
+{
+    free(e->more);
+    free(e->fitness);
+    free(e->error);
+    free(e);
 }
 
 void broker_evals_fini(broker_evals_t *self)
@@ -31,18 +47,11 @@ void broker_evals_fini(broker_evals_t *self)
         free(o);
     cur = 0;
     broker_eval_t *e;
-    while ((e = broker_table_next(self->by_key, &cur))) {
-        free(e->more);
-        free(e->fitness);
-        free(e->error);
-        free(e);
-    }
+    while ((e = broker_table_next(self->by_key, &cur)))
+        s_free(e);
     while ((e = self->fresh_head)) {
         self->fresh_head = e->fresh_next;
-        free(e->more);
-        free(e->fitness);
-        free(e->error);
-        free(e);
+        s_free(e);
     }
     broker_table_destroy(&self->by_key);
     broker_table_destroy(&self->by_job);
@@ -86,6 +95,8 @@ static broker_eval_t *s_fresh_copy(broker_evals_t *self, const broker_eval_t *li
     if (like->genome_len)
         memcpy(e->genome, like->genome, like->genome_len);
     e->fresh_next = self->fresh_head;
+    if (self->fresh_head)
+        self->fresh_head->fresh_prev = e;
     self->fresh_head = e;
     return e;
 }
@@ -96,12 +107,109 @@ broker_eval_t *broker_evals_new_fresh(broker_evals_t *self, broker_eval_t *origi
     broker_eval_t *e = s_fresh_copy(self, origin);
     e->origin = origin;
     origin->again = e;
+    broker_evals_settle(self, origin); /* pinned while e is in flight */
     return e;
 }
 
-broker_eval_t *broker_evals_new_fresh_stored(broker_evals_t *self, const broker_eval_t *like)
+/* ---- the bounded result cache ------------------------------------------- */
+
+void broker_evals_set_caps(broker_evals_t *self, uint64_t entries, uint64_t bytes)
 {
-    return s_fresh_copy(self, like);
+    self->cap_entries = entries ? entries : BROKER_DEFAULT_CACHE_ENTRIES;
+    self->cap_bytes = bytes ? bytes : BROKER_DEFAULT_CACHE_BYTES;
+}
+
+/* What one cached result costs: the evaluation, its result, and roughly the
+ * allocator's and the key table's share. */
+static uint64_t s_bytes(const broker_eval_t *e)
+{
+    return sizeof *e + e->genome_len + (uint64_t)e->n_fitness * sizeof(double) +
+           (e->error ? strlen(e->error) + 1 : 0) + 64;
+}
+
+static void s_lru_unlink(broker_evals_t *self, broker_eval_t *e)
+{
+    if (!e->in_lru)
+        return;
+    if (e->prev)
+        e->prev->next = e->next;
+    else
+        self->lru_head = e->next;
+    if (e->next)
+        e->next->prev = e->prev;
+    else
+        self->lru_tail = e->prev;
+    e->prev = e->next = NULL;
+    e->in_lru = 0;
+    self->n_cached--;
+    self->cached_bytes -= s_bytes(e);
+}
+
+static void s_lru_push(broker_evals_t *self, broker_eval_t *e)
+{
+    assert(!e->in_lru && e->prev == NULL && e->next == NULL);
+    e->next = self->lru_head;
+    if (self->lru_head)
+        self->lru_head->prev = e;
+    else
+        self->lru_tail = e;
+    self->lru_head = e;
+    e->in_lru = 1;
+    self->n_cached++;
+    self->cached_bytes += s_bytes(e);
+}
+
+/* Drops least recently used results past the caps; never keep. */
+static void s_evict(broker_evals_t *self, const broker_eval_t *keep)
+{
+    while ((self->n_cached > self->cap_entries || self->cached_bytes > self->cap_bytes) &&
+           self->lru_tail && self->lru_tail != keep) {
+        broker_eval_t *e = self->lru_tail;
+        s_lru_unlink(self, e);
+        void *was = broker_table_delete(self->by_key, e->key, PROTO_KEY_BYTES);
+        assert(was == e);
+        (void)was;
+        self->n_done_ram--;
+        self->evictions++;
+        s_free(e);
+    }
+}
+
+void broker_evals_settle(broker_evals_t *self, broker_eval_t *e)
+{
+    int done = e->state == BROKER_EVAL_DONE;
+    if (done && e->fresh && e->pins == 0 && e->origin == NULL) {
+        /* Answered (deliveries hold copies): nothing points here any more. */
+        if (e->fresh_prev)
+            e->fresh_prev->fresh_next = e->fresh_next;
+        else
+            self->fresh_head = e->fresh_next;
+        if (e->fresh_next)
+            e->fresh_next->fresh_prev = e->fresh_prev;
+        s_free(e);
+        return;
+    }
+    int evictable = done && !e->fresh && e->pins == 0 && e->again == NULL;
+    if (evictable && !e->in_lru) {
+        s_lru_push(self, e);
+        s_evict(self, e);
+    } else if (!evictable && e->in_lru) {
+        s_lru_unlink(self, e);
+    }
+    /* Peaks as settled: one result more than the cap only between a result
+     * and this call. */
+    if (self->n_cached > self->peak_cached)
+        self->peak_cached = self->n_cached;
+    if (self->n_done_ram > self->peak_done_ram)
+        self->peak_done_ram = self->n_done_ram;
+}
+
+void broker_evals_touch(broker_evals_t *self, broker_eval_t *e)
+{
+    if (!e->in_lru || self->lru_head == e)
+        return;
+    s_lru_unlink(self, e);
+    s_lru_push(self, e);
 }
 
 void broker_eval_add_waiter(broker_eval_t *e, struct broker_run *run, uint64_t tag)
@@ -156,12 +264,41 @@ broker_eval_t *broker_evals_by_job(const broker_evals_t *self, uint64_t job_id)
     return broker_table_get(self->by_job, &job_id, sizeof job_id);
 }
 
+/* Drops orphan records whose evaluation is DONE: a late result for them
+ * would be ignored, and they would pin the evaluation in RAM for ever. */
+static void s_orphan_sweep(broker_evals_t *self)
+{
+    size_t n = broker_table_size(self->orphans), k = 0, cur = 0;
+    uint64_t *ids = common_xcalloc(n ? n : 1, sizeof *ids);
+    s_orphan_t *o;
+    while ((o = broker_table_next(self->orphans, &cur)))
+        if (o->eval->state == BROKER_EVAL_DONE)
+            ids[k++] = o->job_id;
+    for (size_t i = 0; i < k; i++) {
+        o = broker_table_delete(self->orphans, &ids[i], sizeof ids[i]);
+        broker_eval_t *e = o->eval;
+        free(o);
+        e->pins--;
+        broker_evals_settle(self, e);
+    }
+    free(ids);
+    n = broker_table_size(self->orphans);
+    self->orphan_sweep_at = n * 2 > 1024 ? n * 2 : 1024;
+}
+
 void broker_evals_orphan_add(broker_evals_t *self, uint64_t job_id, broker_eval_t *e)
 {
+    if (broker_table_size(self->orphans) >= self->orphan_sweep_at)
+        s_orphan_sweep(self);
     s_orphan_t *o = common_xmalloc(sizeof *o);
     o->job_id = job_id;
     o->eval = e;
+    e->pins++;
     s_orphan_t *prev = broker_table_put(self->orphans, &o->job_id, sizeof o->job_id, o);
+    if (prev) { /* job ids are unique; kept safe all the same */
+        prev->eval->pins--;
+        broker_evals_settle(self, prev->eval);
+    }
     free(prev);
 }
 
@@ -172,6 +309,8 @@ broker_eval_t *broker_evals_orphan_take(broker_evals_t *self, uint64_t job_id)
         return NULL;
     broker_eval_t *e = o->eval;
     free(o);
+    assert(e->pins > 0);
+    e->pins--;
     return e;
 }
 
@@ -192,19 +331,8 @@ void broker_eval_set_result(broker_evals_t *self, broker_eval_t *e, uint32_t sta
     e->state = BROKER_EVAL_DONE;
     e->prev = e->next = NULL;
     self->n_done++;
-}
-
-void broker_eval_reset(broker_eval_t *e)
-{
-    assert(e->state == BROKER_EVAL_DONE);
-    free(e->fitness);
-    free(e->error);
-    e->fitness = NULL;
-    e->error = NULL;
-    e->n_fitness = 0;
-    e->attempts = 0;
-    e->avoid_worker = 0;
-    e->state = BROKER_EVAL_QUEUED;
+    if (!e->fresh)
+        self->n_done_ram++;
 }
 
 int broker_eval_check(const broker_evals_t *self, const broker_eval_t *e)
@@ -225,7 +353,8 @@ int broker_eval_check(const broker_evals_t *self, const broker_eval_t *e)
         return e->job_id != 0 && broker_evals_by_job(self, e->job_id) == e && e->worker != NULL &&
                e->n_waiters >= 1;
     case BROKER_EVAL_DONE:
-        return e->job_id == 0 && e->worker == NULL && e->n_waiters == 0;
+        return e->job_id == 0 && e->worker == NULL && e->n_waiters == 0 &&
+               (!e->in_lru || (!e->fresh && e->pins == 0 && e->again == NULL));
     default:
         return 0;
     }

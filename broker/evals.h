@@ -16,10 +16,11 @@
  *   RUNNING  | its worker's held list; job-id   | broker_dispatch_turn (fresh job   | job_id != 0 and indexed,
  *            | index                            | id per dispatch, same seed)       | worker != NULL, counted in
  *            |                                  |                                   | worker->held, home->n_running
- *   DONE     | only the key table (cache)       | broker_dispatch_complete (OK,     | result set, n_waiters 0,
- *            |                                  | INVALID, FAILED; CRASHED/TIMEOUT  | job_id 0, in no list
- *            |                                  | at the last attempt; a late       |
- *            |                                  | orphan result)                    |
+ *   DONE     | the key table and the LRU list   | broker_dispatch_complete (OK,     | result set, n_waiters 0,
+ *            | (prev/next) unless pinned; may   | INVALID, FAILED; CRASHED/TIMEOUT  | job_id 0; in_lru unless
+ *            | be evicted, the store keeps it   | at the last attempt; a late       | pinned (pins, again)
+ *            |                                  | orphan result); broker_cache_     |
+ *            |                                  | lookup (read back from the store) |
  *
  * Never DONE twice without passing through QUEUED: a result for a stale job
  * id of a DONE evaluation is ignored, so no request is answered twice.
@@ -30,7 +31,16 @@
  * states and answers only the no-cache requests attached to it. While one is
  * QUEUED or RUNNING the cached evaluation points at it (again), so no-cache
  * requests for the key share it (single flight); once DONE it is unlinked and
- * stays in memory only as long as the evaluation table (deliveries point at it).
+ * freed (deliveries copy the result they send).
+ *
+ * Memory. QUEUED and RUNNING evaluations always stay in RAM (single flight
+ * needs them). DONE ones are a bounded cache over the store: an LRU list
+ * through prev/next (free in that state), at most cap_entries and about
+ * cap_bytes; the least recently used is dropped past either cap, and
+ * broker_cache_lookup (cache.c) reads a missing key back from the store. A
+ * DONE evaluation is pinned, never dropped, while an orphan record (pins) or
+ * an in-flight re-evaluation (again) points at it. Orphan records of DONE
+ * evaluations are swept as the orphan index grows.
  *
  * Not here: queue order and fairness (runs.h), sending (dispatch.c). */
 #ifndef BROKER_EVALS_H
@@ -58,6 +68,7 @@ typedef struct broker_eval {
     uint8_t state;    /* broker_eval_state_t */
     uint8_t fresh;    /* a re-evaluation for no-cache requests, not in by_key */
     uint8_t status;   /* proto_status_t once DONE */
+    uint8_t in_lru;   /* DONE, unpinned, in the LRU list through prev/next */
     uint16_t attempts;/* dispatches that ended CRASHED or TIMEOUT */
     uint16_t max_attempts; /* from the submitting run's SUBMIT; 0 = the broker's --attempts */
     uint32_t timeout_ms;   /* per evaluation, sent with the job; 0 = the worker's default */
@@ -72,7 +83,8 @@ typedef struct broker_eval {
     struct broker_eval *prev, *next; /* run queue when QUEUED, worker list when RUNNING */
     struct broker_eval *again;  /* cached evaluation: its fresh one in flight, or NULL */
     struct broker_eval *origin; /* fresh evaluation: the cached one, NULL once DONE */
-    struct broker_eval *fresh_next; /* every fresh evaluation, for fini */
+    struct broker_eval *fresh_next, *fresh_prev; /* every fresh evaluation in RAM, for fini */
+    uint32_t pins; /* orphan records pointing here: not evictable, not freed */
     /* waiters: the first inline (the common case), the rest in more[] */
     broker_waiter_t w0;
     broker_waiter_t *more;
@@ -89,8 +101,15 @@ typedef struct {
     broker_table_t *by_key;
     broker_table_t *by_job;    /* job id -> RUNNING evaluation */
     broker_table_t *orphans;   /* job id -> evaluation, for dropped workers' jobs */
-    broker_eval_t *fresh_head; /* every fresh evaluation (re-evaluations), newest first */
-    uint64_t n_done;
+    broker_eval_t *fresh_head; /* every fresh evaluation in RAM, newest first */
+    uint64_t n_done;           /* results set since start (counter) */
+    /* the bounded result cache (see "Memory" above) */
+    broker_eval_t *lru_head, *lru_tail; /* most recently used first */
+    uint64_t cap_entries, cap_bytes;
+    uint64_t n_cached, cached_bytes, peak_cached; /* in the LRU list */
+    uint64_t n_done_ram, peak_done_ram; /* DONE evaluations indexed by key (cached + pinned) */
+    uint64_t evictions, store_hits;     /* dropped from RAM; misses answered by the store */
+    size_t orphan_sweep_at;
 } broker_evals_t;
 
 void broker_evals_init(broker_evals_t *self);
@@ -109,10 +128,15 @@ broker_eval_t *broker_evals_new(broker_evals_t *self, const uint8_t key[PROTO_KE
  * seed, genome), not indexed by key, linked as origin->again; not yet in any
  * queue. Borrowed, valid until fini. */
 broker_eval_t *broker_evals_new_fresh(broker_evals_t *self, broker_eval_t *origin);
-/* A fresh evaluation for a stored re-evaluation result (store_load.c): a copy
- * of like's content, linked to no origin; the caller gives it its result at
- * once with broker_eval_set_result. Borrowed, valid until fini. */
-broker_eval_t *broker_evals_new_fresh_stored(broker_evals_t *self, const broker_eval_t *like);
+/* Sets the cache caps (0 = the defaults in broker.h) and evicts down to them. */
+void broker_evals_set_caps(broker_evals_t *self, uint64_t entries, uint64_t bytes);
+/* After e changed state, pins or again: a DONE unpinned evaluation joins the
+ * LRU list (evicting the least recently used past the caps, never e), a
+ * pinned one leaves it, and a DONE fresh one nobody points at is freed. e may
+ * be gone when this returns: call it last. */
+void broker_evals_settle(broker_evals_t *self, broker_eval_t *e);
+/* A cache hit: e moves to the front of the LRU list. */
+void broker_evals_touch(broker_evals_t *self, broker_eval_t *e);
 
 void broker_eval_add_waiter(broker_eval_t *e, struct broker_run *run, uint64_t tag);
 /* Waiter i (0-based, < n_waiters). */
@@ -124,17 +148,18 @@ void broker_evals_bind_job(broker_evals_t *self, broker_eval_t *e, uint64_t job_
 void broker_evals_unbind_job(broker_evals_t *self, broker_eval_t *e);
 broker_eval_t *broker_evals_by_job(const broker_evals_t *self, uint64_t job_id);
 
-/* Remembers job_id (of a dropped worker's dispatch) as pointing at e. */
+/* Remembers job_id (of a dropped worker's dispatch) as pointing at e, which
+ * it pins; records of evaluations that are DONE by then are swept now and
+ * then (a late result for them is ignored anyway). */
 void broker_evals_orphan_add(broker_evals_t *self, uint64_t job_id, broker_eval_t *e);
-/* Removes and returns the orphan under job_id, or NULL. */
+/* Removes and returns the orphan under job_id, or NULL. The evaluation is
+ * unpinned: the caller calls broker_evals_settle when done with it. */
 broker_eval_t *broker_evals_orphan_take(broker_evals_t *self, uint64_t job_id);
 
 /* Stores the final result (copies fitness and error) and marks e DONE. The
  * waiters are kept: the caller answers them, then broker_eval_clear_waiters. */
 void broker_eval_set_result(broker_evals_t *self, broker_eval_t *e, uint32_t status,
                             const double *fitness, uint32_t n_fitness, const char *error);
-/* Forgets the stored result: back to QUEUED for a no-cache request. */
-void broker_eval_reset(broker_eval_t *e);
 
 /* Invariants of one evaluation per the state table above. */
 int broker_eval_check(const broker_evals_t *self, const broker_eval_t *e);

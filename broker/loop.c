@@ -14,6 +14,7 @@
 #include <zmq.h>
 
 #include "broker.h"
+#include "cache.h"
 #include "client_io.h"
 #include "common/clock.h"
 #include "common/log.h"
@@ -126,6 +127,10 @@ static void s_before_sleep(broker_t *b)
         return;
     }
     broker_client_flush(b);
+    if (b->runs.went_idle) {
+        b->runs.went_idle = 0;
+        broker_cache_log(b);
+    }
 }
 
 int broker_main_run(const broker_config_t *config)
@@ -140,8 +145,7 @@ int broker_main_run(const broker_config_t *config)
         return 1;
     }
     common_log_set_tag("broker");
-    broker_core_init(&b, config->liveness_ms, config->heartbeat_ms, config->attempts,
-                     config->store_dir);
+    broker_core_init_config(&b, config);
     b.now_ms = common_clock_ms();
 
     s_stop = 0;
@@ -174,8 +178,11 @@ int broker_main_run(const broker_config_t *config)
     if (config->endpoints_file &&
         s_write_endpoints(config->endpoints_file, clients_ep, workers_ep) != 0)
         goto cleanup;
-    LOG_INFO("broker ready: liveness %d ms, heartbeat %d ms, %u attempts per job",
-             b.liveness_ms, b.heartbeat_ms, b.attempts);
+    LOG_INFO("broker ready: liveness %d ms, heartbeat %d ms, %u attempts per job; in RAM at "
+             "most %" PRIu64 " cached results (~%" PRIu64 " MiB) and %" PRIu64
+             " results per run awaiting acknowledgement (%" PRIu64 " in all)",
+             b.liveness_ms, b.heartbeat_ms, b.attempts, b.evals.cap_entries,
+             b.evals.cap_bytes >> 20, b.runs.max_per_run, b.runs.max_total);
 
     broker_worker_timers_start(&b);
     zmq_pollitem_t items[5] = {
@@ -185,7 +192,7 @@ int broker_main_run(const broker_config_t *config)
     int n_items = 2 + (b.zap ? broker_zap_pollitems(b.zap, items + 2, 3) : 0);
     while (!s_stop) {
         b.now_ms = common_clock_ms();
-        long timeout = broker_timers_timeout(&b.timers, b.now_ms);
+        long timeout = b.backlog_more ? 0 : broker_timers_timeout(&b.timers, b.now_ms);
         if (s_reload) {
             s_reload = 0;
             broker_guard_reload(&b);
@@ -212,6 +219,7 @@ int broker_main_run(const broker_config_t *config)
     LOG_INFO("broker stopping: %" PRIu64 " jobs sent, %" PRIu64 " results sent, %" PRIu64
              " messages dropped",
              b.jobs_sent, b.results_sent, b.dropped_msgs);
+    broker_cache_log(&b);
     rc = 0;
 
 cleanup:

@@ -46,6 +46,13 @@ static void s_usage(FILE *out)
             "  --max-queued-per-run N     requests waiting per run (default 1000000)\n"
             "  --max-queued-per-client N  requests waiting per client (default 4000000)\n"
             "                        past a cap a batch is refused with \"queue full\"\n"
+            "  --max-unacked-per-run N    results held in RAM for a run's client until it\n"
+            "                        acknowledges (default 100000); past it they wait in\n"
+            "                        the store and are read back as the client catches up\n"
+            "  --max-unacked N       the same over all runs (default 1000000)\n"
+            "  --cache-entries N     finished results kept in RAM (default 1000000); others\n"
+            "                        are read from the store when asked for\n"
+            "  --cache-mb N          their approximate size in MiB (default 256)\n"
             "  --help                this text\n"
             "  --version             print the version\n"
             "\n"
@@ -89,6 +96,10 @@ static int s_limit(const char *a, const char *v, broker_config_t *cfg)
         cfg->max_queued_per_run = (uint64_t)n;
     else if (strcmp(a, "--max-queued-per-client") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
         cfg->max_queued_per_client = (uint64_t)n;
+    else if (strcmp(a, "--max-unacked-per-run") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
+        cfg->max_unacked_per_run = (uint64_t)n;
+    else if (strcmp(a, "--max-unacked") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
+        cfg->max_unacked = (uint64_t)n;
     else
         return -1;
     return 0;
@@ -118,7 +129,8 @@ int main(int argc, char **argv)
             "--endpoints-file",   "--key",              "--keys",
             "--config",           "--max-message-bytes", "--max-genome-bytes",
             "--max-batch",        "--max-objectives",   "--max-string-bytes",
-            "--max-queued-per-run", "--max-queued-per-client"};
+            "--max-queued-per-run", "--max-queued-per-client", "--max-unacked-per-run",
+            "--max-unacked",      "--cache-entries",    "--cache-mb"};
         int known = 0;
         for (size_t k = 0; k < sizeof with_value / sizeof *with_value; k++)
             known |= strcmp(a, with_value[k]) == 0;
@@ -146,6 +158,14 @@ int main(int argc, char **argv)
             if (s_limit(a, v, &cfg) != 0)
                 return s_bad("%s", "a --max-* option needs a whole number within its ceiling "
                                    "(see --help)");
+        } else if (strcmp(a, "--cache-entries") == 0) {
+            if (s_parse_int(v, 1, LONG_MAX, &n) != 0)
+                return s_bad("--cache-entries wants a count of at least 1, not '%s'", v);
+            cfg.cache_entries = (uint64_t)n;
+        } else if (strcmp(a, "--cache-mb") == 0) {
+            if (s_parse_int(v, 1, 1L << 30, &n) != 0)
+                return s_bad("--cache-mb wants MiB between 1 and 1073741824, not '%s'", v);
+            cfg.cache_bytes = (uint64_t)n << 20;
         } else if (strcmp(a, "--liveness") == 0) {
             if (s_parse_int(v, 10, 86400000, &n) != 0)
                 return s_bad("--liveness wants milliseconds between 10 and 86400000, not '%s'",

@@ -1,7 +1,8 @@
 /* runs.c: runs, their queues, round-robin fairness and delivery bookkeeping
- * (see runs.h). Owns run records, queue arrays, outboxes and delivery nodes
- * (recycled through a free list: one per result in flight, so no malloc per
- * result in the steady state). Borrows evaluations. */
+ * with its caps (see runs.h). Owns run records, queue arrays, outboxes and
+ * delivery nodes (recycled through a free list: one per result in flight) and
+ * the copies of results they hold. Borrows evaluations. Does not read the
+ * store (backlog.c pages owed results back). */
 #include "runs.h"
 
 #include <assert.h>
@@ -9,6 +10,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "broker.h"
 #include "common/alloc.h"
 #include "common/log.h"
 #include "msg.h"
@@ -17,6 +19,21 @@ void broker_runs_init(broker_runs_t *self)
 {
     memset(self, 0, sizeof *self);
     self->by_id = broker_table_new();
+    broker_runs_set_caps(self, 0, 0);
+}
+
+void broker_runs_set_caps(broker_runs_t *self, uint64_t per_run, uint64_t total)
+{
+    self->max_per_run = per_run ? per_run : BROKER_DEFAULT_UNACKED_PER_RUN;
+    self->max_total = total ? total : BROKER_DEFAULT_UNACKED;
+}
+
+static void s_delivery_free(broker_delivery_t *d)
+{
+    free(d->fitness);
+    free(d->error);
+    d->fitness = NULL;
+    d->error = NULL;
 }
 
 void broker_runs_fini(broker_runs_t *self)
@@ -26,9 +43,13 @@ void broker_runs_fini(broker_runs_t *self)
     while ((run = broker_table_next(self->by_id, &cur))) {
         size_t c2 = 0;
         broker_delivery_t *d;
-        while ((d = broker_table_next(run->unacked, &c2)))
+        while ((d = broker_table_next(run->unacked, &c2))) {
+            s_delivery_free(d);
             free(d);
+        }
         broker_table_destroy(&run->unacked);
+        for (uint32_t i = 0; i < run->n_outbox; i++)
+            s_delivery_free(&run->outbox[i]);
         free(run->outbox);
         free(run->queues);
         free(run->id);
@@ -208,30 +229,110 @@ broker_eval_t *broker_runs_pick(broker_runs_t *self, const broker_worker_t *w)
 
 /* ---- delivery ----------------------------------------------------------- */
 
-static void s_outbox_push(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
-                          int cached)
+static uint64_t s_held(const broker_run_t *run)
 {
+    return run->n_outbox + broker_table_size(run->unacked);
+}
+
+uint64_t broker_runs_room(const broker_runs_t *self, const broker_run_t *run)
+{
+    uint64_t held = s_held(run);
+    uint64_t a = held < self->max_per_run ? self->max_per_run - held : 0;
+    uint64_t b = self->n_held < self->max_total ? self->max_total - self->n_held : 0;
+    return a < b ? a : b;
+}
+
+static void s_spill_range(broker_runs_t *self, broker_run_t *run, int64_t from, int64_t to)
+{
+    if (!run->in_spill) {
+        run->in_spill = 1;
+        run->revisit = 0;
+        run->spill_cur = from;
+        run->spill_to = to;
+        if (!run->spill_linked) {
+            run->spill_linked = 1;
+            run->spill_next = self->spill_head;
+            self->spill_head = run;
+        }
+        return;
+    }
+    if (from < run->spill_cur) {
+        run->revisit_from = run->revisit && run->revisit_from < from ? run->revisit_from : from;
+        run->revisit = 1;
+    }
+    if (to > run->spill_to)
+        run->spill_to = to;
+}
+
+void broker_runs_owe_all(broker_runs_t *self, broker_run_t *run)
+{
+    s_spill_range(self, run, INT64_MIN, INT64_MAX);
+}
+
+void broker_runs_spill_advance(broker_runs_t *self, broker_run_t *run, int64_t last, int end)
+{
+    (void)self;
+    assert(run->in_spill);
+    if (!end && last < INT64_MAX && last < run->spill_to) {
+        run->spill_cur = last + 1;
+    } else if (run->revisit) {
+        run->revisit = 0;
+        run->spill_cur = run->revisit_from;
+    } else {
+        run->in_spill = 0; /* unlinked by the backlog's next pass */
+    }
+}
+
+/* Copies src (fitness and error borrowed) into the outbox; past a cap leaves
+ * it to the store and returns 0. */
+static int s_outbox_push(broker_runs_t *self, broker_run_t *run, const broker_delivery_t *src)
+{
+    if (broker_runs_room(self, run) == 0) {
+        self->n_spilled++;
+        s_spill_range(self, run, (int64_t)src->tag, (int64_t)src->tag);
+        return 0;
+    }
     if (run->n_outbox == run->cap_outbox) {
         run->cap_outbox = run->cap_outbox ? run->cap_outbox * 2 : 64;
         run->outbox = common_xrealloc(run->outbox, run->cap_outbox, sizeof *run->outbox);
     }
     broker_delivery_t *d = &run->outbox[run->n_outbox++];
-    d->tag = tag;
-    d->eval = e;
-    d->cached = (uint8_t)(cached != 0);
+    *d = *src;
+    d->fitness = src->n_fitness ? common_xmemdup(src->fitness, (size_t)src->n_fitness *
+                                                                   sizeof *src->fitness)
+                                : NULL;
+    d->error = src->error && *src->error ? common_xstrdup(src->error) : NULL;
     d->free_next = NULL;
+    if (++self->n_held > self->peak_held)
+        self->peak_held = self->n_held;
     if (!run->dirty) {
         run->dirty = 1;
         run->dirty_next = self->dirty_head;
         self->dirty_head = run;
     }
+    return 1;
+}
+
+static int s_push_eval(broker_runs_t *self, broker_run_t *run, uint64_t tag,
+                       const broker_eval_t *e, int cached)
+{
+    broker_delivery_t t = {.tag = tag,
+                           .seed = e->seed,
+                           .status = e->status,
+                           .cached = (uint8_t)(cached != 0),
+                           .fresh = e->fresh,
+                           .n_fitness = e->n_fitness,
+                           .fitness = e->fitness,
+                           .error = e->error};
+    memcpy(t.key, e->key, PROTO_KEY_BYTES);
+    return s_outbox_push(self, run, &t);
 }
 
 void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
                         int cached)
 {
     assert(e->state == BROKER_EVAL_DONE || cached == 0);
-    s_outbox_push(self, run, tag, e, cached);
+    (void)s_push_eval(self, run, tag, e, cached); /* past a cap: the store has it, acked = 0 */
     run->n_answered++;
     run->p_answered++;
     if (cached) {
@@ -249,25 +350,52 @@ void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, br
                  " cached, %" PRIu64 " failed)",
                  run->id, run->p_answered, run->p_evaluated, run->p_cached, run->p_failed);
         run->p_answered = run->p_evaluated = run->p_cached = run->p_failed = 0;
+        self->went_idle = 1;
     }
 }
 
-void broker_runs_redeliver(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
-                           int cached)
+int broker_runs_redeliver(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
+                          int cached)
 {
     assert(e->state == BROKER_EVAL_DONE);
-    s_outbox_push(self, run, tag, e, cached);
+    return s_push_eval(self, run, tag, e, cached);
+}
+
+int broker_runs_redeliver_copy(broker_runs_t *self, broker_run_t *run,
+                               const broker_delivery_t *src)
+{
+    return s_outbox_push(self, run, src);
 }
 
 size_t broker_runs_resend(broker_runs_t *self, broker_run_t *run)
 {
-    size_t cur = 0, n = 0;
-    broker_delivery_t *d;
-    while ((d = broker_table_next(run->unacked, &cur))) {
-        s_outbox_push(self, run, d->tag, d->eval, d->cached);
-        n++;
+    /* Moved, not copied: the held count does not change. */
+    size_t n = broker_table_size(run->unacked), k = 0, cur = 0;
+    if (n == 0)
+        return 0;
+    if (run->n_outbox + n > run->cap_outbox) {
+        run->cap_outbox = (uint32_t)(run->n_outbox + n);
+        run->outbox = common_xrealloc(run->outbox, run->cap_outbox, sizeof *run->outbox);
     }
-    return n;
+    broker_delivery_t **nodes = common_xcalloc(n, sizeof *nodes);
+    broker_delivery_t *d;
+    while ((d = broker_table_next(run->unacked, &cur)))
+        nodes[k++] = d;
+    for (size_t i = 0; i < k; i++) {
+        d = broker_table_delete(run->unacked, &nodes[i]->tag, sizeof nodes[i]->tag);
+        run->outbox[run->n_outbox++] = *d;
+        d->fitness = NULL;
+        d->error = NULL;
+        d->free_next = self->free_nodes;
+        self->free_nodes = d;
+    }
+    free(nodes);
+    if (!run->dirty) {
+        run->dirty = 1;
+        run->dirty_next = self->dirty_head;
+        self->dirty_head = run;
+    }
+    return k;
 }
 
 broker_run_t *broker_runs_take_dirty(broker_runs_t *self)
@@ -284,20 +412,22 @@ broker_run_t *broker_runs_take_dirty(broker_runs_t *self)
 void broker_runs_sent(broker_runs_t *self, broker_run_t *run)
 {
     for (uint32_t i = 0; i < run->n_outbox; i++) {
-        const broker_delivery_t *o = &run->outbox[i];
+        broker_delivery_t *o = &run->outbox[i];
         broker_delivery_t *d = broker_table_get(run->unacked, &o->tag, sizeof o->tag);
-        if (!d) {
+        if (d) {
+            s_delivery_free(d); /* the same tag sent again: one entry */
+            assert(self->n_held > 0);
+            self->n_held--;
+        } else {
             d = self->free_nodes;
             if (d)
                 self->free_nodes = d->free_next;
             else
                 d = common_xmalloc(sizeof *d);
-            d->tag = o->tag;
-            broker_table_put(run->unacked, &d->tag, sizeof d->tag, d);
         }
-        d->eval = o->eval;
-        d->cached = o->cached;
+        *d = *o; /* takes over fitness and error */
         d->free_next = NULL;
+        broker_table_put(run->unacked, &d->tag, sizeof d->tag, d);
     }
     run->n_outbox = 0;
 }
@@ -307,6 +437,9 @@ int broker_runs_ack(broker_runs_t *self, broker_run_t *run, uint64_t tag)
     broker_delivery_t *d = broker_table_delete(run->unacked, &tag, sizeof tag);
     if (!d)
         return 0;
+    s_delivery_free(d);
+    assert(self->n_held > 0);
+    self->n_held--;
     d->free_next = self->free_nodes;
     self->free_nodes = d;
     return 1;

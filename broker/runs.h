@@ -3,6 +3,13 @@
  * counters, the results waiting to be sent this turn (outbox) and the results
  * sent but not yet acknowledged (unacked, re-sent when the client comes back).
  *
+ * Bounded delivery. Outbox plus unacked hold at most max_per_run results per
+ * run and max_total over all runs, each a copy of the result (no genome). A
+ * result past a cap is not kept: it stays in the store (its request has
+ * acked = 0), and the run records the range of tags it owes from the store
+ * (spill_*); backlog.c pages them back in bounded chunks as the client
+ * acknowledges what it holds.
+ *
  * Fair share: the runs that have queued work form a ring; broker_runs_pick
  * serves them round-robin, one job per run per step, so one large run cannot
  * starve a small one. Dispatch is O(1) per job (O(plugins in the run) to pick
@@ -23,11 +30,18 @@ typedef struct {
     broker_eval_t *head, *tail;
 } broker_queue_t;
 
-/* One result owed to a request: in the outbox, or sent and not yet acked. */
+/* One result owed to a request: in the outbox, or sent and not yet acked.
+ * A copy, so the evaluation may leave the cache meanwhile. */
 typedef struct broker_delivery {
     uint64_t tag;
-    broker_eval_t *eval; /* DONE */
+    uint64_t seed;
+    uint8_t key[PROTO_KEY_BYTES];
+    uint8_t status;
     uint8_t cached;
+    uint8_t fresh; /* the request's own re-evaluation (no-cache) */
+    uint32_t n_fitness;
+    double *fitness; /* owned (borrowed in the template given to the push calls) */
+    char *error;     /* owned, NULL = "" */
     struct broker_delivery *free_next;
 } broker_delivery_t;
 
@@ -51,6 +65,12 @@ typedef struct broker_run {
     struct broker_run *dirty_next;
     int dirty;
     broker_table_t *unacked; /* tag -> broker_delivery_t */
+    /* Tags owed from the store (their results were past a cap): a sweep over
+     * [spill_cur, spill_to], then again from revisit_from if a tag below the
+     * cursor spilled meanwhile. Tags compare as the store's signed INTEGER. */
+    int in_spill, spill_linked, revisit;
+    int64_t spill_cur, spill_to, revisit_from;
+    struct broker_run *spill_next;
 } broker_run_t;
 
 typedef struct {
@@ -61,6 +81,12 @@ typedef struct {
     int64_t back_seq, front_seq;
     uint64_t total_queued;
     broker_delivery_t *free_nodes;
+    /* bounded delivery */
+    uint64_t max_per_run, max_total;
+    uint64_t n_held, peak_held; /* outbox + unacked entries over all runs */
+    uint64_t n_spilled;         /* results left in the store at a cap */
+    broker_run_t *spill_head;   /* runs that owe results from the store */
+    int went_idle;              /* a run went idle: the loop logs memory use */
 } broker_runs_t;
 
 void broker_runs_init(broker_runs_t *self);
@@ -83,17 +109,35 @@ void broker_runs_unqueue(broker_runs_t *self, broker_eval_t *e);
  * none. A job that last crashed on w is left for another carrier if one exists. */
 broker_eval_t *broker_runs_pick(broker_runs_t *self, const broker_worker_t *w);
 
-/* Records that request tag of run is answered by DONE e; queues it in the
- * run's outbox. Logs the idle line when it was the run's last outstanding one. */
+/* Sets the delivery caps (0 = the defaults in broker.h). */
+void broker_runs_set_caps(broker_runs_t *self, uint64_t per_run, uint64_t total);
+
+/* Records that request tag of run is answered by DONE e; queues a copy of the
+ * result in the run's outbox, or past a cap leaves it to the store. Logs the
+ * idle line when it was the run's last outstanding one. */
 void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
                         int cached);
 /* Queues the result of request tag for sending again without counting it as
- * a new answer: a re-sent SUBMIT of a request already answered, or (at
- * start) a stored result the client never acknowledged. */
-void broker_runs_redeliver(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
-                           int cached);
-/* Queues every unacked result of run for sending again. Returns how many. */
+ * a new answer (a re-sent SUBMIT of a request already answered). Returns 1
+ * when it is held in RAM, 0 when it was past a cap and is owed from the
+ * store: the caller makes sure the store says acked = 0 for it. */
+int broker_runs_redeliver(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
+                          int cached);
+/* The same with the result given as a delivery template (fitness and error
+ * borrowed, copied here): a result read from the store. */
+int broker_runs_redeliver_copy(broker_runs_t *self, broker_run_t *run,
+                               const broker_delivery_t *src);
+/* Queues every unacked result of run for sending again (moved to the outbox;
+ * what the store owes stays owed). Returns how many. */
 size_t broker_runs_resend(broker_runs_t *self, broker_run_t *run);
+/* The run owes every answered, unacknowledged result the store holds for it
+ * (at start). */
+void broker_runs_owe_all(broker_runs_t *self, broker_run_t *run);
+/* Results run may take into RAM now (0 at a cap). */
+uint64_t broker_runs_room(const broker_runs_t *self, const broker_run_t *run);
+/* The backlog read tags up to last; end: nothing more in [spill_cur,
+ * spill_to]. Ends the run's spill or starts its revisit. */
+void broker_runs_spill_advance(broker_runs_t *self, broker_run_t *run, int64_t last, int end);
 /* Pops a run with a non-empty outbox, or NULL. */
 broker_run_t *broker_runs_take_dirty(broker_runs_t *self);
 /* After sending outbox entries [0, n): moves them to unacked, clears outbox. */

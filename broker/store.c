@@ -76,6 +76,7 @@ enum {
     S_FIND_FRESH,
     S_RESULT,
     S_ACK,
+    S_UNACK,
     S_PLUGIN,
     S_COUNT_
 };
@@ -102,6 +103,7 @@ static const char *const s_sql[S_COUNT_] = {
                  " arch = ?10, digest = ?11, cpu_seconds = ?12, peak_rss_kb = ?13,"
                  " finished_at = ?14 WHERE key = ?1",
     [S_ACK] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag = ?2",
+    [S_UNACK] = "UPDATE requests SET acked = 0 WHERE run_id = ?1 AND tag = ?2 AND acked = 1",
     [S_PLUGIN] = "INSERT INTO plugins(name, version, objectives, flags, digests, last_seen,"
                  " seed_params) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7) ON CONFLICT(name) DO UPDATE"
                  " SET version = ?2, objectives = ?3, flags = ?4, digests = ?5, last_seen = ?6,"
@@ -438,6 +440,14 @@ void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64
     sqlite3_bind_text(st, 1, run->id, -1, SQLITE_STATIC);
     s_bind_u64(st, 2, tag);
     s_step(self, S_ACK);
+}
+
+void broker_store_note_unack(broker_store_t *self, const broker_run_t *run, uint64_t tag)
+{
+    sqlite3_stmt *st = self->stmt[S_UNACK];
+    sqlite3_bind_text(st, 1, run->id, -1, SQLITE_STATIC);
+    s_bind_u64(st, 2, tag);
+    s_step(self, S_UNACK);
 }
 
 void broker_store_note_plugin(broker_store_t *self, const broker_plugin_t *p)

@@ -14,8 +14,9 @@
  *     out. A turn's writes are one transaction (group commit): BEGIN at the
  *     first write, COMMIT here.
  *
- * broker_store_load (store_load.c) rebuilds the catalog, the runs, every
- * stored result and the pending evaluations at start. The schema is in
+ * broker_store_load (store_load.c) rebuilds the catalog, the runs and the
+ * pending evaluations at start; finished results are read back on demand
+ * (cache.c), results owed to clients in pages (backlog.c). The schema is in
  * store.c and in the README ("The store"). Not here: cache lookups in memory
  * (evals.h), what a request means (client_io.c). */
 #ifndef BROKER_STORE_H
@@ -67,6 +68,9 @@ void broker_store_note_result(broker_store_t *self, const broker_eval_t *e,
                               const proto_outcome_t *o, const char *worker, const char *host,
                               const char *arch);
 void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64_t tag);
+/* Request tag of run is owed to its client again (a re-sent request answered
+ * past the delivery cap, runs.h): acked back to 0 so the backlog reads it. */
+void broker_store_note_unack(broker_store_t *self, const broker_run_t *run, uint64_t tag);
 void broker_store_note_plugin(broker_store_t *self, const broker_plugin_t *p);
 /* Makes this turn's notes durable. Returns 0, or -1 (nothing may be sent;
  * the notes are retried with the next commit). */

@@ -1,17 +1,19 @@
 /* store_load.c: rebuilding the broker's state from the store at start (see
  * store.h): the plugin catalog (so a SUBMIT that arrives before any worker is
- * back is not refused), the runs, every stored result (loaded into the
- * in-memory evaluation table: the cache answers from RAM, about 200 bytes
- * plus genome per result), and the pending evaluations, queued again in the
- * run of their first request with every request waiting on them. Results
- * answered but not acknowledged go to their run's unacked set, so they are
- * re-sent when the client comes back. Owns nothing after it returns. */
+ * back is not refused), the runs, and the pending evaluations, queued again in
+ * the run of their first request with every request waiting on them.
+ * Finished results are not loaded: the evaluation table is a bounded cache
+ * over the store (cache.c reads a key back on a miss), and results answered
+ * but not acknowledged are owed from the store, paged back when the client
+ * returns (backlog.c). Owns nothing after it returns. */
 #include <inttypes.h>
 #include <jansson.h>
 #include <sqlite3.h>
 #include <stdio.h>
 #include <string.h>
 
+#include "backlog.h"
+#include "cache.h"
 #include "common/log.h"
 #include "core.h"
 
@@ -131,40 +133,6 @@ static broker_eval_t *s_new_eval(broker_t *b, sqlite3_stmt *st, int col)
     return e;
 }
 
-static int s_load_results(broker_t *b, sqlite3 *db, uint64_t *n)
-{
-    sqlite3_stmt *st = NULL;
-    if (sqlite3_prepare_v2(db,
-                           "SELECT key, plugin, params, genome, seed, timeout_ms, max_attempts,"
-                           " status, fitness, error, attempts FROM evaluations"
-                           " WHERE status IS NOT NULL",
-                           -1, &st, NULL) != SQLITE_OK)
-        return s_fail(db, "evaluations");
-    double fit[PROTO_MAX_OBJECTIVES];
-    while (sqlite3_step(st) == SQLITE_ROW) {
-        broker_eval_t *e = s_new_eval(b, st, 0);
-        if (!e)
-            continue;
-        const uint8_t *le = sqlite3_column_blob(st, 8);
-        int bytes = sqlite3_column_bytes(st, 8);
-        uint32_t nf = (uint32_t)(bytes / 8);
-        if (nf > PROTO_MAX_OBJECTIVES)
-            nf = PROTO_MAX_OBJECTIVES;
-        for (uint32_t i = 0; i < nf; i++) {
-            uint64_t bits = 0;
-            for (int k = 0; k < 8; k++)
-                bits |= (uint64_t)le[i * 8 + (uint32_t)k] << (8 * k);
-            memcpy(&fit[i], &bits, 8);
-        }
-        e->attempts = (uint16_t)sqlite3_column_int(st, 10);
-        broker_eval_set_result(&b->evals, e, (uint32_t)sqlite3_column_int(st, 7), fit, nf,
-                               (const char *)sqlite3_column_text(st, 9));
-        (*n)++;
-    }
-    sqlite3_finalize(st);
-    return 0;
-}
-
 static int s_waits(broker_eval_t *e, broker_run_t *run, uint64_t tag)
 {
     for (uint32_t i = 0; i < e->n_waiters; i++) {
@@ -175,16 +143,15 @@ static int s_waits(broker_eval_t *e, broker_run_t *run, uint64_t tag)
     return 0;
 }
 
-static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending, uint64_t *unacked)
+static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
 {
     sqlite3_stmt *st = NULL;
     /* Creation order, so a run's queue comes back oldest first. */
     if (sqlite3_prepare_v2(db,
                            "SELECT r.run_id, r.tag, r.cached, r.acked, e.key, e.plugin, e.params,"
-                           " e.genome, e.seed, e.timeout_ms, e.max_attempts, e.status IS NULL"
+                           " e.genome, e.seed, e.timeout_ms, e.max_attempts"
                            " FROM requests r JOIN evaluations e ON e.key = r.key"
-                           " WHERE r.fresh = 0 AND (e.status IS NULL OR r.acked = 0)"
-                           " ORDER BY r.created",
+                           " WHERE r.fresh = 0 AND e.status IS NULL ORDER BY r.created",
                            -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "requests");
     while (sqlite3_step(st) == SQLITE_ROW) {
@@ -195,14 +162,6 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending, uint64_t
             continue;
         uint64_t tag = s_u64(st, 1);
         broker_eval_t *e = broker_evals_get(&b->evals, key);
-        if (!sqlite3_column_int(st, 11)) {
-            /* Answered and not acknowledged: owed to the client when it returns. */
-            if (e && e->state == BROKER_EVAL_DONE) {
-                broker_runs_redeliver(&b->runs, run, tag, e, sqlite3_column_int(st, 2));
-                (*unacked)++;
-            }
-            continue;
-        }
         if (!e) {
             e = s_new_eval(b, st, 4);
             if (!e)
@@ -221,27 +180,11 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending, uint64_t
     return 0;
 }
 
-/* Fitness doubles from a little-endian blob; returns how many (capped). */
-static uint32_t s_fitness(sqlite3_stmt *st, int col, double *fit)
-{
-    const uint8_t *le = sqlite3_column_blob(st, col);
-    uint32_t nf = (uint32_t)(sqlite3_column_bytes(st, col) / 8);
-    if (nf > PROTO_MAX_OBJECTIVES)
-        nf = PROTO_MAX_OBJECTIVES;
-    for (uint32_t i = 0; i < nf; i++) {
-        uint64_t bits = 0;
-        for (int k = 0; k < 8; k++)
-            bits |= (uint64_t)le[i * 8 + (uint32_t)k] << (8 * k);
-        memcpy(&fit[i], &bits, 8);
-    }
-    return nf;
-}
-
-/* No-cache requests not yet acknowledged: answered ones (a results row of
- * their run with fresh = 1) are owed to the client with that result; the
- * others wait on a re-evaluation queued again. The cached result of their
- * key was loaded by s_load_results. */
-static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending, uint64_t *unacked)
+/* No-cache requests not yet acknowledged and not answered (no results row of
+ * their run with fresh = 1; answered ones are owed from the store, backlog.c)
+ * wait on a re-evaluation queued again. The cached result of their key is
+ * read back from the store. */
+static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
 {
     sqlite3_stmt *st = NULL;
     if (sqlite3_prepare_v2(db,
@@ -253,26 +196,18 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending, uint64_t *u
                            " WHERE r.fresh = 1 AND r.acked = 0 ORDER BY r.created",
                            -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "no-cache requests");
-    double fit[PROTO_MAX_OBJECTIVES];
     while (sqlite3_step(st) == SQLITE_ROW) {
         const char *run_id = (const char *)sqlite3_column_text(st, 0);
         broker_run_t *run = run_id ? broker_runs_get(&b->runs, run_id) : NULL;
         const uint8_t *key = sqlite3_column_blob(st, 2);
         if (!run || sqlite3_column_bytes(st, 2) != PROTO_KEY_BYTES)
             continue;
-        broker_eval_t *origin = broker_evals_get(&b->evals, key);
+        if (sqlite3_column_type(st, 3) != SQLITE_NULL)
+            continue; /* answered: owed from the store */
+        broker_eval_t *origin = broker_cache_lookup(b, key);
         if (!origin || origin->state != BROKER_EVAL_DONE)
             continue;
         uint64_t tag = s_u64(st, 1);
-        if (sqlite3_column_type(st, 3) != SQLITE_NULL) {
-            broker_eval_t *f = broker_evals_new_fresh_stored(&b->evals, origin);
-            uint32_t nf = s_fitness(st, 4, fit);
-            broker_eval_set_result(&b->evals, f, (uint32_t)sqlite3_column_int(st, 3), fit, nf,
-                                   (const char *)sqlite3_column_text(st, 5));
-            broker_runs_redeliver(&b->runs, run, tag, f, 0);
-            (*unacked)++;
-            continue;
-        }
         broker_eval_t *f = origin->again;
         if (!f) {
             f = broker_evals_new_fresh(&b->evals, origin);
@@ -296,15 +231,15 @@ int broker_store_load(broker_t *b)
 {
     sqlite3 *db = broker_store_db(b->store);
     uint32_t n_plugins = 0, n_runs = 0;
-    uint64_t n_results = 0, n_pending = 0, n_unacked = 0;
+    uint64_t n_pending = 0;
     if (s_load_plugins(b, db, &n_plugins) != 0 || s_load_runs(b, db, &n_runs) != 0 ||
-        s_load_results(b, db, &n_results) != 0 ||
-        s_load_requests(b, db, &n_pending, &n_unacked) != 0 ||
-        s_load_fresh(b, db, &n_pending, &n_unacked) != 0)
+        s_load_requests(b, db, &n_pending) != 0 || s_load_fresh(b, db, &n_pending) != 0 ||
+        broker_backlog_load(b) != 0)
         return -1;
     if (n_runs || n_plugins)
-        LOG_INFO("store loaded: %u plugins, %u runs, %" PRIu64 " results, %" PRIu64
-                 " pending evaluations queued again, %" PRIu64 " results owed to clients",
-                 n_plugins, n_runs, n_results, n_pending, n_unacked);
+        LOG_INFO("store loaded: %u plugins, %u runs, %" PRIu64
+                 " pending evaluations queued again (finished results stay in the store and "
+                 "are read when asked for)",
+                 n_plugins, n_runs, n_pending);
     return 0;
 }

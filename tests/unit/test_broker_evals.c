@@ -113,8 +113,8 @@ static void test_usage_example(void **state)
     assert_int_equal(run->n_outbox, 3);
     for (uint32_t i = 0; i < 3; i++) {
         assert_int_equal(run->outbox[i].cached, 0);
-        assert_int_equal(run->outbox[i].eval->status, PROTO_STATUS_OK);
-        assert_true(run->outbox[i].eval->fitness[0] == 1.25);
+        assert_int_equal(run->outbox[i].status, PROTO_STATUS_OK);
+        assert_true(run->outbox[i].fitness[0] == 1.25);
     }
     assert_int_equal(run->outstanding, 0);
     broker_client_flush(b); /* no sockets: moves the outbox to unacked */
