@@ -20,6 +20,7 @@
 #include <string.h>
 
 #include "msg.h"
+#include "msg_layout.h"
 
 /* Longest field path we build, e.g. "STATUS.workers[99999].plugins[255]". */
 #define S_PATH_MAX 96
@@ -698,29 +699,6 @@ cleanup:
     return rc;
 }
 
-/* Fields after [version, type]; -1 for a type we do not know. Must agree
- * with the encoder's table (checked by the round-trip tests). */
-static int s_field_count(uint32_t type)
-{
-    switch (type) {
-    case PROTO_SUBMIT: return 10;
-    case PROTO_ACK: return 2;
-    case PROTO_ACCEPTED: return 3;
-    case PROTO_RESULTS: return 2;
-    case PROTO_REFUSED: return 4;
-    case PROTO_STATUS: return 3;
-    case PROTO_HELLO: return 5;
-    case PROTO_CREDIT: return 1;
-    case PROTO_DONE: return 2;
-    case PROTO_JOBS: return 1;
-    case PROTO_STATUS_REQ:
-    case PROTO_BYE:
-    case PROTO_REHELLO:
-    case PROTO_HEARTBEAT: return 0;
-    default: return -1;
-    }
-}
-
 /* A caller's limits, each clamped to its ceiling; 0 means the ceiling. */
 static uint32_t s_clamp(uint32_t v, uint32_t ceiling)
 {
@@ -788,7 +766,7 @@ int proto_msg_decode(const uint8_t *buf, size_t len, const proto_limits_t *limit
         goto cleanup;
     }
     FIELD("type", s_read_u64(c, &type));
-    int nfields = type <= UINT32_MAX ? s_field_count((uint32_t)type) : -1;
+    int nfields = type <= UINT32_MAX ? proto_msg_field_count((uint32_t)type) : -1;
     if (nfields < 0) {
         rc = s_fail(c, PROTO_EUNKNOWN, "unknown message type %llu", (unsigned long long)type);
         goto cleanup;

@@ -15,6 +15,7 @@
 #include <msgpack.h>
 
 #include "msg.h"
+#include "msg_layout.h"
 
 /* Every pack call can fail only when the buffer cannot grow. */
 #define PACK(call)                  \
@@ -235,28 +236,6 @@ cleanup:
     return rc;
 }
 
-/* Number of fields after [version, type] for each type; -1 if unknown. */
-static int s_field_count(uint32_t type)
-{
-    switch (type) {
-    case PROTO_SUBMIT: return 10;
-    case PROTO_ACK: return 2;
-    case PROTO_ACCEPTED: return 3;
-    case PROTO_RESULTS: return 2;
-    case PROTO_REFUSED: return 4;
-    case PROTO_STATUS: return 3;
-    case PROTO_HELLO: return 5;
-    case PROTO_CREDIT: return 1;
-    case PROTO_DONE: return 2;
-    case PROTO_JOBS: return 1;
-    case PROTO_STATUS_REQ:
-    case PROTO_BYE:
-    case PROTO_REHELLO:
-    case PROTO_HEARTBEAT: return 0;
-    default: return -1;
-    }
-}
-
 int proto_msg_encode(const proto_msg_t *msg, uint8_t **out, size_t *out_len)
 {
     int rc = PROTO_OK;
@@ -271,7 +250,7 @@ int proto_msg_encode(const proto_msg_t *msg, uint8_t **out, size_t *out_len)
     if (out_len)
         *out_len = 0;
     REQUIRE(msg && out && out_len);
-    int nfields = s_field_count(msg->type);
+    int nfields = proto_msg_field_count(msg->type);
     REQUIRE(nfields >= 0);
 
     PACK(msgpack_pack_array(pk, 2 + (size_t)nfields));

@@ -1,6 +1,29 @@
 /* msg_names.c: printable names of message types and job statuses, for logs
- * and error texts. Not here: encoding or decoding of anything. */
+ * and error texts, and the field count of each type, which the encoder and
+ * the decoder share. Not here: encoding or decoding of anything. */
 #include "msg.h"
+#include "msg_layout.h"
+
+int proto_msg_field_count(uint32_t type)
+{
+    switch (type) {
+    case PROTO_SUBMIT: return 10;
+    case PROTO_ACK: return 2;
+    case PROTO_ACCEPTED: return 3;
+    case PROTO_RESULTS: return 2;
+    case PROTO_REFUSED: return 4;
+    case PROTO_STATUS: return 3;
+    case PROTO_HELLO: return 5;
+    case PROTO_CREDIT: return 1;
+    case PROTO_DONE: return 2;
+    case PROTO_JOBS: return 1;
+    case PROTO_STATUS_REQ:
+    case PROTO_BYE:
+    case PROTO_REHELLO:
+    case PROTO_HEARTBEAT: return 0;
+    default: return -1;
+    }
+}
 
 const char *proto_type_name(int type)
 {
