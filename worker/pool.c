@@ -93,6 +93,27 @@ static s_job_t *s_at(s_child_t *c, unsigned k)
     return &c->q[(c->qhead + k) % S_MAX_DEPTH];
 }
 
+/* A failed or crashed evaluation whose process came near the address-space
+ * limit most likely ran out of memory: say so, naming the limit, since the
+ * plugin's own message ("out of memory", or a bare SIGSEGV) cannot. Peak RSS
+ * under-counts address space, hence the three-quarters threshold. */
+static void s_note_memory_limit(const worker_pool_t *self, worker_pool_result_t *r)
+{
+    uint64_t limit_kb = (uint64_t)self->config.mem_limit_mb * 1024u;
+    if (!limit_kb || r->outcome.status == PROTO_STATUS_OK ||
+        r->outcome.status == PROTO_STATUS_INVALID || r->outcome.peak_rss_kb < limit_kb / 4u * 3u)
+        return;
+    const char *was = r->outcome.error ? r->outcome.error : "";
+    size_t n = strlen(was) + 128;
+    char *e = common_xmalloc(n);
+    snprintf(e, n, "%s%smemory limit: the evaluation's process reached %llu MB of its %zu MB "
+             "--mem-limit",
+             was, was[0] ? "; " : "", (unsigned long long)(r->outcome.peak_rss_kb / 1024u),
+             self->config.mem_limit_mb);
+    free(r->outcome.error);
+    r->outcome.error = e;
+}
+
 static void s_push(worker_pool_t *self, const worker_pool_result_t *r)
 {
     if (self->head > 0 && self->count == self->cap) {
@@ -121,6 +142,7 @@ static void s_push_failure(worker_pool_t *self, uint64_t job_id, int64_t start_u
                                 (double)ru->ru_stime.tv_sec + ru->ru_stime.tv_usec * 1e-6;
     }
     r.wall_us = common_clock_us() - start_us;
+    s_note_memory_limit(self, &r);
     s_push(self, &r);
 }
 
@@ -446,6 +468,7 @@ static void s_on_answer(worker_pool_t *self, unsigned i, proto_msg_t *msg, uint6
                  (unsigned long long)limit_kb);
         *retire = 1;
     }
+    s_note_memory_limit(self, &r);
     s_push(self, &r);
 }
 

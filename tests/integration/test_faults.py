@@ -17,7 +17,7 @@ cases = [
     (1, "crashed", "SIGSEGV"),
     (2, "crashed", "SIGABRT"),
     (3, "timeout", "exceeded 1 s"),
-    (4, "failed", "out of memory"),
+    (4, "failed", "256 MB --mem-limit"),
     (5, "failed", "NaN"),
     (7, "crashed", "exit status 3"),
     (8, "failed", "asked to fail"),
