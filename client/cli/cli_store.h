@@ -9,6 +9,9 @@
 #include <stdint.h>
 #include <stdio.h>
 
+/* The broker daemon's default --store, so commands run beside it need no flag. */
+#define CLI_DEFAULT_STORE "fitfarm-store"
+
 /* Opens DIR/fitfarm.db read-only. Returns the handle (caller closes it with
  * sqlite3_close), or NULL after printing why, prefixed with prog. */
 sqlite3 *cli_store_open(const char *dir, const char *prog);

@@ -16,7 +16,7 @@
 #include "params.h"
 
 static const char s_runs_help[] =
-    "usage: fitfarm runs --store DIR [--json]\n"
+    "usage: fitfarm runs [--store DIR] [--json]\n"
     "\n"
     "Lists the runs a store holds: id, run seed, seed mode, plugin, requests,\n"
     "evaluated (simulations the run paid for), cached (requests answered from a\n"
@@ -24,13 +24,14 @@ static const char s_runs_help[] =
     "activity (UTC). Reads DIR/fitfarm.db read-only; the broker may be running.\n"
     "\n"
     "options:\n"
-    "  --store DIR   the store folder (the broker's --store, or fitfarm eval --store)\n"
+    "  --store DIR   the store folder (the broker's --store, or fitfarm eval --store;\n"
+    "                default ./" CLI_DEFAULT_STORE ", the broker's default)\n"
     "  --json        one JSON object per run, one per line\n"
     "\n"
     "exit status: 0 ok, 1 the store cannot be read, 2 usage error.\n";
 
 static const char s_export_help[] =
-    "usage: fitfarm export RUN --store DIR [--format jsonl|csv] [--out FILE]\n"
+    "usage: fitfarm export RUN [--store DIR] [--format jsonl|csv] [--out FILE]\n"
     "\n"
     "Writes every request of run RUN in request order with its result and the\n"
     "provenance of that result: run, tag, batch_tag, replicate, cached, no_cache,\n"
@@ -39,7 +40,7 @@ static const char s_export_help[] =
     "requested_at, finished_at. A no-cache request shows its own re-evaluation.\n"
     "\n"
     "options:\n"
-    "  --store DIR      the store folder\n"
+    "  --store DIR      the store folder (default ./" CLI_DEFAULT_STORE ")\n"
     "  --format FORMAT  jsonl (default) or csv (RFC 4180, header line first;\n"
     "                   genome and fitness as JSON arrays in one field)\n"
     "  --out FILE       write to FILE (default stdout)\n"
@@ -75,7 +76,7 @@ int cli_cmd_runs(int argc, char **argv)
         }
     }
     if (!store)
-        return s_usage("runs", "--store DIR is required (runs are read from the store)%s", NULL);
+        store = CLI_DEFAULT_STORE;
     sqlite3 *db = cli_store_open(store, "fitfarm runs");
     if (!db)
         return 1;
@@ -302,7 +303,7 @@ int cli_cmd_export(int argc, char **argv)
     if (!run)
         return s_usage("export", "which run? give its id (see fitfarm runs)%s", NULL);
     if (!store)
-        return s_usage("export", "--store DIR is required%s", NULL);
+        store = CLI_DEFAULT_STORE;
     int csv = strcmp(format, "csv") == 0;
     sqlite3 *db = cli_store_open(store, "fitfarm export");
     if (!db)

@@ -29,7 +29,7 @@
 #include "params.h"
 
 static const char s_help[] =
-    "usage: fitfarm verify RUN --store DIR [--sample N] [--broker ENDPOINT | --plugin-dir DIR]\n"
+    "usage: fitfarm verify RUN [--store DIR] [--sample N] [--broker ENDPOINT | --plugin-dir DIR]\n"
     "\n"
     "Re-simulates stored evaluations of run RUN on a pool, bypassing the cache,\n"
     "with the run's seed and seed mode (so every seed is the recorded one), and\n"
@@ -37,7 +37,7 @@ static const char s_help[] =
     "worker, host, architecture and plugin build digest of each side.\n"
     "\n"
     "options:\n"
-    "  --store DIR         the store that recorded RUN (read-only)\n"
+    "  --store DIR         the store that recorded RUN (read-only; default ./" CLI_DEFAULT_STORE ")\n"
     "  --sample N          re-simulate N evaluations spread evenly over the run\n"
     "                      (default: all of them)\n"
     "  --broker ENDPOINT   re-simulate on the pool behind this broker; without it an\n"
@@ -190,7 +190,7 @@ int cli_cmd_verify(int argc, char **argv)
     if (!run)
         return s_usage("which run? give its id (see fitfarm runs)%s", NULL);
     if (!store)
-        return s_usage("--store DIR is required (the originals are read from it)%s", NULL);
+        store = CLI_DEFAULT_STORE;
 
     verify_item_t *items = NULL;
     verify_group_t *groups = NULL;
