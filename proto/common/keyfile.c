@@ -7,9 +7,12 @@
 #include <fcntl.h>
 #include <sodium.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
 #include <unistd.h>
+
+#include "textfile.h"
 
 static const char s_z85[] =
     "0123456789abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ.-:+=^!/*?&<>()[]{}@%$#";
@@ -64,13 +67,8 @@ void common_key_fingerprint(const uint8_t public_key[COMMON_KEY_BYTES],
     out[16] = '\0';
 }
 
-/* Splits the text into lines; calls back for each one that is not a comment
- * or blank, with its 1-based number. Stops at the first callback error. */
-typedef int (*s_line_cb)(const char *line, size_t len, long number, void *arg, char *err,
-                         size_t errlen);
-
-static int s_lines(const char *text, size_t len, s_line_cb cb, void *arg, char *err,
-                   size_t errlen)
+/* The checks of a whole key file's text before its lines are read. */
+static int s_text_ok(const char *text, size_t len, char *err, size_t errlen)
 {
     if (len > COMMON_KEYFILE_MAX_BYTES) {
         if (err && errlen)
@@ -81,26 +79,6 @@ static int s_lines(const char *text, size_t len, s_line_cb cb, void *arg, char *
         if (err && errlen)
             snprintf(err, errlen, "contains a NUL byte: not a key file");
         return -1;
-    }
-    long number = 0;
-    size_t i = 0;
-    while (i < len) {
-        const char *nl = memchr(text + i, '\n', len - i);
-        size_t end = nl ? (size_t)(nl - text) : len;
-        const char *line = text + i;
-        size_t n = end - i;
-        number++;
-        i = end + 1;
-        while (n > 0 && (line[n - 1] == '\r' || line[n - 1] == ' ' || line[n - 1] == '\t'))
-            n--;
-        while (n > 0 && (*line == ' ' || *line == '\t')) {
-            line++;
-            n--;
-        }
-        if (n == 0 || line[0] == '#')
-            continue;
-        if (cb(line, n, number, arg, err, errlen) != 0)
-            return -1;
     }
     return 0;
 }
@@ -152,7 +130,8 @@ int common_keyfile_parse_public(const char *text, size_t len, uint8_t public_key
 {
     uint8_t key[COMMON_KEY_BYTES];
     s_public_t p = {key, 0};
-    if (s_lines(text, len, s_public_line, &p, err, errlen) != 0)
+    if (s_text_ok(text, len, err, errlen) != 0 ||
+        common_textfile_lines(text, len, 0, s_public_line, &p, err, errlen) != 0)
         return -1;
     if (!p.found) {
         if (err && errlen)
@@ -169,40 +148,36 @@ typedef struct {
     uint8_t stated_public[COMMON_KEY_BYTES];
 } s_secret_t;
 
+/* A "secret: KEY" or "public: KEY" line (tag is "secret:" or "public:"):
+ * once each, the key after the tag and any blanks. */
+static int s_tagged_line(const char *line, size_t n, long number, const char *tag, int *seen,
+                         const char *what, uint8_t *key, char *err, size_t errlen)
+{
+    if (*seen) {
+        if (err && errlen)
+            snprintf(err, errlen, "line %ld: a second %s line", number, tag);
+        return -1;
+    }
+    line += 7;
+    n -= 7;
+    while (n > 0 && (*line == ' ' || *line == '\t')) {
+        line++;
+        n--;
+    }
+    *seen = 1;
+    return s_key_text(line, n, number, what, key, err, errlen);
+}
+
 static int s_secret_line(const char *line, size_t n, long number, void *arg, char *err,
                          size_t errlen)
 {
     s_secret_t *s = arg;
-    if (n >= 7 && memcmp(line, "secret:", 7) == 0) {
-        if (s->have_secret) {
-            if (err && errlen)
-                snprintf(err, errlen, "line %ld: a second secret: line", number);
-            return -1;
-        }
-        line += 7;
-        n -= 7;
-        while (n > 0 && (*line == ' ' || *line == '\t')) {
-            line++;
-            n--;
-        }
-        s->have_secret = 1;
-        return s_key_text(line, n, number, "the secret", s->pair->secret_key, err, errlen);
-    }
-    if (n >= 7 && memcmp(line, "public:", 7) == 0) {
-        if (s->have_public) {
-            if (err && errlen)
-                snprintf(err, errlen, "line %ld: a second public: line", number);
-            return -1;
-        }
-        line += 7;
-        n -= 7;
-        while (n > 0 && (*line == ' ' || *line == '\t')) {
-            line++;
-            n--;
-        }
-        s->have_public = 1;
-        return s_key_text(line, n, number, "the public", s->stated_public, err, errlen);
-    }
+    if (n >= 7 && memcmp(line, "secret:", 7) == 0)
+        return s_tagged_line(line, n, number, "secret:", &s->have_secret, "the secret",
+                             s->pair->secret_key, err, errlen);
+    if (n >= 7 && memcmp(line, "public:", 7) == 0)
+        return s_tagged_line(line, n, number, "public:", &s->have_public, "the public",
+                             s->stated_public, err, errlen);
     if (err && errlen) {
         if (n == COMMON_KEY_Z85)
             snprintf(err, errlen, "line %ld: a bare key: this looks like a public key file; "
@@ -221,7 +196,9 @@ int common_keyfile_parse_secret(const char *text, size_t len, common_keypair_t *
     s_secret_t s;
     memset(&s, 0, sizeof s);
     s.pair = pair;
-    int rc = s_lines(text, len, s_secret_line, &s, err, errlen);
+    int rc = s_text_ok(text, len, err, errlen);
+    if (rc == 0)
+        rc = common_textfile_lines(text, len, 0, s_secret_line, &s, err, errlen);
     if (rc == 0 && !s.have_secret) {
         if (err && errlen)
             snprintf(err, errlen, "no \"secret:\" line: not a fitfarm secret key file");
@@ -243,78 +220,36 @@ int common_keyfile_parse_secret(const char *text, size_t len, common_keypair_t *
     return rc;
 }
 
-/* Reads a whole small file. buf has COMMON_KEYFILE_MAX_BYTES + 1 bytes. */
-static int s_read(const char *path, char *buf, size_t *len, int secret, char *err, size_t errlen)
+/* Reads a whole key file; *buf is the caller's to free (sodium_free when
+ * secret, free otherwise). Words the outcomes the shared reader leaves to us. */
+static int s_read(const char *path, int secret, char **buf, size_t *len, char *err,
+                  size_t errlen)
 {
-    int rc = -1;
-    int fd = open(path, O_RDONLY | O_CLOEXEC | O_NOCTTY);
-    if (fd < 0) {
-        if (err && errlen)
-            snprintf(err, errlen, "cannot open key file %s: %s", path, strerror(errno));
-        return -1;
-    }
     struct stat st;
-    if (fstat(fd, &st) != 0 || !S_ISREG(st.st_mode)) {
-        if (err && errlen)
-            snprintf(err, errlen, "key file %s is not a regular file", path);
-        goto cleanup;
-    }
-    if (secret && (st.st_mode & 077)) {
-        if (err && errlen)
-            snprintf(err, errlen,
-                     "secret key file %s may be read by others (mode %03o); run "
-                     "'chmod 600 %s' and consider the key compromised if others had access",
-                     path, (unsigned)(st.st_mode & 0777), path);
-        goto cleanup;
-    }
-    size_t n = 0;
-    for (;;) {
-        ssize_t k = read(fd, buf + n, COMMON_KEYFILE_MAX_BYTES + 1 - n);
-        if (k < 0 && errno == EINTR)
-            continue;
-        if (k < 0) {
-            if (err && errlen)
-                snprintf(err, errlen, "cannot read key file %s: %s", path, strerror(errno));
-            goto cleanup;
-        }
-        if (k == 0)
-            break;
-        n += (size_t)k;
-        if (n > COMMON_KEYFILE_MAX_BYTES) {
-            if (err && errlen)
-                snprintf(err, errlen, "key file %s is larger than %d bytes: not a key file",
-                         path, COMMON_KEYFILE_MAX_BYTES);
-            goto cleanup;
-        }
-    }
-    *len = n;
-    rc = 0;
-cleanup:
-    close(fd);
-    return rc;
-}
-
-static void s_prefix(char *err, size_t errlen, const char *path)
-{
-    if (!err || !errlen)
-        return;
-    char tmp[512];
-    snprintf(tmp, sizeof tmp, "%s", err);
-    snprintf(err, errlen, "key file %s: %s", path, tmp);
+    int flags = COMMON_TEXTFILE_REGULAR | (secret ? COMMON_TEXTFILE_SECRET : 0);
+    int rc = common_textfile_read(path, "key file", COMMON_KEYFILE_MAX_BYTES, flags, buf, len,
+                                  &st, err, errlen);
+    if (rc == COMMON_TEXTFILE_EXPOSED && err && errlen)
+        snprintf(err, errlen,
+                 "secret key file %s may be read by others (mode %03o); run "
+                 "'chmod 600 %s' and consider the key compromised if others had access",
+                 path, (unsigned)(st.st_mode & 0777), path);
+    if (rc == COMMON_TEXTFILE_TOO_LONG && err && errlen)
+        snprintf(err, errlen, "key file %s is larger than %d bytes: not a key file", path,
+                 COMMON_KEYFILE_MAX_BYTES);
+    return rc == 0 ? 0 : -1;
 }
 
 int common_keyfile_read_public(const char *path, uint8_t public_key[COMMON_KEY_BYTES], char *err,
                                size_t errlen)
 {
-    char buf[COMMON_KEYFILE_MAX_BYTES + 1];
+    char *buf = NULL;
     size_t len = 0;
-    if (s_read(path, buf, &len, 0, err, errlen) != 0)
-        return -1;
-    if (common_keyfile_parse_public(buf, len, public_key, err, errlen) != 0) {
-        s_prefix(err, errlen, path);
-        return -1;
-    }
-    return 0;
+    int rc = s_read(path, 0, &buf, &len, err, errlen);
+    if (rc == 0 && (rc = common_keyfile_parse_public(buf, len, public_key, err, errlen)) != 0)
+        common_textfile_prefix(err, errlen, "key file", path);
+    free(buf);
+    return rc;
 }
 
 int common_keypair_new(common_keypair_t **out)
@@ -347,20 +282,20 @@ int common_keyfile_read_secret(const char *path, common_keypair_t **out, char *e
             snprintf(err, errlen, "libsodium cannot initialise");
         return -1;
     }
-    /* The file text holds the secret too: keep it in secure memory. */
-    char *buf = sodium_malloc(COMMON_KEYFILE_MAX_BYTES + 1);
+    /* The file text holds the secret too: s_read keeps it in secure memory. */
+    char *buf = NULL;
     common_keypair_t *pair = sodium_malloc(sizeof *pair);
     int rc = -1;
     size_t len = 0;
-    if (!buf || !pair) {
+    if (!pair) {
         if (err && errlen)
             snprintf(err, errlen, "out of secure memory reading %s", path);
         goto cleanup;
     }
-    if (s_read(path, buf, &len, 1, err, errlen) != 0)
+    if (s_read(path, 1, &buf, &len, err, errlen) != 0)
         goto cleanup;
     if (common_keyfile_parse_secret(buf, len, pair, err, errlen) != 0) {
-        s_prefix(err, errlen, path);
+        common_textfile_prefix(err, errlen, "key file", path);
         goto cleanup;
     }
     *out = pair;
