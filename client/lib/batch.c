@@ -111,7 +111,7 @@ int client_batch_prepare(fitfarm_batch_t *self)
     return self->slots ? FITFARM_OK : FITFARM_ENOMEM;
 }
 
-int client_batch_store(fitfarm_batch_t *self, size_t slot, const proto_result_t *r)
+int client_batch_store(fitfarm_batch_t *self, size_t slot, const proto_result_t *r, uint64_t seed)
 {
     client_slot_t *s = &self->slots[slot];
     if (s->state == CLIENT_SLOT_ARRIVED)
@@ -134,7 +134,7 @@ int client_batch_store(fitfarm_batch_t *self, size_t slot, const proto_result_t 
     s->state = CLIENT_SLOT_ARRIVED;
     s->status = (uint8_t)r->status;
     s->cached = r->cached ? 1 : 0;
-    s->seed = r->seed;
+    s->seed = seed;
     memcpy(s->key, r->key, PROTO_KEY_BYTES);
     s->n_fitness = r->n_fitness;
     s->fitness = fitness;

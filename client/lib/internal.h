@@ -137,7 +137,9 @@ void client_run_resend(fitfarm_run_t *run);
 /* Batch side (batch.c). */
 int client_batch_prepare(fitfarm_batch_t *batch); /* allocates slots */
 /* Stores one result; returns 1 if new, 0 for a duplicate, negative on ENOMEM. */
-int client_batch_store(fitfarm_batch_t *batch, size_t slot, const proto_result_t *r);
+/* seed: the request's own evaluation seed, reported in its result. */
+int client_batch_store(fitfarm_batch_t *batch, size_t slot, const proto_result_t *r,
+                       uint64_t seed);
 void client_batch_fill(const fitfarm_batch_t *batch, size_t slot, fitfarm_result_t *out);
 void client_batch_detach(fitfarm_batch_t *batch);
 

@@ -233,7 +233,16 @@ void client_run_on_results(fitfarm_run_t *run, const proto_results_t *results)
             s_async_fail(run, FITFARM_ENOMEM, "out of memory queueing a result");
             continue; /* not acknowledged: the broker will send it again */
         }
-        int stored = client_batch_store(batch, slot, r);
+        /* Report the request's own seed, derived as the broker derives it
+         * (proto/key.h): for a deterministic request the broker names the
+         * seed of the shared evaluation that answered it, which may belong to
+         * another replicate or another run. For a stochastic request the two
+         * are equal, since the seed is part of its key. */
+        size_t g = slot / batch->replicates;
+        uint64_t seed = proto_seed_derive(run->seed, (int)run->seed_mode, batch->genomes[g],
+                                          batch->genome_len[g],
+                                          (uint32_t)(slot % batch->replicates));
+        int stored = client_batch_store(batch, slot, r, seed);
         if (stored < 0) {
             s_async_fail(run, FITFARM_ENOMEM, "out of memory storing a result");
             continue;
