@@ -8,6 +8,7 @@ import json
 import os
 import random
 import signal
+import sqlite3
 import subprocess
 import sys
 import tempfile
@@ -156,6 +157,18 @@ class Pool:
             if f.endswith(".log"):
                 out.append(f"--- {f}\n" + open(os.path.join(self.tmp, f), errors="replace").read()[-4000:])
         return "\n".join(out)
+
+
+def done_in_store(db_path):
+    """Evaluations with a result in a broker's store (read-only; 0 while the
+    file is missing or locked), for tests that act mid-run."""
+    try:
+        db = sqlite3.connect(f"file:{db_path}?mode=ro", uri=True, timeout=1)
+        n = db.execute("SELECT count(*) FROM evaluations WHERE status IS NOT NULL").fetchone()[0]
+        db.close()
+        return n
+    except sqlite3.Error:
+        return 0
 
 
 def run_eval(args, input_text, timeout=600):

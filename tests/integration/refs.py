@@ -2,7 +2,9 @@
 published definitions (see ../../../shared/CHECKS.md), for comparing what the
 plugins return. Written apart from the C plugins on purpose: a shared bug would
 need to be made twice."""
+import hashlib
 import math
+import struct
 
 
 def zdt(variant, x):
@@ -39,3 +41,18 @@ def dtlz2(x, m):
 
 def close(a, b, rel=1e-12, abs_=1e-15):
     return all(abs(p - q) <= max(abs_, rel * max(abs(p), abs(q))) for p, q in zip(a, b)) and len(a) == len(b)
+
+
+def seed(run_seed, genome, rep, mode="genome"):
+    """The evaluation seed as proto/key.h documents it, recomputed with
+    Python's hashlib (BLAKE2b, RFC 7693): keyed BLAKE2b-256 with key
+    run_seed u64 LE || "ffseedv1" over 0x00 || BLAKE2b-256(genome as
+    little-endian doubles) || rep u32 LE (genome mode) or 0x01 || rep u32 LE
+    (common mode); the seed is the first 8 bytes, little-endian."""
+    key = struct.pack("<Q", run_seed) + b"ffseedv1"
+    if mode == "genome":
+        gbytes = b"".join(struct.pack("<d", x) for x in (genome or []))
+        msg = b"\x00" + hashlib.blake2b(gbytes, digest_size=32).digest() + struct.pack("<I", rep)
+    else:
+        msg = b"\x01" + struct.pack("<I", rep)
+    return struct.unpack("<Q", hashlib.blake2b(msg, digest_size=32, key=key).digest()[:8])[0]

@@ -5,7 +5,6 @@ client reconnect by themselves, the pending work is reloaded, and the client
 finishes with every line ok and bit-identical to an undisturbed run."""
 import os
 import signal
-import sqlite3
 import subprocess
 import time
 
@@ -18,21 +17,11 @@ text = fflib.jsonl(gs)
 common = ["--plugin", "spin", "--params", '{"ms": 10}', "--seed", "3"]
 
 
-def done_in_store(path):
-    try:
-        db = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=1)
-        n = db.execute("SELECT count(*) FROM evaluations WHERE status IS NOT NULL").fetchone()[0]
-        db.close()
-        return n
-    except sqlite3.Error:
-        return 0
-
-
 def wait_done(path, n, proc):
     deadline = time.time() + 120
-    while done_in_store(path) < n and time.time() < deadline and proc.poll() is None:
+    while fflib.done_in_store(path) < n and time.time() < deadline and proc.poll() is None:
         time.sleep(0.05)
-    return done_in_store(path)
+    return fflib.done_in_store(path)
 
 
 with fflib.Pool(broker_args=["--liveness", "2000"]) as pool:

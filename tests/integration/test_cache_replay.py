@@ -30,6 +30,7 @@ import subprocess
 import time
 
 import fflib
+import refs
 
 check = fflib.Check("test_cache_replay")
 N = 2000
@@ -42,20 +43,6 @@ M64 = (1 << 64) - 1
 
 
 # ---- outside references -------------------------------------------------
-def seed_ref(run_seed, genome, rep, mode="genome"):
-    """proto/key.h: keyed BLAKE2b-256, key = run_seed LE || "ffseedv1";
-    message 0x00 || BLAKE2b-256(genome bytes) || rep u32 LE (genome mode) or
-    0x01 || rep u32 LE (common mode); seed = first 8 bytes LE. Recomputed
-    with Python's hashlib (RFC 7693)."""
-    key = struct.pack("<Q", run_seed) + b"ffseedv1"
-    gbytes = b"".join(struct.pack("<d", x) for x in (genome or []))
-    if mode == "genome":
-        msg = b"\x00" + hashlib.blake2b(gbytes, digest_size=32).digest() + struct.pack("<I", rep)
-    else:
-        msg = b"\x01" + struct.pack("<I", rep)
-    return struct.unpack("<Q", hashlib.blake2b(msg, digest_size=32, key=key).digest()[:8])[0]
-
-
 def spin_u_ref(seed):
     """First xoshiro256** uniform after splitmix64 seeding (Blackman & Vigna,
     reference C code, transcribed here independently)."""
@@ -90,7 +77,7 @@ with fflib.Pool(log_prefix="one") as pool:
     pool.wait_workers(1)
     rc, one, err = fflib.run_eval(["--broker", pool.clients_ep, "--run", "one"] + spin, text)
     check.ok(rc == 0 and len(one) == N * REPS, f"one worker: exit {rc}, {len(one)} lines {err[-500:]}")
-    ref_ok = all(int(r["seed"]) == seed_ref(SEED, gs[r["id"]], r["replicate"]) and
+    ref_ok = all(int(r["seed"]) == refs.seed(SEED, gs[r["id"]], r["replicate"]) and
                  r["fitness"][1] == spin_u_ref(int(r["seed"])) and
                  r["fitness"][0] == sum(gs[r["id"]]) for r in one)
     check.ok(ref_ok, "every seed and spin draw equals the hashlib/xoshiro256** reference")
@@ -172,7 +159,7 @@ with fflib.Pool(log_prefix="cache") as pool:
         by_rep.setdefault(r["replicate"], set()).add(r["seed"])
     check.ok(rc == 0 and all(len(v) == 1 for v in by_rep.values()) and len(by_rep) == 2 and
              by_rep[0] != by_rep[1], f"common mode: one seed per replicate across genomes: {by_rep}")
-    check.ok(all(int(next(iter(by_rep[k]))) == seed_ref(3, None, k, "common") for k in by_rep),
+    check.ok(all(int(next(iter(by_rep[k]))) == refs.seed(3, None, k, "common") for k in by_rep),
              "common-mode seeds equal the hashlib reference")
     check.ok(len({r["seed"] for r in s1}) == len({tuple(g) for g in det}),
              "genome mode: each genome has its own seed")

@@ -7,7 +7,6 @@ bit-identical to an uninterrupted run. Also: the same run id with other
 genomes is refused, naming the request."""
 import os
 import signal
-import sqlite3
 import subprocess
 import time
 
@@ -18,16 +17,6 @@ check = fflib.Check("test_resume")
 gs = fflib.genomes(N, 3, seed=88)
 text = fflib.jsonl(gs)
 common = ["--plugin", "spin", "--params", '{"ms": 15}', "--seed", "5"]
-
-
-def done_in_store(path):
-    try:
-        db = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=1)
-        n = db.execute("SELECT count(*) FROM evaluations WHERE status IS NOT NULL").fetchone()[0]
-        db.close()
-        return n
-    except sqlite3.Error:
-        return 0
 
 
 def run_counters(pool, run_id):
@@ -51,12 +40,12 @@ with fflib.Pool() as pool:
             "--in", inp, "--insecure"] + common
     p = subprocess.Popen(args + ["--out", first_out], stderr=subprocess.DEVNULL)
     deadline = time.time() + 120
-    while done_in_store(db_path) < N // 4 and time.time() < deadline and p.poll() is None:
+    while fflib.done_in_store(db_path) < N // 4 and time.time() < deadline and p.poll() is None:
         time.sleep(0.05)
     os.kill(p.pid, signal.SIGKILL)
     p.wait()
     printed_before = len(open(first_out).read().splitlines())
-    done_at_kill = done_in_store(db_path)
+    done_at_kill = fflib.done_in_store(db_path)
     check.ok(p.returncode == -signal.SIGKILL and 0 < done_at_kill < N,
              f"the client was killed mid-run ({done_at_kill} of {N} evaluated)")
 
@@ -69,7 +58,7 @@ with fflib.Pool() as pool:
     evaluated = counters.get("evaluated")
     check.ok(evaluated == N,
              f"each line evaluated exactly once across both clients: evaluated {evaluated} for {N} lines")
-    in_store = done_in_store(db_path)
+    in_store = fflib.done_in_store(db_path)
     check.ok(in_store == N, f"{in_store} evaluations in the store for {N} lines")
     check.ok(not any(r["cached"] for r in out), "lines are answered as recorded (cached false, as first evaluated)")
 

@@ -18,6 +18,7 @@ import struct
 import subprocess
 
 import fflib
+import refs
 
 check = fflib.Check("test_seed_params")
 
@@ -32,16 +33,6 @@ def canon(params):
     """Canonical params as documented in proto/params.h (sorted keys, no
     spaces); Python's json module prints these reals (0.02) the same way."""
     return json.dumps(params, sort_keys=True, separators=(",", ":"))
-
-
-def seed_ref(run_seed, genome, rep):
-    """proto/key.h, genome seed mode: keyed BLAKE2b-256 (RFC 7693, Python's
-    hashlib), key = run_seed u64 LE || "ffseedv1", message 0x00 ||
-    BLAKE2b-256(genome) || rep u32 LE; the seed is the first 8 bytes LE."""
-    key = struct.pack("<Q", run_seed) + b"ffseedv1"
-    g = b"".join(struct.pack("<d", x) for x in genome)
-    msg = b"\x00" + hashlib.blake2b(g, digest_size=32).digest() + struct.pack("<I", rep)
-    return struct.unpack("<Q", hashlib.blake2b(msg, digest_size=32, key=key).digest()[:8])[0]
 
 
 def key_ref(version, params, genome, seed=None):
@@ -81,9 +72,9 @@ with fflib.Pool() as pool:
     pool.start_broker()
     pool.start_worker(slots=2)
     st = pool.wait_workers(1)
-    refs = [p for w in st["workers"] for p in w["plugins"] if p.startswith("granular@")]
-    check.ok(len(refs) == 1, f"the worker carries granular: {st['workers']}")
-    version = refs[0].split("@", 1)[1] if refs else "?"
+    carried = [p for w in st["workers"] for p in w["plugins"] if p.startswith("granular@")]
+    check.ok(len(carried) == 1, f"the worker carries granular: {st['workers']}")
+    version = carried[0].split("@", 1)[1] if carried else "?"
 
     # 1. scatter 0: one key per genome, evaluated once.
     rc, out, err = evaluate(pool, "zero-a", 1, ZERO)
@@ -116,7 +107,7 @@ with fflib.Pool() as pool:
     for gid, rs in by_genome(out).items():
         check.ok(len({r["key"] for r in rs}) == 3, f"scatter genome {gid}: three keys")
         for r in rs:
-            seed = seed_ref(1, GENOMES[gid], r["replicate"])
+            seed = refs.seed(1, GENOMES[gid], r["replicate"])
             check.ok(int(r["seed"]) == seed, f"scatter seed {r['seed']} is the derived {seed}")
             check.ok(r["key"] == key_ref(version, SMALL, GENOMES[gid], seed),
                      f"scatter genome {gid} replicate {r['replicate']}: the seeded key")
