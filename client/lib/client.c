@@ -180,11 +180,10 @@ static void s_dispatch(fitfarm_client_t *self, proto_msg_t **msg_p)
             client_run_on_results(run, &msg->u.results);
         break;
     case PROTO_ACCEPTED:
-        client_run_on_answer(self, msg->u.accepted.batch_tag, 1, 0, NULL);
+        client_run_on_answer(self, msg->u.accepted.batch_tag, NULL);
         break;
     case PROTO_REFUSED:
-        client_run_on_answer(self, msg->u.refused.batch_tag, 0, msg->u.refused.code,
-                             msg->u.refused.text);
+        client_run_on_answer(self, msg->u.refused.batch_tag, &msg->u.refused);
         break;
     case PROTO_STATUS:
         proto_msg_destroy(&self->status);
@@ -347,18 +346,24 @@ static int s_handshake(fitfarm_client_t *self)
     }
 }
 
-FITFARM_API int fitfarm_client_new(const fitfarm_options_t *options, fitfarm_client_t **out,
-                                   char *errbuf, size_t errlen)
+FITFARM_API int fitfarm_client_new(const fitfarm_options_t *caller_options,
+                                   fitfarm_client_t **out, char *errbuf, size_t errlen)
 {
     if (errbuf && errlen)
         errbuf[0] = '\0';
-    if (!out || !options) {
+    if (!out || !caller_options || caller_options->size == 0) {
         if (errbuf && errlen)
-            snprintf(errbuf, errlen, "fitfarm_client_new: options and out must not be NULL");
+            snprintf(errbuf, errlen, "fitfarm_client_new: %s",
+                     !out || !caller_options ? "options and out must not be NULL"
+                                             : "options.size is 0: initialise the options with "
+                                               "FITFARM_OPTIONS_INIT");
         if (out)
             *out = NULL;
         return FITFARM_EINVAL;
     }
+    fitfarm_options_t opts;
+    CLIENT_COPY_IN(opts, caller_options);
+    const fitfarm_options_t *options = &opts;
     *out = NULL;
     int rc = FITFARM_OK;
     fitfarm_client_t *self = calloc(1, sizeof *self);
@@ -431,6 +436,69 @@ FITFARM_API const char *fitfarm_client_error(const fitfarm_client_t *self)
     if (!self)
         return "no client";
     return self->err;
+}
+
+FITFARM_API const char *fitfarm_client_endpoint(const fitfarm_client_t *self)
+{
+    return self && self->endpoint ? self->endpoint : "";
+}
+
+FITFARM_API int fitfarm_client_fd(fitfarm_client_t *self, int *fd)
+{
+    if (!self || !fd)
+        return FITFARM_EINVAL;
+    size_t len = sizeof *fd;
+    if (zmq_getsockopt(self->sock, ZMQ_FD, fd, &len) != 0)
+        return client_fail(self, FITFARM_ESYSTEM, "cannot read the socket's descriptor: %s",
+                           zmq_strerror(errno));
+    return FITFARM_OK;
+}
+
+FITFARM_API int fitfarm_client_next_timeout(fitfarm_client_t *self)
+{
+    if (!self)
+        return -1;
+    /* Work already waiting in the socket (ZMQ_FD is edge-triggered, so the
+     * caller may not be woken for it again) or a reconnect to act on. */
+    int events = 0;
+    size_t len = sizeof events;
+    if (self->reconnected ||
+        (zmq_getsockopt(self->sock, ZMQ_EVENTS, &events, &len) == 0 && (events & ZMQ_POLLIN)))
+        return 0;
+    int64_t now = common_clock_ms(), next = -1;
+    for (fitfarm_run_t *run = self->runs; run; run = run->next)
+        if (run->retry_at_ms != 0 && (next < 0 || run->retry_at_ms < next))
+            next = run->retry_at_ms;
+    /* The monitor socket has no descriptor of the caller's: look at it
+     * every 100 ms while a reconnect could be pending. */
+    int poll_ms = self->runs ? 100 : -1;
+    if (next < 0)
+        return poll_ms;
+    int64_t left = next > now ? next - now : 0;
+    if (poll_ms >= 0 && left > poll_ms)
+        left = poll_ms;
+    return (int)left;
+}
+
+FITFARM_API int fitfarm_client_process(fitfarm_client_t *self)
+{
+    if (!self)
+        return FITFARM_EINVAL;
+    int handled = 0;
+    for (;;) {
+        int rc = client_pump(self, 0);
+        if (rc < 0)
+            return rc;
+        if (rc == 0)
+            break;
+        handled++;
+    }
+    if (self->pool) {
+        int rc = client_pool_check(self->pool, self->err, sizeof self->err);
+        if (rc != FITFARM_OK)
+            return rc;
+    }
+    return handled;
 }
 
 void client_test_pool_pids(const fitfarm_client_t *self, pid_t *broker, pid_t *worker,

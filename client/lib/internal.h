@@ -11,12 +11,24 @@
 
 #include <stddef.h>
 #include <stdint.h>
+#include <string.h>
 
 #include "client/include/fitfarm.h"
 #include "msg.h"
 #include "pool.h"
 
 #define CLIENT_ERR_BYTES 1200
+
+/* Copies a filled full-size public struct into the caller's, only as far as
+ * the caller's size field says (ABI growth: see fitfarm.h). */
+#define CLIENT_COPY_OUT(out, full)                                                             \
+    memcpy((out), &(full), (out)->size < sizeof(full) ? (out)->size : sizeof(full))
+/* Reads a caller's public struct into a zeroed full-size one. */
+#define CLIENT_COPY_IN(full, in)                                                               \
+    do {                                                                                       \
+        memset(&(full), 0, sizeof(full));                                                      \
+        memcpy(&(full), (in), (in)->size < sizeof(full) ? (in)->size : sizeof(full));          \
+    } while (0)
 
 /* Chunk caps of one SUBMIT: small enough that the broker validates and commits
  * a chunk in one loop turn, large enough that messages stay few. */
@@ -65,8 +77,11 @@ typedef struct {
     uint32_t *slots;
     int answered;    /* 0 waiting, 1 accepted, 2 refused */
     int background;  /* a re-send after reconnect: nobody waits for it */
+    int detached;    /* submit returned before its answer: handled in the background */
     uint32_t refuse_code;
     char *refuse_text;
+    int refuse_has_tag; /* the refusal named one request of the chunk */
+    uint64_t refuse_tag;
 } client_chunk_t;
 
 typedef struct {
@@ -96,6 +111,13 @@ struct fitfarm_run {
     uint64_t n_resent;     /* requests re-sent after a reconnect or refusal */
     int async_rc; /* a background refusal to report on the next poll/evaluate */
     char async_err[CLIENT_ERR_BYTES];
+    fitfarm_run_stats_t stats; /* public counters (duplicates and resent above) */
+    /* the last refusal, structured (fitfarm_refusal) */
+    int refusal_code;
+    int refusal_has_request;
+    const fitfarm_batch_t *refusal_batch; /* borrowed; cleared when that batch leaves */
+    size_t refusal_slot;
+    char refusal_text[CLIENT_ERR_BYTES];
 };
 
 struct fitfarm_client {
@@ -127,11 +149,16 @@ int client_send(fitfarm_client_t *self, const proto_msg_t *msg, int timeout_ms);
  * or a FITFARM_E* code (error set). */
 int client_pump(fitfarm_client_t *self, int timeout_ms);
 
+/* Asks the broker for STATUS and waits up to timeout_ms (negative: no limit).
+ * On success *status_out is a PROTO_STATUS message the caller destroys. */
+int client_status(fitfarm_client_t *self, proto_msg_t **status_out, int timeout_ms);
+
 /* Run side of the dispatch (run.c). */
 fitfarm_run_t *client_run_find(fitfarm_client_t *self, const char *run_id);
 void client_run_on_results(fitfarm_run_t *run, const proto_results_t *results);
-void client_run_on_answer(fitfarm_client_t *self, uint64_t batch_tag, int accepted,
-                          uint32_t code, const char *text);
+/* ACCEPTED (refused NULL) or REFUSED for the chunk sent as batch_tag. */
+void client_run_on_answer(fitfarm_client_t *self, uint64_t batch_tag,
+                          const proto_refused_t *refused);
 void client_run_resend(fitfarm_run_t *run);
 
 /* Batch side (batch.c). */

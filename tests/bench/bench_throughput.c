@@ -40,7 +40,7 @@ static int s_cmp_double(const void *a, const void *b)
  * calls so the broker's cache never answers. */
 static double s_batch_rate(fitfarm_client_t *client, long count, double genome_base)
 {
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     ro.seed = 1;
     fitfarm_run_t *run = NULL;
     fitfarm_batch_t *batch = NULL;
@@ -63,7 +63,7 @@ static double s_batch_rate(fitfarm_client_t *client, long count, double genome_b
         fprintf(stderr, "bench: evaluate: %s\n", fitfarm_client_error(client));
         goto cleanup;
     }
-    fitfarm_result_t r;
+    fitfarm_result_t r = FITFARM_RESULT_INIT;
     for (long i = 0; i < count; i += count / 10 + 1)
         if (fitfarm_batch_result(batch, (size_t)i, 0, &r) != 0 || r.status != FITFARM_STATUS_OK)
             goto cleanup;
@@ -77,7 +77,7 @@ cleanup:
 /* Median wall time of one single-genome batch, in microseconds. */
 static double s_rtt_us(fitfarm_client_t *client, int samples, double genome_base)
 {
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     fitfarm_run_t *run = NULL;
     double *t = calloc((size_t)samples, sizeof *t);
     double median = -1;
@@ -188,7 +188,7 @@ int main(int argc, char **argv)
     printf("batch: %ld genomes\n", count);
 
     /* (a) embedded pool, one slot per CPU. */
-    fitfarm_options_t o = {0};
+    fitfarm_options_t o = FITFARM_OPTIONS_INIT;
     fitfarm_client_t *client = NULL;
     char err[512];
     if (fitfarm_client_new(&o, &client, err, sizeof err) != 0) {
