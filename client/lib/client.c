@@ -1,9 +1,12 @@
-/* client.c: the client object: its connection to a broker (remote or the
- * embedded pool's), the handshake, sending, and the message pump that routes
- * what the broker says to the runs. Also the last-error sentence.
+/* client.c: the client object and its transport: the connection to a broker
+ * (remote or the embedded pool's), the handshake, the outbox of encoded
+ * messages the core emitted and its flush to the socket, and the message
+ * pump that decodes what the broker says and feeds it to the core (run.c).
+ * Also the pollable descriptor for callers' own loops, and the last-error
+ * sentence.
  *
- * Not here: runs, chunks and results (run.c), batches (batch.c), the embedded
- * pool's processes (pool.c).
+ * Not here: runs, chunks and results (run.c), batches (batch.c), waiting
+ * (blocking.c), the embedded pool's processes (pool.c).
  *
  * Reconnection is ZeroMQ's: the DEALER socket reconnects by itself (100 ms,
  * backing off to 2 s) and ZMTP heartbeats drop a half-open TCP connection. A
@@ -100,7 +103,7 @@ static int s_connect(fitfarm_client_t *self, const fitfarm_options_t *options)
     return FITFARM_OK;
 }
 
-int client_send(fitfarm_client_t *self, const proto_msg_t *msg, int timeout_ms)
+int client_emit(fitfarm_client_t *self, const proto_msg_t *msg)
 {
     uint8_t *buf = NULL;
     size_t len = 0;
@@ -111,28 +114,50 @@ int client_send(fitfarm_client_t *self, const proto_msg_t *msg, int timeout_ms)
     if (prc != PROTO_OK)
         return client_fail(self, FITFARM_EINVAL, "cannot encode %s: a field is out of protocol",
                            proto_type_name((int)msg->type));
-    int rc = FITFARM_OK;
+    if (self->out_len == self->out_cap) {
+        size_t cap = self->out_cap ? self->out_cap * 2 : 64;
+        client_frame_t *q = malloc(cap * sizeof *q);
+        if (!q) {
+            free(buf);
+            return client_fail(self, FITFARM_ENOMEM, "out of memory queueing a message");
+        }
+        for (size_t i = 0; i < self->out_len; i++)
+            q[i] = self->outbox[(self->out_head + i) % self->out_cap];
+        free(self->outbox);
+        self->outbox = q;
+        self->out_cap = cap;
+        self->out_head = 0;
+    }
+    self->outbox[(self->out_head + self->out_len) % self->out_cap] = (client_frame_t){buf, len};
+    self->out_len++;
+    return FITFARM_OK;
+}
+
+int client_flush(fitfarm_client_t *self, int timeout_ms)
+{
     int64_t deadline = client_deadline(timeout_ms);
-    for (;;) {
-        if (zmq_send(self->sock, buf, len, ZMQ_DONTWAIT) >= 0)
-            break;
-        if (errno != EAGAIN && errno != EINTR) {
-            rc = client_fail(self, FITFARM_ECONNECT, "cannot send to the broker at %s: %s",
-                             self->endpoint, zmq_strerror(errno));
-            break;
+    while (self->out_len > 0) {
+        client_frame_t *f = &self->outbox[self->out_head];
+        if (zmq_send(self->sock, f->buf, f->len, ZMQ_DONTWAIT) >= 0) {
+            free(f->buf);
+            self->out_head = (self->out_head + 1) % self->out_cap;
+            self->out_len--;
+            continue;
         }
+        if (errno != EAGAIN && errno != EINTR)
+            return client_fail(self, FITFARM_ECONNECT, "cannot send to the broker at %s: %s",
+                               self->endpoint, zmq_strerror(errno));
         int left = client_ms_left(deadline);
-        if (left == 0) {
-            rc = client_fail(self, FITFARM_ETIMEDOUT,
-                             "the broker at %s did not take a %zu-byte %s message in time",
-                             self->endpoint, len, proto_type_name((int)msg->type));
-            break;
-        }
+        if (left == 0)
+            return timeout_ms == 0 ? FITFARM_OK
+                                   : client_fail(self, FITFARM_ETIMEDOUT,
+                                                 "the broker at %s did not take %zu queued "
+                                                 "messages in time", self->endpoint,
+                                                 self->out_len);
         zmq_pollitem_t item = {self->sock, 0, ZMQ_POLLOUT, 0};
         zmq_poll(&item, 1, left < 0 || left > 100 ? 100 : left);
     }
-    free(buf);
-    return rc;
+    return FITFARM_OK;
 }
 
 static void s_on_monitor(fitfarm_client_t *self)
@@ -227,6 +252,9 @@ static int s_recv_one(fitfarm_client_t *self)
 
 int client_pump(fitfarm_client_t *self, int timeout_ms)
 {
+    int frc = client_flush(self, 0);
+    if (frc != FITFARM_OK)
+        return frc;
     zmq_pollitem_t items[2] = {
         {self->sock, 0, ZMQ_POLLIN, 0},
         {self->monitor, 0, ZMQ_POLLIN, 0},
@@ -252,7 +280,9 @@ int client_pump(fitfarm_client_t *self, int timeout_ms)
     for (fitfarm_run_t *run = self->runs; run; run = run->next)
         if (all || (run->retry_at_ms != 0 && now >= run->retry_at_ms))
             client_run_resend(run);
-    return handled;
+    /* What the messages produced (acknowledgements, re-sends) goes out now. */
+    frc = client_flush(self, 0);
+    return frc != FITFARM_OK ? frc : handled;
 }
 
 static int s_send_status_req(fitfarm_client_t *self)
@@ -260,7 +290,8 @@ static int s_send_status_req(fitfarm_client_t *self)
     proto_msg_t msg;
     memset(&msg, 0, sizeof msg);
     msg.type = PROTO_STATUS_REQ;
-    return client_send(self, &msg, 1000);
+    int rc = client_emit(self, &msg);
+    return rc != FITFARM_OK ? rc : client_flush(self, 1000);
 }
 
 int client_status(fitfarm_client_t *self, proto_msg_t **status_out, int timeout_ms)
@@ -426,6 +457,9 @@ FITFARM_API void fitfarm_client_destroy(fitfarm_client_t **self_p)
         zmq_ctx_term(self->zctx);
     client_pool_destroy(&self->pool);
     proto_msg_destroy(&self->status);
+    for (size_t i = 0; i < self->out_len; i++)
+        free(self->outbox[(self->out_head + i) % self->out_cap].buf);
+    free(self->outbox);
     free(self->endpoint);
     free(self);
     *self_p = NULL;

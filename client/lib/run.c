@@ -1,7 +1,9 @@
-/* run.c: runs, and everything between a batch and the wire: tags, SUBMIT
- * chunks, waiting for ACCEPTED/REFUSED, storing RESULTS exactly once, ACKs,
- * re-sending after a reconnect, the blocking evaluate and the streaming
- * submit/poll.
+/* run.c: the core of the client library: runs, and everything between a
+ * batch and the messages: tags, SUBMIT chunks, ACCEPTED/REFUSED answers,
+ * storing RESULTS exactly once, ACKs, re-sending after a reconnect. No I/O:
+ * it is fed decoded messages (client_run_on_*) and emits the messages to
+ * send into the client's outbox (client_emit); the transport (client.c)
+ * moves them, the blocking calls (blocking.c) wait.
  *
  * Tags. Slot s (= genome index * replicates + replicate) of a batch has tag
  * tag_base + s; a run hands out tag ranges from a counter, so tags are unique
@@ -14,7 +16,8 @@
  * also means one client per run at a time: the broker refuses a recorded tag
  * that comes with another genome.
  *
- * Not here: the socket and the pump (client.c), result storage (batch.c). */
+ * Not here: the socket and the pump (client.c), waiting (blocking.c),
+ * result storage (batch.c). */
 #include <sodium.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -25,8 +28,6 @@
 #include "key.h"
 #include "status.h"
 
-#define CLIENT_SEND_MS 5000          /* how long one send may wait for the socket */
-#define CLIENT_ACK_MS 1000           /* an unsent ACK only costs a re-delivery */
 #define CLIENT_RETRY_EVERY_MS 1000   /* re-send refused re-sends this often ... */
 #define CLIENT_RETRY_FOR_MS 60000    /* ... for this long (workers re-register) */
 
@@ -300,8 +301,8 @@ void client_run_on_results(fitfarm_run_t *run, const proto_results_t *results)
         msg.u.ack.tags = acks;
         char saved[CLIENT_ERR_BYTES];
         memcpy(saved, run->client->err, sizeof saved);
-        (void)client_send(run->client, &msg, CLIENT_ACK_MS);
-        memcpy(run->client->err, saved, sizeof saved); /* a lost ACK is not the caller's error */
+        (void)client_emit(run->client, &msg); /* a lost ACK costs only a re-delivery */
+        memcpy(run->client->err, saved, sizeof saved); /* ... and is not the caller's error */
     }
     free(acks);
 }
@@ -409,7 +410,7 @@ static int s_chunk_send(fitfarm_run_t *run, const client_chunk_t *c)
     msg.u.submit.params = b->params;
     msg.u.submit.n_items = c->n_slots;
     msg.u.submit.items = items;
-    int rc = client_send(run->client, &msg, CLIENT_SEND_MS);
+    int rc = client_emit(run->client, &msg);
     free(items);
     return rc;
 }
@@ -546,15 +547,6 @@ static int s_refusal(fitfarm_run_t *run, const fitfarm_batch_t *b, const client_
     return code;
 }
 
-static int s_wait_turn(fitfarm_client_t *cl, int wait_ms)
-{
-    int rc = client_pump(cl, wait_ms);
-    if (rc >= 0 && cl->pool)
-        rc = client_pool_check(cl->pool, cl->err, sizeof cl->err);
-    return rc < 0 ? rc : 0;
-}
-
-/* Sends the batch's unsent slots and waits for every chunk's answer. */
 /* Chunks of b still waiting for an answer that nobody waits on (submit
  * returned first) are waited on again by a later submit or evaluate. */
 static size_t s_reattach(fitfarm_run_t *run, const fitfarm_batch_t *b)
@@ -568,13 +560,7 @@ static size_t s_reattach(fitfarm_run_t *run, const fitfarm_batch_t *b)
     return n;
 }
 
-/* Sends the batch's unsent slots and waits until deadline for every chunk's
- * answer. no_wait: return after sending. On a time-out (or no_wait) the
- * unanswered chunks stay registered, detached: their answers are handled in
- * the background (a refusal is reported by the next poll or evaluate).
- * again: a batch already submitted is not an error (evaluate resumed). */
-static int s_submit(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int64_t deadline,
-                    int no_wait, int again)
+int client_run_submit_start(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int again)
 {
     fitfarm_client_t *cl = run ? run->client : NULL;
     if (!cl || !b)
@@ -613,24 +599,21 @@ static int s_submit(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int64
         return client_fail(cl, FITFARM_EINVAL, "the batch was already submitted");
     if (rc == FITFARM_OK)
         run->stats.submitted += first ? (uint64_t)b->n * b->replicates : 0;
-    /* Wait for an answer to every foreground chunk of this batch. */
-    while (rc == FITFARM_OK && !no_wait) {
-        int waiting = 0;
-        for (size_t i = 0; i < run->n_chunks; i++)
-            waiting |= run->chunks[i].batch == b && !run->chunks[i].background &&
-                       !run->chunks[i].answered;
-        if (!waiting)
-            break;
-        int left = client_ms_left(deadline);
-        if (left == 0) {
-            rc = client_fail(cl, FITFARM_ETIMEDOUT,
-                             "the broker at %s did not accept the batch in time", cl->endpoint);
-            break;
-        }
-        rc = s_wait_turn(cl, left < 0 || left > 200 ? 200 : left);
-        if (!run->client)
-            return FITFARM_EINVAL;
-    }
+    return rc;
+}
+
+int client_run_submit_pending(const fitfarm_run_t *run, const fitfarm_batch_t *b)
+{
+    for (size_t i = 0; i < run->n_chunks; i++)
+        if (run->chunks[i].batch == b && !run->chunks[i].background &&
+            !run->chunks[i].detached && !run->chunks[i].answered)
+            return 1;
+    return 0;
+}
+
+int client_run_submit_finish(fitfarm_run_t *run, fitfarm_batch_t *b, int rc)
+{
+    fitfarm_client_t *cl = run->client;
     /* Report the first refusal; forget answered and (on failure) pending chunks.
      * Unanswered slots go back to UNSENT so a later submit sends them again. */
     for (size_t i = 0; i < run->n_chunks; i++) {
@@ -663,7 +646,7 @@ static int s_submit(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int64
     return rc;
 }
 
-static int s_take_async(fitfarm_run_t *run)
+int client_run_take_async(fitfarm_run_t *run)
 {
     int rc = run->async_rc;
     if (rc != 0) {
@@ -673,71 +656,13 @@ static int s_take_async(fitfarm_run_t *run)
     return rc;
 }
 
-FITFARM_API int fitfarm_evaluate(fitfarm_run_t *run, fitfarm_batch_t *batch,
-                                 fitfarm_progress_cb progress, void *arg, int timeout_ms)
+int client_run_next_ready(fitfarm_run_t *run, fitfarm_result_t *out)
 {
-    if (!run || !run->client || !batch)
-        return FITFARM_EINVAL;
-    fitfarm_client_t *cl = run->client;
-    int64_t deadline = client_deadline(timeout_ms);
-    int rc = s_submit(run, batch, 0, deadline, 0, 1);
-    if (rc != FITFARM_OK)
-        return rc;
-    size_t total = batch->n * batch->replicates;
-    size_t reported = (size_t)-1;
-    while (batch->arrived < total) {
-        if (progress && reported != batch->arrived) {
-            reported = batch->arrived;
-            progress(batch->arrived, total, arg);
-        }
-        rc = s_take_async(run);
-        if (rc != 0)
-            return rc;
-        int left = client_ms_left(deadline);
-        if (left == 0)
-            return client_fail(cl, FITFARM_ETIMEDOUT, "%zu of %zu results arrived within %d ms",
-                               batch->arrived, total, timeout_ms);
-        rc = s_wait_turn(cl, left < 0 || left > 500 ? 500 : left);
-        if (rc < 0)
-            return rc;
-        if (!run->client || batch->run != run)
-            return FITFARM_EINVAL;
-    }
-    if (progress && reported != total)
-        progress(total, total, arg);
-    return FITFARM_OK;
-}
-
-FITFARM_API int fitfarm_submit(fitfarm_run_t *run, fitfarm_batch_t *batch, int timeout_ms)
-{
-    if (!run || !run->client || !batch)
-        return FITFARM_EINVAL;
-    return s_submit(run, batch, 1, client_deadline(timeout_ms), timeout_ms == 0, 0);
-}
-
-FITFARM_API int fitfarm_poll(fitfarm_run_t *run, fitfarm_result_t *out, int timeout_ms)
-{
-    if (!run || !run->client || !out || out->size == 0)
-        return FITFARM_EINVAL;
-    int64_t deadline = client_deadline(timeout_ms);
-    for (;;) {
-        if (run->ready_len > 0) {
-            client_ready_t e = run->ready[run->ready_head];
-            run->ready_head = (run->ready_head + 1) % run->ready_cap;
-            run->ready_len--;
-            client_batch_fill(e.batch, e.slot, out);
-            return 1;
-        }
-        int rc = s_take_async(run);
-        if (rc != 0)
-            return rc;
-        int left = client_ms_left(deadline);
-        if (left == 0)
-            return 0;
-        rc = s_wait_turn(run->client, left < 0 || left > 500 ? 500 : left);
-        if (rc < 0)
-            return rc;
-        if (!run->client)
-            return FITFARM_EINVAL;
-    }
+    if (run->ready_len == 0)
+        return 0;
+    client_ready_t e = run->ready[run->ready_head];
+    run->ready_head = (run->ready_head + 1) % run->ready_cap;
+    run->ready_len--;
+    client_batch_fill(e.batch, e.slot, out);
+    return 1;
 }
