@@ -9,6 +9,10 @@ typedef struct {
     const char *clients_endpoint; /* bind address for clients, e.g. "tcp://127.0.0.1:5555" */
     const char *workers_endpoint; /* bind address for workers */
     const char *store_dir;        /* durable store folder; NULL = in memory only */
+    /* The store is scratch, deleted when the broker's owner ends (the
+     * embedded pool's private store): commits skip fsync (synchronous=OFF),
+     * so a machine crash may lose it, which for scratch loses nothing. */
+    int scratch_store;
     int liveness_ms;              /* a worker silent this long is dropped; 0 = 5000 */
     int heartbeat_ms;             /* 0 = 1000 */
     unsigned attempts;            /* tries of a job that crashes or times out; 0 = 3 */

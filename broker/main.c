@@ -38,6 +38,8 @@ static void s_usage(FILE *out)
             "  --config FILE         settings file (default $XDG_CONFIG_HOME/fitfarm/config or\n"
             "                        ~/.config/fitfarm/config); flags beat environment beat file\n"
             "  --insecure            plaintext, no keys: only on ipc://, inproc:// or loopback\n"
+            "  --scratch-store       the store is thrown away after use: commit without fsync\n"
+            "                        (a machine crash may lose it; never for a store you keep)\n"
             "  --max-message-bytes N cap on any one message (default 67108864)\n"
             "  --max-genome-bytes N  cap on one genome (default 1048576)\n"
             "  --max-batch N         cap on items in one SUBMIT (default 100000)\n"
@@ -121,6 +123,10 @@ int main(int argc, char **argv)
         }
         if (strcmp(a, "--insecure") == 0) {
             cfg.insecure = 1;
+            continue;
+        }
+        if (strcmp(a, "--scratch-store") == 0) {
+            cfg.scratch_store = 1;
             continue;
         }
         static const char *const with_value[] = {

@@ -149,7 +149,7 @@ static int s_exec(broker_store_t *self, const char *sql)
     return 0;
 }
 
-broker_store_t *broker_store_open(const char *dir)
+broker_store_t *broker_store_open(const char *dir, int scratch)
 {
     broker_store_t *self = common_xcalloc(1, sizeof *self);
     self->lock_fd = -1;
@@ -182,7 +182,8 @@ broker_store_t *broker_store_open(const char *dir)
     }
     sqlite3_busy_timeout(self->db, 2000); /* a reader checkpointing, at most */
     if (s_exec(self, "PRAGMA journal_mode=WAL") != 0 ||
-        s_exec(self, "PRAGMA synchronous=FULL") != 0 || s_exec(self, s_schema) != 0 ||
+        s_exec(self, scratch ? "PRAGMA synchronous=OFF" : "PRAGMA synchronous=FULL") != 0 ||
+        s_exec(self, s_schema) != 0 ||
         s_exec(self, "BEGIN IMMEDIATE") != 0)
         goto fail;
     char sql[128];
@@ -210,7 +211,8 @@ broker_store_t *broker_store_open(const char *dir)
         }
     }
     if (dir)
-        LOG_INFO("store %s open (WAL, synchronous=FULL)", self->path);
+        LOG_INFO("store %s open (WAL, synchronous=%s)", self->path,
+                 scratch ? "OFF: a scratch store" : "FULL");
     return self;
 fail:
     broker_store_close(&self);

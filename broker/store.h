@@ -32,9 +32,10 @@ typedef struct broker_store broker_store_t;
 struct broker;
 
 /* Opens (creating if needed) DIR/fitfarm.db; dir NULL: a private in-memory
- * database (unit tests). Caller closes it. Returns NULL after logging why
- * when the folder or database cannot be opened. */
-broker_store_t *broker_store_open(const char *dir);
+ * database (unit tests). scratch: commit without fsync (broker.h says when
+ * that is right). Caller closes it. Returns NULL after logging why when the
+ * folder or database cannot be opened. */
+broker_store_t *broker_store_open(const char *dir, int scratch);
 /* Commits what is pending and closes. Accepts NULL. */
 void broker_store_close(broker_store_t **self_p);
 

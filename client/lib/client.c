@@ -29,6 +29,7 @@
 #define CLIENT_DEFAULT_CONNECT_MS 10000
 #define CLIENT_HWM 100000
 #define CLIENT_PROBE_MS 250  /* STATUS_REQ interval during the handshake */
+#define CLIENT_PROBE_LOCAL_MS 5 /* the same for the embedded pool (ipc, local) */
 #define CLIENT_PUMP_BURST 256 /* messages handled per pump call */
 #define CLIENT_MONITOR_EP "inproc://fitfarm-client-monitor"
 
@@ -75,8 +76,11 @@ static int s_connect(fitfarm_client_t *self, const fitfarm_options_t *options)
         return client_fail(self, FITFARM_ESYSTEM, "cannot create a ZeroMQ socket: %s",
                            zmq_strerror(errno));
     int64_t maxmsg = (int64_t)self->limits.message_bytes;
+    /* A broker on this machine (the embedded pool) may be a few ms from
+     * binding: retry quickly rather than after ZeroMQ's usual 100 ms. */
+    int local = strncmp(self->endpoint, "ipc://", 6) == 0;
     if (s_setsockopt_int(self->sock, ZMQ_LINGER, 0) != 0 ||
-        s_setsockopt_int(self->sock, ZMQ_RECONNECT_IVL, 100) != 0 ||
+        s_setsockopt_int(self->sock, ZMQ_RECONNECT_IVL, local ? 5 : 100) != 0 ||
         s_setsockopt_int(self->sock, ZMQ_RECONNECT_IVL_MAX, 2000) != 0 ||
         s_setsockopt_int(self->sock, ZMQ_SNDHWM, CLIENT_HWM) != 0 ||
         s_setsockopt_int(self->sock, ZMQ_RCVHWM, CLIENT_HWM) != 0 ||
@@ -346,7 +350,9 @@ static int s_handshake(fitfarm_client_t *self)
             int rc = s_send_status_req(self);
             if (rc != FITFARM_OK && rc != FITFARM_ETIMEDOUT)
                 return rc;
-            next_probe = now + CLIENT_PROBE_MS;
+            /* The embedded pool is on this machine and comes up in tens of
+             * milliseconds: ask often, so its start is not rounded up. */
+            next_probe = now + (self->pool ? CLIENT_PROBE_LOCAL_MS : CLIENT_PROBE_MS);
         }
         if (self->pool) {
             int rc = client_pool_check(self->pool, self->err, sizeof self->err);
