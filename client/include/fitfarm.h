@@ -60,18 +60,9 @@ FITFARM_API const char *fitfarm_version(void);
 typedef struct fitfarm_client fitfarm_client_t;
 typedef struct fitfarm_run fitfarm_run_t;
 typedef struct fitfarm_batch fitfarm_batch_t;
-typedef struct fitfarm_status fitfarm_status_t;
 
-/* ABI growth. Every public struct starts with `size`, which the caller sets to
- * sizeof the struct it was compiled with (the FITFARM_*_INIT macros do it).
- * The library reads and writes only that many bytes, so a program built
- * against an older header keeps working when fields are added at the end. A
- * size of 0 is refused with FITFARM_EINVAL. */
-
-/* How to reach a pool. Initialise with FITFARM_OPTIONS_INIT, then set what
- * you need. */
+/* How to reach a pool. Zero-initialise, then set what you need. */
 typedef struct {
-    size_t size;            /* sizeof(fitfarm_options_t) */
     const char *broker;     /* client endpoint, e.g. "tcp://host:5555"; NULL: embedded local pool */
     unsigned slots;         /* embedded pool: worker slots; 0 = online CPUs */
     const char *plugin_dir; /* embedded pool: extra plugin directory; NULL = defaults */
@@ -93,46 +84,20 @@ typedef struct {
      * the worker registers as plugins (the exec plugin); NULL for none. */
     const char *const *exec_plugins;
 } fitfarm_options_t;
-#define FITFARM_OPTIONS_INIT {sizeof(fitfarm_options_t)}
 
-/* Connects (or starts the embedded pool: the fitfarm-broker and
- * fitfarm-worker programs as child processes on this machine, ended by
- * fitfarm_client_destroy, or by themselves when this process dies). Never
- * forks the caller's process image. Blocks until the pool answers or
- * options->connect_timeout_ms passes. On success *out is a new client the
- * caller destroys. On failure *out is NULL; if errbuf is not NULL the sentence
- * is written there. */
+/* Connects (or starts the embedded pool: a broker and a worker process on this
+ * machine, ended by fitfarm_client_destroy). Blocks until the pool answers or
+ * the time-out passes. On success *out is a new client the caller destroys.
+ * On failure *out is NULL; if errbuf is not NULL the sentence is written there. */
 FITFARM_API int fitfarm_client_new(const fitfarm_options_t *options, fitfarm_client_t **out,
                                    char *errbuf, size_t errlen);
 /* Disconnects, stops an embedded pool, frees. Accepts NULL. */
 FITFARM_API void fitfarm_client_destroy(fitfarm_client_t **self_p);
 /* The last error's sentence; borrowed, valid until the next call on self. */
 FITFARM_API const char *fitfarm_client_error(const fitfarm_client_t *self);
-/* The endpoint the client talks to (the embedded pool's ipc:// endpoint when
- * embedded); borrowed, valid until the client is destroyed. */
-FITFARM_API const char *fitfarm_client_endpoint(const fitfarm_client_t *self);
 
-/* ---- embedding in the caller's event loop ------------------------------
- * For callers with their own loop (select, poll, epoll, asyncio): wait until
- * fd is readable or fitfarm_client_next_timeout milliseconds pass, then call
- * fitfarm_client_process, then read results with fitfarm_poll(run, &r, 0).
- * The descriptor is edge-triggered (it is ZeroMQ's ZMQ_FD): always call
- * fitfarm_client_process after waking, whatever the reason, and do not read
- * from or write to the descriptor yourself. */
-
-/* Writes the descriptor to *fd. Returns 0 or a code. */
-FITFARM_API int fitfarm_client_fd(fitfarm_client_t *self, int *fd);
-/* Milliseconds until the library has timed work to do (a re-send, a
- * retry), 0 if it has work now, -1 if none is pending. Never blocks. */
-FITFARM_API int fitfarm_client_next_timeout(fitfarm_client_t *self);
-/* Does all the work that is due without blocking: reads what arrived, sends
- * what waits (ACCEPTED answers, results and acknowledgements), runs timers.
- * Returns the number of messages handled (>= 0) or a code. */
-FITFARM_API int fitfarm_client_process(fitfarm_client_t *self);
-
-/* Run options. Initialise with FITFARM_RUN_OPTIONS_INIT. */
+/* Run options. Zero-initialise. */
 typedef struct {
-    size_t size;        /* sizeof(fitfarm_run_options_t) */
     const char *run_id; /* NULL: a new random id */
     uint64_t seed;      /* run seed: every evaluation seed derives from it */
     int seed_mode;      /* 0 = per genome (default), 1 = common random numbers */
@@ -141,28 +106,14 @@ typedef struct {
     unsigned timeout_s; /* per-evaluation time limit; 0 = the worker's default */
     unsigned attempts;  /* tries of an evaluation that crashes or times out; 0 = the broker's default (3) */
 } fitfarm_run_options_t;
-#define FITFARM_RUN_OPTIONS_INIT {sizeof(fitfarm_run_options_t)}
 
 /* Opens (or resumes, if run_id exists) a run. The run borrows client, which
- * must outlive it. Does not block. Caller destroys *out. */
+ * must outlive it. Caller destroys *out. */
 FITFARM_API int fitfarm_run_open(fitfarm_client_t *client, const fitfarm_run_options_t *options,
                                  fitfarm_run_t **out);
 /* Borrowed, valid until the run is destroyed. */
 FITFARM_API const char *fitfarm_run_id(const fitfarm_run_t *run);
 FITFARM_API void fitfarm_run_destroy(fitfarm_run_t **run_p);
-
-/* Counters of a run since it was opened in this process. */
-typedef struct {
-    size_t size;         /* sizeof(fitfarm_run_stats_t) */
-    uint64_t submitted;  /* requests (genome x replicate) handed to the library */
-    uint64_t accepted;   /* requests the broker holds durably */
-    uint64_t delivered;  /* results handed to the caller (each once) */
-    uint64_t cached;     /* of those, answered from the store without simulating */
-    uint64_t duplicates; /* results that arrived again and were dropped */
-    uint64_t resent;     /* requests re-sent after a reconnect or a refusal */
-} fitfarm_run_stats_t;
-#define FITFARM_RUN_STATS_INIT {sizeof(fitfarm_run_stats_t)}
-FITFARM_API int fitfarm_run_stats(const fitfarm_run_t *run, fitfarm_run_stats_t *out);
 
 /* A batch of genomes for one plugin, params and replicate count.
  * params_json NULL means "{}". Caller destroys *out. */
@@ -173,49 +124,36 @@ FITFARM_API long fitfarm_batch_add_f64(fitfarm_batch_t *batch, const double *gen
 /* Adds an opaque genome of n bytes (copied). Returns its index or a code. */
 FITFARM_API long fitfarm_batch_add_bytes(fitfarm_batch_t *batch, const void *genome, size_t n);
 FITFARM_API size_t fitfarm_batch_size(const fitfarm_batch_t *batch); /* genomes */
-FITFARM_API unsigned fitfarm_batch_replicates(const fitfarm_batch_t *batch);
-/* Results that arrived so far (genome x replicate), of size x replicates. */
-FITFARM_API size_t fitfarm_batch_arrived(const fitfarm_batch_t *batch);
 FITFARM_API void fitfarm_batch_destroy(fitfarm_batch_t **batch_p);
 
-/* One result. Pointers are borrowed from the batch, valid until it is
- * destroyed. Set size (FITFARM_RESULT_INIT) before passing it to be filled. */
+/* One result. Pointers are borrowed from the batch, valid until it is destroyed. */
 typedef struct {
-    size_t size;        /* sizeof(fitfarm_result_t) */
     const fitfarm_batch_t *batch;
     size_t index;       /* genome index in its batch */
     unsigned replicate; /* 0 .. replicates-1 */
     int status;         /* FITFARM_STATUS_* */
     int cached;         /* answered from the store without simulating */
-    uint64_t seed;      /* this request's own evaluation seed, as the broker derived it */
-    uint8_t key[32];    /* content key (BLAKE2b-256) */
+    uint64_t seed;
+    uint8_t key[32];
     size_t n_fitness;
     const double *fitness;
     const char *error; /* "" when none */
 } fitfarm_result_t;
-#define FITFARM_RESULT_INIT {sizeof(fitfarm_result_t)}
 
 typedef void (*fitfarm_progress_cb)(size_t done, size_t total, void *arg);
 
 /* Submits batch and blocks until every result is in or timeout_ms passes
  * (negative: no limit). progress is called (may be NULL) as results arrive.
- * Results are then read with fitfarm_batch_result. A batch is evaluated once;
- * after a time-out, calling it again with the same batch goes on waiting. */
+ * Results are then read with fitfarm_batch_result. A batch is evaluated once. */
 FITFARM_API int fitfarm_evaluate(fitfarm_run_t *run, fitfarm_batch_t *batch,
                                  fitfarm_progress_cb progress, void *arg, int timeout_ms);
 
-/* Streaming: sends batch and waits up to timeout_ms (negative: no limit) for
- * the broker to accept it. timeout_ms 0 returns at once after handing the
- * batch to the socket: acceptance then happens in the background and a
- * refusal is reported by the next fitfarm_poll. On FITFARM_ETIMEDOUT the batch
- * is still on its way: call fitfarm_submit again (same batch) to wait more.
- * On a refusal (FITFARM_EREFUSED, EPLUGIN, EQUEUEFULL, ENOTRECORDED),
- * fitfarm_refusal says which request. The batch must live until all its
- * results were polled. */
-FITFARM_API int fitfarm_submit(fitfarm_run_t *run, fitfarm_batch_t *batch, int timeout_ms);
-/* Waits up to timeout_ms (negative: no limit; 0: just look) for the next
- * result of any submitted batch of run. Returns 1 and fills *out, 0 on
- * time-out, or a code. Each result is returned exactly once. */
+/* Streaming: submits batch and returns once the broker has accepted it. The
+ * batch must live until all its results were polled. */
+FITFARM_API int fitfarm_submit(fitfarm_run_t *run, fitfarm_batch_t *batch);
+/* Waits up to timeout_ms (negative: no limit) for the next result of any
+ * submitted batch of run. Returns 1 and fills *out, 0 on time-out, or a code.
+ * Each result is returned exactly once. */
 FITFARM_API int fitfarm_poll(fitfarm_run_t *run, fitfarm_result_t *out, int timeout_ms);
 
 /* Reads the result of genome index, replicate r after it arrived. Returns 0,
@@ -223,60 +161,6 @@ FITFARM_API int fitfarm_poll(fitfarm_run_t *run, fitfarm_result_t *out, int time
  * arrived yet. */
 FITFARM_API int fitfarm_batch_result(const fitfarm_batch_t *batch, size_t index, unsigned r,
                                      fitfarm_result_t *out);
-
-/* The last refusal of run, as the broker stated it (structured, no text to
- * parse): which request it named, if any. */
-typedef struct {
-    size_t size;        /* sizeof(fitfarm_refusal_t) */
-    int code;           /* the FITFARM_E* code returned for it; 0 when none */
-    int has_request;    /* 1 when the broker named one request */
-    const fitfarm_batch_t *batch; /* the refused request's batch, or NULL */
-    size_t index;       /* its genome index */
-    unsigned replicate; /* its replicate */
-    const char *text;   /* the broker's sentence; borrowed, valid until the next call on run */
-} fitfarm_refusal_t;
-#define FITFARM_REFUSAL_INIT {sizeof(fitfarm_refusal_t)}
-FITFARM_API int fitfarm_refusal(const fitfarm_run_t *run, fitfarm_refusal_t *out);
-
-/* ---- pool status -------------------------------------------------------- */
-
-/* Asks the broker for its status and waits up to timeout_ms (negative: no
- * limit). On success *out is a snapshot the caller destroys. */
-FITFARM_API int fitfarm_status_get(fitfarm_client_t *client, int timeout_ms,
-                                   fitfarm_status_t **out);
-FITFARM_API void fitfarm_status_destroy(fitfarm_status_t **self_p);
-
-typedef struct {
-    size_t size;        /* sizeof(fitfarm_worker_info_t) */
-    const char *name, *host, *arch;
-    unsigned slots, busy;
-    size_t n_plugins;
-    const char *const *plugins; /* "name@version" */
-} fitfarm_worker_info_t;
-#define FITFARM_WORKER_INFO_INIT {sizeof(fitfarm_worker_info_t)}
-
-typedef struct {
-    size_t size;        /* sizeof(fitfarm_run_info_t) */
-    const char *run_id;
-    uint64_t queued;    /* evaluations waiting for a worker */
-    uint64_t running;   /* evaluations on a worker */
-    uint64_t done;      /* requests answered */
-    uint64_t evaluated; /* evaluations this run paid for */
-    uint64_t cached;    /* requests answered from a stored result */
-    uint64_t failed;    /* requests answered with a status other than ok */
-} fitfarm_run_info_t;
-#define FITFARM_RUN_INFO_INIT {sizeof(fitfarm_run_info_t)}
-
-/* Counts, and entry i (0-based) of each list. Pointers are borrowed from the
- * snapshot. The getters return 0, or FITFARM_EINVAL for i out of range. */
-FITFARM_API size_t fitfarm_status_n_workers(const fitfarm_status_t *self);
-FITFARM_API int fitfarm_status_worker(const fitfarm_status_t *self, size_t i,
-                                      fitfarm_worker_info_t *out);
-FITFARM_API size_t fitfarm_status_n_runs(const fitfarm_status_t *self);
-FITFARM_API int fitfarm_status_run(const fitfarm_status_t *self, size_t i, fitfarm_run_info_t *out);
-FITFARM_API size_t fitfarm_status_n_warnings(const fitfarm_status_t *self);
-/* NULL for i out of range. */
-FITFARM_API const char *fitfarm_status_warning(const fitfarm_status_t *self, size_t i);
 
 #ifdef __cplusplus
 }
