@@ -1,5 +1,5 @@
 /* worker.h: the worker's single entry point, used by fitfarm-worker's main
- * and by the client library's embedded local pool (in a forked child process). */
+ * (and by the tests that run a worker in-process). */
 #ifndef WORKER_WORKER_H
 #define WORKER_WORKER_H
 
@@ -23,10 +23,22 @@ typedef struct {
     const char *key_file;        /* this worker's .secret key file */
     const char *broker_key_file; /* the broker's .public key file */
     int insecure;
+    /* With plugin_dirs given: load the default folders too, after them (a
+     * folder that is both is loaded once). */
+    int with_default_plugins;
+    /* Written (atomically, "ready PID\n") once plugins are loaded, children
+     * started and HELLO and CREDIT handed to the broker's socket; NULL =
+     * nowhere. A starter waits for it to know the worker is up. */
+    const char *ready_file;
+    /* The read end of the starter's lifeline pipe (common/lifeline.h): at end
+     * of file the worker stops at once, as on a second SIGTERM. 0 = none. */
+    int lifeline_fd;
 } worker_config_t;
 
 /* The default plugin directories: the build tree's plugins folder when this
- * executable lives in the build tree, then the installed plugin directory.
+ * executable lives in the build tree, then the plugin folder of the install
+ * tree this executable sits in (found from its own path, so an install under
+ * any prefix works), then the configured install directory.
  * Fills dirs (up to max, NULL-terminated); returns the count. Borrowed strings. */
 size_t worker_default_plugin_dirs(const char **dirs, size_t max);
 
