@@ -42,6 +42,16 @@ typedef struct {
  * Fills dirs (up to max, NULL-terminated); returns the count. Borrowed strings. */
 size_t worker_default_plugin_dirs(const char **dirs, size_t max);
 
+/* The exec plugin (exec_plugin.h) for one "NAME=COMMAND" spec, for callers
+ * outside the worker that evaluate in-process (`fitfarm sim --exec`): probes
+ * the program and returns its descriptor in *out (release it with
+ * worker_exec_close), or -1 with a sentence in err. Blocks up to 10 s. */
+struct fitfarm_plugin;
+int worker_exec_open(const char *spec, const struct fitfarm_plugin **out, char *err,
+                     size_t errlen);
+/* Kills the co-process, frees the descriptor, sets *p to NULL; accepts NULL. */
+void worker_exec_close(const struct fitfarm_plugin **p);
+
 /* Runs the worker until SIGTERM/SIGINT. Returns 0 on a clean stop, 1 after
  * logging why it could not start. Blocks; one worker per process. */
 int worker_main_run(const worker_config_t *config);
