@@ -421,9 +421,8 @@ FITFARM_API int fitfarm_client_new(const fitfarm_options_t *caller_options,
         }
         self->endpoint = strdup(options->broker);
     } else {
-        /* Fork before this client creates its ZeroMQ context (pool.c says why). */
-        rc = client_pool_new(options->slots, options->plugin_dir, options->store_dir,
-                             &self->pool, self->err, sizeof self->err);
+        /* The daemons as child programs on private ipc endpoints (pool.c). */
+        rc = client_pool_new(options, &self->pool, self->err, sizeof self->err);
         if (rc != FITFARM_OK)
             goto cleanup;
         self->endpoint = strdup(client_pool_endpoint(self->pool));
