@@ -1,7 +1,6 @@
 /* test_proto_common.c: the small shared helpers under proto/common/: the log
  * line format and level, the aborting allocators, the clocks, the lifeline
- * pipe. The outside
- * references: ISO 8601 / RFC 3339 for the timestamp (checked against the C
+ * pipe. The outside references: ISO 8601 / RFC 3339 for the timestamp (checked against the C
  * library's own gmtime_r/strftime of time()), POSIX's SIGABRT for abort, and
  * POSIX read() returning 0 at end of file on a pipe with no writer. */
 #include <setjmp.h>
