@@ -24,7 +24,6 @@
 #include "common/clock.h"
 #include "internal.h"
 #include "secure.h"
-#include "status.h"
 
 #define CLIENT_DEFAULT_CONNECT_MS 10000
 #define CLIENT_HWM 100000
@@ -538,10 +537,4 @@ FITFARM_API int fitfarm_client_process(fitfarm_client_t *self)
             return rc;
     }
     return handled;
-}
-
-void client_test_pool_pids(const fitfarm_client_t *self, pid_t *broker, pid_t *worker,
-                           const char **dir)
-{
-    client_pool_pids(self ? self->pool : NULL, broker, worker, dir);
 }
