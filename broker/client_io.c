@@ -292,7 +292,14 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             continue;
         }
         run->outstanding++;
-        if (e && e->state == BROKER_EVAL_DONE && !no_cache) {
+        /* A crash or a time-out says more about that night's machine than
+         * about the genome: it answered the run that got it (and that run's
+         * resume and replay read it again, above), but a new request for
+         * the key is evaluated again, as a no-cache one is, so one bad
+         * night never poisons a genome for later runs. */
+        int transient = e && e->state == BROKER_EVAL_DONE &&
+                        (e->status == PROTO_STATUS_CRASHED || e->status == PROTO_STATUS_TIMEOUT);
+        if (e && e->state == BROKER_EVAL_DONE && !no_cache && !transient) {
             broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, 1);
             broker_runs_answer(&b->runs, run, it->tag, seeds[i], e, 1);
             continue;
