@@ -9,7 +9,7 @@ deploy/install-deps.sh
 cmake -S . -B build -DCMAKE_BUILD_TYPE=Release >/dev/null
 cmake --build build -j"$(nproc)"
 
-python3 client/examples/make_genomes.py --count 2000 --dim 30 --seed 1 > build/zdt1-genomes.jsonl
+/usr/bin/python3 client/examples/make_genomes.py --count 2000 --dim 30 --seed 1 > build/zdt1-genomes.jsonl
 echo "quickstart: evaluating build/zdt1-genomes.jsonl with plugin zdt1 on the embedded pool"
 ./build/client/fitfarm eval --plugin zdt1 --params '{"n": 30}' --seed 1 \
     --in build/zdt1-genomes.jsonl --out build/zdt1-results.jsonl
