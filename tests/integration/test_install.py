@@ -44,7 +44,14 @@ header = open(glob.glob(os.path.join(prefix, "include", "fitfarm.h"))[0]).read()
 check.ok("FITFARM_OPTIONS_INIT" in header, "the installed header is the one the example is written for")
 exe = os.path.join(tmp, "readme_example")
 src = os.path.join(fflib.SOURCE, "client", "examples", "readme_example.c")
-cc = subprocess.run(["cc", "-std=c11", "-Wall", "-Wextra", "-Werror", src, "-o", exe] + flags + ["-lm"],
+# A sanitizer build installs an instrumented library: a program linking it
+# must carry the same runtimes (ASan insists on coming first).
+try:
+    SANITIZED = "FITFARM_SANITIZE:BOOL=ON" in open(os.path.join(fflib.BUILD, "CMakeCache.txt")).read()
+except OSError:
+    SANITIZED = False
+san = ["-fsanitize=address,undefined"] if SANITIZED else []
+cc = subprocess.run(["cc", "-std=c11", "-Wall", "-Wextra", "-Werror"] + san + [src, "-o", exe] + flags + ["-lm"],
                     capture_output=True, text=True, env=env, timeout=120)
 check.ok(cc.returncode == 0, f"cc readme_example.c: {cc.stderr[-2000:]}")
 
