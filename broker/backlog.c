@@ -19,7 +19,7 @@ static const char s_page_sql[] =
     "SELECT r.tag, r.cached, r.fresh, r.key, e.seed,"
     " CASE WHEN r.fresh THEN x.status ELSE e.status END,"
     " CASE WHEN r.fresh THEN x.fitness ELSE e.fitness END,"
-    " CASE WHEN r.fresh THEN x.error ELSE e.error END"
+    " CASE WHEN r.fresh THEN x.error ELSE e.error END, r.replicate, e.genome"
     " FROM requests r INDEXED BY requests_unacked JOIN evaluations e ON e.key = r.key"
     " LEFT JOIN results x ON r.fresh = 1 AND x.rowid = (SELECT max(rowid) FROM results y"
     "  WHERE y.run_id = r.run_id AND y.key = r.key AND y.fresh = 1)"
@@ -102,7 +102,10 @@ static int s_page(broker_t *b, broker_run_t *run, int limit)
             broker_table_get(run->unacked, &tag, sizeof tag))
             continue; /* not answered yet, or already held in RAM */
         broker_delivery_t d = {.tag = tag,
-                               .seed = (uint64_t)sqlite3_column_int64(st, 4),
+                               .seed = broker_run_request_seed(
+                                   run, sqlite3_column_blob(st, 9),
+                                   (uint32_t)sqlite3_column_bytes(st, 9),
+                                   (uint32_t)sqlite3_column_int64(st, 8)),
                                .status = (uint8_t)sqlite3_column_int(st, 5),
                                .cached = (uint8_t)(sqlite3_column_int(st, 1) != 0),
                                .fresh = (uint8_t)(sqlite3_column_int(st, 2) != 0),

@@ -9,6 +9,14 @@ typedef struct {
     const char *clients_endpoint; /* bind address for clients, e.g. "tcp://127.0.0.1:5555" */
     const char *workers_endpoint; /* bind address for workers */
     const char *store_dir;        /* durable store folder; NULL = in memory only */
+    /* The store is scratch, deleted when the broker's owner ends (the
+     * embedded pool's private store): commits skip fsync (synchronous=OFF),
+     * so a machine crash may lose it, which for scratch loses nothing. */
+    int scratch_store;
+    /* How long to wait at start for another broker's lock on the store (a
+     * predecessor that was just killed and is still ending); 0 = the
+     * default, BROKER_DEFAULT_LOCK_WAIT_MS. */
+    int lock_wait_ms;
     int liveness_ms;              /* a worker silent this long is dropped; 0 = 5000 */
     int heartbeat_ms;             /* 0 = 1000 */
     unsigned attempts;            /* tries of a job that crashes or times out; 0 = 3 */
@@ -41,6 +49,7 @@ typedef struct {
     uint64_t cache_bytes;         /* their approximate bytes */
 } broker_config_t;
 
+#define BROKER_DEFAULT_LOCK_WAIT_MS 10000 /* a killed predecessor ends well within this */
 #define BROKER_DEFAULT_QUEUED_PER_RUN 1000000u
 #define BROKER_DEFAULT_QUEUED_PER_CLIENT 4000000u
 #define BROKER_DEFAULT_UNACKED_PER_RUN 100000u

@@ -18,8 +18,11 @@
 #include "params.h"
 #include "quota.h"
 
-static void s_refuse(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t code,
-                     uint64_t batch_tag, const char *run_id, const char *text)
+/* Refuses a SUBMIT; item names the one request it is about (NULL: the
+ * whole batch), so the client needs no text parsing to name the genome. */
+static void s_refuse_item(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t code,
+                          uint64_t batch_tag, const char *run_id, const proto_item_t *item,
+                          const char *text)
 {
     char hex[BROKER_RID_HEX];
     LOG_INFO("refused batch %" PRIu64 " of run %s from client %s: %s", batch_tag,
@@ -31,7 +34,15 @@ static void s_refuse(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t c
     msg.u.refused.batch_tag = batch_tag;
     msg.u.refused.run_id = (char *)(run_id ? run_id : "");
     msg.u.refused.text = (char *)text;
+    msg.u.refused.has_tag = item != NULL;
+    msg.u.refused.tag = item ? item->tag : 0;
     broker_envelope_send(b->clients, rid, rid_len, &msg);
+}
+
+static void s_refuse(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t code,
+                     uint64_t batch_tag, const char *run_id, const char *text)
+{
+    s_refuse_item(b, rid, rid_len, code, batch_tag, run_id, NULL, text);
 }
 
 /* 1 when request (run, tag) already waits on e. */
@@ -84,16 +95,18 @@ static void s_item_key(const broker_plugin_t *plugin, const char *params, int st
 }
 
 /* A re-sent request past the delivery cap stays owed from the store. */
-static void s_redeliver(broker_t *b, broker_run_t *run, uint64_t tag, broker_eval_t *e, int cached)
+static void s_redeliver(broker_t *b, broker_run_t *run, uint64_t tag, uint64_t seed,
+                        broker_eval_t *e, int cached)
 {
-    if (!broker_runs_redeliver(&b->runs, run, tag, e, cached))
+    if (!broker_runs_redeliver(&b->runs, run, tag, seed, e, cached))
         broker_store_note_unack(b->store, run, tag);
 }
 
 /* A recorded no-cache request asked again (resume or replay): it is answered
  * with its own re-evaluation, not the cached result: from the unacknowledged
  * delivery when there is one, else from the results history. */
-static void s_redeliver_fresh(broker_t *b, broker_run_t *run, uint64_t tag, broker_eval_t *e)
+static void s_redeliver_fresh(broker_t *b, broker_run_t *run, uint64_t tag, uint64_t seed,
+                              broker_eval_t *e)
 {
     broker_delivery_t *d = broker_table_get(run->unacked, &tag, sizeof tag);
     if (d && d->fresh) {
@@ -107,10 +120,10 @@ static void s_redeliver_fresh(broker_t *b, broker_run_t *run, uint64_t tag, brok
     char err[1024];
     if (!broker_store_find_fresh_result(b->store, run->id, e->key, &status, fit, &nf, err,
                                         sizeof err)) {
-        s_redeliver(b, run, tag, e, 0); /* a store from before the history */
+        s_redeliver(b, run, tag, seed, e, 0); /* a store from before the history */
         return;
     }
-    broker_delivery_t t = {.tag = tag, .seed = e->seed, .status = (uint8_t)status, .fresh = 1,
+    broker_delivery_t t = {.tag = tag, .seed = seed, .status = (uint8_t)status, .fresh = 1,
                            .n_fitness = nf, .fitness = fit, .error = err};
     memcpy(t.key, e->key, PROTO_KEY_BYTES);
     if (!broker_runs_redeliver_copy(&b->runs, run, &t))
@@ -181,7 +194,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             snprintf(text, sizeof text, "item %u: replicate %u, limit %u", i,
                      s->items[i].replicate, PROTO_MAX_REPLICATES);
             rc = PROTO_REFUSE_BAD_MESSAGE;
-            s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+            s_refuse_item(b, rid, rid_len, rc, s->batch_tag, s->run_id, &s->items[i], text);
             goto cleanup;
         }
     }
@@ -220,7 +233,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                      "run must send the same requests in the same order",
                      run->id, s->items[i].tag, i);
             rc = PROTO_REFUSE_RUN_MISMATCH;
-            s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+            s_refuse_item(b, rid, rid_len, rc, s->batch_tag, s->run_id, &s->items[i], text);
             goto cleanup;
         }
         recorded[i] = (uint8_t)(fresh ? 3 : 1 + (cached != 0));
@@ -238,7 +251,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                          " (item %u of the batch)%s",
                          s->run_id, s->items[i].tag, i, run ? "" : "; the run is unknown");
                 rc = PROTO_REFUSE_NOT_RECORDED;
-                s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+                s_refuse_item(b, rid, rid_len, rc, s->batch_tag, s->run_id, &s->items[i], text);
                 goto cleanup;
             }
         }
@@ -269,19 +282,19 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             if (e->again && s_waits(e->again, run, it->tag)) {
                 continue; /* a no-cache request still waiting on its re-evaluation */
             } else if (recorded[i] == 3 && e->state == BROKER_EVAL_DONE) {
-                s_redeliver_fresh(b, run, it->tag, e);
+                s_redeliver_fresh(b, run, it->tag, seeds[i], e);
             } else if (e->state == BROKER_EVAL_DONE) {
-                s_redeliver(b, run, it->tag, e, recorded[i] == 2);
+                s_redeliver(b, run, it->tag, seeds[i], e, recorded[i] == 2);
             } else if (!s_waits(e, run, it->tag)) {
                 run->outstanding++;
-                broker_eval_add_waiter(e, run, it->tag);
+                broker_eval_add_waiter(e, run, it->tag, seeds[i]);
             }
             continue;
         }
         run->outstanding++;
         if (e && e->state == BROKER_EVAL_DONE && !no_cache) {
             broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, 1);
-            broker_runs_answer(&b->runs, run, it->tag, e, 1);
+            broker_runs_answer(&b->runs, run, it->tag, seeds[i], e, 1);
             continue;
         }
         if (!e) {
@@ -289,7 +302,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                                  it->genome_len);
             e->timeout_ms = s->timeout_ms;
             e->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
-            broker_eval_add_waiter(e, run, it->tag);
+            broker_eval_add_waiter(e, run, it->tag, seeds[i]);
             broker_runs_enqueue(&b->runs, run, e, 0);
             broker_store_note_eval(b->store, e);
         } else if (e->state == BROKER_EVAL_DONE) {
@@ -299,14 +312,14 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                 broker_eval_t *f = broker_evals_new_fresh(&b->evals, e);
                 f->timeout_ms = s->timeout_ms;
                 f->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
-                broker_eval_add_waiter(f, run, it->tag);
+                broker_eval_add_waiter(f, run, it->tag, seeds[i]);
                 broker_runs_enqueue(&b->runs, run, f, 0);
             } else {
-                broker_eval_add_waiter(e->again, run, it->tag);
+                broker_eval_add_waiter(e->again, run, it->tag, seeds[i]);
             }
             e = e->again;
         } else {
-            broker_eval_add_waiter(e, run, it->tag); /* single flight */
+            broker_eval_add_waiter(e, run, it->tag, seeds[i]); /* single flight */
         }
         broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, 0);
         assert(broker_eval_check(&b->evals, e));

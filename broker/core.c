@@ -37,7 +37,9 @@ void broker_core_init_config(broker_t *b, const broker_config_t *config)
     broker_runs_set_caps(&b->runs, config->max_unacked_per_run, config->max_unacked);
     broker_intern_init(&b->intern);
     broker_timers_init(&b->timers);
-    b->store = broker_store_open(config->store_dir);
+    b->store = broker_store_open(config->store_dir, config->scratch_store,
+                                 config->lock_wait_ms > 0 ? config->lock_wait_ms
+                                                          : BROKER_DEFAULT_LOCK_WAIT_MS);
     /* NULL store: broker_main_run refuses to start (the open logged why). */
     if (b->store && broker_store_load(b) != 0)
         broker_store_close(&b->store);

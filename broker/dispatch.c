@@ -89,7 +89,7 @@ void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker
     e->home->p_evaluated++;
     for (uint32_t i = 0; i < e->n_waiters; i++) {
         broker_waiter_t *wt = broker_eval_waiter(e, i);
-        broker_runs_answer(&b->runs, wt->run, wt->tag, e, 0);
+        broker_runs_answer(&b->runs, wt->run, wt->tag, wt->seed, e, 0);
     }
     broker_eval_clear_waiters(e);
     assert(broker_eval_check(&b->evals, e));

@@ -212,9 +212,9 @@ void broker_evals_touch(broker_evals_t *self, broker_eval_t *e)
     s_lru_push(self, e);
 }
 
-void broker_eval_add_waiter(broker_eval_t *e, struct broker_run *run, uint64_t tag)
+void broker_eval_add_waiter(broker_eval_t *e, struct broker_run *run, uint64_t tag, uint64_t seed)
 {
-    broker_waiter_t w = {run, tag};
+    broker_waiter_t w = {run, tag, seed};
     if (e->n_waiters == 0) {
         e->w0 = w;
     } else {

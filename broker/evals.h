@@ -61,6 +61,7 @@ typedef enum { BROKER_EVAL_QUEUED = 0, BROKER_EVAL_RUNNING = 1, BROKER_EVAL_DONE
 typedef struct {
     struct broker_run *run;
     uint64_t tag;
+    uint64_t seed; /* the request's own seed, reported in its result */
 } broker_waiter_t;
 
 typedef struct broker_eval {
@@ -138,7 +139,7 @@ void broker_evals_settle(broker_evals_t *self, broker_eval_t *e);
 /* A cache hit: e moves to the front of the LRU list. */
 void broker_evals_touch(broker_evals_t *self, broker_eval_t *e);
 
-void broker_eval_add_waiter(broker_eval_t *e, struct broker_run *run, uint64_t tag);
+void broker_eval_add_waiter(broker_eval_t *e, struct broker_run *run, uint64_t tag, uint64_t seed);
 /* Waiter i (0-based, < n_waiters). */
 broker_waiter_t *broker_eval_waiter(broker_eval_t *e, uint32_t i);
 void broker_eval_clear_waiters(broker_eval_t *e);

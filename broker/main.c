@@ -38,6 +38,10 @@ static void s_usage(FILE *out)
             "  --config FILE         settings file (default $XDG_CONFIG_HOME/fitfarm/config or\n"
             "                        ~/.config/fitfarm/config); flags beat environment beat file\n"
             "  --insecure            plaintext, no keys: only on ipc://, inproc:// or loopback\n"
+            "  --lock-wait SECONDS   wait this long for another broker's lock on the store (a\n"
+            "                        predecessor still ending after a crash; default 10)\n"
+            "  --scratch-store       the store is thrown away after use: commit without fsync\n"
+            "                        (a machine crash may lose it; never for a store you keep)\n"
             "  --max-message-bytes N cap on any one message (default 67108864)\n"
             "  --max-genome-bytes N  cap on one genome (default 1048576)\n"
             "  --max-batch N         cap on items in one SUBMIT (default 100000)\n"
@@ -123,6 +127,10 @@ int main(int argc, char **argv)
             cfg.insecure = 1;
             continue;
         }
+        if (strcmp(a, "--scratch-store") == 0) {
+            cfg.scratch_store = 1;
+            continue;
+        }
         static const char *const with_value[] = {
             "--clients",          "--workers",          "--store",
             "--liveness",         "--heartbeat",        "--attempts",
@@ -130,7 +138,8 @@ int main(int argc, char **argv)
             "--config",           "--max-message-bytes", "--max-genome-bytes",
             "--max-batch",        "--max-objectives",   "--max-string-bytes",
             "--max-queued-per-run", "--max-queued-per-client", "--max-unacked-per-run",
-            "--max-unacked",      "--cache-entries",    "--cache-mb"};
+            "--max-unacked",      "--cache-entries",    "--cache-mb",
+            "--lock-wait"};
         int known = 0;
         for (size_t k = 0; k < sizeof with_value / sizeof *with_value; k++)
             known |= strcmp(a, with_value[k]) == 0;
@@ -146,6 +155,13 @@ int main(int argc, char **argv)
             cfg.workers_endpoint = v;
         } else if (strcmp(a, "--store") == 0) {
             cfg.store_dir = v;
+        } else if (strcmp(a, "--lock-wait") == 0) {
+            char *end = NULL;
+            errno = 0;
+            long s = strtol(v, &end, 10);
+            if (errno || !end || *end || end == v || s < 0 || s > 600)
+                return s_bad("--lock-wait needs whole seconds from 0 to 600, got '%s'", v);
+            cfg.lock_wait_ms = s == 0 ? 1 : (int)(s * 1000); /* 0: do not wait */
         } else if (strcmp(a, "--endpoints-file") == 0) {
             cfg.endpoints_file = v;
         } else if (strcmp(a, "--key") == 0) {

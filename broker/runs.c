@@ -13,6 +13,7 @@
 #include "broker.h"
 #include "common/alloc.h"
 #include "common/log.h"
+#include "key.h"
 #include "msg.h"
 
 void broker_runs_init(broker_runs_t *self)
@@ -313,11 +314,11 @@ static int s_outbox_push(broker_runs_t *self, broker_run_t *run, const broker_de
     return 1;
 }
 
-static int s_push_eval(broker_runs_t *self, broker_run_t *run, uint64_t tag,
+static int s_push_eval(broker_runs_t *self, broker_run_t *run, uint64_t tag, uint64_t seed,
                        const broker_eval_t *e, int cached)
 {
     broker_delivery_t t = {.tag = tag,
-                           .seed = e->seed,
+                           .seed = seed,
                            .status = e->status,
                            .cached = (uint8_t)(cached != 0),
                            .fresh = e->fresh,
@@ -328,11 +329,17 @@ static int s_push_eval(broker_runs_t *self, broker_run_t *run, uint64_t tag,
     return s_outbox_push(self, run, &t);
 }
 
-void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
-                        int cached)
+uint64_t broker_run_request_seed(const broker_run_t *run, const uint8_t *genome,
+                                 uint32_t genome_len, uint32_t replicate)
+{
+    return proto_seed_derive(run->seed, (int)run->seed_mode, genome, genome_len, replicate);
+}
+
+void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, uint64_t seed,
+                        broker_eval_t *e, int cached)
 {
     assert(e->state == BROKER_EVAL_DONE || cached == 0);
-    (void)s_push_eval(self, run, tag, e, cached); /* past a cap: the store has it, acked = 0 */
+    (void)s_push_eval(self, run, tag, seed, e, cached); /* past a cap: the store has it, acked = 0 */
     run->n_answered++;
     run->p_answered++;
     if (cached) {
@@ -354,11 +361,11 @@ void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, br
     }
 }
 
-int broker_runs_redeliver(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
-                          int cached)
+int broker_runs_redeliver(broker_runs_t *self, broker_run_t *run, uint64_t tag, uint64_t seed,
+                          broker_eval_t *e, int cached)
 {
     assert(e->state == BROKER_EVAL_DONE);
-    return s_push_eval(self, run, tag, e, cached);
+    return s_push_eval(self, run, tag, seed, e, cached);
 }
 
 int broker_runs_redeliver_copy(broker_runs_t *self, broker_run_t *run,

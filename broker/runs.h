@@ -115,13 +115,20 @@ void broker_runs_set_caps(broker_runs_t *self, uint64_t per_run, uint64_t total)
 /* Records that request tag of run is answered by DONE e; queues a copy of the
  * result in the run's outbox, or past a cap leaves it to the store. Logs the
  * idle line when it was the run's last outstanding one. */
-void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
+/* The seed of request (run, genome, replicate) as proto/key.h derives it: what
+ * its result reports, whichever evaluation (shared or not) answered it. */
+uint64_t broker_run_request_seed(const broker_run_t *run, const uint8_t *genome,
+                                 uint32_t genome_len, uint32_t replicate);
+
+void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, uint64_t seed,
+                        broker_eval_t *e,
                         int cached);
 /* Queues the result of request tag for sending again without counting it as
  * a new answer (a re-sent SUBMIT of a request already answered). Returns 1
  * when it is held in RAM, 0 when it was past a cap and is owed from the
  * store: the caller makes sure the store says acked = 0 for it. */
-int broker_runs_redeliver(broker_runs_t *self, broker_run_t *run, uint64_t tag, broker_eval_t *e,
+int broker_runs_redeliver(broker_runs_t *self, broker_run_t *run, uint64_t tag, uint64_t seed,
+                          broker_eval_t *e,
                           int cached);
 /* The same with the result given as a delivery template (fitness and error
  * borrowed, copied here): a result read from the store. */

@@ -32,6 +32,7 @@
 #include "common/alloc.h"
 #include "common/log.h"
 #include "params.h"
+#include "store_lock.h"
 
 #define STORE_FILE "fitfarm.db"
 #define STORE_SCHEMA_VERSION 1
@@ -149,7 +150,7 @@ static int s_exec(broker_store_t *self, const char *sql)
     return 0;
 }
 
-broker_store_t *broker_store_open(const char *dir)
+broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms)
 {
     broker_store_t *self = common_xcalloc(1, sizeof *self);
     self->lock_fd = -1;
@@ -159,16 +160,11 @@ broker_store_t *broker_store_open(const char *dir)
             goto fail;
         }
         /* Two brokers on one store would each tell clients a different
-         * story: the second one refuses to start. A lock file and not
-         * SQLite's exclusive mode, so readers (the sqlite3 shell, fitfarm
-         * export) can query the store while the broker runs. */
-        snprintf(self->path, sizeof self->path, "%s/fitfarm.lock", dir);
-        self->lock_fd = open(self->path, O_RDWR | O_CREAT | O_CLOEXEC, 0600);
-        if (self->lock_fd < 0 || flock(self->lock_fd, LOCK_EX | LOCK_NB) != 0) {
-            LOG_ERROR("the store %s is in use by another broker (or cannot be locked: %s)",
-                      dir, strerror(errno));
+         * story: the second one waits a little (a killed predecessor may
+         * still be ending), then refuses to start (store_lock.h). */
+        self->lock_fd = broker_store_lock(dir, lock_wait_ms);
+        if (self->lock_fd < 0)
             goto fail;
-        }
         snprintf(self->path, sizeof self->path, "%s/%s", dir, STORE_FILE);
     } else {
         snprintf(self->path, sizeof self->path, ":memory:");
@@ -182,7 +178,8 @@ broker_store_t *broker_store_open(const char *dir)
     }
     sqlite3_busy_timeout(self->db, 2000); /* a reader checkpointing, at most */
     if (s_exec(self, "PRAGMA journal_mode=WAL") != 0 ||
-        s_exec(self, "PRAGMA synchronous=FULL") != 0 || s_exec(self, s_schema) != 0 ||
+        s_exec(self, scratch ? "PRAGMA synchronous=OFF" : "PRAGMA synchronous=FULL") != 0 ||
+        s_exec(self, s_schema) != 0 ||
         s_exec(self, "BEGIN IMMEDIATE") != 0)
         goto fail;
     char sql[128];
@@ -210,7 +207,8 @@ broker_store_t *broker_store_open(const char *dir)
         }
     }
     if (dir)
-        LOG_INFO("store %s open (WAL, synchronous=FULL)", self->path);
+        LOG_INFO("store %s open (WAL, synchronous=%s)", self->path,
+                 scratch ? "OFF: a scratch store" : "FULL");
     return self;
 fail:
     broker_store_close(&self);

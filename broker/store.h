@@ -32,9 +32,11 @@ typedef struct broker_store broker_store_t;
 struct broker;
 
 /* Opens (creating if needed) DIR/fitfarm.db; dir NULL: a private in-memory
- * database (unit tests). Caller closes it. Returns NULL after logging why
- * when the folder or database cannot be opened. */
-broker_store_t *broker_store_open(const char *dir);
+ * database (unit tests). scratch: commit without fsync (broker.h says when
+ * that is right). lock_wait_ms: how long to wait for another broker's lock
+ * on the folder (store_lock.h). Caller closes it. Returns NULL after logging why when the
+ * folder or database cannot be opened. */
+broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms);
 /* Commits what is pending and closes. Accepts NULL. */
 void broker_store_close(broker_store_t **self_p);
 

@@ -149,7 +149,7 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
     /* Creation order, so a run's queue comes back oldest first. */
     if (sqlite3_prepare_v2(db,
                            "SELECT r.run_id, r.tag, r.cached, r.acked, e.key, e.plugin, e.params,"
-                           " e.genome, e.seed, e.timeout_ms, e.max_attempts"
+                           " e.genome, e.seed, e.timeout_ms, e.max_attempts, r.replicate"
                            " FROM requests r JOIN evaluations e ON e.key = r.key"
                            " WHERE r.fresh = 0 AND e.status IS NULL ORDER BY r.created",
                            -1, &st, NULL) != SQLITE_OK)
@@ -169,7 +169,9 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
         }
         if (e->state == BROKER_EVAL_DONE || s_waits(e, run, tag))
             continue;
-        broker_eval_add_waiter(e, run, tag);
+        uint32_t replicate = (uint32_t)sqlite3_column_int64(st, 11);
+        broker_eval_add_waiter(e, run, tag,
+                               broker_run_request_seed(run, e->genome, e->genome_len, replicate));
         run->outstanding++;
         if (!e->home) {
             broker_runs_enqueue(&b->runs, run, e, 0);
@@ -189,7 +191,7 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
     sqlite3_stmt *st = NULL;
     if (sqlite3_prepare_v2(db,
                            "SELECT r.run_id, r.tag, r.key, x.status, x.fitness, x.error,"
-                           " e.timeout_ms, e.max_attempts FROM requests r"
+                           " e.timeout_ms, e.max_attempts, r.replicate FROM requests r"
                            " JOIN evaluations e ON e.key = r.key"
                            " LEFT JOIN results x ON x.rowid = (SELECT max(rowid) FROM results y"
                            "  WHERE y.run_id = r.run_id AND y.key = r.key AND y.fresh = 1)"
@@ -216,7 +218,9 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
         }
         if (s_waits(f, run, tag))
             continue;
-        broker_eval_add_waiter(f, run, tag);
+        uint32_t replicate = (uint32_t)sqlite3_column_int64(st, 8);
+        broker_eval_add_waiter(f, run, tag,
+                               broker_run_request_seed(run, f->genome, f->genome_len, replicate));
         run->outstanding++;
         if (!f->home) {
             broker_runs_enqueue(&b->runs, run, f, 0);

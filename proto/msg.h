@@ -147,12 +147,17 @@ typedef struct {
     proto_result_t *results;
 } proto_results_t;
 
-/* [v, REFUSED, code uint, batch_tag uint, run_id str, text str] */
+/* [v, REFUSED, code uint, batch_tag uint, run_id str, text str,
+ *  has_tag bool, tag uint]: has_tag says the refusal is about one request,
+ *  the one sent under tag (tag is 0 otherwise), so a client names it without
+ *  parsing the text. */
 typedef struct {
     uint32_t code; /* proto_refuse_t */
     uint64_t batch_tag;
     char *run_id; /* "" when not about a run */
     char *text;
+    uint8_t has_tag; /* 0 or 1 */
+    uint64_t tag;
 } proto_refused_t;
 
 /* Worker as listed by STATUS: [name str, host str, arch str, slots uint,

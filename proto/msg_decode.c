@@ -563,6 +563,8 @@ static int s_refused(s_cursor_t *c, proto_refused_t *r)
     FIELD("batch_tag", s_read_u64(c, &r->batch_tag));
     FIELD("run_id", s_read_str(c, c->lim.name_bytes, &r->run_id));
     FIELD("text", s_read_str(c, c->lim.error_bytes, &r->text));
+    FIELD("has_tag", s_read_bool(c, &r->has_tag));
+    FIELD("tag", s_read_u64(c, &r->tag));
 cleanup:
     return rc;
 }

@@ -288,6 +288,8 @@ int proto_msg_encode(const proto_msg_t *msg, uint8_t **out, size_t *out_len)
         U64(msg->u.refused.batch_tag);
         STR(msg->u.refused.run_id);
         STR(msg->u.refused.text);
+        BOOL(msg->u.refused.has_tag);
+        U64(msg->u.refused.has_tag ? msg->u.refused.tag : 0);
         break;
     case PROTO_STATUS:
         rc = s_pack_status(pk, &msg->u.status);

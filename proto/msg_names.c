@@ -11,7 +11,7 @@ int proto_msg_field_count(uint32_t type)
     case PROTO_ACK: return 2;
     case PROTO_ACCEPTED: return 3;
     case PROTO_RESULTS: return 2;
-    case PROTO_REFUSED: return 4;
+    case PROTO_REFUSED: return 6;
     case PROTO_STATUS: return 3;
     case PROTO_HELLO: return 5;
     case PROTO_CREDIT: return 1;

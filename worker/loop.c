@@ -337,6 +337,11 @@ static int s_open_socket(s_worker_t *self)
         return -1;
     }
     int linger = 0, ivl = 100, ivl_max = 2000;
+    /* A broker on this machine (ipc://, the embedded pool) may be a few ms
+     * from binding when we start: retry quickly instead of backing off to
+     * hundreds of milliseconds, which would be the pool's start time. */
+    if (strncmp(self->config.broker_endpoint, "ipc://", 6) == 0)
+        ivl = 5, ivl_max = 250;
     int64_t maxmsg = PROTO_MAX_MESSAGE_BYTES;
     zmq_setsockopt(self->sock, ZMQ_LINGER, &linger, sizeof linger);
     zmq_setsockopt(self->sock, ZMQ_RECONNECT_IVL, &ivl, sizeof ivl);

@@ -20,7 +20,6 @@
 #include "cli_keys.h"
 #include "cli_util.h"
 #include "client/include/fitfarm.h"
-#include "client/lib/status.h"
 #include "commands.h"
 #include "common/clock.h"
 #include "jsonl.h"
@@ -29,6 +28,7 @@
 
 #define EVAL_BATCH_LINES 4096   /* submit once this many lines are waiting */
 #define EVAL_READ_BYTES 65536
+#define CLI_SUBMIT_WAIT_MS 60000 /* how long the broker may take to accept a batch */
 
 static const char s_help[] =
     "usage: fitfarm eval --plugin NAME [options] [< genomes.jsonl]\n"
@@ -271,15 +271,16 @@ static void s_pool_plugins(fitfarm_client_t *client, char *buf, size_t len, int 
     buf[0] = '\0';
     *has = 0;
     *n_workers = -1;
-    proto_msg_t *st = NULL;
-    if (client_status(client, &st, 5000) != 0)
+    fitfarm_status_t *st = NULL;
+    if (fitfarm_status_get(client, 5000, &st) != 0)
         return;
-    *n_workers = (int)st->u.status.n_workers;
+    *n_workers = (int)fitfarm_status_n_workers(st);
     size_t used = 0;
-    for (uint32_t w = 0; w < st->u.status.n_workers; w++) {
-        const proto_worker_info_t *wi = &st->u.status.workers[w];
-        for (uint32_t p = 0; p < wi->n_plugins; p++) {
-            const char *full = wi->plugins[p];
+    for (size_t w = 0; w < fitfarm_status_n_workers(st); w++) {
+        fitfarm_worker_info_t wi = FITFARM_WORKER_INFO_INIT;
+        fitfarm_status_worker(st, w, &wi);
+        for (size_t p = 0; p < wi.n_plugins; p++) {
+            const char *full = wi.plugins[p];
             size_t nl = strcspn(full, "@");
             if (strlen(want) == nl && strncmp(full, want, nl) == 0)
                 *has = 1;
@@ -298,7 +299,7 @@ static void s_pool_plugins(fitfarm_client_t *client, char *buf, size_t len, int 
             used += (size_t)n;
         }
     }
-    proto_msg_destroy(&st);
+    fitfarm_status_destroy(&st);
 }
 
 static int s_unknown_plugin(eval_t *e, const char *detail)
@@ -387,10 +388,10 @@ static int s_take_line(eval_t *e, const char *text, size_t len, size_t line_no, 
 static int s_not_recorded(eval_t *e, const fitfarm_batch_t *b)
 {
     const char *msg = fitfarm_client_error(e->client);
-    const char *g = strstr(msg, "genome ");
-    unsigned long long index = 0;
+    fitfarm_refusal_t why = FITFARM_REFUSAL_INIT;
     size_t line = 0;
-    if (g && sscanf(g + 7, "%llu", &index) == 1) {
+    if (fitfarm_refusal(e->run, &why) == 0 && why.has_request && why.batch == b) {
+        size_t index = why.index;
         for (size_t i = e->cursor; i < e->n_records; i++)
             if (e->records[i].batch == b && e->records[i].index == index) {
                 line = e->records[i].line;
@@ -427,7 +428,7 @@ static int s_submit_building(eval_t *e)
     e->batches[e->n_batches] = b;
     e->batch_last[e->n_batches] = e->n_records - 1;
     e->n_batches++;
-    int rc = fitfarm_submit(e->run, b);
+    int rc = fitfarm_submit(e->run, b, CLI_SUBMIT_WAIT_MS);
     if (rc == FITFARM_EPLUGIN)
         return s_unknown_plugin(e, fitfarm_client_error(e->client));
     if (rc == FITFARM_ENOTRECORDED)
@@ -483,7 +484,7 @@ static int s_cmp_double(const void *a, const void *b)
 static void s_print_aggregate(eval_t *e, const eval_record_t *rec)
 {
     unsigned k = (unsigned)e->replicates;
-    fitfarm_result_t res;
+    fitfarm_result_t res = FITFARM_RESULT_INIT;
     size_t n_obj = 0;
     unsigned n_ok = 0;
     for (unsigned r = 0; r < k; r++)
@@ -558,7 +559,7 @@ static void s_flush_prefix(eval_t *e)
             e->any_not_ok = 1;
         } else {
             for (; e->cursor_r < e->replicates; e->cursor_r++) {
-                fitfarm_result_t res;
+                fitfarm_result_t res = FITFARM_RESULT_INIT;
                 if (fitfarm_batch_result(rec->batch, rec->index, e->cursor_r, &res) != 0)
                     break;
                 s_print_result(e, rec, &res);
@@ -685,7 +686,7 @@ static int s_loop(eval_t *e)
         if (eof && e->cursor == e->n_records)
             break;
         /* 3. Wait a little for results (or for more input). */
-        fitfarm_result_t res;
+        fitfarm_result_t res = FITFARM_RESULT_INIT;
         int prc = fitfarm_poll(e->run, &res, eof ? 200 : 20);
         while (prc == 1)
             prc = fitfarm_poll(e->run, &res, 0);
@@ -747,8 +748,7 @@ int cli_cmd_eval(int argc, char **argv)
     sigaction(SIGTERM, &sa, NULL);
     signal(SIGPIPE, SIG_IGN);
 
-    fitfarm_options_t opts;
-    memset(&opts, 0, sizeof opts);
+    fitfarm_options_t opts = FITFARM_OPTIONS_INIT;
     opts.broker = e.broker;
     opts.slots = (unsigned)e.slots;
     opts.plugin_dir = e.plugin_dir;
@@ -775,8 +775,7 @@ int cli_cmd_eval(int argc, char **argv)
             goto cleanup;
         }
     }
-    fitfarm_run_options_t ropts;
-    memset(&ropts, 0, sizeof ropts);
+    fitfarm_run_options_t ropts = FITFARM_RUN_OPTIONS_INIT;
     ropts.run_id = e.run_id;
     ropts.seed = e.seed;
     ropts.seed_mode = e.seed_mode;
@@ -793,8 +792,9 @@ int cli_cmd_eval(int argc, char **argv)
     if (rc == 0 && e.any_not_ok)
         rc = 1;
     if (e.stats) {
-        uint64_t dups = 0, resent = 0;
-        client_run_counters(e.run, &dups, &resent);
+        fitfarm_run_stats_t st = FITFARM_RUN_STATS_INIT;
+        fitfarm_run_stats(e.run, &st);
+        uint64_t dups = st.duplicates, resent = st.resent;
         fprintf(stderr, "fitfarm eval: stats: results %zu, duplicates dropped %llu, "
                 "re-sent requests %llu\n", e.printed_slots, (unsigned long long)dups,
                 (unsigned long long)resent);

@@ -11,9 +11,7 @@
 #include "cli_keys.h"
 #include "cli_util.h"
 #include "client/include/fitfarm.h"
-#include "client/lib/status.h"
 #include "commands.h"
-#include "msg.h"
 
 static const char s_help[] =
     "usage: fitfarm status --broker ENDPOINT [--json] [--timeout SECONDS]\n"
@@ -39,7 +37,7 @@ static int s_usage(const char *fmt, const char *arg)
     return 2;
 }
 
-static int s_print_json(const proto_status_t *st)
+static int s_print_json(const fitfarm_status_t *st)
 {
     json_t *root = json_object();
     json_t *workers = json_array();
@@ -50,26 +48,28 @@ static int s_print_json(const proto_status_t *st)
     json_object_set_new(root, "workers", workers);
     json_object_set_new(root, "runs", runs);
     json_object_set_new(root, "warnings", warnings);
-    for (uint32_t i = 0; i < st->n_workers; i++) {
-        const proto_worker_info_t *w = &st->workers[i];
+    for (size_t i = 0; i < fitfarm_status_n_workers(st); i++) {
+        fitfarm_worker_info_t wi = FITFARM_WORKER_INFO_INIT, *w = &wi;
+        fitfarm_status_worker(st, i, w);
         json_t *plugins = json_array();
-        for (uint32_t p = 0; plugins && p < w->n_plugins; p++)
+        for (size_t p = 0; plugins && p < w->n_plugins; p++)
             json_array_append_new(plugins, json_string(w->plugins[p]));
         json_array_append_new(
             workers, json_pack("{s:s?, s:s?, s:s?, s:I, s:I, s:o?}", "name", w->name, "host",
                                w->host, "arch", w->arch, "slots", (json_int_t)w->slots, "busy",
                                (json_int_t)w->busy, "plugins", plugins));
     }
-    for (uint32_t i = 0; i < st->n_runs; i++) {
-        const proto_run_info_t *r = &st->runs[i];
+    for (size_t i = 0; i < fitfarm_status_n_runs(st); i++) {
+        fitfarm_run_info_t ri = FITFARM_RUN_INFO_INIT, *r = &ri;
+        fitfarm_status_run(st, i, r);
         json_array_append_new(
             runs, json_pack("{s:s?, s:I, s:I, s:I, s:I, s:I, s:I}", "run", r->run_id, "queued",
                             (json_int_t)r->queued, "running", (json_int_t)r->running, "done",
                             (json_int_t)r->done, "evaluated", (json_int_t)r->evaluated, "cached",
                             (json_int_t)r->cached, "failed", (json_int_t)r->failed));
     }
-    for (uint32_t i = 0; i < st->n_warnings; i++)
-        json_array_append_new(warnings, json_string(st->warnings[i]));
+    for (size_t i = 0; i < fitfarm_status_n_warnings(st); i++)
+        json_array_append_new(warnings, json_string(fitfarm_status_warning(st, i)));
     char *text = json_dumps(root, JSON_COMPACT | JSON_PRESERVE_ORDER);
     json_decref(root);
     if (!text)
@@ -86,40 +86,45 @@ nomem:
     return 1;
 }
 
-static void s_print_table(const proto_status_t *st)
+static void s_print_table(const fitfarm_status_t *st)
 {
     uint64_t slots = 0, busy = 0;
-    for (uint32_t i = 0; i < st->n_workers; i++) {
-        slots += st->workers[i].slots;
-        busy += st->workers[i].busy;
+    size_t n_workers = fitfarm_status_n_workers(st), n_runs = fitfarm_status_n_runs(st);
+    for (size_t i = 0; i < n_workers; i++) {
+        fitfarm_worker_info_t w = FITFARM_WORKER_INFO_INIT;
+        fitfarm_status_worker(st, i, &w);
+        slots += w.slots;
+        busy += w.busy;
     }
-    printf("workers: %u (%llu of %llu slots busy)\n", st->n_workers, (unsigned long long)busy,
+    printf("workers: %zu (%llu of %llu slots busy)\n", n_workers, (unsigned long long)busy,
            (unsigned long long)slots);
-    if (st->n_workers > 0)
+    if (n_workers > 0)
         printf("  %-24s %-20s %-8s %-11s %s\n", "NAME", "HOST", "ARCH", "BUSY/SLOTS", "PLUGINS");
-    for (uint32_t i = 0; i < st->n_workers; i++) {
-        const proto_worker_info_t *w = &st->workers[i];
+    for (size_t i = 0; i < n_workers; i++) {
+        fitfarm_worker_info_t wi = FITFARM_WORKER_INFO_INIT, *w = &wi;
+        fitfarm_status_worker(st, i, w);
         char slot_text[32];
         snprintf(slot_text, sizeof slot_text, "%u/%u", w->busy, w->slots);
         printf("  %-24s %-20s %-8s %-11s ", w->name, w->host, w->arch, slot_text);
-        for (uint32_t p = 0; p < w->n_plugins; p++)
+        for (size_t p = 0; p < w->n_plugins; p++)
             printf("%s%s", p ? " " : "", w->plugins[p]);
         printf("\n");
     }
-    printf("runs: %u\n", st->n_runs);
-    if (st->n_runs > 0)
+    printf("runs: %zu\n", n_runs);
+    if (n_runs > 0)
         printf("  %-32s %10s %10s %10s %10s %10s %10s\n", "RUN", "QUEUED", "RUNNING", "DONE",
                "EVALUATED", "CACHED", "FAILED");
-    for (uint32_t i = 0; i < st->n_runs; i++) {
-        const proto_run_info_t *r = &st->runs[i];
+    for (size_t i = 0; i < n_runs; i++) {
+        fitfarm_run_info_t ri = FITFARM_RUN_INFO_INIT, *r = &ri;
+        fitfarm_status_run(st, i, r);
         printf("  %-32s %10llu %10llu %10llu %10llu %10llu %10llu\n", r->run_id,
                (unsigned long long)r->queued, (unsigned long long)r->running,
                (unsigned long long)r->done, (unsigned long long)r->evaluated,
                (unsigned long long)r->cached, (unsigned long long)r->failed);
     }
-    printf("warnings: %u\n", st->n_warnings);
-    for (uint32_t i = 0; i < st->n_warnings; i++)
-        printf("  %s\n", st->warnings[i]);
+    printf("warnings: %zu\n", fitfarm_status_n_warnings(st));
+    for (size_t i = 0; i < fitfarm_status_n_warnings(st); i++)
+        printf("  %s\n", fitfarm_status_warning(st, i));
 }
 
 int cli_cmd_status(int argc, char **argv)
@@ -159,8 +164,7 @@ int cli_cmd_status(int argc, char **argv)
         return s_usage(argv[i][0] == '-' ? "unknown option %s" : "unexpected argument '%s'",
                        argv[i]);
     }
-    fitfarm_options_t opts;
-    memset(&opts, 0, sizeof opts);
+    fitfarm_options_t opts = FITFARM_OPTIONS_INIT;
     opts.broker = broker;
     if (cli_keys_apply(&opts, "fitfarm status") != 0)
         return 2;
@@ -174,18 +178,18 @@ int cli_cmd_status(int argc, char **argv)
         fprintf(stderr, "fitfarm status: %s\n", err);
         return 1;
     }
-    proto_msg_t *st = NULL;
-    int rc = client_status(client, &st, (int)timeout_s * 1000);
+    fitfarm_status_t *st = NULL;
+    int rc = fitfarm_status_get(client, (int)timeout_s * 1000, &st);
     if (rc != 0) {
         fprintf(stderr, "fitfarm status: %s\n", fitfarm_client_error(client));
         fitfarm_client_destroy(&client);
         return 1;
     }
     if (json)
-        rc = s_print_json(&st->u.status);
+        rc = s_print_json(st);
     else
-        s_print_table(&st->u.status);
-    proto_msg_destroy(&st);
+        s_print_table(st);
+    fitfarm_status_destroy(&st);
     fitfarm_client_destroy(&client);
     return rc;
 }

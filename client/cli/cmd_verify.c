@@ -263,8 +263,7 @@ int cli_cmd_verify(int argc, char **argv)
         it->index = (size_t)idx;
     }
 
-    fitfarm_options_t opts;
-    memset(&opts, 0, sizeof opts);
+    fitfarm_options_t opts = FITFARM_OPTIONS_INIT;
     opts.broker = broker;
     opts.slots = (unsigned)slots;
     opts.plugin_dir = plugin_dir;
@@ -292,8 +291,7 @@ int cli_cmd_verify(int argc, char **argv)
         proto_hex(raw, sizeof raw, hex);
         snprintf(vrun_id, sizeof vrun_id, "verify-%.100s-%s", run, hex);
     }
-    fitfarm_run_options_t ropts;
-    memset(&ropts, 0, sizeof ropts);
+    fitfarm_run_options_t ropts = FITFARM_RUN_OPTIONS_INIT;
     ropts.run_id = vrun_id;
     ropts.seed = run_seed;
     ropts.seed_mode = seed_mode;
@@ -321,7 +319,7 @@ int cli_cmd_verify(int argc, char **argv)
                             : NULL;
     for (size_t k = 0; k < n_pick; k++) {
         verify_item_t *it = &items[pick[k]];
-        fitfarm_result_t res;
+        fitfarm_result_t res = FITFARM_RESULT_INIT;
         if (fitfarm_batch_result(groups[it->group].batch, it->index, it->replicate, &res) != 0)
             continue;
         int same = res.status == FITFARM_STATUS_OK && res.n_fitness == it->n_fit &&

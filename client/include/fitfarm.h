@@ -93,7 +93,7 @@ typedef struct {
      * the worker registers as plugins (the exec plugin); NULL for none. */
     const char *const *exec_plugins;
 } fitfarm_options_t;
-#define FITFARM_OPTIONS_INIT {sizeof(fitfarm_options_t)}
+#define FITFARM_OPTIONS_INIT {.size = sizeof(fitfarm_options_t)}
 
 /* Connects (or starts the embedded pool: the fitfarm-broker and
  * fitfarm-worker programs as child processes on this machine, ended by
@@ -141,7 +141,7 @@ typedef struct {
     unsigned timeout_s; /* per-evaluation time limit; 0 = the worker's default */
     unsigned attempts;  /* tries of an evaluation that crashes or times out; 0 = the broker's default (3) */
 } fitfarm_run_options_t;
-#define FITFARM_RUN_OPTIONS_INIT {sizeof(fitfarm_run_options_t)}
+#define FITFARM_RUN_OPTIONS_INIT {.size = sizeof(fitfarm_run_options_t)}
 
 /* Opens (or resumes, if run_id exists) a run. The run borrows client, which
  * must outlive it. Does not block. Caller destroys *out. */
@@ -161,7 +161,7 @@ typedef struct {
     uint64_t duplicates; /* results that arrived again and were dropped */
     uint64_t resent;     /* requests re-sent after a reconnect or a refusal */
 } fitfarm_run_stats_t;
-#define FITFARM_RUN_STATS_INIT {sizeof(fitfarm_run_stats_t)}
+#define FITFARM_RUN_STATS_INIT {.size = sizeof(fitfarm_run_stats_t)}
 FITFARM_API int fitfarm_run_stats(const fitfarm_run_t *run, fitfarm_run_stats_t *out);
 
 /* A batch of genomes for one plugin, params and replicate count.
@@ -193,7 +193,7 @@ typedef struct {
     const double *fitness;
     const char *error; /* "" when none */
 } fitfarm_result_t;
-#define FITFARM_RESULT_INIT {sizeof(fitfarm_result_t)}
+#define FITFARM_RESULT_INIT {.size = sizeof(fitfarm_result_t)}
 
 typedef void (*fitfarm_progress_cb)(size_t done, size_t total, void *arg);
 
@@ -235,7 +235,7 @@ typedef struct {
     unsigned replicate; /* its replicate */
     const char *text;   /* the broker's sentence; borrowed, valid until the next call on run */
 } fitfarm_refusal_t;
-#define FITFARM_REFUSAL_INIT {sizeof(fitfarm_refusal_t)}
+#define FITFARM_REFUSAL_INIT {.size = sizeof(fitfarm_refusal_t)}
 FITFARM_API int fitfarm_refusal(const fitfarm_run_t *run, fitfarm_refusal_t *out);
 
 /* ---- pool status -------------------------------------------------------- */
@@ -253,7 +253,7 @@ typedef struct {
     size_t n_plugins;
     const char *const *plugins; /* "name@version" */
 } fitfarm_worker_info_t;
-#define FITFARM_WORKER_INFO_INIT {sizeof(fitfarm_worker_info_t)}
+#define FITFARM_WORKER_INFO_INIT {.size = sizeof(fitfarm_worker_info_t)}
 
 typedef struct {
     size_t size;        /* sizeof(fitfarm_run_info_t) */
@@ -265,7 +265,7 @@ typedef struct {
     uint64_t cached;    /* requests answered from a stored result */
     uint64_t failed;    /* requests answered with a status other than ok */
 } fitfarm_run_info_t;
-#define FITFARM_RUN_INFO_INIT {sizeof(fitfarm_run_info_t)}
+#define FITFARM_RUN_INFO_INIT {.size = sizeof(fitfarm_run_info_t)}
 
 /* Counts, and entry i (0-based) of each list. Pointers are borrowed from the
  * snapshot. The getters return 0, or FITFARM_EINVAL for i out of range. */

@@ -102,6 +102,16 @@ FITFARM_API size_t fitfarm_batch_size(const fitfarm_batch_t *batch)
     return batch ? batch->n : 0;
 }
 
+FITFARM_API unsigned fitfarm_batch_replicates(const fitfarm_batch_t *batch)
+{
+    return batch ? batch->replicates : 0;
+}
+
+FITFARM_API size_t fitfarm_batch_arrived(const fitfarm_batch_t *batch)
+{
+    return batch ? batch->arrived : 0;
+}
+
 int client_batch_prepare(fitfarm_batch_t *self)
 {
     if (self->slots)
@@ -146,23 +156,26 @@ int client_batch_store(fitfarm_batch_t *self, size_t slot, const proto_result_t 
 void client_batch_fill(const fitfarm_batch_t *self, size_t slot, fitfarm_result_t *out)
 {
     const client_slot_t *s = &self->slots[slot];
-    memset(out, 0, sizeof *out);
-    out->batch = self;
-    out->index = slot / self->replicates;
-    out->replicate = (unsigned)(slot % self->replicates);
-    out->status = s->status;
-    out->cached = s->cached;
-    out->seed = s->seed;
-    memcpy(out->key, s->key, sizeof out->key);
-    out->n_fitness = s->n_fitness;
-    out->fitness = s->fitness;
-    out->error = s->error ? s->error : "";
+    fitfarm_result_t full;
+    memset(&full, 0, sizeof full);
+    full.size = out->size;
+    full.batch = self;
+    full.index = slot / self->replicates;
+    full.replicate = (unsigned)(slot % self->replicates);
+    full.status = s->status;
+    full.cached = s->cached;
+    full.seed = s->seed;
+    memcpy(full.key, s->key, sizeof full.key);
+    full.n_fitness = s->n_fitness;
+    full.fitness = s->fitness;
+    full.error = s->error ? s->error : "";
+    CLIENT_COPY_OUT(out, full);
 }
 
 FITFARM_API int fitfarm_batch_result(const fitfarm_batch_t *batch, size_t index, unsigned r,
                                      fitfarm_result_t *out)
 {
-    if (!batch || !out || index >= batch->n || r >= batch->replicates)
+    if (!batch || !out || out->size == 0 || index >= batch->n || r >= batch->replicates)
         return FITFARM_EINVAL;
     size_t slot = index * batch->replicates + r;
     if (!batch->slots || batch->slots[slot].state != CLIENT_SLOT_ARRIVED)

@@ -1,9 +1,12 @@
-/* client.c: the client object: its connection to a broker (remote or the
- * embedded pool's), the handshake, sending, and the message pump that routes
- * what the broker says to the runs. Also the last-error sentence.
+/* client.c: the client object and its transport: the connection to a broker
+ * (remote or the embedded pool's), the handshake, the outbox of encoded
+ * messages the core emitted and its flush to the socket, and the message
+ * pump that decodes what the broker says and feeds it to the core (run.c).
+ * Also the pollable descriptor for callers' own loops, and the last-error
+ * sentence.
  *
- * Not here: runs, chunks and results (run.c), batches (batch.c), the embedded
- * pool's processes (pool.c).
+ * Not here: runs, chunks and results (run.c), batches (batch.c), waiting
+ * (blocking.c), the embedded pool's processes (pool.c).
  *
  * Reconnection is ZeroMQ's: the DEALER socket reconnects by itself (100 ms,
  * backing off to 2 s) and ZMTP heartbeats drop a half-open TCP connection. A
@@ -26,6 +29,7 @@
 #define CLIENT_DEFAULT_CONNECT_MS 10000
 #define CLIENT_HWM 100000
 #define CLIENT_PROBE_MS 250  /* STATUS_REQ interval during the handshake */
+#define CLIENT_PROBE_LOCAL_MS 5 /* the same for the embedded pool (ipc, local) */
 #define CLIENT_PUMP_BURST 256 /* messages handled per pump call */
 #define CLIENT_MONITOR_EP "inproc://fitfarm-client-monitor"
 
@@ -72,8 +76,11 @@ static int s_connect(fitfarm_client_t *self, const fitfarm_options_t *options)
         return client_fail(self, FITFARM_ESYSTEM, "cannot create a ZeroMQ socket: %s",
                            zmq_strerror(errno));
     int64_t maxmsg = (int64_t)self->limits.message_bytes;
+    /* A broker on this machine (the embedded pool) may be a few ms from
+     * binding: retry quickly rather than after ZeroMQ's usual 100 ms. */
+    int local = strncmp(self->endpoint, "ipc://", 6) == 0;
     if (s_setsockopt_int(self->sock, ZMQ_LINGER, 0) != 0 ||
-        s_setsockopt_int(self->sock, ZMQ_RECONNECT_IVL, 100) != 0 ||
+        s_setsockopt_int(self->sock, ZMQ_RECONNECT_IVL, local ? 5 : 100) != 0 ||
         s_setsockopt_int(self->sock, ZMQ_RECONNECT_IVL_MAX, 2000) != 0 ||
         s_setsockopt_int(self->sock, ZMQ_SNDHWM, CLIENT_HWM) != 0 ||
         s_setsockopt_int(self->sock, ZMQ_RCVHWM, CLIENT_HWM) != 0 ||
@@ -100,7 +107,7 @@ static int s_connect(fitfarm_client_t *self, const fitfarm_options_t *options)
     return FITFARM_OK;
 }
 
-int client_send(fitfarm_client_t *self, const proto_msg_t *msg, int timeout_ms)
+int client_emit(fitfarm_client_t *self, const proto_msg_t *msg)
 {
     uint8_t *buf = NULL;
     size_t len = 0;
@@ -111,28 +118,50 @@ int client_send(fitfarm_client_t *self, const proto_msg_t *msg, int timeout_ms)
     if (prc != PROTO_OK)
         return client_fail(self, FITFARM_EINVAL, "cannot encode %s: a field is out of protocol",
                            proto_type_name((int)msg->type));
-    int rc = FITFARM_OK;
+    if (self->out_len == self->out_cap) {
+        size_t cap = self->out_cap ? self->out_cap * 2 : 64;
+        client_frame_t *q = malloc(cap * sizeof *q);
+        if (!q) {
+            free(buf);
+            return client_fail(self, FITFARM_ENOMEM, "out of memory queueing a message");
+        }
+        for (size_t i = 0; i < self->out_len; i++)
+            q[i] = self->outbox[(self->out_head + i) % self->out_cap];
+        free(self->outbox);
+        self->outbox = q;
+        self->out_cap = cap;
+        self->out_head = 0;
+    }
+    self->outbox[(self->out_head + self->out_len) % self->out_cap] = (client_frame_t){buf, len};
+    self->out_len++;
+    return FITFARM_OK;
+}
+
+int client_flush(fitfarm_client_t *self, int timeout_ms)
+{
     int64_t deadline = client_deadline(timeout_ms);
-    for (;;) {
-        if (zmq_send(self->sock, buf, len, ZMQ_DONTWAIT) >= 0)
-            break;
-        if (errno != EAGAIN && errno != EINTR) {
-            rc = client_fail(self, FITFARM_ECONNECT, "cannot send to the broker at %s: %s",
-                             self->endpoint, zmq_strerror(errno));
-            break;
+    while (self->out_len > 0) {
+        client_frame_t *f = &self->outbox[self->out_head];
+        if (zmq_send(self->sock, f->buf, f->len, ZMQ_DONTWAIT) >= 0) {
+            free(f->buf);
+            self->out_head = (self->out_head + 1) % self->out_cap;
+            self->out_len--;
+            continue;
         }
+        if (errno != EAGAIN && errno != EINTR)
+            return client_fail(self, FITFARM_ECONNECT, "cannot send to the broker at %s: %s",
+                               self->endpoint, zmq_strerror(errno));
         int left = client_ms_left(deadline);
-        if (left == 0) {
-            rc = client_fail(self, FITFARM_ETIMEDOUT,
-                             "the broker at %s did not take a %zu-byte %s message in time",
-                             self->endpoint, len, proto_type_name((int)msg->type));
-            break;
-        }
+        if (left == 0)
+            return timeout_ms == 0 ? FITFARM_OK
+                                   : client_fail(self, FITFARM_ETIMEDOUT,
+                                                 "the broker at %s did not take %zu queued "
+                                                 "messages in time", self->endpoint,
+                                                 self->out_len);
         zmq_pollitem_t item = {self->sock, 0, ZMQ_POLLOUT, 0};
         zmq_poll(&item, 1, left < 0 || left > 100 ? 100 : left);
     }
-    free(buf);
-    return rc;
+    return FITFARM_OK;
 }
 
 static void s_on_monitor(fitfarm_client_t *self)
@@ -180,11 +209,10 @@ static void s_dispatch(fitfarm_client_t *self, proto_msg_t **msg_p)
             client_run_on_results(run, &msg->u.results);
         break;
     case PROTO_ACCEPTED:
-        client_run_on_answer(self, msg->u.accepted.batch_tag, 1, 0, NULL);
+        client_run_on_answer(self, msg->u.accepted.batch_tag, NULL);
         break;
     case PROTO_REFUSED:
-        client_run_on_answer(self, msg->u.refused.batch_tag, 0, msg->u.refused.code,
-                             msg->u.refused.text);
+        client_run_on_answer(self, msg->u.refused.batch_tag, &msg->u.refused);
         break;
     case PROTO_STATUS:
         proto_msg_destroy(&self->status);
@@ -228,6 +256,9 @@ static int s_recv_one(fitfarm_client_t *self)
 
 int client_pump(fitfarm_client_t *self, int timeout_ms)
 {
+    int frc = client_flush(self, 0);
+    if (frc != FITFARM_OK)
+        return frc;
     zmq_pollitem_t items[2] = {
         {self->sock, 0, ZMQ_POLLIN, 0},
         {self->monitor, 0, ZMQ_POLLIN, 0},
@@ -253,7 +284,9 @@ int client_pump(fitfarm_client_t *self, int timeout_ms)
     for (fitfarm_run_t *run = self->runs; run; run = run->next)
         if (all || (run->retry_at_ms != 0 && now >= run->retry_at_ms))
             client_run_resend(run);
-    return handled;
+    /* What the messages produced (acknowledgements, re-sends) goes out now. */
+    frc = client_flush(self, 0);
+    return frc != FITFARM_OK ? frc : handled;
 }
 
 static int s_send_status_req(fitfarm_client_t *self)
@@ -261,7 +294,8 @@ static int s_send_status_req(fitfarm_client_t *self)
     proto_msg_t msg;
     memset(&msg, 0, sizeof msg);
     msg.type = PROTO_STATUS_REQ;
-    return client_send(self, &msg, 1000);
+    int rc = client_emit(self, &msg);
+    return rc != FITFARM_OK ? rc : client_flush(self, 1000);
 }
 
 int client_status(fitfarm_client_t *self, proto_msg_t **status_out, int timeout_ms)
@@ -316,7 +350,9 @@ static int s_handshake(fitfarm_client_t *self)
             int rc = s_send_status_req(self);
             if (rc != FITFARM_OK && rc != FITFARM_ETIMEDOUT)
                 return rc;
-            next_probe = now + CLIENT_PROBE_MS;
+            /* The embedded pool is on this machine and comes up in tens of
+             * milliseconds: ask often, so its start is not rounded up. */
+            next_probe = now + (self->pool ? CLIENT_PROBE_LOCAL_MS : CLIENT_PROBE_MS);
         }
         if (self->pool) {
             int rc = client_pool_check(self->pool, self->err, sizeof self->err);
@@ -347,18 +383,24 @@ static int s_handshake(fitfarm_client_t *self)
     }
 }
 
-FITFARM_API int fitfarm_client_new(const fitfarm_options_t *options, fitfarm_client_t **out,
-                                   char *errbuf, size_t errlen)
+FITFARM_API int fitfarm_client_new(const fitfarm_options_t *caller_options,
+                                   fitfarm_client_t **out, char *errbuf, size_t errlen)
 {
     if (errbuf && errlen)
         errbuf[0] = '\0';
-    if (!out || !options) {
+    if (!out || !caller_options || caller_options->size == 0) {
         if (errbuf && errlen)
-            snprintf(errbuf, errlen, "fitfarm_client_new: options and out must not be NULL");
+            snprintf(errbuf, errlen, "fitfarm_client_new: %s",
+                     !out || !caller_options ? "options and out must not be NULL"
+                                             : "options.size is 0: initialise the options with "
+                                               "FITFARM_OPTIONS_INIT");
         if (out)
             *out = NULL;
         return FITFARM_EINVAL;
     }
+    fitfarm_options_t opts;
+    CLIENT_COPY_IN(opts, caller_options);
+    const fitfarm_options_t *options = &opts;
     *out = NULL;
     int rc = FITFARM_OK;
     fitfarm_client_t *self = calloc(1, sizeof *self);
@@ -421,6 +463,9 @@ FITFARM_API void fitfarm_client_destroy(fitfarm_client_t **self_p)
         zmq_ctx_term(self->zctx);
     client_pool_destroy(&self->pool);
     proto_msg_destroy(&self->status);
+    for (size_t i = 0; i < self->out_len; i++)
+        free(self->outbox[(self->out_head + i) % self->out_cap].buf);
+    free(self->outbox);
     free(self->endpoint);
     free(self);
     *self_p = NULL;
@@ -431,6 +476,69 @@ FITFARM_API const char *fitfarm_client_error(const fitfarm_client_t *self)
     if (!self)
         return "no client";
     return self->err;
+}
+
+FITFARM_API const char *fitfarm_client_endpoint(const fitfarm_client_t *self)
+{
+    return self && self->endpoint ? self->endpoint : "";
+}
+
+FITFARM_API int fitfarm_client_fd(fitfarm_client_t *self, int *fd)
+{
+    if (!self || !fd)
+        return FITFARM_EINVAL;
+    size_t len = sizeof *fd;
+    if (zmq_getsockopt(self->sock, ZMQ_FD, fd, &len) != 0)
+        return client_fail(self, FITFARM_ESYSTEM, "cannot read the socket's descriptor: %s",
+                           zmq_strerror(errno));
+    return FITFARM_OK;
+}
+
+FITFARM_API int fitfarm_client_next_timeout(fitfarm_client_t *self)
+{
+    if (!self)
+        return -1;
+    /* Work already waiting in the socket (ZMQ_FD is edge-triggered, so the
+     * caller may not be woken for it again) or a reconnect to act on. */
+    int events = 0;
+    size_t len = sizeof events;
+    if (self->reconnected ||
+        (zmq_getsockopt(self->sock, ZMQ_EVENTS, &events, &len) == 0 && (events & ZMQ_POLLIN)))
+        return 0;
+    int64_t now = common_clock_ms(), next = -1;
+    for (fitfarm_run_t *run = self->runs; run; run = run->next)
+        if (run->retry_at_ms != 0 && (next < 0 || run->retry_at_ms < next))
+            next = run->retry_at_ms;
+    /* The monitor socket has no descriptor of the caller's: look at it
+     * every 100 ms while a reconnect could be pending. */
+    int poll_ms = self->runs ? 100 : -1;
+    if (next < 0)
+        return poll_ms;
+    int64_t left = next > now ? next - now : 0;
+    if (poll_ms >= 0 && left > poll_ms)
+        left = poll_ms;
+    return (int)left;
+}
+
+FITFARM_API int fitfarm_client_process(fitfarm_client_t *self)
+{
+    if (!self)
+        return FITFARM_EINVAL;
+    int handled = 0;
+    for (;;) {
+        int rc = client_pump(self, 0);
+        if (rc < 0)
+            return rc;
+        if (rc == 0)
+            break;
+        handled++;
+    }
+    if (self->pool) {
+        int rc = client_pool_check(self->pool, self->err, sizeof self->err);
+        if (rc != FITFARM_OK)
+            return rc;
+    }
+    return handled;
 }
 
 void client_test_pool_pids(const fitfarm_client_t *self, pid_t *broker, pid_t *worker,

@@ -78,6 +78,7 @@ static void s_run_broker(const client_pool_t *self, const char *store_dir)
     if (!store_dir) {
         snprintf(private_store, sizeof private_store, "%s/store", self->dir);
         store_dir = private_store;
+        config.scratch_store = 1; /* removed with the folder: fsync buys nothing */
     }
     config.store_dir = store_dir;
     config.insecure = 1; /* ipc:// in a private 0700 folder: no keys needed */

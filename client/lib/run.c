@@ -1,7 +1,9 @@
-/* run.c: runs, and everything between a batch and the wire: tags, SUBMIT
- * chunks, waiting for ACCEPTED/REFUSED, storing RESULTS exactly once, ACKs,
- * re-sending after a reconnect, the blocking evaluate and the streaming
- * submit/poll.
+/* run.c: the core of the client library: runs, and everything between a
+ * batch and the messages: tags, SUBMIT chunks, ACCEPTED/REFUSED answers,
+ * storing RESULTS exactly once, ACKs, re-sending after a reconnect. No I/O:
+ * it is fed decoded messages (client_run_on_*) and emits the messages to
+ * send into the client's outbox (client_emit); the transport (client.c)
+ * moves them, the blocking calls (blocking.c) wait.
  *
  * Tags. Slot s (= genome index * replicates + replicate) of a batch has tag
  * tag_base + s; a run hands out tag ranges from a counter, so tags are unique
@@ -14,7 +16,8 @@
  * also means one client per run at a time: the broker refuses a recorded tag
  * that comes with another genome.
  *
- * Not here: the socket and the pump (client.c), result storage (batch.c). */
+ * Not here: the socket and the pump (client.c), waiting (blocking.c),
+ * result storage (batch.c). */
 #include <sodium.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -25,9 +28,6 @@
 #include "key.h"
 #include "status.h"
 
-#define CLIENT_SUBMIT_WAIT_MS 60000 /* fitfarm_submit: how long ACCEPTED may take */
-#define CLIENT_SEND_MS 5000          /* how long one send may wait for the socket */
-#define CLIENT_ACK_MS 1000           /* an unsent ACK only costs a re-delivery */
 #define CLIENT_RETRY_EVERY_MS 1000   /* re-send refused re-sends this often ... */
 #define CLIENT_RETRY_FOR_MS 60000    /* ... for this long (workers re-register) */
 
@@ -39,14 +39,20 @@ fitfarm_run_t *client_run_find(fitfarm_client_t *self, const char *run_id)
     return NULL;
 }
 
-FITFARM_API int fitfarm_run_open(fitfarm_client_t *client, const fitfarm_run_options_t *options,
-                                 fitfarm_run_t **out)
+FITFARM_API int fitfarm_run_open(fitfarm_client_t *client,
+                                 const fitfarm_run_options_t *caller_options, fitfarm_run_t **out)
 {
     if (!out)
         return FITFARM_EINVAL;
     *out = NULL;
-    if (!client || !options)
+    if (!client || !caller_options)
         return FITFARM_EINVAL;
+    if (caller_options->size == 0)
+        return client_fail(client, FITFARM_EINVAL, "run options.size is 0: initialise them "
+                           "with FITFARM_RUN_OPTIONS_INIT");
+    fitfarm_run_options_t opts;
+    CLIENT_COPY_IN(opts, caller_options);
+    const fitfarm_run_options_t *options = &opts;
     if (options->seed_mode != PROTO_SEED_GENOME && options->seed_mode != PROTO_SEED_COMMON)
         return client_fail(client, FITFARM_EINVAL, "seed_mode %d is neither 0 (per genome) "
                            "nor 1 (common random numbers)", options->seed_mode);
@@ -94,10 +100,33 @@ FITFARM_API int fitfarm_run_open(fitfarm_client_t *client, const fitfarm_run_opt
     return FITFARM_OK;
 }
 
-void client_run_counters(const fitfarm_run_t *run, uint64_t *duplicates, uint64_t *resent)
+FITFARM_API int fitfarm_run_stats(const fitfarm_run_t *run, fitfarm_run_stats_t *out)
 {
-    *duplicates = run ? run->n_duplicates : 0;
-    *resent = run ? run->n_resent : 0;
+    if (!run || !out || out->size == 0)
+        return FITFARM_EINVAL;
+    fitfarm_run_stats_t full = run->stats;
+    full.size = out->size;
+    full.duplicates = run->n_duplicates;
+    full.resent = run->n_resent;
+    CLIENT_COPY_OUT(out, full);
+    return FITFARM_OK;
+}
+
+FITFARM_API int fitfarm_refusal(const fitfarm_run_t *run, fitfarm_refusal_t *out)
+{
+    if (!run || !out || out->size == 0)
+        return FITFARM_EINVAL;
+    fitfarm_refusal_t full = {.size = out->size,
+                              .code = run->refusal_code,
+                              .has_request = run->refusal_has_request,
+                              .batch = run->refusal_batch,
+                              .text = run->refusal_text};
+    if (run->refusal_has_request && run->refusal_batch) {
+        full.index = run->refusal_slot / run->refusal_batch->replicates;
+        full.replicate = (unsigned)(run->refusal_slot % run->refusal_batch->replicates);
+    }
+    CLIENT_COPY_OUT(out, full);
+    return FITFARM_OK;
 }
 
 FITFARM_API const char *fitfarm_run_id(const fitfarm_run_t *run)
@@ -171,6 +200,10 @@ void client_batch_detach(fitfarm_batch_t *batch)
             run->ready[(run->ready_head + kept++) % run->ready_cap] = e;
     }
     run->ready_len = kept;
+    if (run->refusal_batch == batch) {
+        run->refusal_batch = NULL;
+        run->refusal_has_request = 0;
+    }
     batch->run = NULL;
 }
 
@@ -211,6 +244,9 @@ static int s_ready_reserve(fitfarm_run_t *run)
     return 0;
 }
 
+static int s_refusal(fitfarm_run_t *run, const fitfarm_batch_t *b, const client_chunk_t *c,
+                     char *buf, size_t len);
+
 static void s_async_fail(fitfarm_run_t *run, int code, const char *text)
 {
     if (run->async_rc != 0)
@@ -233,22 +269,19 @@ void client_run_on_results(fitfarm_run_t *run, const proto_results_t *results)
             s_async_fail(run, FITFARM_ENOMEM, "out of memory queueing a result");
             continue; /* not acknowledged: the broker will send it again */
         }
-        /* Report the request's own seed, derived as the broker derives it
-         * (proto/key.h): for a deterministic request the broker names the
-         * seed of the shared evaluation that answered it, which may belong to
-         * another replicate or another run. For a stochastic request the two
-         * are equal, since the seed is part of its key. */
-        size_t g = slot / batch->replicates;
-        uint64_t seed = proto_seed_derive(run->seed, (int)run->seed_mode, batch->genomes[g],
-                                          batch->genome_len[g],
-                                          (uint32_t)(slot % batch->replicates));
-        int stored = client_batch_store(batch, slot, r, seed);
+        /* The broker sends each request's own seed (not the seed of a
+         * shared evaluation that answered several requests). */
+        int stored = client_batch_store(batch, slot, r, r->seed);
         if (stored < 0) {
             s_async_fail(run, FITFARM_ENOMEM, "out of memory storing a result");
             continue;
         }
         if (stored == 0)
             run->n_duplicates++;
+        if (stored == 1) {
+            run->stats.delivered++;
+            run->stats.cached += r->cached ? 1 : 0;
+        }
         if (stored == 1 && batch->streaming) {
             run->ready[(run->ready_head + run->ready_len) % run->ready_cap] =
                 (client_ready_t){batch, slot};
@@ -268,8 +301,8 @@ void client_run_on_results(fitfarm_run_t *run, const proto_results_t *results)
         msg.u.ack.tags = acks;
         char saved[CLIENT_ERR_BYTES];
         memcpy(saved, run->client->err, sizeof saved);
-        (void)client_send(run->client, &msg, CLIENT_ACK_MS);
-        memcpy(run->client->err, saved, sizeof saved); /* a lost ACK is not the caller's error */
+        (void)client_emit(run->client, &msg); /* a lost ACK costs only a re-delivery */
+        memcpy(run->client->err, saved, sizeof saved); /* ... and is not the caller's error */
     }
     free(acks);
 }
@@ -299,9 +332,12 @@ static void s_background_refused(fitfarm_run_t *run, client_chunk_t *c, uint32_t
                  msg);
 }
 
-void client_run_on_answer(fitfarm_client_t *self, uint64_t batch_tag, int accepted, uint32_t code,
-                          const char *text)
+void client_run_on_answer(fitfarm_client_t *self, uint64_t batch_tag,
+                          const proto_refused_t *refused)
 {
+    int accepted = refused == NULL;
+    uint32_t code = refused ? refused->code : 0;
+    const char *text = refused ? refused->text : NULL;
     for (fitfarm_run_t *run = self->runs; run; run = run->next) {
         for (size_t i = 0; i < run->n_chunks; i++) {
             client_chunk_t *c = &run->chunks[i];
@@ -315,14 +351,29 @@ void client_run_on_answer(fitfarm_client_t *self, uint64_t batch_tag, int accept
             }
             c->answered = accepted ? 1 : 2;
             c->refuse_code = code;
-            if (!accepted)
+            if (accepted && !c->background)
+                run->stats.accepted += c->n_slots;
+            if (!accepted) {
                 c->refuse_text = strdup(text ? text : "");
+                c->refuse_has_tag = refused->has_tag;
+                c->refuse_tag = refused->tag;
+            }
             if (c->background) {
                 if (accepted)
                     run->retry_until_ms = 0;
                 else
                     s_background_refused(run, c, code, text);
                 s_chunks_remove_if(run, c->batch, 1, 1);
+            } else if (c->detached) {
+                /* Nobody waits for this answer: a refusal is reported by the
+                 * next poll or evaluate. */
+                if (!accepted) {
+                    char sentence[CLIENT_ERR_BYTES];
+                    int rc = s_refusal(run, c->batch, c, sentence, sizeof sentence);
+                    s_async_fail(run, rc, sentence);
+                }
+                s_chunk_free(c);
+                run->chunks[i] = run->chunks[--run->n_chunks];
             }
             return;
         }
@@ -359,7 +410,7 @@ static int s_chunk_send(fitfarm_run_t *run, const client_chunk_t *c)
     msg.u.submit.params = b->params;
     msg.u.submit.n_items = c->n_slots;
     msg.u.submit.items = items;
-    int rc = client_send(run->client, &msg, CLIENT_SEND_MS);
+    int rc = client_emit(run->client, &msg);
     free(items);
     return rc;
 }
@@ -440,53 +491,76 @@ void client_run_resend(fitfarm_run_t *run)
     memcpy(run->client->err, saved, sizeof saved);
 }
 
-static int s_refusal(fitfarm_run_t *run, const fitfarm_batch_t *b, const client_chunk_t *c)
+/* Writes the sentence for chunk c's refusal to buf, records the refusal on
+ * the run (fitfarm_refusal) and returns its code. The broker names the
+ * refused request by tag (structured, never parsed from its text); the
+ * sentence names it in the caller's terms, genome index and replicate. */
+static int s_refusal(fitfarm_run_t *run, const fitfarm_batch_t *b, const client_chunk_t *c,
+                     char *buf, size_t len)
 {
     const char *text = c->refuse_text ? c->refuse_text : "";
-    fitfarm_client_t *cl = run->client;
+    int named = c->refuse_has_tag && c->refuse_tag >= b->tag_base &&
+                c->refuse_tag - b->tag_base < (uint64_t)b->n * b->replicates;
+    size_t slot = named ? (size_t)(c->refuse_tag - b->tag_base) : 0;
+    char which[96] = "";
+    if (named)
+        snprintf(which, sizeof which, "genome %zu, replicate %u of the batch: ",
+                 slot / b->replicates, (unsigned)(slot % b->replicates));
+    int code;
     switch (c->refuse_code) {
     case PROTO_REFUSE_UNKNOWN_PLUGIN:
-        return client_fail(cl, FITFARM_EPLUGIN, "the pool has no plugin \"%s\": %s", b->plugin,
-                           text);
+        code = FITFARM_EPLUGIN;
+        snprintf(buf, len, "the pool has no plugin \"%s\": %s", b->plugin, text);
+        break;
     case PROTO_REFUSE_QUEUE_FULL:
-        return client_fail(cl, FITFARM_EQUEUEFULL, "the broker's queue is full: %s", text);
-    case PROTO_REFUSE_NOT_RECORDED: {
-        /* Name the genome in the caller's terms: the broker names the tag. */
-        const char *t = strstr(text, "tag ");
-        unsigned long long tag = 0;
-        if (t && sscanf(t + 4, "%llu", &tag) == 1 && tag >= b->tag_base &&
-            tag - b->tag_base < (uint64_t)b->n * b->replicates) {
-            uint64_t slot = tag - b->tag_base;
-            return client_fail(cl, FITFARM_ENOTRECORDED,
-                               "replay of run \"%s\": genome %llu, replicate %u of the batch "
-                               "was never recorded by the run; nothing was simulated (%s)",
-                               run->id, (unsigned long long)(slot / b->replicates),
-                               (unsigned)(slot % b->replicates), text);
-        }
-        return client_fail(cl, FITFARM_ENOTRECORDED, "replay of run \"%s\": %s", run->id, text);
-    }
+        code = FITFARM_EQUEUEFULL;
+        snprintf(buf, len, "the broker's queue is full: %s", text);
+        break;
+    case PROTO_REFUSE_NOT_RECORDED:
+        code = FITFARM_ENOTRECORDED;
+        if (named)
+            snprintf(buf, len, "replay of run \"%s\": %swas never recorded by the run; nothing "
+                     "was simulated (%s)", run->id, which, text);
+        else
+            snprintf(buf, len, "replay of run \"%s\": %s", run->id, text);
+        break;
     case PROTO_REFUSE_BAD_PARAMS:
-        return client_fail(cl, FITFARM_EREFUSED, "the broker refused the params of plugin "
-                           "\"%s\": %s", b->plugin, text);
+        code = FITFARM_EREFUSED;
+        snprintf(buf, len, "the broker refused the params of plugin \"%s\": %s", b->plugin, text);
+        break;
     case PROTO_REFUSE_RUN_MISMATCH:
-        return client_fail(cl, FITFARM_EREFUSED, "run \"%s\" does not match what the broker "
-                           "recorded for it: %s", run->id, text);
+        code = FITFARM_EREFUSED;
+        snprintf(buf, len, "run \"%s\" does not match what the broker recorded for it: %s%s",
+                 run->id, which, text);
+        break;
     default:
-        return client_fail(cl, FITFARM_EREFUSED, "the broker refused the batch (code %u): %s",
-                           c->refuse_code, text);
+        code = FITFARM_EREFUSED;
+        snprintf(buf, len, "the broker refused the batch (code %u): %s%s", c->refuse_code, which,
+                 text);
+        break;
     }
+    run->refusal_code = code;
+    run->refusal_has_request = named;
+    run->refusal_batch = b;
+    run->refusal_slot = slot;
+    snprintf(run->refusal_text, sizeof run->refusal_text, "%s", text);
+    return code;
 }
 
-static int s_wait_turn(fitfarm_client_t *cl, int wait_ms)
+/* Chunks of b still waiting for an answer that nobody waits on (submit
+ * returned first) are waited on again by a later submit or evaluate. */
+static size_t s_reattach(fitfarm_run_t *run, const fitfarm_batch_t *b)
 {
-    int rc = client_pump(cl, wait_ms);
-    if (rc >= 0 && cl->pool)
-        rc = client_pool_check(cl->pool, cl->err, sizeof cl->err);
-    return rc < 0 ? rc : 0;
+    size_t n = 0;
+    for (size_t i = 0; i < run->n_chunks; i++)
+        if (run->chunks[i].batch == b && run->chunks[i].detached && !run->chunks[i].answered) {
+            run->chunks[i].detached = 0;
+            n++;
+        }
+    return n;
 }
 
-/* Sends the batch's unsent slots and waits for every chunk's answer. */
-static int s_submit(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int64_t deadline)
+int client_run_submit_start(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int again)
 {
     fitfarm_client_t *cl = run ? run->client : NULL;
     if (!cl || !b)
@@ -521,34 +595,40 @@ static int s_submit(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int64
     }
     size_t sent = 0;
     int rc = s_send_slots(run, b, CLIENT_SLOT_UNSENT, 0, &sent);
-    if (rc == FITFARM_OK && sent == 0 && !first)
+    if (rc == FITFARM_OK && sent == 0 && !first && s_reattach(run, b) == 0 && !again)
         return client_fail(cl, FITFARM_EINVAL, "the batch was already submitted");
-    /* Wait for an answer to every foreground chunk of this batch. */
-    while (rc == FITFARM_OK) {
-        int waiting = 0;
-        for (size_t i = 0; i < run->n_chunks; i++)
-            waiting |= run->chunks[i].batch == b && !run->chunks[i].background &&
-                       !run->chunks[i].answered;
-        if (!waiting)
-            break;
-        int left = client_ms_left(deadline);
-        if (left == 0) {
-            rc = client_fail(cl, FITFARM_ETIMEDOUT,
-                             "the broker at %s did not accept the batch in time", cl->endpoint);
-            break;
-        }
-        rc = s_wait_turn(cl, left < 0 || left > 200 ? 200 : left);
-        if (!run->client)
-            return FITFARM_EINVAL;
-    }
+    if (rc == FITFARM_OK)
+        run->stats.submitted += first ? (uint64_t)b->n * b->replicates : 0;
+    return rc;
+}
+
+int client_run_submit_pending(const fitfarm_run_t *run, const fitfarm_batch_t *b)
+{
+    for (size_t i = 0; i < run->n_chunks; i++)
+        if (run->chunks[i].batch == b && !run->chunks[i].background &&
+            !run->chunks[i].detached && !run->chunks[i].answered)
+            return 1;
+    return 0;
+}
+
+int client_run_submit_finish(fitfarm_run_t *run, fitfarm_batch_t *b, int rc)
+{
+    fitfarm_client_t *cl = run->client;
     /* Report the first refusal; forget answered and (on failure) pending chunks.
      * Unanswered slots go back to UNSENT so a later submit sends them again. */
     for (size_t i = 0; i < run->n_chunks; i++) {
         client_chunk_t *c = &run->chunks[i];
         if (c->batch != b || c->background)
             continue;
-        if (c->answered == 2 && rc == FITFARM_OK)
-            rc = s_refusal(run, b, c);
+        if (c->answered == 2 && rc == FITFARM_OK) {
+            char sentence[CLIENT_ERR_BYTES];
+            rc = s_refusal(run, b, c, sentence, sizeof sentence);
+            client_fail(cl, rc, "%s", sentence);
+        }
+        if (!c->answered && (rc == FITFARM_OK || rc == FITFARM_ETIMEDOUT)) {
+            c->detached = 1; /* still on its way: answered in the background */
+            continue;
+        }
         if (!c->answered)
             for (uint32_t k = 0; k < c->n_slots; k++)
                 if (b->slots[c->slots[k]].state == CLIENT_SLOT_SENT)
@@ -557,7 +637,7 @@ static int s_submit(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int64
     size_t w = 0;
     for (size_t i = 0; i < run->n_chunks; i++) {
         client_chunk_t *c = &run->chunks[i];
-        if (c->batch == b && !c->background)
+        if (c->batch == b && !c->background && !c->detached)
             s_chunk_free(c);
         else
             run->chunks[w++] = *c;
@@ -566,7 +646,7 @@ static int s_submit(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int64
     return rc;
 }
 
-static int s_take_async(fitfarm_run_t *run)
+int client_run_take_async(fitfarm_run_t *run)
 {
     int rc = run->async_rc;
     if (rc != 0) {
@@ -576,71 +656,13 @@ static int s_take_async(fitfarm_run_t *run)
     return rc;
 }
 
-FITFARM_API int fitfarm_evaluate(fitfarm_run_t *run, fitfarm_batch_t *batch,
-                                 fitfarm_progress_cb progress, void *arg, int timeout_ms)
+int client_run_next_ready(fitfarm_run_t *run, fitfarm_result_t *out)
 {
-    if (!run || !run->client || !batch)
-        return FITFARM_EINVAL;
-    fitfarm_client_t *cl = run->client;
-    int64_t deadline = client_deadline(timeout_ms);
-    int rc = s_submit(run, batch, 0, deadline);
-    if (rc != FITFARM_OK)
-        return rc;
-    size_t total = batch->n * batch->replicates;
-    size_t reported = (size_t)-1;
-    while (batch->arrived < total) {
-        if (progress && reported != batch->arrived) {
-            reported = batch->arrived;
-            progress(batch->arrived, total, arg);
-        }
-        rc = s_take_async(run);
-        if (rc != 0)
-            return rc;
-        int left = client_ms_left(deadline);
-        if (left == 0)
-            return client_fail(cl, FITFARM_ETIMEDOUT, "%zu of %zu results arrived within %d ms",
-                               batch->arrived, total, timeout_ms);
-        rc = s_wait_turn(cl, left < 0 || left > 500 ? 500 : left);
-        if (rc < 0)
-            return rc;
-        if (!run->client || batch->run != run)
-            return FITFARM_EINVAL;
-    }
-    if (progress && reported != total)
-        progress(total, total, arg);
-    return FITFARM_OK;
-}
-
-FITFARM_API int fitfarm_submit(fitfarm_run_t *run, fitfarm_batch_t *batch)
-{
-    if (!run || !run->client || !batch)
-        return FITFARM_EINVAL;
-    return s_submit(run, batch, 1, client_deadline(CLIENT_SUBMIT_WAIT_MS));
-}
-
-FITFARM_API int fitfarm_poll(fitfarm_run_t *run, fitfarm_result_t *out, int timeout_ms)
-{
-    if (!run || !run->client || !out)
-        return FITFARM_EINVAL;
-    int64_t deadline = client_deadline(timeout_ms);
-    for (;;) {
-        if (run->ready_len > 0) {
-            client_ready_t e = run->ready[run->ready_head];
-            run->ready_head = (run->ready_head + 1) % run->ready_cap;
-            run->ready_len--;
-            client_batch_fill(e.batch, e.slot, out);
-            return 1;
-        }
-        int rc = s_take_async(run);
-        if (rc != 0)
-            return rc;
-        int left = client_ms_left(deadline);
-        if (left == 0)
-            return 0;
-        rc = s_wait_turn(run->client, left < 0 || left > 500 ? 500 : left);
-        if (rc < 0)
-            return rc;
-        if (!run->client)
-            return FITFARM_EINVAL;
-    }
+    if (run->ready_len == 0)
+        return 0;
+    client_ready_t e = run->ready[run->ready_head];
+    run->ready_head = (run->ready_head + 1) % run->ready_cap;
+    run->ready_len--;
+    client_batch_fill(e.batch, e.slot, out);
+    return 1;
 }

@@ -28,7 +28,7 @@ static double s_now(void)
 static double s_pass(fitfarm_client_t *client, const char *run_id, int no_cache, long count,
                      long *n_cached)
 {
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     ro.run_id = run_id;
     ro.seed = 1;
     ro.no_cache = no_cache;
@@ -53,7 +53,7 @@ static double s_pass(fitfarm_client_t *client, const char *run_id, int no_cache,
     }
     double dt = s_now() - t0;
     for (long i = 0; i < count; i++) {
-        fitfarm_result_t r;
+        fitfarm_result_t r = FITFARM_RESULT_INIT;
         if (fitfarm_batch_result(batch, (size_t)i, 0, &r) == 0 && r.cached)
             (*n_cached)++;
     }
@@ -79,7 +79,7 @@ int main(int argc, char **argv)
     const char *build = getenv("FITFARM_BUILD_DIR");
     char dir[4096];
     snprintf(dir, sizeof dir, "%s/plugins", build ? build : ".");
-    fitfarm_options_t opts = {0};
+    fitfarm_options_t opts = FITFARM_OPTIONS_INIT;
     opts.slots = (unsigned)slots;
     opts.plugin_dir = build ? dir : NULL;
     opts.store_dir = store;

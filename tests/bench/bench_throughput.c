@@ -1,7 +1,10 @@
 /* bench_throughput: evaluations per second of the trivial `sphere` plugin
  * through (a) the embedded local pool, (b) a broker with one and with two
  * workers over TCP loopback, for batches of 100,000 distinct genomes; and the
- * median round-trip time of a single evaluation. Prints 'name: value unit'.
+ * median round-trip time of a single evaluation; the embedded pool's start
+ * time; and the wall time per generation of a generational optimizer
+ * (populations of 20 and 150, one batch per generation in one run) against
+ * computing the same values in-process. Prints 'name: value unit'.
  *
  * sphere costs nanoseconds, so these figures measure fitfarm itself: framing,
  * dispatch, credits, the child hop, result delivery. Usage:
@@ -40,7 +43,7 @@ static int s_cmp_double(const void *a, const void *b)
  * calls so the broker's cache never answers. */
 static double s_batch_rate(fitfarm_client_t *client, long count, double genome_base)
 {
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     ro.seed = 1;
     fitfarm_run_t *run = NULL;
     fitfarm_batch_t *batch = NULL;
@@ -63,7 +66,7 @@ static double s_batch_rate(fitfarm_client_t *client, long count, double genome_b
         fprintf(stderr, "bench: evaluate: %s\n", fitfarm_client_error(client));
         goto cleanup;
     }
-    fitfarm_result_t r;
+    fitfarm_result_t r = FITFARM_RESULT_INIT;
     for (long i = 0; i < count; i += count / 10 + 1)
         if (fitfarm_batch_result(batch, (size_t)i, 0, &r) != 0 || r.status != FITFARM_STATUS_OK)
             goto cleanup;
@@ -77,7 +80,7 @@ cleanup:
 /* Median wall time of one single-genome batch, in microseconds. */
 static double s_rtt_us(fitfarm_client_t *client, int samples, double genome_base)
 {
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     fitfarm_run_t *run = NULL;
     double *t = calloc((size_t)samples, sizeof *t);
     double median = -1;
@@ -102,6 +105,72 @@ cleanup:
     fitfarm_run_destroy(&run);
     free(t);
     return median;
+}
+
+/* A generational optimizer's view: one run, one batch of population distinct
+ * genomes per generation, evaluated blocking. Returns the median wall time
+ * of a generation in ms, and in *inproc_ms the median time to compute the
+ * same sphere values in this process (sum of squares, De Jong 1975), so the
+ * difference is fitfarm's overhead per generation. */
+static double s_generation_ms(fitfarm_client_t *client, int population, int generations,
+                              double genome_base, double *inproc_ms)
+{
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
+    fitfarm_run_t *run = NULL;
+    double *t = calloc((size_t)generations, sizeof *t);
+    double *tl = calloc((size_t)generations, sizeof *tl);
+    double median = -1;
+    volatile double sink = 0;
+    if (!t || !tl || fitfarm_run_open(client, &ro, &run) != 0)
+        goto cleanup;
+    for (int gen = 0; gen < generations; gen++) {
+        fitfarm_batch_t *batch = NULL;
+        if (fitfarm_batch_new("sphere", NULL, 1, &batch) != 0)
+            goto cleanup;
+        double g[8];
+        double t0 = s_now();
+        for (int i = 0; i < population; i++) {
+            for (int d = 0; d < 8; d++)
+                g[d] = genome_base + gen * 1e3 + i * 1e-3 + d;
+            fitfarm_batch_add_f64(batch, g, 8);
+        }
+        int rc = fitfarm_evaluate(run, batch, NULL, NULL, 30000);
+        t[gen] = (s_now() - t0) * 1e3;
+        fitfarm_batch_destroy(&batch);
+        if (rc != 0)
+            goto cleanup;
+        t0 = s_now();
+        for (int i = 0; i < population; i++) {
+            double f = 0;
+            for (int d = 0; d < 8; d++) {
+                g[d] = genome_base + gen * 1e3 + i * 1e-3 + d;
+                f += g[d] * g[d];
+            }
+            sink += f;
+        }
+        tl[gen] = (s_now() - t0) * 1e3;
+    }
+    qsort(t, (size_t)generations, sizeof *t, s_cmp_double);
+    qsort(tl, (size_t)generations, sizeof *tl, s_cmp_double);
+    median = t[generations / 2];
+    *inproc_ms = tl[generations / 2];
+cleanup:
+    (void)sink;
+    fitfarm_run_destroy(&run);
+    free(t);
+    free(tl);
+    return median;
+}
+
+static void s_print_generations(fitfarm_client_t *client, const char *name, double base)
+{
+    static const int sizes[] = {20, 150};
+    for (int k = 0; k < 2; k++) {
+        double local = 0;
+        double ms = s_generation_ms(client, sizes[k], 50, base + k * 1e7, &local);
+        printf("%s_generation_%d: %.3f ms (in-process %.4f ms, overhead %.3f ms)\n", name,
+               sizes[k], ms, local, ms - local);
+    }
 }
 
 static pid_t s_fork_broker(const char *epfile)
@@ -187,14 +256,24 @@ int main(int argc, char **argv)
     printf("cpus: %ld count\n", ncpu);
     printf("batch: %ld genomes\n", count);
 
-    /* (a) embedded pool, one slot per CPU. */
-    fitfarm_options_t o = {0};
+    /* (a) embedded pool, one slot per CPU: start time (median of 5), then
+     * throughput, round trip and generations on the last one started. */
+    fitfarm_options_t o = FITFARM_OPTIONS_INIT;
     fitfarm_client_t *client = NULL;
     char err[512];
-    if (fitfarm_client_new(&o, &client, err, sizeof err) != 0) {
-        fprintf(stderr, "bench: embedded pool: %s\n", err);
-        return 1;
+    double starts[5];
+    for (int i = 0; i < 5; i++) {
+        fitfarm_client_destroy(&client);
+        double t0 = s_now();
+        if (fitfarm_client_new(&o, &client, err, sizeof err) != 0) {
+            fprintf(stderr, "bench: embedded pool: %s\n", err);
+            return 1;
+        }
+        starts[i] = (s_now() - t0) * 1e3;
     }
+    qsort(starts, 5, sizeof *starts, s_cmp_double);
+    printf("embedded_start_median: %.1f ms\n", starts[2]);
+    s_print_generations(client, "embedded", 5e7);
     printf("embedded_throughput: %.0f evals/s\n", s_batch_rate(client, count, 0.0));
     printf("embedded_rtt_median: %.0f us\n", s_rtt_us(client, samples, 1e6));
     fitfarm_client_destroy(&client);
@@ -222,6 +301,7 @@ int main(int argc, char **argv)
     sleep(1); /* let the worker register before timing */
     printf("tcp_1worker_throughput: %.0f evals/s\n", s_batch_rate(client, count, 2e6));
     printf("tcp_1worker_rtt_median: %.0f us\n", s_rtt_us(client, samples, 3e6));
+    s_print_generations(client, "tcp_1worker", 7e7);
     pid_t w2 = s_fork_worker(workers, 1);
     sleep(1);
     printf("tcp_2workers_throughput: %.0f evals/s\n", s_batch_rate(client, count, 4e6));

@@ -83,7 +83,7 @@ MESSAGES = {
     "accepted": [1, 10, "run-1", 7, 3],
     "results": [1, 11, "run-1", [[1, 0, True, 12345, KEY, [0.5, -0.0, 5e-324], ""],
                                  [2, 4, False, 0, KEY, [], "timeout after 5000 ms"]]],
-    "refused": [1, 12, 2, 7, "run-1", "unknown plugin zdt9; pool has: zdt1@1.0"],
+    "refused": [1, 12, 2, 7, "run-1", "unknown plugin zdt9; pool has: zdt1@1.0", False, 0],
     "status": [1, 13, [["w1", "lab-3", "x86_64", 8, 3, ["zdt1@1.0", "granular@2.3"]]],
                [["run-1", 10, 2, U64, 5, 3, 1]], ["two builds of zdt1@1.0"]],
     "hello": [1, 20, "w1", "lab-3", "x86_64", 8,

@@ -40,6 +40,9 @@ if os.path.exists(trace):
         records = [json.loads(l) for l in f]
 types = [r.get("type") for r in records]
 check.ok(types[:1] == ["header"] and types[-1:] == ["result"], f"header first, result last: {types[:1]} {types[-1:]}")
+# 64-bit seeds are JSON strings everywhere: a double (what most JSON readers
+# make of a number) holds only 53 bits exactly (IEEE 754, common practice).
+check.ok(records and records[0].get("seed") == "11", f"trace header seed is the string \"11\": {records[:1]}")
 check.ok(types.count("sample") > 100 and types.count("grains") > 3, "samples and grain snapshots")
 result = records[-1] if records else {}
 # 17 significant digits round-trip: the trace's fitness is the printed one, bit for bit.

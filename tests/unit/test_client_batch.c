@@ -15,6 +15,7 @@
 #include <stdint.h>
 #include <cmocka.h>
 
+#include <poll.h>
 #include <pthread.h>
 #include <stdatomic.h>
 #include <stdio.h>
@@ -84,6 +85,18 @@ static void s_on_submit(fake_broker_t *fb, void *sock, zmq_msg_t *id, proto_subm
 
     proto_msg_t reply;
     memset(&reply, 0, sizeof reply);
+    if (strcmp(s->plugin, "norecord") == 0 && s->n_items > 1) {
+        /* A refusal about one request: the second item of the chunk. */
+        reply.type = PROTO_REFUSED;
+        reply.u.refused.code = PROTO_REFUSE_NOT_RECORDED;
+        reply.u.refused.batch_tag = s->batch_tag;
+        reply.u.refused.run_id = s->run_id;
+        reply.u.refused.text = "replay: never recorded";
+        reply.u.refused.has_tag = 1;
+        reply.u.refused.tag = s->items[1].tag;
+        s_send(sock, id, &reply);
+        return;
+    }
     if (strcmp(s->plugin, "nosuch") == 0 || strcmp(s->plugin, "full") == 0) {
         reply.type = PROTO_REFUSED;
         int unknown = s->plugin[0] == 'n';
@@ -203,7 +216,7 @@ static int s_teardown(void **state)
 
 static fitfarm_client_t *s_connect(fake_broker_t *fb)
 {
-    fitfarm_options_t opts = {0};
+    fitfarm_options_t opts = FITFARM_OPTIONS_INIT;
     opts.broker = fb->endpoint;
     opts.insecure = 1; /* a scripted broker on loopback */
     opts.connect_timeout_ms = 5000;
@@ -220,7 +233,7 @@ static void test_usage_example(void **state)
 {
     fake_broker_t *fb = *state;
     fitfarm_client_t *client = s_connect(fb);
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     ro.seed = 42;
     fitfarm_run_t *run = NULL;
     assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
@@ -236,7 +249,7 @@ static void test_usage_example(void **state)
     assert_int_equal(fitfarm_evaluate(run, batch, NULL, NULL, 10000), 0);
     for (size_t i = 0; i < 3; i++)
         for (unsigned r = 0; r < 2; r++) {
-            fitfarm_result_t res;
+            fitfarm_result_t res = FITFARM_RESULT_INIT;
             assert_int_equal(fitfarm_batch_result(batch, i, r, &res), 0);
             assert_int_equal(res.status, FITFARM_STATUS_OK);
             assert_int_equal(res.index, i);
@@ -244,9 +257,25 @@ static void test_usage_example(void **state)
             assert_int_equal(res.n_fitness, 2);
             assert_true(res.fitness[0] == i + 0.5 && res.fitness[1] == r);
             assert_string_equal(res.error, "");
+            /* The seed is the broker's, per request (the scripted broker
+             * sends tag ^ 0x5555), not derived again by the client. */
+            assert_int_equal(res.seed, (uint64_t)(i * 2 + r) ^ 0x5555);
         }
-    /* A batch is evaluated once. */
-    assert_int_equal(fitfarm_evaluate(run, batch, NULL, NULL, 1000), FITFARM_EINVAL);
+    fitfarm_run_stats_t st = FITFARM_RUN_STATS_INIT;
+    assert_int_equal(fitfarm_run_stats(run, &st), 0);
+    assert_int_equal(st.submitted, 6);
+    assert_int_equal(st.accepted, 6);
+    assert_int_equal(st.delivered, 6);
+    /* A batch is evaluated once: evaluating a finished batch again returns
+     * at once and sends nothing. */
+    pthread_mutex_lock(&fb->lock);
+    size_t chunks = fb->n_chunks;
+    pthread_mutex_unlock(&fb->lock);
+    assert_int_equal(fitfarm_evaluate(run, batch, NULL, NULL, 1000), 0);
+    assert_int_equal(fitfarm_submit(run, batch, 1000), FITFARM_EINVAL);
+    pthread_mutex_lock(&fb->lock);
+    assert_int_equal(fb->n_chunks, chunks);
+    pthread_mutex_unlock(&fb->lock);
     fitfarm_batch_destroy(&batch);
     assert_null(batch);
     fitfarm_run_destroy(&run);
@@ -261,7 +290,7 @@ static void test_f64_little_endian(void **state)
 {
     fake_broker_t *fb = *state;
     fitfarm_client_t *client = s_connect(fb);
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     ro.run_id = "le";
     fitfarm_run_t *run = NULL;
     assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
@@ -312,7 +341,7 @@ static void test_tags_and_chunks(void **state)
 {
     fake_broker_t *fb = *state;
     fitfarm_client_t *client = s_connect(fb);
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     ro.run_id = "tags";
     fitfarm_run_t *run = NULL;
     assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
@@ -364,7 +393,7 @@ static void test_tags_and_chunks(void **state)
 
     /* Every result delivered, each once, and acknowledged (copies too). */
     for (int i = 0; i < 5000; i++) {
-        fitfarm_result_t res;
+        fitfarm_result_t res = FITFARM_RESULT_INIT;
         assert_int_equal(fitfarm_batch_result(a, (size_t)i, 1, &res), 0);
         assert_true(res.fitness[0] == i && res.fitness[1] == 1);
     }
@@ -379,7 +408,7 @@ static void test_chunk_bytes(void **state)
 {
     fake_broker_t *fb = *state;
     fitfarm_client_t *client = s_connect(fb);
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     fitfarm_run_t *run = NULL;
     assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
     fitfarm_batch_t *batch = NULL;
@@ -411,7 +440,7 @@ static void test_poll_exactly_once(void **state)
 {
     fake_broker_t *fb = *state;
     fitfarm_client_t *client = s_connect(fb);
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     fitfarm_run_t *run = NULL;
     assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
     fitfarm_batch_t *batch = NULL;
@@ -420,9 +449,9 @@ static void test_poll_exactly_once(void **state)
         double g = i;
         fitfarm_batch_add_f64(batch, &g, 1);
     }
-    assert_int_equal(fitfarm_submit(run, batch), 0);
+    assert_int_equal(fitfarm_submit(run, batch, 60000), 0);
     uint8_t seen[150] = {0};
-    fitfarm_result_t res;
+    fitfarm_result_t res = FITFARM_RESULT_INIT;
     int got = 0, rc;
     while ((rc = fitfarm_poll(run, &res, 1000)) == 1) {
         size_t slot = res.index * 3 + res.replicate;
@@ -449,7 +478,7 @@ static void test_refusals_and_timeout(void **state)
 {
     fake_broker_t *fb = *state;
     fitfarm_client_t *client = s_connect(fb);
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     fitfarm_run_t *run = NULL;
     assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
     double g = 1;
@@ -464,7 +493,7 @@ static void test_refusals_and_timeout(void **state)
 
     assert_int_equal(fitfarm_batch_new("full", NULL, 1, &batch), 0);
     fitfarm_batch_add_f64(batch, &g, 1);
-    assert_int_equal(fitfarm_submit(run, batch), FITFARM_EQUEUEFULL);
+    assert_int_equal(fitfarm_submit(run, batch, 60000), FITFARM_EQUEUEFULL);
     assert_non_null(strstr(fitfarm_client_error(client), "run over 10 items"));
     fitfarm_batch_destroy(&batch);
 
@@ -472,7 +501,7 @@ static void test_refusals_and_timeout(void **state)
     fitfarm_batch_add_f64(batch, &g, 1);
     assert_int_equal(fitfarm_evaluate(run, batch, NULL, NULL, 300), FITFARM_ETIMEDOUT);
     assert_non_null(strstr(fitfarm_client_error(client), "0 of 1 results"));
-    fitfarm_result_t res;
+    fitfarm_result_t res = FITFARM_RESULT_INIT;
     assert_int_equal(fitfarm_batch_result(batch, 0, 0, &res), FITFARM_ETIMEDOUT);
     assert_int_equal(fitfarm_batch_result(batch, 1, 0, &res), FITFARM_EINVAL);
     fitfarm_batch_destroy(&batch);
@@ -481,7 +510,7 @@ static void test_refusals_and_timeout(void **state)
     assert_int_equal(fitfarm_batch_new("echo", NULL, 0, &batch), FITFARM_EINVAL);
     assert_int_equal(fitfarm_batch_new("echo", "[1]", 1, &batch), FITFARM_EINVAL);
     assert_null(batch);
-    fitfarm_run_options_t dup = {0};
+    fitfarm_run_options_t dup = FITFARM_RUN_OPTIONS_INIT;
     dup.run_id = fitfarm_run_id(run);
     fitfarm_run_t *run2 = NULL;
     assert_int_equal(fitfarm_run_open(client, &dup, &run2), FITFARM_EINVAL);
@@ -492,7 +521,7 @@ static void test_refusals_and_timeout(void **state)
 static void test_no_broker(void **state)
 {
     (void)state;
-    fitfarm_options_t opts = {0};
+    fitfarm_options_t opts = FITFARM_OPTIONS_INIT;
     opts.broker = "tcp://127.0.0.1:1"; /* nothing listens on port 1 */
     opts.insecure = 1;
     opts.connect_timeout_ms = 300;
@@ -505,6 +534,119 @@ static void test_no_broker(void **state)
     assert_string_equal(fitfarm_status_name(FITFARM_STATUS_TIMEOUT), "timeout");
 }
 
+/* ABI growth: a struct whose size is 0 (not initialised with its INIT
+ * macro) is refused with a sentence saying what to do; a shorter size (an
+ * older caller) is filled only as far as it reaches. */
+static void test_struct_sizes(void **state)
+{
+    fake_broker_t *fb = *state;
+    fitfarm_options_t bad = {0};
+    bad.broker = fb->endpoint;
+    bad.insecure = 1;
+    fitfarm_client_t *client = NULL;
+    char err[256];
+    assert_int_equal(fitfarm_client_new(&bad, &client, err, sizeof err), FITFARM_EINVAL);
+    assert_non_null(strstr(err, "FITFARM_OPTIONS_INIT"));
+    client = s_connect(fb);
+    fitfarm_run_options_t ro = {0};
+    fitfarm_run_t *run = NULL;
+    assert_int_equal(fitfarm_run_open(client, &ro, &run), FITFARM_EINVAL);
+    assert_non_null(strstr(fitfarm_client_error(client), "FITFARM_RUN_OPTIONS_INIT"));
+    ro.size = sizeof ro;
+    assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
+    fitfarm_batch_t *batch = NULL;
+    assert_int_equal(fitfarm_batch_new("echo", NULL, 1, &batch), 0);
+    double g = 7;
+    fitfarm_batch_add_f64(batch, &g, 1);
+    assert_int_equal(fitfarm_evaluate(run, batch, NULL, NULL, 10000), 0);
+    /* An older caller whose result struct ends before `seed`. */
+    unsigned char raw[sizeof(fitfarm_result_t) + 16];
+    memset(raw, 0xAB, sizeof raw);
+    fitfarm_result_t *old = (fitfarm_result_t *)raw;
+    old->size = offsetof(fitfarm_result_t, seed);
+    assert_int_equal(fitfarm_batch_result(batch, 0, 0, old), 0);
+    assert_int_equal(old->status, FITFARM_STATUS_OK);
+    for (size_t k = offsetof(fitfarm_result_t, seed); k < sizeof raw; k++)
+        assert_int_equal(raw[k], 0xAB);
+    fitfarm_result_t zero = {0};
+    assert_int_equal(fitfarm_batch_result(batch, 0, 0, &zero), FITFARM_EINVAL);
+    fitfarm_batch_destroy(&batch);
+    fitfarm_run_destroy(&run);
+    fitfarm_client_destroy(&client);
+}
+
+/* A refusal names the request it is about by tag on the wire; the library
+ * gives the caller the genome index and replicate, no text parsed. */
+static void test_structured_refusal(void **state)
+{
+    fake_broker_t *fb = *state;
+    fitfarm_client_t *client = s_connect(fb);
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
+    fitfarm_run_t *run = NULL;
+    assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
+    fitfarm_batch_t *batch = NULL;
+    assert_int_equal(fitfarm_batch_new("norecord", NULL, 2, &batch), 0);
+    for (int i = 0; i < 2; i++) {
+        double g = i;
+        fitfarm_batch_add_f64(batch, &g, 1);
+    }
+    assert_int_equal(fitfarm_submit(run, batch, 5000), FITFARM_ENOTRECORDED);
+    fitfarm_refusal_t why = FITFARM_REFUSAL_INIT;
+    assert_int_equal(fitfarm_refusal(run, &why), 0);
+    assert_int_equal(why.code, FITFARM_ENOTRECORDED);
+    assert_int_equal(why.has_request, 1);
+    assert_ptr_equal(why.batch, batch);
+    assert_int_equal(why.index, 0); /* item 1 = genome 0, replicate 1 */
+    assert_int_equal(why.replicate, 1);
+    assert_string_equal(why.text, "replay: never recorded");
+    assert_non_null(strstr(fitfarm_client_error(client), "genome 0, replicate 1"));
+    fitfarm_batch_destroy(&batch);
+    assert_int_equal(fitfarm_refusal(run, &why), 0);
+    assert_null(why.batch); /* the batch is gone: nothing dangles */
+    fitfarm_run_destroy(&run);
+    fitfarm_client_destroy(&client);
+}
+
+/* A caller with its own event loop: submit without waiting, sleep in poll(2)
+ * on the library's descriptor and next time-out, process, read results. */
+static void test_own_event_loop(void **state)
+{
+    fake_broker_t *fb = *state;
+    fitfarm_client_t *client = s_connect(fb);
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
+    fitfarm_run_t *run = NULL;
+    assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
+    fitfarm_batch_t *batch = NULL;
+    assert_int_equal(fitfarm_batch_new("echo", NULL, 1, &batch), 0);
+    for (int i = 0; i < 40; i++) {
+        double g = i;
+        fitfarm_batch_add_f64(batch, &g, 1);
+    }
+    int fd = -1;
+    assert_int_equal(fitfarm_client_fd(client, &fd), 0);
+    assert_true(fd >= 0);
+    assert_int_equal(fitfarm_submit(run, batch, 0), 0); /* returns at once */
+    int got = 0;
+    for (int turn = 0; turn < 1000 && got < 40; turn++) {
+        int wait = fitfarm_client_next_timeout(client);
+        struct pollfd p = {.fd = fd, .events = POLLIN};
+        (void)poll(&p, 1, wait < 0 || wait > 50 ? 50 : wait);
+        assert_true(fitfarm_client_process(client) >= 0);
+        fitfarm_result_t res = FITFARM_RESULT_INIT;
+        while (fitfarm_poll(run, &res, 0) == 1) {
+            assert_true(res.fitness[0] == (double)res.index);
+            got++;
+        }
+    }
+    assert_int_equal(got, 40);
+    fitfarm_run_stats_t st = FITFARM_RUN_STATS_INIT;
+    assert_int_equal(fitfarm_run_stats(run, &st), 0);
+    assert_int_equal(st.accepted, 40);
+    fitfarm_batch_destroy(&batch);
+    fitfarm_run_destroy(&run);
+    fitfarm_client_destroy(&client);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -515,6 +657,9 @@ int main(void)
         cmocka_unit_test(test_poll_exactly_once),
         cmocka_unit_test(test_refusals_and_timeout),
         cmocka_unit_test(test_no_broker),
+        cmocka_unit_test(test_struct_sizes),
+        cmocka_unit_test(test_structured_refusal),
+        cmocka_unit_test(test_own_event_loop),
     };
     return cmocka_run_group_tests(tests, s_setup, s_teardown);
 }

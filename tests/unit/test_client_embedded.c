@@ -61,7 +61,7 @@ static fitfarm_client_t *s_pool(unsigned slots, char *err, size_t errlen)
     const char *build = getenv("FITFARM_BUILD_DIR");
     static char dir[4096];
     snprintf(dir, sizeof dir, "%s/plugins", build ? build : ".");
-    fitfarm_options_t opts = {0};
+    fitfarm_options_t opts = FITFARM_OPTIONS_INIT;
     opts.slots = slots;
     opts.plugin_dir = dir;
     opts.connect_timeout_ms = 20000;
@@ -90,7 +90,7 @@ static int s_teardown(void **state)
 static void test_evaluate_zdt1(void **state)
 {
     fitfarm_client_t *client = *state;
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     ro.seed = 7;
     fitfarm_run_t *run = NULL;
     assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
@@ -107,7 +107,7 @@ static void test_evaluate_zdt1(void **state)
     if (rc != 0)
         fail_msg("evaluate: %s", fitfarm_client_error(client));
     for (size_t i = 0; i < 1000; i++) {
-        fitfarm_result_t res;
+        fitfarm_result_t res = FITFARM_RESULT_INIT;
         assert_int_equal(fitfarm_batch_result(batch, i, 0, &res), 0);
         if (res.status != FITFARM_STATUS_OK)
             fail_msg("genome %zu: %s: %s", i, fitfarm_status_name(res.status), res.error);
@@ -125,7 +125,7 @@ static void test_evaluate_zdt1(void **state)
 static void test_submit_poll(void **state)
 {
     fitfarm_client_t *client = *state;
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     fitfarm_run_t *run = NULL;
     assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
     fitfarm_batch_t *batch = NULL;
@@ -137,11 +137,11 @@ static void test_submit_poll(void **state)
             genomes[i][k] = s_uniform(&rng);
         fitfarm_batch_add_f64(batch, genomes[i], N_VARS);
     }
-    assert_int_equal(fitfarm_submit(run, batch), 0);
+    assert_int_equal(fitfarm_submit(run, batch, 60000), 0);
     static uint8_t seen[400];
     memset(seen, 0, sizeof seen);
     size_t got = 0;
-    fitfarm_result_t res;
+    fitfarm_result_t res = FITFARM_RESULT_INIT;
     while (got < 400) {
         int rc = fitfarm_poll(run, &res, 60000);
         if (rc != 1)
@@ -164,7 +164,7 @@ static void test_submit_poll(void **state)
 static void test_unknown_plugin(void **state)
 {
     fitfarm_client_t *client = *state;
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     fitfarm_run_t *run = NULL;
     assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
     fitfarm_batch_t *batch = NULL;

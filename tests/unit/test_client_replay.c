@@ -59,7 +59,7 @@ static fitfarm_client_t *s_pool(const char *store)
     const char *build = getenv("FITFARM_BUILD_DIR");
     static char dir[4096];
     snprintf(dir, sizeof dir, "%s/plugins", build ? build : ".");
-    fitfarm_options_t opts = {0};
+    fitfarm_options_t opts = FITFARM_OPTIONS_INIT;
     opts.slots = 2;
     opts.plugin_dir = dir;
     opts.store_dir = store;
@@ -76,7 +76,7 @@ static fitfarm_client_t *s_pool(const char *store)
 static int s_es(fitfarm_client_t *client, int replay, uint64_t run_seed, double start0,
                 es_path_t *path)
 {
-    fitfarm_run_options_t ro = {0};
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     ro.run_id = "es-path";
     ro.seed = run_seed;
     ro.replay = replay;
@@ -102,7 +102,7 @@ static int s_es(fitfarm_client_t *client, int replay, uint64_t run_seed, double 
             /* f = |sum x - 1| + 0.1 * mean noise: the noise steers the path. */
             double f = 0.0;
             for (unsigned r = 0; r < 2 && rc == 0; r++) {
-                fitfarm_result_t res;
+                fitfarm_result_t res = FITFARM_RESULT_INIT;
                 rc = fitfarm_batch_result(b, 0, r, &res);
                 if (rc == 0) {
                     assert_int_equal(res.status, FITFARM_STATUS_OK);

@@ -137,7 +137,8 @@ static proto_msg_t s_sample(uint32_t type)
         break;
     case PROTO_REFUSED:
         m.u.refused = (proto_refused_t){.code = PROTO_REFUSE_UNKNOWN_PLUGIN, .batch_tag = 3,
-                                        .run_id = "", .text = "pool has: zdt1@1.0"};
+                                        .run_id = "", .text = "pool has: zdt1@1.0",
+                                        .has_tag = 1, .tag = 41};
         break;
     case PROTO_STATUS:
         workers[0] = (proto_worker_info_t){.name = "w1", .host = "lab-3", .arch = "x86_64",

@@ -29,8 +29,8 @@ void granular_trace_header(granular_trace_t *self, uint64_t seed, int rows, int 
                            double width, double dt)
 {
     fprintf(self->f,
-            "{\"type\":\"header\",\"plugin\":\"granular\",\"version\":\"%s\",\"seed\":%" PRIu64
-            ",\"rows\":%d,\"columns\":%d,\"grains\":%d,\"width\":%.17g,\"dt\":%.17g,"
+            "{\"type\":\"header\",\"plugin\":\"granular\",\"version\":\"%s\",\"seed\":\"%" PRIu64
+            "\",\"rows\":%d,\"columns\":%d,\"grains\":%d,\"width\":%.17g,\"dt\":%.17g,"
             "\"params\":%s}\n",
             self->version, seed, rows, columns, rows * columns, width, dt, self->params_json);
 }

@@ -1,7 +1,7 @@
 /* trace.h: the optional time-series file of one evaluation, JSON Lines
  * (one JSON object per line, "\n" separated, UTF-8). Lines, by "type":
  *
- *   header  {"type":"header","plugin":"granular","version":V,"seed":S,
+ *   header  {"type":"header","plugin":"granular","version":V,"seed":"S" (a decimal string: 64 bits),
  *            "rows":R,"columns":C,"grains":N,"width":W (m),"dt":DT (s),
  *            "params":{...the params as given...}}
  *   sample  {"type":"sample","phase":P,"frequency":F,"t":T,"floor_y":Y,
