@@ -309,18 +309,19 @@ class Run:
             st.on_result = q.put
         given = 0
         while given < st.total:
-            try:
-                res = q.get_nowait()
-            except queue.Empty:
-                if st.done.is_set() and q.empty():
-                    if st.error is not None:
-                        raise st.error
-                    if given >= st.total:
-                        break
-                self._pool._step(st.progress)
-                continue
-            given += 1
-            yield res
+            st.progress.clear()  # before looking, so a delivery after the look wakes us
+            while given < st.total:
+                try:
+                    res = q.get_nowait()
+                except queue.Empty:
+                    break
+                given += 1
+                yield res
+            if given >= st.total:
+                break
+            if st.error is not None:
+                raise st.error
+            self._pool._step(st.progress)
 
     def stats(self):
         """This process's counters for the run (fitfarm_run_stats): submitted,
@@ -596,7 +597,8 @@ class Pool(concurrent.futures.Executor):
             self._closed = True
             for run in list(self._runs):
                 run.close()
-            L.client_destroy(ctypes.byref(self._h))
+            if self._h:
+                L.client_destroy(ctypes.byref(self._h))
             self._h = None
         self._bg_wake.set()
         for fut in list(self._futures):
