@@ -1,5 +1,5 @@
 /* broker.h: the broker's single entry point, used by fitfarm-broker's main and
- * by the client library's embedded local pool (in a forked child process). */
+ * (and the tests that run a broker in-process). */
 #ifndef BROKER_BROKER_H
 #define BROKER_BROKER_H
 
@@ -47,6 +47,9 @@ typedef struct {
     uint64_t max_unacked;         /* the same over all runs */
     uint64_t cache_entries;       /* finished results kept in RAM */
     uint64_t cache_bytes;         /* their approximate bytes */
+    /* The read end of the starter's lifeline pipe (common/lifeline.h); the
+     * broker stops as on SIGTERM when it reports end of file. 0 = none. */
+    int lifeline_fd;
 } broker_config_t;
 
 #define BROKER_DEFAULT_LOCK_WAIT_MS 10000 /* a killed predecessor ends well within this */

@@ -17,6 +17,7 @@
 #include "cache.h"
 #include "client_io.h"
 #include "common/clock.h"
+#include "common/lifeline.h"
 #include "common/log.h"
 #include "core.h"
 #include "dispatch.h"
@@ -185,11 +186,16 @@ int broker_main_run(const broker_config_t *config)
              b.evals.cap_bytes >> 20, b.runs.max_per_run, b.runs.max_total);
 
     broker_worker_timers_start(&b);
-    zmq_pollitem_t items[5] = {
+    zmq_pollitem_t items[6] = {
         {.socket = b.clients, .events = ZMQ_POLLIN},
         {.socket = b.workers, .events = ZMQ_POLLIN},
     };
     int n_items = 2 + (b.zap ? broker_zap_pollitems(b.zap, items + 2, 3) : 0);
+    int lifeline = -1; /* its index in items */
+    if (config->lifeline_fd > 0) {
+        lifeline = n_items++;
+        items[lifeline] = (zmq_pollitem_t){.fd = config->lifeline_fd, .events = ZMQ_POLLIN};
+    }
     while (!s_stop) {
         b.now_ms = common_clock_ms();
         long timeout = b.backlog_more ? 0 : broker_timers_timeout(&b.timers, b.now_ms);
@@ -204,6 +210,13 @@ int broker_main_run(const broker_config_t *config)
             goto cleanup;
         }
         b.now_ms = common_clock_ms();
+        if (lifeline >= 0 && (items[lifeline].revents & (ZMQ_POLLIN | ZMQ_POLLERR)) &&
+            common_lifeline_gone(config->lifeline_fd)) {
+            /* The process that started this pool died: nobody else will stop us. */
+            LOG_WARN("the lifeline closed (the process that started this broker is gone); "
+                     "stopping");
+            s_stop = 1;
+        }
         if (b.zap)
             broker_zap_handle(b.zap); /* handshakes first: admitted peers then speak */
         if (items[0].revents & ZMQ_POLLIN)

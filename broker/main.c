@@ -8,6 +8,7 @@
 
 #include "broker.h"
 #include "common/config.h"
+#include "common/lifeline.h"
 
 #ifndef FITFARM_VERSION
 #define FITFARM_VERSION "0.0.0"
@@ -30,7 +31,13 @@ static void s_usage(FILE *out)
             "  --heartbeat MS        heartbeat interval to workers (default 1000)\n"
             "  --attempts N          tries of a job that crashes or times out (default 3)\n"
             "  --endpoints-file FILE write the bound endpoints there as\n"
-            "                        \"clients EP\\nworkers EP\\n\" (atomically)\n"
+            "                        \"clients EP\\nworkers EP\\n\" (atomically, once both are\n"
+            "                        listening: a starter waits for this file to know the\n"
+            "                        broker is ready)\n"
+            "  --lifeline-fd N       descriptor N (3..1023) is the read end of a pipe held\n"
+            "                        open by the process that started the broker; when it\n"
+            "                        reads end of file (that process died) the broker stops\n"
+            "                        as on SIGTERM\n"
             "  --key FILE            the broker's secret key (fitfarm keygen broker);\n"
             "                        or FITFARM_KEY, or 'key =' in the config file\n"
             "  --keys DIR            folder with clients.allow and workers.allow (fitfarm\n"
@@ -139,7 +146,7 @@ int main(int argc, char **argv)
             "--max-batch",        "--max-objectives",   "--max-string-bytes",
             "--max-queued-per-run", "--max-queued-per-client", "--max-unacked-per-run",
             "--max-unacked",      "--cache-entries",    "--cache-mb",
-            "--lock-wait"};
+            "--lock-wait",        "--lifeline-fd"};
         int known = 0;
         for (size_t k = 0; k < sizeof with_value / sizeof *with_value; k++)
             known |= strcmp(a, with_value[k]) == 0;
@@ -162,6 +169,11 @@ int main(int argc, char **argv)
             if (errno || !end || *end || end == v || s < 0 || s > 600)
                 return s_bad("--lock-wait needs whole seconds from 0 to 600, got '%s'", v);
             cfg.lock_wait_ms = s == 0 ? 1 : (int)(s * 1000); /* 0: do not wait */
+        } else if (strcmp(a, "--lifeline-fd") == 0) {
+            char lerr[128];
+            cfg.lifeline_fd = common_lifeline_open(v, lerr, sizeof lerr);
+            if (cfg.lifeline_fd < 0)
+                return s_bad("%s", lerr);
         } else if (strcmp(a, "--endpoints-file") == 0) {
             cfg.endpoints_file = v;
         } else if (strcmp(a, "--key") == 0) {

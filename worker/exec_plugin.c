@@ -872,3 +872,14 @@ long worker_exec_plugin_coprocess_pid(const fitfarm_plugin_t *p)
         return 0;
     return (long)x->cp.pid;
 }
+
+int worker_exec_open(const char *spec, const struct fitfarm_plugin **out, char *err,
+                     size_t errlen)
+{
+    return worker_exec_plugin_new(spec, out, err, errlen);
+}
+
+void worker_exec_close(const struct fitfarm_plugin **p)
+{
+    worker_exec_plugin_destroy(p);
+}

@@ -8,9 +8,11 @@
  * been silent past the liveness window. Signal handlers only count signals;
  * the loop drains on the first SIGTERM/SIGINT (no new credits, running jobs
  * finish and are reported, queued ones are handed back with BYE) and stops at
- * once on the second. Not here: plugin loading (registry.c), children
+ * once on the second, or when the lifeline pipe from its starter closes. Not here: plugin loading (registry.c), children
  * (pool.c), prefetch arithmetic (credits.c), flags (main.c). */
 #include <errno.h>
+#include <fcntl.h>
+#include <sys/stat.h>
 #include <signal.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -21,6 +23,7 @@
 
 #include "common/alloc.h"
 #include "common/clock.h"
+#include "common/lifeline.h"
 #include "common/log.h"
 #include "credits.h"
 #include "msg.h"
@@ -361,19 +364,35 @@ static int s_load_plugins(s_worker_t *self)
 {
     const char *defaults[WORKER_MAX_PLUGIN_DIRS + 1];
     const char *const *dirs = self->config.plugin_dirs;
-    if (!dirs[0]) {
+    size_t n_named = 0;
+    while (n_named < WORKER_MAX_PLUGIN_DIRS && dirs[n_named])
+        n_named++;
+    defaults[0] = NULL;
+    if (!n_named || self->config.with_default_plugins)
         worker_default_plugin_dirs(defaults, WORKER_MAX_PLUGIN_DIRS);
-        dirs = defaults;
-    }
-    for (size_t i = 0; i < WORKER_MAX_PLUGIN_DIRS && dirs[i]; i++) {
+    for (size_t i = 0; i < n_named; i++)
+        worker_registry_load_dir(self->registry, dirs[i]);
+    for (size_t i = 0; i < WORKER_MAX_PLUGIN_DIRS && defaults[i]; i++) {
         /* A default folder that does not exist (say, nothing installed yet)
          * is normal; a folder the user named is worth a warning. */
-        if (dirs == defaults && access(dirs[i], F_OK) != 0) {
-            LOG_DEBUG("no plugin directory %s", dirs[i]);
+        struct stat st;
+        if (stat(defaults[i], &st) != 0 || !S_ISDIR(st.st_mode)) {
+            LOG_DEBUG("no plugin directory %s", defaults[i]);
             continue;
         }
-        worker_registry_load_dir(self->registry, dirs[i]);
+        /* A named folder may be a default one too (or two defaults the same
+         * folder): load it once, or its plugins would clash with themselves. */
+        int seen = 0;
+        for (size_t j = 0; j < n_named + i && !seen; j++) {
+            const char *other = j < n_named ? dirs[j] : defaults[j - n_named];
+            struct stat ost;
+            seen = stat(other, &ost) == 0 && ost.st_dev == st.st_dev && ost.st_ino == st.st_ino;
+        }
+        if (!seen)
+            worker_registry_load_dir(self->registry, defaults[i]);
     }
+    if (!dirs[0])
+        dirs = defaults;
     for (size_t i = 0; i < WORKER_MAX_EXEC && self->config.exec[i]; i++) {
         char err[512];
         if (worker_registry_add_exec(self->registry, self->config.exec[i], err, sizeof err) !=
@@ -383,8 +402,8 @@ static int s_load_plugins(s_worker_t *self)
         }
     }
     if (worker_registry_count(self->registry) == 0) {
-        LOG_ERROR("no plugins found (looked in %s%s); nothing to evaluate", dirs[0],
-                  dirs[0] && dirs[1] ? " and more" : "");
+        LOG_ERROR("no plugins found (looked in %s%s); nothing to evaluate",
+                  dirs[0] ? dirs[0] : "no folder", dirs[0] && dirs[1] ? " and more" : "");
         return -1;
     }
     return 0;
@@ -422,13 +441,42 @@ static void s_defaults(worker_config_t *c)
         c->default_timeout_s = 3600;
 }
 
+/* The ready file: "ready PID\n", written to a temporary name and renamed so
+ * a reader never sees half of it. */
+static int s_write_ready(const char *path)
+{
+    char tmp[4096];
+    int rc = -1;
+    if (snprintf(tmp, sizeof tmp, "%s.tmp.%ld", path, (long)getpid()) >= (int)sizeof tmp) {
+        errno = ENAMETOOLONG;
+        goto cleanup;
+    }
+    FILE *f = fopen(tmp, "w");
+    if (!f)
+        goto cleanup;
+    int ok = fprintf(f, "ready %ld\n", (long)getpid()) > 0;
+    ok &= fclose(f) == 0;
+    if (!ok || rename(tmp, path) != 0) {
+        unlink(tmp);
+        goto cleanup;
+    }
+    rc = 0;
+cleanup:
+    if (rc != 0)
+        LOG_ERROR("cannot write the ready file %s: %s", path, strerror(errno));
+    return rc;
+}
+
 /* Runs the reactor until drained or forced. */
 static void s_run(s_worker_t *self)
 {
-    zmq_pollitem_t items[1 + WORKER_POOL_MAX_SLOTS];
+    zmq_pollitem_t items[2 + WORKER_POOL_MAX_SLOTS];
     int forced = 0;
     int64_t drain_stuck_ms = 0;
+    int lifeline = self->config.lifeline_fd;
     s_register(self);
+    if (self->config.ready_file && s_write_ready(self->config.ready_file) != 0)
+        return;
     for (;;) {
         if (s_stop_signals >= 2) {
             LOG_WARN("second stop signal: killing %u running evaluations",
@@ -470,9 +518,23 @@ static void s_run(s_worker_t *self)
         items[0].events = ZMQ_POLLIN;
         items[0].revents = 0;
         size_t n = worker_pool_pollitems(self->pool, items + 1, WORKER_POOL_MAX_SLOTS);
-        int rc = zmq_poll(items, (int)(1 + n), timeout);
+        size_t n_items = 1 + n;
+        if (lifeline > 0)
+            items[n_items++] = (zmq_pollitem_t){.fd = lifeline, .events = ZMQ_POLLIN};
+        int rc = zmq_poll(items, (int)n_items, timeout);
         if (rc < 0 && zmq_errno() != EINTR) {
             LOG_ERROR("zmq_poll failed: %s; stopping", zmq_strerror(zmq_errno()));
+            forced = 1;
+            break;
+        }
+        if (rc > 0 && lifeline > 0 && (items[1 + n].revents & (ZMQ_POLLIN | ZMQ_POLLERR)) &&
+            common_lifeline_gone(lifeline)) {
+            /* The process that started this pool died: its results have no
+             * reader, and a long evaluation must not keep us alive. */
+            LOG_WARN("the lifeline closed (the process that started this worker is gone); "
+                     "killing %u running evaluations and stopping",
+                     worker_pool_busy(self->pool));
+            worker_pool_kill_busy(self->pool);
             forced = 1;
             break;
         }

@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "common/config.h"
+#include "common/lifeline.h"
 #include "common/log.h"
 #include "worker.h"
 
@@ -25,6 +26,7 @@ static void s_usage(FILE *out)
             "  --slots N           child processes, 1..1024 (default: online CPUs)\n"
             "  --plugin-dir DIR    load plugins from DIR (repeatable; default: the build\n"
             "                      tree's plugins when run from it, then the installed ones)\n"
+            "  --with-default-plugins  with --plugin-dir: load the default folders too\n"
             "  --exec NAME=CMD     register external program CMD as plugin NAME (repeatable)\n"
             "  --name NAME         worker name shown by the broker (default: host-pid)\n"
             "  --timeout SECONDS   per evaluation, when a job gives none (default 3600)\n"
@@ -39,6 +41,13 @@ static void s_usage(FILE *out)
             "                      ~/.config/fitfarm/config); flags beat environment beat file;\n"
             "                      --broker may also come from FITFARM_BROKER or 'broker ='\n"
             "  --insecure          plaintext, no keys: only to ipc://, inproc:// or loopback\n"
+            "  --ready-file FILE   write \"ready PID\\n\" there (atomically) once plugins are\n"
+            "                      loaded, children started and HELLO sent: a starter waits\n"
+            "                      for this file to know the worker is up\n"
+            "  --lifeline-fd N     descriptor N (3..1023) is the read end of a pipe held open\n"
+            "                      by the process that started the worker; at end of file\n"
+            "                      (that process died) running evaluations are killed and\n"
+            "                      the worker stops\n"
             "  --help, --version\n"
             "\n"
             "SIGTERM or SIGINT drains (running evaluations finish, queued jobs go back);\n"
@@ -69,7 +78,7 @@ int main(int argc, char **argv)
     size_t n_dirs = 0, n_exec = 0;
     enum {
         O_BROKER = 1, O_SLOTS, O_DIR, O_NAME, O_EXEC, O_TIMEOUT, O_MEM, O_HB, O_LIVE,
-        O_KEY, O_BROKER_KEY, O_CONFIG, O_INSECURE
+        O_KEY, O_BROKER_KEY, O_CONFIG, O_INSECURE, O_WITH_DEFAULTS, O_READY, O_LIFELINE
     };
     const char *config_path = NULL;
     static const struct option options[] = {
@@ -86,6 +95,9 @@ int main(int argc, char **argv)
         {"broker-key", required_argument, NULL, O_BROKER_KEY},
         {"config", required_argument, NULL, O_CONFIG},
         {"insecure", no_argument, NULL, O_INSECURE},
+        {"with-default-plugins", no_argument, NULL, O_WITH_DEFAULTS},
+        {"ready-file", required_argument, NULL, O_READY},
+        {"lifeline-fd", required_argument, NULL, O_LIFELINE},
         {"help", no_argument, NULL, 'h'},
         {"version", no_argument, NULL, 'V'},
         {NULL, 0, NULL, 0},
@@ -151,6 +163,21 @@ int main(int argc, char **argv)
         case O_INSECURE:
             config.insecure = 1;
             break;
+        case O_WITH_DEFAULTS:
+            config.with_default_plugins = 1;
+            break;
+        case O_READY:
+            config.ready_file = optarg;
+            break;
+        case O_LIFELINE: {
+            char lerr[128];
+            config.lifeline_fd = common_lifeline_open(optarg, lerr, sizeof lerr);
+            if (config.lifeline_fd < 0) {
+                fprintf(stderr, "fitfarm-worker: %s\n", lerr);
+                return 2;
+            }
+            break;
+        }
         case 'h':
             s_usage(stdout);
             return 0;

@@ -372,6 +372,19 @@ size_t worker_default_plugin_dirs(const char **dirs, size_t max)
         if (strncmp(exe, root, rlen) == 0 && exe[rlen] == '/' && n + 1 < max)
             dirs[n++] = FITFARM_PLUGIN_BUILD_DIR;
     }
+    /* An install under another prefix than the configured one (cmake
+     * --install --prefix, a relocated package): the plugins sit at a fixed
+     * place relative to this executable's folder. */
+    static char beside[4096 + 64];
+    if (len > 0 && n + 1 < max) {
+        char *slash = strrchr(exe, '/');
+        if (slash) {
+            *slash = '\0';
+            if (snprintf(beside, sizeof beside, "%s/%s", exe, FITFARM_BIN_TO_PLUGINS) <
+                (int)sizeof beside)
+                dirs[n++] = beside;
+        }
+    }
     if (n + 1 < max)
         dirs[n++] = FITFARM_PLUGIN_INSTALL_DIR;
     dirs[n] = NULL;

@@ -1,5 +1,5 @@
 /* worker.h: the worker's single entry point, used by fitfarm-worker's main
- * and by the client library's embedded local pool (in a forked child process). */
+ * (and by the tests that run a worker in-process). */
 #ifndef WORKER_WORKER_H
 #define WORKER_WORKER_H
 
@@ -23,12 +23,34 @@ typedef struct {
     const char *key_file;        /* this worker's .secret key file */
     const char *broker_key_file; /* the broker's .public key file */
     int insecure;
+    /* With plugin_dirs given: load the default folders too, after them (a
+     * folder that is both is loaded once). */
+    int with_default_plugins;
+    /* Written (atomically, "ready PID\n") once plugins are loaded, children
+     * started and HELLO and CREDIT handed to the broker's socket; NULL =
+     * nowhere. A starter waits for it to know the worker is up. */
+    const char *ready_file;
+    /* The read end of the starter's lifeline pipe (common/lifeline.h): at end
+     * of file the worker stops at once, as on a second SIGTERM. 0 = none. */
+    int lifeline_fd;
 } worker_config_t;
 
 /* The default plugin directories: the build tree's plugins folder when this
- * executable lives in the build tree, then the installed plugin directory.
+ * executable lives in the build tree, then the plugin folder of the install
+ * tree this executable sits in (found from its own path, so an install under
+ * any prefix works), then the configured install directory.
  * Fills dirs (up to max, NULL-terminated); returns the count. Borrowed strings. */
 size_t worker_default_plugin_dirs(const char **dirs, size_t max);
+
+/* The exec plugin (exec_plugin.h) for one "NAME=COMMAND" spec, for callers
+ * outside the worker that evaluate in-process (`fitfarm sim --exec`): probes
+ * the program and returns its descriptor in *out (release it with
+ * worker_exec_close), or -1 with a sentence in err. Blocks up to 10 s. */
+struct fitfarm_plugin;
+int worker_exec_open(const char *spec, const struct fitfarm_plugin **out, char *err,
+                     size_t errlen);
+/* Kills the co-process, frees the descriptor, sets *p to NULL; accepts NULL. */
+void worker_exec_close(const struct fitfarm_plugin **p);
 
 /* Runs the worker until SIGTERM/SIGINT. Returns 0 on a clean stop, 1 after
  * logging why it could not start. Blocks; one worker per process. */

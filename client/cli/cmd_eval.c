@@ -29,6 +29,7 @@
 #define EVAL_BATCH_LINES 4096   /* submit once this many lines are waiting */
 #define EVAL_READ_BYTES 65536
 #define CLI_SUBMIT_WAIT_MS 60000 /* how long the broker may take to accept a batch */
+#define EVAL_MAX_EXEC 16 /* the worker program's own cap on --exec */
 
 static const char s_help[] =
     "usage: fitfarm eval --plugin NAME [options] [< genomes.jsonl]\n"
@@ -63,6 +64,8 @@ static const char s_help[] =
     "                     tcp://host:5555; without it an embedded local pool runs\n"
     "  --slots N          embedded pool: worker slots (default: online CPUs)\n"
     "  --plugin-dir DIR   embedded pool: also load plugins from DIR\n"
+    "  --exec NAME=CMD    embedded pool: run program CMD (JSON Lines on stdin and\n"
+    "                     stdout) as plugin NAME; repeatable, up to 16\n"
     "  --store DIR        embedded pool: keep its durable store in DIR (default: a\n"
     "                     private temporary one), so --run ID can resume later\n"
     "  --stats            at the end, print on stderr one line of counts: results,\n"
@@ -109,6 +112,8 @@ typedef struct {
     int stats, no_cache, replay, seed_mode;
     int aggregate; /* 0 none, 1 mean, 2 median */
     uint64_t seed, replicates, slots, timeout_s, attempts;
+    const char *exec[EVAL_MAX_EXEC + 1]; /* --exec NAME=CMD, NULL-terminated */
+    size_t n_exec;
     /* state */
     FILE *out;
     int in_fd;
@@ -184,6 +189,18 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         STR_OPT("--plugin-dir", plugin_dir)
         STR_OPT("--store", store)
         STR_OPT("--seed-mode", seed_mode_name)
+        if (cli_match_value(argc, argv, &i, "--exec", &v)) {
+            if (!v || !strchr(v, '=') || v[0] == '=') {
+                *exit_code = s_usage("--exec needs NAME=COMMAND, not '%s'", v ? v : "");
+                return -1;
+            }
+            if (e->n_exec == EVAL_MAX_EXEC) {
+                *exit_code = s_usage("at most 16 --exec%s", NULL);
+                return -1;
+            }
+            e->exec[e->n_exec++] = v;
+            continue;
+        }
         STR_OPT("--aggregate", aggregate_name)
         if (strcmp(arg, "--stats") == 0) {
             e->stats = 1;
@@ -235,6 +252,12 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         e->aggregate = 2;
     } else {
         *exit_code = s_usage("--aggregate is mean, median or none, not '%s'", e->aggregate_name);
+        return -1;
+    }
+    if (e->n_exec && e->broker) {
+        /* A remote pool's workers run only programs their own machines name. */
+        *exit_code = s_usage("--exec is for the embedded pool; a broker's workers take --exec "
+                             "themselves (fitfarm-worker --exec NAME=CMD)%s", NULL);
         return -1;
     }
     if (e->replay && !e->run_id) {
@@ -753,6 +776,7 @@ int cli_cmd_eval(int argc, char **argv)
     opts.slots = (unsigned)e.slots;
     opts.plugin_dir = e.plugin_dir;
     opts.store_dir = e.store;
+    opts.exec_plugins = e.n_exec ? e.exec : NULL;
     if (cli_keys_apply(&opts, "fitfarm eval") != 0) {
         rc = 2;
         goto cleanup;
@@ -787,6 +811,15 @@ int cli_cmd_eval(int argc, char **argv)
         fprintf(stderr, "fitfarm eval: %s\n", fitfarm_client_error(e.client));
         rc = 1;
         goto cleanup;
+    }
+    if (!e.run_id) {
+        /* A killed client can only be resumed by a run id it never chose. */
+        const char *id = fitfarm_run_id(e.run);
+        char seed[40] = "";
+        if (e.seed)
+            snprintf(seed, sizeof seed, " --seed %llu", (unsigned long long)e.seed);
+        fprintf(stderr, "fitfarm: run %s (resume with --run %s%s%s)\n", id, id, seed,
+                e.broker || e.store ? "" : " and a --store DIR: this pool's store is temporary");
     }
     rc = s_loop(&e);
     if (rc == 0 && e.any_not_ok)

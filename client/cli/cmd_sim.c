@@ -27,6 +27,7 @@
 
 static const char s_help[] =
     "usage: fitfarm sim PLUGIN --genome JSON_ARRAY [options]\n"
+    "       fitfarm sim --exec NAME=COMMAND --genome JSON_ARRAY [options]\n"
     "\n"
     "Evaluates one genome with a plugin loaded into this process (no broker, no\n"
     "pool, no cache) and prints one JSON line. PLUGIN is a plugin name, looked up\n"
@@ -38,6 +39,9 @@ static const char s_help[] =
     "  --seed N           evaluation seed, 0..2^64-1 (default 0)\n"
     "  --trace FILE       also write the plugin's trace of this evaluation to FILE\n"
     "                     (the plugin must export fitfarm_plugin_trace)\n"
+    "  --exec NAME=CMD    evaluate with external program CMD speaking the exec\n"
+    "                     plugin's JSON Lines (as fitfarm-worker --exec would), to\n"
+    "                     try a simulator program before any pool runs it\n"
     "  --plugin-dir DIR   look in DIR first (repeatable); then the build tree's\n"
     "                     plugins when run from it, then the installed plugins\n"
     "\n"
@@ -179,6 +183,7 @@ static double s_cpu_seconds(void)
 int cli_cmd_sim(int argc, char **argv)
 {
     const char *plugin = NULL, *genome_text = NULL, *params_text = "{}", *trace_path = NULL;
+    const char *exec_spec = NULL;
     const char *dirs[2 * WORKER_MAX_PLUGIN_DIRS + 1];
     size_t ndirs = 0;
     uint64_t seed = 0;
@@ -202,6 +207,12 @@ int cli_cmd_sim(int argc, char **argv)
             if (!v || !*v)
                 return s_usage("--trace needs a file name", NULL);
             trace_path = v;
+        } else if (cli_match_value(argc, argv, &i, "--exec", &v)) {
+            if (!v || !strchr(v, '=') || v[0] == '=')
+                return s_usage("--exec needs NAME=COMMAND, not '%s'", v ? v : "");
+            if (exec_spec)
+                return s_usage("one --exec at a time%s", NULL);
+            exec_spec = v;
         } else if (cli_match_value(argc, argv, &i, "--plugin-dir", &v)) {
             if (!v || !*v)
                 return s_usage("--plugin-dir needs a directory", NULL);
@@ -216,7 +227,12 @@ int cli_cmd_sim(int argc, char **argv)
             return s_usage("unexpected argument '%s'", argv[i]);
         }
     }
-    if (!plugin)
+    if (exec_spec && plugin &&
+        (strncmp(exec_spec, plugin, strlen(plugin)) != 0 || exec_spec[strlen(plugin)] != '='))
+        return s_usage("PLUGIN '%s' is not the NAME that --exec gives", plugin);
+    if (exec_spec && trace_path)
+        return s_usage("--trace needs a plugin file, not --exec%s", NULL);
+    if (!plugin && !exec_spec)
         return s_usage("which plugin? give its name%s", NULL);
     if (!genome_text)
         return s_usage("--genome is required%s", NULL);
@@ -240,7 +256,12 @@ int cli_cmd_sim(int argc, char **argv)
         rc = s_usage("%s", err);
         goto cleanup;
     }
-    p = s_load(plugin, dirs, &dl, err, sizeof err);
+    if (exec_spec) {
+        if (worker_exec_open(exec_spec, &p, err, sizeof err) != 0)
+            p = NULL;
+    } else {
+        p = s_load(plugin, dirs, &dl, err, sizeof err);
+    }
     if (!p) {
         fprintf(stderr, "fitfarm sim: %s\n", err);
         goto cleanup;
@@ -317,6 +338,8 @@ int cli_cmd_sim(int argc, char **argv)
 cleanup:
     if (ctx)
         p->destroy(ctx);
+    if (exec_spec)
+        worker_exec_close(&p);
     if (dl)
         dlclose(dl);
     free(fitness);

@@ -24,7 +24,6 @@
 #include "common/clock.h"
 #include "internal.h"
 #include "secure.h"
-#include "status.h"
 
 #define CLIENT_DEFAULT_CONNECT_MS 10000
 #define CLIENT_HWM 100000
@@ -421,9 +420,8 @@ FITFARM_API int fitfarm_client_new(const fitfarm_options_t *caller_options,
         }
         self->endpoint = strdup(options->broker);
     } else {
-        /* Fork before this client creates its ZeroMQ context (pool.c says why). */
-        rc = client_pool_new(options->slots, options->plugin_dir, options->store_dir,
-                             &self->pool, self->err, sizeof self->err);
+        /* The daemons as child programs on private ipc endpoints (pool.c). */
+        rc = client_pool_new(options, &self->pool, self->err, sizeof self->err);
         if (rc != FITFARM_OK)
             goto cleanup;
         self->endpoint = strdup(client_pool_endpoint(self->pool));
@@ -539,10 +537,4 @@ FITFARM_API int fitfarm_client_process(fitfarm_client_t *self)
             return rc;
     }
     return handled;
-}
-
-void client_test_pool_pids(const fitfarm_client_t *self, pid_t *broker, pid_t *worker,
-                           const char **dir)
-{
-    client_pool_pids(self ? self->pool : NULL, broker, worker, dir);
 }

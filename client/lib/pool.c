@@ -1,33 +1,56 @@
-/* pool.c: the embedded local pool (see pool.h). Owns the two child processes
- * and their temporary folder: creating them, noticing one died, and ending
- * them by PID so nothing outlives the client. Not here: talking to them.
+/* pool.c: the embedded local pool (see pool.h). Owns the two child processes,
+ * their private folder and the lifeline pipe: starting them, waiting until
+ * they are ready, noticing one died, ending them by PID so nothing outlives
+ * the client, and removing folders that a killed client left behind. Not
+ * here: talking to them (client.c), finding the programs (programs.c).
  *
- * Why fork and not threads: the broker and worker cores are one-per-process
- * daemons with their own signal handling; a child also keeps a crashing plugin
- * or a broker bug out of the optimizer's process. Why fork before any ZeroMQ
- * context exists in the parent: a forked child must not inherit a context whose
- * I/O threads it does not have. */
+ * The folder (0700, under $TMPDIR or /tmp) holds:
+ *   clients, workers   the broker's ipc:// sockets
+ *   store/             the private store, unless options->store_dir is set
+ *   endpoints          written by the broker once it listens (--endpoints-file)
+ *   worker.ready       written by the worker once it said HELLO (--ready-file)
+ *   pids               "broker PID\nworker PID\n", for the stale-folder check
+ *   lock               flock()ed by this process while the pool exists
+ *
+ * Why programs and posix_spawn, not fork: forking a threaded host (a Python
+ * interpreter) copies one thread and whatever locks the others held; spawn
+ * runs exec at once. It also keeps SQLite, dlopen and the plugins out of the
+ * library. Why a lifeline pipe, not PR_SET_PDEATHSIG: the death signal is
+ * tied to the thread that started the child, and in a threaded host that
+ * thread may end long before the process. The pipe's write end is close-on-
+ * exec here, so other programs the host spawns do not hold it; each daemon
+ * gets the read end as descriptor S_LIFELINE_FD and stops when it reads end
+ * of file, which the kernel delivers when this process dies however it dies. */
 #include "pool.h"
 
 #include <dirent.h>
 #include <errno.h>
 #include <fcntl.h>
+#include <limits.h>
 #include <signal.h>
+#include <spawn.h>
+#include <stdatomic.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/prctl.h>
+#include <sys/file.h>
 #include <sys/stat.h>
 #include <sys/wait.h>
 #include <time.h>
 #include <unistd.h>
 
-#include "broker/broker.h"
-#include "client/include/fitfarm.h"
-#include "common/log.h"
-#include "worker/worker.h"
+#include "programs.h"
+
+extern char **environ;
 
 #define POOL_STOP_MS 5000
+#define POOL_DEFAULT_START_MS 10000
+#define POOL_READY_FILE_MAX 4096 /* the ready files we read are a few lines */
+#define POOL_STALE_AGE_S 10      /* a folder younger than this may be starting */
+#define POOL_MAX_ARGS 64
+#define S_LIFELINE_FD 3 /* where each daemon finds the read end */
+#define S_LIFELINE_FD_TEXT "3"
+#define S_PREFIX "fitfarm-pool-"
 
 struct client_pool {
     char dir[256];
@@ -35,84 +58,23 @@ struct client_pool {
     char workers_ep[300];
     pid_t broker_pid;
     pid_t worker_pid;
+    int lifeline_w; /* write end, close-on-exec; -1 once closed */
+    int lock_fd;    /* flock on DIR/lock while we live; close-on-exec */
 };
 
-/* In a fresh child: die with the parent, detach from the caller's stdin and
- * stdout (a reader waiting for EOF on the CLI's stdout must not wait for us),
- * and undo signal state the caller may have set. Returns only if the parent
- * still lives. */
-static void s_child_setup(pid_t parent)
+static _Atomic(client_pool_t *) s_last; /* the test hook's pool */
+
+static int64_t s_now_ms(void)
 {
-    if (prctl(PR_SET_PDEATHSIG, SIGTERM) != 0)
-        _exit(1);
-    /* The parent may have died between fork and prctl: then nobody will send
-     * the death signal. */
-    if (getppid() != parent)
-        _exit(1);
-    sigset_t none;
-    sigemptyset(&none);
-    sigprocmask(SIG_SETMASK, &none, NULL);
-    signal(SIGPIPE, SIG_IGN);
-    int fd = open("/dev/null", O_RDWR);
-    if (fd >= 0) {
-        dup2(fd, STDIN_FILENO);
-        dup2(fd, STDOUT_FILENO);
-        if (fd > STDERR_FILENO)
-            close(fd);
-    }
-    /* The daemons log on stderr; in an embedded pool only problems matter,
-     * unless the user asked for more. */
-    if (!getenv("FITFARM_LOG"))
-        common_log_set_level(COMMON_LOG_WARN);
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (int64_t)ts.tv_sec * 1000 + ts.tv_nsec / 1000000;
 }
 
-static void s_run_broker(const client_pool_t *self, const char *store_dir)
+static void s_nap_ms(long ms)
 {
-    broker_config_t config;
-    memset(&config, 0, sizeof config);
-    config.clients_endpoint = self->clients_ep;
-    config.workers_endpoint = self->workers_ep;
-    /* A private store in the pool's temporary folder (removed with it) unless
-     * the caller named one to keep. */
-    char private_store[300];
-    if (!store_dir) {
-        snprintf(private_store, sizeof private_store, "%s/store", self->dir);
-        store_dir = private_store;
-        config.scratch_store = 1; /* removed with the folder: fsync buys nothing */
-    }
-    config.store_dir = store_dir;
-    config.insecure = 1; /* ipc:// in a private 0700 folder: no keys needed */
-    common_log_set_tag("pool broker");
-    _exit(broker_main_run(&config) == 0 ? 0 : 1);
-}
-
-static void s_run_worker(const client_pool_t *self, unsigned slots, const char *plugin_dir)
-{
-    worker_config_t config;
-    memset(&config, 0, sizeof config);
-    config.broker_endpoint = self->workers_ep;
-    config.insecure = 1;
-    config.slots = slots;
-    size_t n = 0;
-    if (plugin_dir)
-        config.plugin_dirs[n++] = plugin_dir;
-    const char *defaults[WORKER_MAX_PLUGIN_DIRS];
-    size_t nd = worker_default_plugin_dirs(defaults, WORKER_MAX_PLUGIN_DIRS);
-    /* A default folder that does not exist (nothing installed yet) is not
-     * worth a warning on every run of the CLI. */
-    struct stat st, extra;
-    int have_extra = plugin_dir && stat(plugin_dir, &extra) == 0;
-    for (size_t i = 0; i < nd && n + 1 < WORKER_MAX_PLUGIN_DIRS; i++) {
-        if (!defaults[i] || stat(defaults[i], &st) != 0 || !S_ISDIR(st.st_mode))
-            continue;
-        /* The caller's folder may be a default one too: load it once. */
-        if (have_extra && st.st_dev == extra.st_dev && st.st_ino == extra.st_ino)
-            continue;
-        config.plugin_dirs[n++] = defaults[i];
-    }
-    config.plugin_dirs[n] = NULL;
-    common_log_set_tag("pool worker");
-    _exit(worker_main_run(&config) == 0 ? 0 : 1);
+    struct timespec nap = {ms / 1000, (ms % 1000) * 1000000L};
+    nanosleep(&nap, NULL);
 }
 
 static void s_remove_dir(const char *dir)
@@ -123,8 +85,9 @@ static void s_remove_dir(const char *dir)
         while ((e = readdir(d)) != NULL) {
             if (strcmp(e->d_name, ".") == 0 || strcmp(e->d_name, "..") == 0)
                 continue;
-            char path[600];
-            snprintf(path, sizeof path, "%s/%s", dir, e->d_name);
+            char path[CLIENT_PATH_MAX];
+            if (snprintf(path, sizeof path, "%s/%s", dir, e->d_name) >= (int)sizeof path)
+                continue;
             struct stat st;
             if (lstat(path, &st) == 0 && S_ISDIR(st.st_mode))
                 s_remove_dir(path);
@@ -136,64 +99,375 @@ static void s_remove_dir(const char *dir)
     rmdir(dir);
 }
 
-static pid_t s_spawn(client_pool_t *self, int which, unsigned slots, const char *plugin_dir,
-                     const char *store_dir)
+/* Reads a small file whole: at most POOL_READY_FILE_MAX - 1 bytes, NUL-ended.
+ * Returns its length, or -1 when it is missing, unreadable or too long. */
+static long s_read_small(const char *path, char *buf)
 {
-    pid_t parent = getpid();
-    /* Flush so the child does not write the parent's buffered output twice. */
-    fflush(NULL);
-    pid_t pid = fork();
-    if (pid != 0)
-        return pid;
-    s_child_setup(parent);
-    if (which == 0)
-        s_run_broker(self, store_dir);
-    else
-        s_run_worker(self, slots, plugin_dir);
-    _exit(1);
+    int fd = open(path, O_RDONLY | O_CLOEXEC | O_NOFOLLOW);
+    if (fd < 0)
+        return -1;
+    long len = 0;
+    for (;;) {
+        ssize_t n = read(fd, buf + len, (size_t)(POOL_READY_FILE_MAX - 1 - len));
+        if (n < 0 && errno == EINTR)
+            continue;
+        if (n <= 0)
+            break;
+        len += n;
+        if (len == POOL_READY_FILE_MAX - 1) {
+            len = -1; /* longer than anything we write: not ours */
+            break;
+        }
+    }
+    close(fd);
+    if (len >= 0)
+        buf[len] = '\0';
+    return len;
 }
 
-int client_pool_new(unsigned slots, const char *plugin_dir, const char *store_dir,
-                    client_pool_t **out, char *err, size_t errlen)
+/* A pid from "name PID\n" at the start of text; 0 when it is not there. */
+static pid_t s_parse_pid(const char *text, const char *name)
+{
+    size_t nlen = strlen(name);
+    if (strncmp(text, name, nlen) != 0 || text[nlen] != ' ')
+        return 0;
+    char *end = NULL;
+    errno = 0;
+    long v = strtol(text + nlen + 1, &end, 10);
+    if (errno || !end || *end != '\n' || v <= 1 || v > INT_MAX)
+        return 0;
+    return (pid_t)v;
+}
+
+static int s_alive(pid_t pid)
+{
+    return pid > 0 && (kill(pid, 0) == 0 || errno == EPERM);
+}
+
+/* A folder left by a killed client: ours, 0700, its lock file old and not
+ * held (flock dies with the process that took it), and neither daemon it
+ * recorded still running (they stop within seconds of their lifeline
+ * closing). Any doubt keeps the folder. */
+static int s_is_stale(const char *dir)
+{
+    struct stat st;
+    if (lstat(dir, &st) != 0 || !S_ISDIR(st.st_mode) || st.st_uid != getuid() ||
+        (st.st_mode & 0777) != 0700)
+        return 0;
+    char path[CLIENT_PATH_MAX + 16];
+    snprintf(path, sizeof path, "%s/lock", dir);
+    int fd = open(path, O_RDONLY | O_CLOEXEC | O_NOFOLLOW);
+    if (fd < 0)
+        return 0;
+    int stale = 0;
+    struct stat lst;
+    if (fstat(fd, &lst) != 0 || !S_ISREG(lst.st_mode) ||
+        time(NULL) - lst.st_mtime < POOL_STALE_AGE_S || flock(fd, LOCK_EX | LOCK_NB) != 0)
+        goto cleanup;
+    char text[POOL_READY_FILE_MAX];
+    snprintf(path, sizeof path, "%s/pids", dir);
+    if (s_read_small(path, text) > 0) {
+        pid_t broker = s_parse_pid(text, "broker");
+        const char *nl = strchr(text, '\n');
+        pid_t worker = nl ? s_parse_pid(nl + 1, "worker") : 0;
+        if (s_alive(broker) || s_alive(worker))
+            goto cleanup;
+    }
+    stale = 1;
+cleanup:
+    close(fd); /* releases the lock we may have taken */
+    return stale;
+}
+
+static void s_remove_stale(const char *tmp)
+{
+    DIR *d = opendir(tmp);
+    if (!d)
+        return;
+    struct dirent *e;
+    /* Bounded: a crowded /tmp costs one scan, not a long walk per start. */
+    for (int seen = 0; (e = readdir(d)) != NULL && seen < 100000; seen++) {
+        if (strncmp(e->d_name, S_PREFIX, strlen(S_PREFIX)) != 0 || strlen(e->d_name) > 64)
+            continue;
+        char dir[CLIENT_PATH_MAX];
+        if (snprintf(dir, sizeof dir, "%s/%s", tmp, e->d_name) >= (int)sizeof dir)
+            continue;
+        if (s_is_stale(dir))
+            s_remove_dir(dir);
+    }
+    closedir(d);
+}
+
+/* The daemons' environment: ours, plus FITFARM_LOG=warn unless the user set a
+ * level (an embedded pool speaks only of problems). Caller frees the array
+ * (not the strings, which are borrowed from environ). */
+static char **s_child_env(void)
+{
+    size_t n = 0;
+    int has_log = 0;
+    for (char **e = environ; e && *e; e++, n++)
+        has_log |= strncmp(*e, "FITFARM_LOG=", 12) == 0;
+    char **env = calloc(n + 2, sizeof *env);
+    if (!env)
+        return NULL;
+    for (size_t i = 0; i < n; i++)
+        env[i] = environ[i];
+    if (!has_log)
+        env[n++] = "FITFARM_LOG=warn";
+    env[n] = NULL;
+    return env;
+}
+
+/* Spawns path with argv: stdin and stdout on /dev/null (a reader waiting for
+ * EOF on the host's stdout must not wait for us), stderr shared (the daemons'
+ * log), the lifeline on S_LIFELINE_FD, every other descriptor closed, default
+ * signal dispositions and an empty mask whatever the host set. */
+static int s_spawn(const client_pool_t *self, int lifeline_r, const char *path, char **argv,
+                   pid_t *pid, char *err, size_t errlen)
+{
+    int rc = FITFARM_ESYSTEM;
+    posix_spawn_file_actions_t fa;
+    posix_spawnattr_t attr;
+    char **env = s_child_env();
+    int have_fa = posix_spawn_file_actions_init(&fa) == 0;
+    int have_attr = posix_spawnattr_init(&attr) == 0;
+    if (!env || !have_fa || !have_attr) {
+        snprintf(err, errlen, "out of memory starting %s", path);
+        rc = FITFARM_ENOMEM;
+        goto cleanup;
+    }
+    sigset_t none, all;
+    sigemptyset(&none);
+    sigfillset(&all);
+    sigdelset(&all, SIGKILL);
+    sigdelset(&all, SIGSTOP);
+    int e = posix_spawn_file_actions_addopen(&fa, STDIN_FILENO, "/dev/null", O_RDONLY, 0);
+    if (!e)
+        e = posix_spawn_file_actions_addopen(&fa, STDOUT_FILENO, "/dev/null", O_WRONLY, 0);
+    if (!e)
+        e = posix_spawn_file_actions_adddup2(&fa, lifeline_r, S_LIFELINE_FD);
+    if (!e)
+        e = posix_spawn_file_actions_addclosefrom_np(&fa, S_LIFELINE_FD + 1);
+    if (!e)
+        e = posix_spawnattr_setsigmask(&attr, &none);
+    if (!e)
+        e = posix_spawnattr_setsigdefault(&attr, &all);
+    if (!e)
+        e = posix_spawnattr_setflags(&attr, POSIX_SPAWN_SETSIGMASK | POSIX_SPAWN_SETSIGDEF);
+    if (!e)
+        e = posix_spawn(pid, path, &fa, &attr, argv, env);
+    if (e) {
+        snprintf(err, errlen, "cannot start %s for the embedded pool in %s: %s", path,
+                 self->dir, strerror(e));
+        goto cleanup;
+    }
+    rc = FITFARM_OK;
+cleanup:
+    if (have_fa)
+        posix_spawn_file_actions_destroy(&fa);
+    if (have_attr)
+        posix_spawnattr_destroy(&attr);
+    free(env);
+    return rc;
+}
+
+static void s_describe_end(int status, const char *what, const char *when, char *err,
+                           size_t errlen)
+{
+    if (WIFEXITED(status))
+        snprintf(err, errlen, "the embedded %s exited with status %d%s (its log is on stderr; "
+                 "FITFARM_LOG=info shows more)", what, WEXITSTATUS(status), when);
+    else if (WIFSIGNALED(status))
+        snprintf(err, errlen, "the embedded %s was killed by signal %d%s", what,
+                 WTERMSIG(status), when);
+    else
+        snprintf(err, errlen, "the embedded %s ended%s", what, when);
+}
+
+/* Waits until path holds exactly want, bounded by deadline; fails early when
+ * the child that should write it ends. */
+static int s_wait_ready(pid_t *pid, const char *what, const char *path, const char *want,
+                        int64_t deadline, int timeout_ms, char *err, size_t errlen)
+{
+    char text[POOL_READY_FILE_MAX];
+    long nap = 1;
+    for (;;) {
+        long len = s_read_small(path, text);
+        if (len >= 0) {
+            if (strcmp(text, want) == 0)
+                return FITFARM_OK;
+            /* Renamed into place whole, so anything else is not our child's. */
+            snprintf(err, errlen, "the embedded %s's ready file %s does not say what it "
+                     "should (\"%.100s\")", what, path, text);
+            return FITFARM_ECONNECT;
+        }
+        int status = 0;
+        if (waitpid(*pid, &status, WNOHANG) == *pid) {
+            *pid = -1;
+            s_describe_end(status, what, " before it was ready", err, errlen);
+            return FITFARM_ECONNECT;
+        }
+        if (s_now_ms() >= deadline) {
+            snprintf(err, errlen, "the embedded %s was not ready within %d ms (no %s)", what,
+                     timeout_ms, path);
+            return FITFARM_ETIMEDOUT;
+        }
+        s_nap_ms(nap);
+        if (nap < 8) /* quick at first: a start takes tens of milliseconds */
+            nap *= 2;
+    }
+}
+
+static int s_write_pids(const client_pool_t *self)
+{
+    char path[CLIENT_PATH_MAX], tmp[CLIENT_PATH_MAX];
+    snprintf(path, sizeof path, "%s/pids", self->dir);
+    snprintf(tmp, sizeof tmp, "%s/pids.tmp", self->dir);
+    FILE *f = fopen(tmp, "we");
+    if (!f)
+        return -1;
+    int ok = fprintf(f, "broker %ld\nworker %ld\n", (long)self->broker_pid,
+                     (long)self->worker_pid) > 0;
+    ok &= fclose(f) == 0;
+    return ok && rename(tmp, path) == 0 ? 0 : -1;
+}
+
+int client_pool_new(const fitfarm_options_t *options, client_pool_t **out, char *err,
+                    size_t errlen)
 {
     int rc = FITFARM_OK;
+    int lifeline_r = -1;
     *out = NULL;
+    char broker_prog[CLIENT_PATH_MAX], worker_prog[CLIENT_PATH_MAX];
     client_pool_t *self = calloc(1, sizeof *self);
     if (!self) {
         snprintf(err, errlen, "out of memory starting the embedded pool");
         return FITFARM_ENOMEM;
     }
-    self->broker_pid = -1;
-    self->worker_pid = -1;
+    self->broker_pid = self->worker_pid = -1;
+    self->lifeline_w = self->lock_fd = -1;
+    int timeout_ms =
+        options->connect_timeout_ms > 0 ? options->connect_timeout_ms : POOL_DEFAULT_START_MS;
+    int64_t deadline = s_now_ms() + timeout_ms;
+
+    rc = client_programs_find(options->programs_dir, broker_prog, sizeof broker_prog,
+                              worker_prog, sizeof worker_prog, err, errlen);
+    if (rc != FITFARM_OK)
+        goto cleanup;
     const char *tmp = getenv("TMPDIR");
+    /* ipc:// paths are capped near 107 bytes by the socket address. */
     if (!tmp || !*tmp || strlen(tmp) > 80)
         tmp = "/tmp";
-    snprintf(self->dir, sizeof self->dir, "%s/fitfarm-pool-XXXXXX", tmp);
-    if (!mkdtemp(self->dir)) {
+    s_remove_stale(tmp);
+    snprintf(self->dir, sizeof self->dir, "%s/" S_PREFIX "XXXXXX", tmp);
+    if (!mkdtemp(self->dir)) { /* mode 0700 */
         snprintf(err, errlen, "cannot create the embedded pool's folder under %s: %s", tmp,
                  strerror(errno));
         self->dir[0] = '\0';
         rc = FITFARM_ESYSTEM;
         goto cleanup;
     }
+    char path[CLIENT_PATH_MAX];
+    snprintf(path, sizeof path, "%s/lock", self->dir);
+    self->lock_fd = open(path, O_RDWR | O_CREAT | O_EXCL | O_CLOEXEC | O_NOFOLLOW, 0600);
+    if (self->lock_fd < 0 || flock(self->lock_fd, LOCK_EX | LOCK_NB) != 0) {
+        snprintf(err, errlen, "cannot lock the embedded pool's folder %s: %s", self->dir,
+                 strerror(errno));
+        rc = FITFARM_ESYSTEM;
+        goto cleanup;
+    }
+    int fds[2];
+    if (pipe2(fds, O_CLOEXEC) != 0) {
+        snprintf(err, errlen, "cannot make the embedded pool's lifeline: %s", strerror(errno));
+        rc = FITFARM_ESYSTEM;
+        goto cleanup;
+    }
+    self->lifeline_w = fds[1];
+    /* Above the fixed child descriptor, so dup2 in the child really copies
+     * it (and drops close-on-exec on the copy). */
+    lifeline_r = fcntl(fds[0], F_DUPFD_CLOEXEC, S_LIFELINE_FD + 1);
+    close(fds[0]);
+    if (lifeline_r < 0) {
+        snprintf(err, errlen, "cannot make the embedded pool's lifeline: %s", strerror(errno));
+        rc = FITFARM_ESYSTEM;
+        goto cleanup;
+    }
     snprintf(self->clients_ep, sizeof self->clients_ep, "ipc://%s/clients", self->dir);
     snprintf(self->workers_ep, sizeof self->workers_ep, "ipc://%s/workers", self->dir);
 
-    self->broker_pid = s_spawn(self, 0, slots, plugin_dir, store_dir);
-    if (self->broker_pid < 0) {
-        snprintf(err, errlen, "cannot fork the embedded broker: %s", strerror(errno));
+    /* The broker first, and the worker only once it listens: a worker that
+     * connected to a missing ipc path would retry only after ZeroMQ's
+     * reconnect interval. */
+    char store[CLIENT_PATH_MAX], endpoints[CLIENT_PATH_MAX], ready[CLIENT_PATH_MAX], want[POOL_READY_FILE_MAX];
+    snprintf(store, sizeof store, "%s/store", self->dir);
+    snprintf(endpoints, sizeof endpoints, "%s/endpoints", self->dir);
+    snprintf(ready, sizeof ready, "%s/worker.ready", self->dir);
+    char *bargv[] = {broker_prog, "--clients", self->clients_ep, "--workers", self->workers_ep,
+                     "--store", options->store_dir ? (char *)options->store_dir : store,
+                     "--insecure", "--endpoints-file", endpoints,
+                     "--lifeline-fd", S_LIFELINE_FD_TEXT,
+                     /* The private store goes with the folder: fsync buys nothing. */
+                     options->store_dir ? NULL : "--scratch-store", NULL};
+    rc = s_spawn(self, lifeline_r, broker_prog, bargv, &self->broker_pid, err, errlen);
+    if (rc != FITFARM_OK)
+        goto cleanup;
+    snprintf(want, sizeof want, "clients %s\nworkers %s\n", self->clients_ep, self->workers_ep);
+    rc = s_wait_ready(&self->broker_pid, "broker", endpoints, want, deadline, timeout_ms, err,
+                      errlen);
+    if (rc != FITFARM_OK)
+        goto cleanup;
+
+    char *wargv[POOL_MAX_ARGS];
+    char slots[16];
+    size_t n = 0;
+    wargv[n++] = worker_prog;
+    wargv[n++] = "--broker";
+    wargv[n++] = self->workers_ep;
+    wargv[n++] = "--insecure";
+    wargv[n++] = "--ready-file";
+    wargv[n++] = ready;
+    wargv[n++] = "--lifeline-fd";
+    wargv[n++] = S_LIFELINE_FD_TEXT;
+    if (options->slots) {
+        snprintf(slots, sizeof slots, "%u", options->slots);
+        wargv[n++] = "--slots";
+        wargv[n++] = slots;
+    }
+    if (options->plugin_dir) {
+        wargv[n++] = "--plugin-dir";
+        wargv[n++] = (char *)options->plugin_dir;
+        wargv[n++] = "--with-default-plugins";
+    }
+    for (size_t i = 0; options->exec_plugins && options->exec_plugins[i]; i++) {
+        if (n + 3 > POOL_MAX_ARGS) {
+            snprintf(err, errlen, "too many exec plugins for the embedded pool (at most %d)",
+                     (POOL_MAX_ARGS - 16) / 2);
+            rc = FITFARM_EINVAL;
+            goto cleanup;
+        }
+        wargv[n++] = "--exec";
+        wargv[n++] = (char *)options->exec_plugins[i];
+    }
+    wargv[n] = NULL;
+    rc = s_spawn(self, lifeline_r, worker_prog, wargv, &self->worker_pid, err, errlen);
+    if (rc != FITFARM_OK)
+        goto cleanup;
+    if (s_write_pids(self) != 0) {
+        snprintf(err, errlen, "cannot write %s/pids: %s", self->dir, strerror(errno));
         rc = FITFARM_ESYSTEM;
         goto cleanup;
     }
-    self->worker_pid = s_spawn(self, 1, slots, plugin_dir, store_dir);
-    if (self->worker_pid < 0) {
-        snprintf(err, errlen, "cannot fork the embedded worker: %s", strerror(errno));
-        rc = FITFARM_ESYSTEM;
+    snprintf(want, sizeof want, "ready %ld\n", (long)self->worker_pid);
+    rc = s_wait_ready(&self->worker_pid, "worker", ready, want, deadline, timeout_ms, err,
+                      errlen);
+    if (rc != FITFARM_OK)
         goto cleanup;
-    }
+    atomic_store(&s_last, self);
     *out = self;
     self = NULL;
 cleanup:
+    if (lifeline_r >= 0)
+        close(lifeline_r); /* the daemons hold their copies */
     client_pool_destroy(&self);
     return rc;
 }
@@ -212,13 +486,7 @@ static int s_check_one(pid_t *pid, const char *what, char *err, size_t errlen)
     if (r != *pid)
         return 0;
     *pid = -1;
-    if (WIFEXITED(status))
-        snprintf(err, errlen, "the embedded %s exited with status %d (its log is on stderr)",
-                 what, WEXITSTATUS(status));
-    else if (WIFSIGNALED(status))
-        snprintf(err, errlen, "the embedded %s was killed by signal %d", what, WTERMSIG(status));
-    else
-        snprintf(err, errlen, "the embedded %s ended", what);
+    s_describe_end(status, what, "", err, errlen);
     return FITFARM_ECONNECT;
 }
 
@@ -230,14 +498,8 @@ int client_pool_check(client_pool_t *self, char *err, size_t errlen)
     return rc;
 }
 
-static int64_t s_now_ms(void)
-{
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return (int64_t)ts.tv_sec * 1000 + ts.tv_nsec / 1000000;
-}
-
-/* Reaps pid if it ended; returns 1 when it is gone. */
+/* Reaps pid if it ended; returns 1 when it is gone. A host that reaps every
+ * child itself (waitpid(-1) in its SIGCHLD handler) gives ECHILD: gone too. */
 static int s_reaped(pid_t *pid)
 {
     if (*pid <= 0)
@@ -256,12 +518,16 @@ void client_pool_destroy(client_pool_t **self_p)
     if (!self_p || !*self_p)
         return;
     client_pool_t *self = *self_p;
-    /* The worker first: it says BYE to a broker that is still there. */
+    client_pool_t *expected = self;
+    atomic_compare_exchange_strong(&s_last, &expected, NULL);
+    /* SIGTERM: the worker drains (says BYE to a broker still there), the
+     * broker commits and closes its store. */
     if (self->worker_pid > 0)
         kill(self->worker_pid, SIGTERM);
     if (self->broker_pid > 0)
         kill(self->broker_pid, SIGTERM);
     int64_t deadline = s_now_ms() + POOL_STOP_MS;
+    long nap = 1;
     while (!(s_reaped(&self->worker_pid) & s_reaped(&self->broker_pid))) {
         if (s_now_ms() >= deadline) {
             if (self->worker_pid > 0)
@@ -275,11 +541,16 @@ void client_pool_destroy(client_pool_t **self_p)
             self->worker_pid = self->broker_pid = -1;
             break;
         }
-        struct timespec nap = {0, 10 * 1000 * 1000};
-        nanosleep(&nap, NULL);
+        s_nap_ms(nap);
+        if (nap < 10)
+            nap *= 2;
     }
+    if (self->lifeline_w >= 0)
+        close(self->lifeline_w);
     if (self->dir[0])
         s_remove_dir(self->dir);
+    if (self->lock_fd >= 0)
+        close(self->lock_fd);
     free(self);
     *self_p = NULL;
 }
@@ -292,4 +563,9 @@ void client_pool_pids(const client_pool_t *self, pid_t *broker, pid_t *worker, c
         *worker = self ? self->worker_pid : -1;
     if (dir)
         *dir = self ? self->dir : NULL;
+}
+
+void client_pool_test_last(pid_t *broker, pid_t *worker, const char **dir)
+{
+    client_pool_pids(atomic_load(&s_last), broker, worker, dir);
 }

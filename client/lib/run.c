@@ -26,7 +26,6 @@
 #include "common/clock.h"
 #include "internal.h"
 #include "key.h"
-#include "status.h"
 
 #define CLIENT_RETRY_EVERY_MS 1000   /* re-send refused re-sends this often ... */
 #define CLIENT_RETRY_FOR_MS 60000    /* ... for this long (workers re-register) */

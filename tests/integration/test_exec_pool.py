@@ -14,11 +14,15 @@ Checks, each against an outside reference or a user-visible status:
     signal, the worker stays up, and the next batch is all "ok";
   - a hanging program is ended by the per-evaluation time-out (the worker's
     --timeout), and its co-process dies with the killed worker child
-    (PR_SET_PDEATHSIG).
+    (PR_SET_PDEATHSIG);
+  - on one machine without a pool: `fitfarm eval --exec` (the embedded pool)
+    and `fitfarm sim --exec` give the same closed-form uniform beams, and
+    --exec with --broker is refused.
 """
 import json
 import os
 import signal
+import subprocess
 import sys
 import threading
 import time
@@ -219,4 +223,25 @@ with fflib.Pool() as pool:
     rc, out, err = fflib.run_eval(ep + ["--plugin", "fault", "--run", "exec-8"],
                                   fflib.jsonl([[0, 0.125]]), timeout=60)
     check.ok(rc == 0 and out[0]["fitness"][0] == 0.125, f"fault plugin after the time-out: {out}")
+
+# No pool at all: the embedded pool's worker takes --exec, and so does sim.
+CMD = f"cantilever={PYTHON} {CANTILEVER}"
+beams = [[0.0], [0.5, 0.5], [1.0, 1.0, 1.0]]
+rc, out, err = fflib.run_eval(["--plugin", "cantilever", "--exec", CMD, "--slots", "1"],
+                              fflib.jsonl(beams), timeout=120)
+check.ok(rc == 0 and len(out) == len(beams), f"embedded --exec: exit {rc}, {err[-800:]}")
+for r in out:
+    h = HMIN + beams[r["id"]][0] * (HMAX - HMIN)
+    want = P * L ** 3 / (3 * E * B * h ** 3 / 12.0)  # Gere & Goodno, cantilever table
+    check.ok(r["status"] == "ok" and close(r["fitness"][0], want),
+             f"embedded --exec uniform {beams[r['id']]}: {r} vs P L^3/(3EI) = {want}")
+sim = subprocess.run([fflib.exe("fitfarm"), "sim", "--exec", CMD, "--genome", "[0.5, 0.5]"],
+                     capture_output=True, text=True, timeout=60)
+h = HMIN + 0.5 * (HMAX - HMIN)
+want = P * L ** 3 / (3 * E * B * h ** 3 / 12.0)
+simf = json.loads(sim.stdout)["fitness"] if sim.returncode == 0 else [None]
+check.ok(sim.returncode == 0 and close(simf[0], want), f"sim --exec: {sim.stdout} {sim.stderr} vs {want}")
+rc, out, err = fflib.run_eval(["--plugin", "cantilever", "--exec", CMD, "--broker", "tcp://127.0.0.1:9"],
+                              "", timeout=30)
+check.ok(rc == 2 and "--exec is for the embedded pool" in err, f"--exec with --broker: {rc} {err}")
 check.done(pool)

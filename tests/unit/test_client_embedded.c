@@ -1,8 +1,11 @@
-/* test_client_embedded.c: libfitfarm with the embedded local pool (a broker
- * and a worker forked from this process) and the bundled zdt1 plugin from
- * $FITFARM_BUILD_DIR/plugins: blocking evaluation checked against the ZDT1
- * formula, streaming submit/poll, an unknown plugin, and nothing left
- * running after fitfarm_client_destroy.
+/* test_client_embedded.c: libfitfarm with the embedded local pool (the
+ * fitfarm-broker and fitfarm-worker programs spawned by this process) and the
+ * bundled zdt1 plugin from $FITFARM_BUILD_DIR/plugins: blocking evaluation
+ * checked against the ZDT1 formula, streaming submit/poll, an unknown plugin,
+ * the children being those programs (not forks of this test), nothing left
+ * running after fitfarm_client_destroy, a pool started by a thread that then
+ * exits still working, and the default plugin folders found with no
+ * plugin_dir.
  *
  * Outside reference: ZDT1 as defined by Zitzler, Deb and Thiele, "Comparison
  * of Multiobjective Evolutionary Algorithms: Empirical Results", Evolutionary
@@ -21,10 +24,13 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <pthread.h>
 #include <sys/wait.h>
+#include <time.h>
+#include <unistd.h>
 
 #include "client/include/fitfarm.h"
-#include "client/lib/status.h"
+#include "client/lib/pool.h"
 
 #define N_VARS 30
 
@@ -191,6 +197,19 @@ static void s_assert_gone(pid_t pid, const char *what)
     assert_int_equal(errno, ECHILD);
 }
 
+/* The child runs the named program (spawned), not a copy of this test. */
+static void s_assert_program(pid_t pid, const char *name)
+{
+    char link[64], exe[4096];
+    snprintf(link, sizeof link, "/proc/%d/exe", (int)pid);
+    ssize_t n = readlink(link, exe, sizeof exe - 1);
+    assert_true(n > 0);
+    exe[n] = '\0';
+    const char *base = strrchr(exe, '/');
+    if (!base || strcmp(base + 1, name) != 0)
+        fail_msg("pid %d runs %s, not %s", (int)pid, exe, name);
+}
+
 static void test_destroy_leaves_nothing(void **state)
 {
     (void)state;
@@ -198,8 +217,10 @@ static void test_destroy_leaves_nothing(void **state)
     fitfarm_client_t *client = s_pool(1, err, sizeof err);
     pid_t broker = -1, worker = -1;
     const char *dir = NULL;
-    client_test_pool_pids(client, &broker, &worker, &dir);
+    client_pool_test_last(&broker, &worker, &dir);
     assert_true(broker > 0 && worker > 0 && broker != worker);
+    s_assert_program(broker, "fitfarm-broker");
+    s_assert_program(worker, "fitfarm-worker");
     assert_int_equal(kill(broker, 0), 0);
     assert_int_equal(kill(worker, 0), 0);
     char dir_copy[512];
@@ -213,6 +234,76 @@ static void test_destroy_leaves_nothing(void **state)
     assert_int_equal(stat(dir_copy, &st), -1); /* the private folder is removed */
 }
 
+/* One ZDT1 genome of 30 halves, checked against the formula. */
+static void s_evaluate_one(fitfarm_client_t *client)
+{
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
+    fitfarm_run_t *run = NULL;
+    assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
+    fitfarm_batch_t *batch = NULL;
+    assert_int_equal(fitfarm_batch_new("zdt1", NULL, 1, &batch), 0);
+    double x[N_VARS];
+    for (int k = 0; k < N_VARS; k++)
+        x[k] = 0.5;
+    fitfarm_batch_add_f64(batch, x, N_VARS);
+    if (fitfarm_evaluate(run, batch, NULL, NULL, 30000) != 0)
+        fail_msg("evaluate: %s", fitfarm_client_error(client));
+    fitfarm_result_t res = FITFARM_RESULT_INIT;
+    assert_int_equal(fitfarm_batch_result(batch, 0, 0, &res), 0);
+    assert_int_equal(res.status, FITFARM_STATUS_OK);
+    double want[2];
+    s_zdt1(x, want);
+    s_close(res.fitness[0], want[0], "f1", 0);
+    s_close(res.fitness[1], want[1], "f2", 0);
+    fitfarm_batch_destroy(&batch);
+    fitfarm_run_destroy(&run);
+}
+
+static void *s_start_in_thread(void *arg)
+{
+    char err[1200];
+    *(fitfarm_client_t **)arg = s_pool(1, err, sizeof err);
+    return NULL;
+}
+
+/* A host thread starts the pool and ends (a Python thread pool does that).
+ * A death signal tied to the starting thread (PR_SET_PDEATHSIG) would stop
+ * the daemons here; the lifeline pipe belongs to the process. */
+static void test_pool_outlives_its_thread(void **state)
+{
+    (void)state;
+    fitfarm_client_t *client = NULL;
+    pthread_t t;
+    assert_int_equal(pthread_create(&t, NULL, s_start_in_thread, &client), 0);
+    assert_int_equal(pthread_join(t, NULL), 0);
+    assert_non_null(client);
+    struct timespec pause = {0, 500 * 1000 * 1000}; /* time for a signal to land */
+    nanosleep(&pause, NULL);
+    pid_t broker = -1, worker = -1;
+    client_pool_test_last(&broker, &worker, NULL);
+    assert_int_equal(kill(broker, 0), 0);
+    assert_int_equal(kill(worker, 0), 0);
+    assert_int_equal(waitpid(broker, NULL, WNOHANG), 0); /* not exited */
+    assert_int_equal(waitpid(worker, NULL, WNOHANG), 0);
+    s_evaluate_one(client);
+    fitfarm_client_destroy(&client);
+}
+
+/* No plugin_dir: the worker program finds the build tree's plugins itself. */
+static void test_default_plugins(void **state)
+{
+    (void)state;
+    fitfarm_options_t opts = FITFARM_OPTIONS_INIT;
+    opts.slots = 1;
+    opts.connect_timeout_ms = 20000;
+    fitfarm_client_t *client = NULL;
+    char err[1200];
+    if (fitfarm_client_new(&opts, &client, err, sizeof err) != 0)
+        fail_msg("embedded pool without plugin_dir: %s", err);
+    s_evaluate_one(client);
+    fitfarm_client_destroy(&client);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -222,6 +313,8 @@ int main(void)
     };
     const struct CMUnitTest alone[] = {
         cmocka_unit_test(test_destroy_leaves_nothing),
+        cmocka_unit_test(test_pool_outlives_its_thread),
+        cmocka_unit_test(test_default_plugins),
     };
     int failed = cmocka_run_group_tests(tests, s_setup, s_teardown);
     return failed + cmocka_run_group_tests(alone, NULL, NULL);

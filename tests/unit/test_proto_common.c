@@ -1,7 +1,8 @@
 /* test_proto_common.c: the small shared helpers under proto/common/: the log
- * line format and level, the aborting allocators, the clocks. The outside
- * references: ISO 8601 / RFC 3339 for the timestamp (checked against the C
- * library's own gmtime_r/strftime of time()), and POSIX's SIGABRT for abort. */
+ * line format and level, the aborting allocators, the clocks, the lifeline
+ * pipe. The outside references: ISO 8601 / RFC 3339 for the timestamp (checked against the C
+ * library's own gmtime_r/strftime of time()), POSIX's SIGABRT for abort, and
+ * POSIX read() returning 0 at end of file on a pipe with no writer. */
 #include <setjmp.h>
 #include <signal.h>
 #include <stdarg.h>
@@ -9,6 +10,7 @@
 #include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
+#include <fcntl.h>
 #include <string.h>
 #include <sys/wait.h>
 #include <time.h>
@@ -18,6 +20,7 @@
 
 #include "proto/common/alloc.h"
 #include "proto/common/clock.h"
+#include "proto/common/lifeline.h"
 #include "proto/common/log.h"
 
 /* Runs fn in a child with stderr sent to a file; returns what it wrote (caller
@@ -163,6 +166,33 @@ static void test_clocks(void **state)
     assert_true(wall / 1000 >= (int64_t)now - 1 && wall / 1000 <= (int64_t)now + 1);
 }
 
+/* The lifeline: live while its write end is open anywhere, gone (end of
+ * file, as POSIX pipes report) once the last write end closes; bad values of
+ * --lifeline-fd refused. */
+static void test_lifeline(void **state)
+{
+    (void)state;
+    char err[128];
+    assert_int_equal(common_lifeline_open("2", err, sizeof err), -1); /* stdio */
+    assert_int_equal(common_lifeline_open("3x", err, sizeof err), -1);
+    assert_int_equal(common_lifeline_open("1024", err, sizeof err), -1);
+    int fds[2];
+    assert_int_equal(pipe(fds), 0);
+    int r = fcntl(fds[0], F_DUPFD, 10);
+    close(fds[0]);
+    char text[16];
+    snprintf(text, sizeof text, "%d", r);
+    assert_int_equal(common_lifeline_open(text, err, sizeof err), r);
+    assert_int_equal(common_lifeline_gone(r), 0); /* never blocks */
+    assert_int_equal(write(fds[1], "x", 1), 1);   /* stray bytes are not a death */
+    assert_int_equal(common_lifeline_gone(r), 0);
+    close(fds[1]);
+    assert_int_equal(common_lifeline_gone(r), 1);
+    close(r);
+    snprintf(text, sizeof text, "%d", r); /* now closed */
+    assert_int_equal(common_lifeline_open(text, err, sizeof err), -1);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -171,6 +201,7 @@ int main(void)
         cmocka_unit_test(test_alloc_overflow_aborts),
         cmocka_unit_test(test_alloc_works),
         cmocka_unit_test(test_clocks),
+        cmocka_unit_test(test_lifeline),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

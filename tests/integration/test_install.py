@@ -1,0 +1,70 @@
+"""An installed fitfarm works on its own: `cmake --install` of this build
+into a temporary prefix, README's C example (client/examples/readme_example.c)
+compiled with `cc $(pkg-config --cflags --libs fitfarm)` against that prefix,
+and run with only LD_LIBRARY_PATH (and PATH) set, from a folder outside the
+build tree. The library must find the installed fitfarm-broker and
+fitfarm-worker beside itself, and the worker its installed plugins, with no
+option or variable naming them.
+
+Outside reference: ZDT1 as defined by Zitzler, Deb and Thiele, "Comparison of
+Multiobjective Evolutionary Algorithms: Empirical Results", Evolutionary
+Computation 8(2), 2000: n = 30, f1 = x1, g = 1 + 9 * sum(x2..xn) / (n - 1),
+f2 = g * (1 - sqrt(f1 / g)), computed here for the example's genomes."""
+import glob
+import math
+import os
+import shutil
+import subprocess
+import tempfile
+
+import fflib
+
+check = fflib.Check("test_install")
+tmp = tempfile.mkdtemp(prefix="ff-install-")
+prefix = os.path.join(tmp, "prefix")
+cmake = shutil.which("cmake") or "/usr/bin/cmake"
+r = subprocess.run([cmake, "--install", fflib.BUILD, "--prefix", prefix],
+                   capture_output=True, text=True, timeout=300)
+check.ok(r.returncode == 0, f"cmake --install: {r.stdout[-1000:]} {r.stderr[-1000:]}")
+
+libs = glob.glob(os.path.join(prefix, "lib*", "**", "libfitfarm.so"), recursive=True)
+check.ok(len(libs) == 1, f"one libfitfarm.so under the prefix: {libs}")
+libdir = os.path.dirname(libs[0]) if libs else os.path.join(prefix, "lib")
+for prog in ("fitfarm", "fitfarm-broker", "fitfarm-worker"):
+    check.ok(os.access(os.path.join(prefix, "bin", prog), os.X_OK), f"{prog} installed in bin/")
+plugins = glob.glob(os.path.join(libdir, "fitfarm", "plugins", "zdt1.so"))
+check.ok(len(plugins) == 1, f"zdt1.so installed under {libdir}/fitfarm/plugins")
+
+env = dict(os.environ, PKG_CONFIG_PATH=os.path.join(libdir, "pkgconfig"))
+pc = subprocess.run(["pkg-config", "--cflags", "--libs", "fitfarm"], capture_output=True, text=True, env=env)
+check.ok(pc.returncode == 0 and prefix in os.path.realpath(libdir) and "-lfitfarm" in pc.stdout,
+         f"pkg-config fitfarm: {pc.stdout} {pc.stderr}")
+flags = pc.stdout.split()
+header = open(glob.glob(os.path.join(prefix, "include", "fitfarm.h"))[0]).read()
+check.ok("FITFARM_OPTIONS_INIT" in header, "the installed header is the one the example is written for")
+exe = os.path.join(tmp, "readme_example")
+src = os.path.join(fflib.SOURCE, "client", "examples", "readme_example.c")
+cc = subprocess.run(["cc", "-std=c11", "-Wall", "-Wextra", "-Werror", src, "-o", exe] + flags + ["-lm"],
+                    capture_output=True, text=True, env=env, timeout=120)
+check.ok(cc.returncode == 0, f"cc readme_example.c: {cc.stderr[-2000:]}")
+
+if cc.returncode == 0:
+    run_env = {"LD_LIBRARY_PATH": libdir, "PATH": "/usr/bin:/bin"}
+    r = subprocess.run([exe], capture_output=True, text=True, env=run_env, cwd=tmp, timeout=120)
+    check.ok(r.returncode == 0, f"readme_example exit {r.returncode}: {r.stderr[-2000:]}")
+    lines = r.stdout.splitlines()
+    check.ok(len(lines) == 100, f"100 lines, got {len(lines)}")
+    bad = 0
+    for line in lines:
+        i, f1, f2 = line.split()
+        i = int(i)
+        x = [i / 99.0] + [0.5 if i % 2 else 0.0] * 29
+        g = 1.0 + 9.0 * sum(x[1:]) / 29.0
+        want = (x[0], g * (1.0 - math.sqrt(x[0] / g)))
+        if not (abs(float(f1) - want[0]) <= 1e-12 * (1 + abs(want[0])) and
+                abs(float(f2) - want[1]) <= 1e-12 * (1 + abs(want[1]))):
+            bad += 1
+            print(f"genome {i}: {f1} {f2}, ZDT1 gives {want}")
+    check.ok(bad == 0 and lines, f"{bad} of {len(lines)} lines differ from the ZDT1 formula")
+shutil.rmtree(tmp, ignore_errors=True)
+check.done()
