@@ -57,4 +57,4 @@ def test_submit_failure_reaches_the_future(pool):
     fut = pool.submit(f, [1.0, 2.0])  # wrong length: status invalid
     with pytest.raises(fitfarm.EvaluationError) as e:
         fut.result(timeout=60)
-    assert e.value.status == "invalid" and "expected 3" in e.value.error
+    assert e.value.status == "invalid" and "expect 3" in e.value.error

@@ -19,12 +19,12 @@ pool = fitfarm.Pool(slots=1)
 f = pool.function("spin", params={"ms": 120000}, objective=0)
 print("ready", flush=True)
 if mode == "with":
-    try:
-        with pool:
+    with pool:
+        try:
             f([1.0])
-    except KeyboardInterrupt:
-        print("interrupted", flush=True)
-        sys.exit(3)
+        except KeyboardInterrupt:
+            print("interrupted", flush=True)
+            raise SystemExit(3)  # leaving the with-block destroys the client
 else:
     f([1.0])   # uncaught: atexit destroys the client
 '''
@@ -42,10 +42,17 @@ def test_sigint_ends_cleanly_and_stops_the_pool(tmp_path, mode):
     assert kids, "the embedded pool started no process"
     t0 = time.time()
     p.send_signal(signal.SIGINT)
-    out, err = p.communicate(timeout=20)
-    assert time.time() - t0 < 5, "Ctrl-C took more than 5 s"
     if mode == "with":
-        assert p.returncode == 3 and "interrupted" in out, (p.returncode, out, err)
+        # The wait is sliced (100 ms): the KeyboardInterrupt comes at once.
+        assert p.stdout.readline().strip() == "interrupted"
+        assert time.time() - t0 < 1.0, "KeyboardInterrupt took more than 1 s"
+    out, err = p.communicate(timeout=30)
+    # Destroying the client stops the pool; libfitfarm gives a worker that is
+    # still evaluating up to 5 s (POOL_STOP_MS in client/lib/pool.c) to drain
+    # before it kills it, so the whole exit may take that long.
+    assert time.time() - t0 < 8, "Ctrl-C took more than 8 s to end the process"
+    if mode == "with":
+        assert p.returncode == 3, (p.returncode, out, err)
     else:
         assert "KeyboardInterrupt" in err and p.returncode != 0, (p.returncode, err)
     deadline = time.time() + 5
