@@ -78,6 +78,32 @@ def bench_map(pool, pop, repeats, rnd):
     return median_ms(fresh), median_ms(cached), median_ms(local)
 
 
+def bench_c_floor(pool, pop, repeats, rnd):
+    """The same generation through libfitfarm's own blocking fitfarm_evaluate
+    (one C call; batch built beforehand): what the library and the pool cost
+    without any Python in the loop."""
+    import ctypes
+    from fitfarm import _lib as L
+    ev = L.lib.fitfarm_evaluate
+    ev.restype = ctypes.c_int
+    ev.argtypes = [ctypes.c_void_p] * 4 + [ctypes.c_int]
+    run = pool.run(seed=rnd.getrandbits(32))
+    out = []
+    for _ in range(repeats + 1):
+        bh = ctypes.c_void_p()
+        L.batch_new(b"sphere", None, 1, ctypes.byref(bh))
+        for _ in range(pop):
+            L.batch_add_f64(bh, (ctypes.c_double * DIM)(*[rnd.uniform(-1, 1) for _ in range(DIM)]), DIM)
+        with pool._lock:
+            t0 = time.perf_counter()
+            rc = ev(run._h, bh, None, None, -1)
+            out.append(time.perf_counter() - t0)
+        L.batch_destroy(ctypes.byref(bh))
+        assert rc == 0, rc
+    run.close()
+    return median_ms(out[1:])
+
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--repeats", type=int, default=30)
@@ -95,21 +121,26 @@ def main():
     rows = []
     with fitfarm.Pool(slots=a.slots) as pool:
         for pop in (20, 150):
-            rows.append(("embedded", pop) + bench_map(pool, pop, a.repeats, rnd))
+            rows.append(("embedded", pop) + bench_map(pool, pop, a.repeats, rnd)
+                        + (bench_c_floor(pool, pop, a.repeats, rnd),))
     with fflib.Pool() as procs:
         procs.start_broker()
         procs.start_worker(slots=a.slots)
         procs.wait_workers(1)
         with fitfarm.Pool(broker=procs.clients_ep, insecure=True) as pool:
             for pop in (20, 150):
-                rows.append(("broker+1 worker", pop) + bench_map(pool, pop, a.repeats, rnd))
+                rows.append(("broker+1 worker", pop) + bench_map(pool, pop, a.repeats, rnd)
+                            + (bench_c_floor(pool, pop, a.repeats, rnd),))
     print()
     print(f"{'pool':<16} {'pop':>4} {'map fresh ms':>13} {'map cached ms':>14} "
-          f"{'in-process ms':>14} {'fresh/in-proc':>14} {'overhead ms':>12}")
-    for name, pop, fr, ca, lo in rows:
+          f"{'in-process ms':>14} {'fresh/in-proc':>14} {'overhead ms':>12} {'C evaluate ms':>14} "
+          f"{'Python share ms':>16}")
+    for name, pop, fr, ca, lo, c in rows:
         print(f"{name:<16} {pop:>4} {fr:>13.3f} {ca:>14.3f} {lo:>14.3f} {fr / lo:>14.1f} "
-              f"{fr - lo:>12.3f}")
-    print("\noverhead = map fresh - in-process (target for 150 trivial genomes, embedded: < 2 ms)")
+              f"{fr - lo:>12.3f} {c:>14.3f} {fr - c:>16.3f}")
+    print("\noverhead = map fresh - in-process (target for 150 trivial genomes, embedded: < 2 ms);"
+          "\nC evaluate = the same fresh generation through fitfarm_evaluate alone (no Python in"
+          " the loop);\nPython share = map fresh - C evaluate")
 
 
 if __name__ == "__main__":

@@ -39,6 +39,7 @@ except ImportError:  # pragma: no cover
 
 WAIT_SLICE_S = 0.1  # longest wait between two looks at Ctrl-C and shutdown
 FOLLOWER_SLICE_S = 0.02  # a follower re-checks whether the leader left this often
+SYNC_ACCEPT = False  # map: hand the batch to the socket; a refusal arrives with the results
 
 STATUS_NAMES = ("ok", "invalid", "failed", "crashed", "timeout")
 _SEED_MODES = {"genome": 0, "common": 1}
@@ -53,17 +54,23 @@ class Result:
     simulating; seed: the evaluation seed (int); key: the content key (hex);
     error: the worker's sentence ("" when none)."""
 
-    __slots__ = ("index", "replicate", "status_code", "fitness", "cached", "seed", "key", "error")
+    __slots__ = ("index", "replicate", "status_code", "fitness", "cached", "seed", "key_bytes",
+                 "error")
 
-    def __init__(self, index, replicate, status_code, fitness, cached, seed, key, error):
+    def __init__(self, index, replicate, status_code, fitness, cached, seed, key_bytes, error):
         self.index = index
         self.replicate = replicate
         self.status_code = status_code
         self.fitness = fitness
         self.cached = cached
         self.seed = seed
-        self.key = key
+        self.key_bytes = key_bytes
         self.error = error
+
+    @property
+    def key(self):
+        """The content key, BLAKE2b-256, as 64 hex digits."""
+        return self.key_bytes.hex()
 
     @property
     def status(self):
@@ -259,12 +266,13 @@ class Run:
             fit = _np.ctypeslib.as_array(r.fitness, shape=(nf,)).copy() if nf else _np.empty(0)
         else:
             fit = tuple(r.fitness[:nf]) if nf else ()
-        res = Result(r.index, r.replicate, r.status, fit, bool(r.cached), int(r.seed),
-                     bytes(r.key).hex(), L.text(r.error))
+        err = r.error
+        res = Result(r.index, r.replicate, r.status, fit, bool(r.cached), r.seed, bytes(r.key),
+                     err.decode("utf-8", "replace") if err else "")
         st.results[k] = res
-        if st.on_result is not None:
+        if st.on_result is not None:  # a stream: wake its reader
             st.on_result(res)
-        st.progress.set()
+            st.progress.set()
         if len(st.results) == st.total:
             self._finish(st, None)
 
@@ -362,6 +370,14 @@ class Run:
 def _add_genomes(bh, genomes):
     """Adds every genome to the batch; returns how many."""
     n = 0
+    if (_np is not None and isinstance(genomes, (list, tuple)) and genomes
+            and not isinstance(genomes[0], (bytes, bytearray, memoryview))):
+        try:  # equal-length float genomes: one conversion, then the array path
+            arr = _np.asarray(genomes, dtype=_np.float64)
+            if arr.ndim == 2:
+                genomes = arr
+        except (ValueError, TypeError):
+            pass
     if _np is not None and isinstance(genomes, _np.ndarray):
         arr = _np.ascontiguousarray(genomes, dtype=_np.float64)
         if arr.ndim == 1:
@@ -451,7 +467,8 @@ class Function:
             genomes = xs
         else:
             genomes = [x for x in xs]
-        st = self.run._submit(self.plugin, self.params_json, self.replicates, genomes)
+        st = self.run._submit(self.plugin, self.params_json, self.replicates, genomes,
+                              accept_wait=SYNC_ACCEPT)
         self.pool._wait(st)
         if st.error is not None:
             raise st.error
