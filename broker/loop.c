@@ -213,7 +213,7 @@ int broker_main_run(const broker_config_t *config)
         if (lifeline >= 0 && (items[lifeline].revents & (ZMQ_POLLIN | ZMQ_POLLERR)) &&
             common_lifeline_gone(config->lifeline_fd)) {
             /* The process that started this pool died: nobody else will stop us. */
-            LOG_WARN("the lifeline closed (the process that started this broker is gone); "
+            LOG_INFO("the lifeline closed (the process that started this broker let go or is gone); "
                      "stopping");
             s_stop = 1;
         }

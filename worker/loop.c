@@ -531,7 +531,7 @@ static void s_run(s_worker_t *self)
             common_lifeline_gone(lifeline)) {
             /* The process that started this pool died: its results have no
              * reader, and a long evaluation must not keep us alive. */
-            LOG_WARN("the lifeline closed (the process that started this worker is gone); "
+            LOG_INFO("the lifeline closed (the process that started this worker let go or is gone); "
                      "killing %u running evaluations and stopping",
                      worker_pool_busy(self->pool));
             worker_pool_kill_busy(self->pool);

@@ -60,6 +60,7 @@ struct client_pool {
     pid_t worker_pid;
     int lifeline_w; /* write end, close-on-exec; -1 once closed */
     int lock_fd;    /* flock on DIR/lock while we live; close-on-exec */
+    int scratch;    /* the store is the folder's own, removed with it */
 };
 
 static _Atomic(client_pool_t *) s_last; /* the test hook's pool */
@@ -383,6 +384,7 @@ int client_pool_new(const fitfarm_options_t *options, client_pool_t **out, char 
         goto cleanup;
     }
     self->lifeline_w = fds[1];
+    self->scratch = options->store_dir == NULL;
     /* Above the fixed child descriptor, so dup2 in the child really copies
      * it (and drops close-on-exec on the copy). */
     lifeline_r = fcntl(fds[0], F_DUPFD_CLOEXEC, S_LIFELINE_FD + 1);
@@ -520,12 +522,20 @@ void client_pool_destroy(client_pool_t **self_p)
     client_pool_t *self = *self_p;
     client_pool_t *expected = self;
     atomic_compare_exchange_strong(&s_last, &expected, NULL);
-    /* SIGTERM: the worker drains (says BYE to a broker still there), the
-     * broker commits and closes its store. */
-    if (self->worker_pid > 0)
-        kill(self->worker_pid, SIGTERM);
-    if (self->broker_pid > 0)
-        kill(self->broker_pid, SIGTERM);
+    /* A kept store: SIGTERM, so the worker drains (running evaluations
+     * finish and are stored for a resume) and the broker commits. A scratch
+     * store keeps nothing worth waiting for: closing the lifeline makes the
+     * worker kill its running evaluations and leave at once (a Ctrl-C in a
+     * long evaluation must not take the drain's seconds). */
+    if (self->scratch && self->lifeline_w >= 0) {
+        close(self->lifeline_w);
+        self->lifeline_w = -1;
+    } else {
+        if (self->worker_pid > 0)
+            kill(self->worker_pid, SIGTERM);
+        if (self->broker_pid > 0)
+            kill(self->broker_pid, SIGTERM);
+    }
     int64_t deadline = s_now_ms() + POOL_STOP_MS;
     long nap = 1;
     while (!(s_reaped(&self->worker_pid) & s_reaped(&self->broker_pid))) {
