@@ -18,6 +18,7 @@
 #include "client_io.h"
 #include "common/clock.h"
 #include "common/lifeline.h"
+#include "common/replace_file.h"
 #include "common/log.h"
 #include "core.h"
 #include "dispatch.h"
@@ -68,24 +69,17 @@ static void *s_bind(broker_t *b, const char *endpoint, const char *role, char *b
 
 static int s_write_endpoints(const char *path, const char *clients, const char *workers)
 {
-    char tmp[4096];
-    int rc = -1;
-    snprintf(tmp, sizeof tmp, "%s.tmp.%ld", path, (long)getpid());
-    FILE *f = fopen(tmp, "w");
-    if (!f)
-        goto cleanup;
-    int ok = fprintf(f, "clients %s\nworkers %s\n", clients, workers) > 0;
-    ok &= fflush(f) == 0 && fsync(fileno(f)) == 0;
-    ok &= fclose(f) == 0;
-    if (!ok || rename(tmp, path) != 0) {
-        unlink(tmp);
-        goto cleanup;
+    char text[2048];
+    int n = snprintf(text, sizeof text, "clients %s\nworkers %s\n", clients, workers);
+    if (n < 0 || (size_t)n >= sizeof text) {
+        LOG_ERROR("cannot write the endpoints file %s: endpoints too long", path);
+        return -1;
     }
-    rc = 0;
-cleanup:
-    if (rc != 0)
+    if (common_replace_file(path, text, (size_t)n, 1) != 0) {
         LOG_ERROR("cannot write the endpoints file %s: %s", path, strerror(errno));
-    return rc;
+        return -1;
+    }
+    return 0;
 }
 
 /* Handles up to BROKER_MSGS_PER_TURN waiting messages on one socket. */

@@ -24,6 +24,7 @@
 #include "common/alloc.h"
 #include "common/clock.h"
 #include "common/lifeline.h"
+#include "common/replace_file.h"
 #include "common/log.h"
 #include "credits.h"
 #include "msg.h"
@@ -445,26 +446,13 @@ static void s_defaults(worker_config_t *c)
  * a reader never sees half of it. */
 static int s_write_ready(const char *path)
 {
-    char tmp[4096];
-    int rc = -1;
-    if (snprintf(tmp, sizeof tmp, "%s.tmp.%ld", path, (long)getpid()) >= (int)sizeof tmp) {
-        errno = ENAMETOOLONG;
-        goto cleanup;
-    }
-    FILE *f = fopen(tmp, "w");
-    if (!f)
-        goto cleanup;
-    int ok = fprintf(f, "ready %ld\n", (long)getpid()) > 0;
-    ok &= fclose(f) == 0;
-    if (!ok || rename(tmp, path) != 0) {
-        unlink(tmp);
-        goto cleanup;
-    }
-    rc = 0;
-cleanup:
-    if (rc != 0)
+    char text[64];
+    int n = snprintf(text, sizeof text, "ready %ld\n", (long)getpid());
+    if (common_replace_file(path, text, (size_t)n, 0) != 0) {
         LOG_ERROR("cannot write the ready file %s: %s", path, strerror(errno));
-    return rc;
+        return -1;
+    }
+    return 0;
 }
 
 /* Runs the reactor until drained or forced. */
