@@ -23,6 +23,7 @@
 
 #include "common/clock.h"
 #include "internal.h"
+#include "ring.h"
 #include "secure.h"
 
 #define CLIENT_DEFAULT_CONNECT_MS 10000
@@ -117,20 +118,13 @@ int client_emit(fitfarm_client_t *self, const proto_msg_t *msg)
     if (prc != PROTO_OK)
         return client_fail(self, FITFARM_EINVAL, "cannot encode %s: a field is out of protocol",
                            proto_type_name((int)msg->type));
-    if (self->out_len == self->out_cap) {
-        size_t cap = self->out_cap ? self->out_cap * 2 : 64;
-        client_frame_t *q = malloc(cap * sizeof *q);
-        if (!q) {
-            free(buf);
-            return client_fail(self, FITFARM_ENOMEM, "out of memory queueing a message");
-        }
-        for (size_t i = 0; i < self->out_len; i++)
-            q[i] = self->outbox[(self->out_head + i) % self->out_cap];
-        free(self->outbox);
-        self->outbox = q;
-        self->out_cap = cap;
-        self->out_head = 0;
+    void *ring = self->outbox;
+    if (client_ring_reserve(&ring, &self->out_cap, &self->out_head, self->out_len,
+                            sizeof *self->outbox, 64) != 0) {
+        free(buf);
+        return client_fail(self, FITFARM_ENOMEM, "out of memory queueing a message");
     }
+    self->outbox = ring;
     self->outbox[(self->out_head + self->out_len) % self->out_cap] = (client_frame_t){buf, len};
     self->out_len++;
     return FITFARM_OK;

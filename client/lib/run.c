@@ -25,6 +25,7 @@
 
 #include "common/clock.h"
 #include "internal.h"
+#include "ring.h"
 #include "key.h"
 
 #define CLIENT_RETRY_EVERY_MS 1000   /* re-send refused re-sends this often ... */
@@ -228,19 +229,11 @@ static fitfarm_batch_t *s_batch_of_tag(fitfarm_run_t *run, uint64_t tag, size_t 
 
 static int s_ready_reserve(fitfarm_run_t *run)
 {
-    if (run->ready_len < run->ready_cap)
-        return 0;
-    size_t cap = run->ready_cap ? run->ready_cap * 2 : 256;
-    client_ready_t *q = malloc(cap * sizeof *q);
-    if (!q)
-        return -1;
-    for (size_t i = 0; i < run->ready_len; i++)
-        q[i] = run->ready[(run->ready_head + i) % run->ready_cap];
-    free(run->ready);
-    run->ready = q;
-    run->ready_cap = cap;
-    run->ready_head = 0;
-    return 0;
+    void *ring = run->ready;
+    int rc = client_ring_reserve(&ring, &run->ready_cap, &run->ready_head, run->ready_len,
+                                 sizeof *run->ready, 256);
+    run->ready = ring;
+    return rc;
 }
 
 static int s_refusal(fitfarm_run_t *run, const fitfarm_batch_t *b, const client_chunk_t *c,
