@@ -9,6 +9,7 @@
 #include <sqlite3.h>
 #include <string.h>
 
+#include "cache.h"
 #include "common/log.h"
 
 /* A no-cache request is answered by its run's latest re-evaluation of the
@@ -19,7 +20,12 @@ static const char s_page_sql[] =
     "SELECT r.tag, r.cached, r.fresh, r.key, e.seed,"
     " CASE WHEN r.fresh THEN x.status ELSE e.status END,"
     " CASE WHEN r.fresh THEN x.fitness ELSE e.fitness END,"
-    " CASE WHEN r.fresh THEN x.error ELSE e.error END, r.replicate, e.genome"
+    " CASE WHEN r.fresh THEN x.error ELSE e.error END, r.replicate, e.genome,"
+    " CASE WHEN r.fresh THEN x.worker ELSE e.worker END,"
+    " CASE WHEN r.fresh THEN x.host ELSE e.host END,"
+    " CASE WHEN r.fresh THEN x.cpu_seconds ELSE e.cpu_seconds END,"
+    " CASE WHEN r.fresh THEN x.peak_rss_kb ELSE e.peak_rss_kb END,"
+    " CASE WHEN r.fresh THEN x.finished_at ELSE e.finished_at END"
     " FROM requests r INDEXED BY requests_unacked JOIN evaluations e ON e.key = r.key"
     " LEFT JOIN results x ON r.fresh = 1 AND x.rowid = (SELECT max(rowid) FROM results y"
     "  WHERE y.run_id = r.run_id AND y.key = r.key AND y.fresh = 1)"
@@ -111,6 +117,7 @@ static int s_page(broker_t *b, broker_run_t *run, int limit)
                                .fresh = (uint8_t)(sqlite3_column_int(st, 2) != 0),
                                .error = (char *)sqlite3_column_text(st, 7)};
         memcpy(d.key, sqlite3_column_blob(st, 3), PROTO_KEY_BYTES);
+        broker_cache_row_provenance(b, st, 10, &d.prov);
         d.n_fitness = s_fitness(st, 6, fit);
         d.fitness = fit;
         (void)broker_runs_redeliver_copy(&b->runs, run, &d);

@@ -4,6 +4,7 @@
 #include "cache.h"
 
 #include <inttypes.h>
+#include <math.h>
 #include <sqlite3.h>
 #include <string.h>
 
@@ -11,7 +12,8 @@
 
 static const char s_lookup_sql[] =
     "SELECT plugin, params, genome, seed, timeout_ms, max_attempts, status, fitness, error,"
-    " attempts FROM evaluations WHERE key = ?1 AND status IS NOT NULL";
+    " attempts, " BROKER_CACHE_PROVENANCE_COLUMNS
+    " FROM evaluations WHERE key = ?1 AND status IS NOT NULL";
 
 /* Fitness doubles from a little-endian blob; returns how many (capped). */
 static uint32_t s_fitness(sqlite3_stmt *st, int col, double *fit)
@@ -27,6 +29,23 @@ static uint32_t s_fitness(sqlite3_stmt *st, int col, double *fit)
         memcpy(&fit[i], &bits, 8);
     }
     return nf;
+}
+
+void broker_cache_row_provenance(broker_t *b, sqlite3_stmt *st, int col,
+                                 broker_provenance_t *out)
+{
+    const char *worker = (const char *)sqlite3_column_text(st, col);
+    const char *host = (const char *)sqlite3_column_text(st, col + 1);
+    double cpu = sqlite3_column_double(st, col + 2);
+    sqlite3_int64 rss = sqlite3_column_int64(st, col + 3);
+    double at = sqlite3_column_double(st, col + 4);
+    /* The store is ours, but a hand-edited file must not put a value on
+     * the wire that the client's decoder refuses. */
+    *out = (broker_provenance_t){.worker = broker_intern(&b->intern, worker ? worker : ""),
+                                 .host = broker_intern(&b->intern, host ? host : ""),
+                                 .cpu_seconds = isfinite(cpu) && cpu > 0 ? cpu : 0,
+                                 .peak_rss_kb = rss > 0 ? (uint64_t)rss : 0,
+                                 .finished_at = isfinite(at) && at > 0 ? at : 0};
 }
 
 broker_eval_t *broker_cache_lookup(broker_t *b, const uint8_t key[PROTO_KEY_BYTES])
@@ -62,8 +81,10 @@ broker_eval_t *broker_cache_lookup(broker_t *b, const uint8_t key[PROTO_KEY_BYTE
             e->max_attempts = (uint16_t)sqlite3_column_int(st, 5);
             e->attempts = (uint16_t)sqlite3_column_int(st, 9);
             uint32_t nf = s_fitness(st, 7, fit);
+            broker_provenance_t prov;
+            broker_cache_row_provenance(b, st, 10, &prov);
             broker_eval_set_result(&b->evals, e, (uint32_t)sqlite3_column_int(st, 6), fit, nf,
-                                   (const char *)sqlite3_column_text(st, 8));
+                                   (const char *)sqlite3_column_text(st, 8), &prov);
             broker_evals_settle(&b->evals, e);
             b->evals.store_hits++;
         }

@@ -464,7 +464,12 @@ static void s_flush_run(broker_t *b, broker_run_t *run)
             r->n_fitness = d->n_fitness;
             r->fitness = d->fitness;
             r->error = d->error ? d->error : (char *)"";
-            bytes += 64 + (size_t)d->n_fitness * 9 + (d->error ? strlen(d->error) : 0);
+            r->worker = (char *)(d->prov.worker ? d->prov.worker : "");
+            r->host = (char *)(d->prov.host ? d->prov.host : "");
+            r->cpu_seconds = d->prov.cpu_seconds;
+            r->peak_rss_kb = d->prov.peak_rss_kb;
+            r->finished_at = d->prov.finished_at;
+            bytes += 96 + (size_t)d->n_fitness * 9 + (d->error ? strlen(d->error) : 0);
         }
         if (b->clients && run->client_len) {
             proto_msg_t msg = {.type = PROTO_RESULTS};

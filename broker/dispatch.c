@@ -6,6 +6,7 @@
 #include <inttypes.h>
 #include <string.h>
 
+#include "common/clock.h"
 #include "common/log.h"
 #include "envelope.h"
 
@@ -73,7 +74,12 @@ static void s_detach(broker_t *b, broker_eval_t *e)
 void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker_t *w,
                               const proto_outcome_t *o)
 {
-    broker_eval_set_result(&b->evals, e, o->status, o->fitness, o->n_fitness, o->error);
+    broker_provenance_t prov = {.worker = broker_intern(&b->intern, w ? w->name : ""),
+                                .host = broker_intern(&b->intern, w ? w->host : ""),
+                                .cpu_seconds = o->cpu_seconds,
+                                .peak_rss_kb = o->peak_rss_kb,
+                                .finished_at = common_wall_seconds()};
+    broker_eval_set_result(&b->evals, e, o->status, o->fitness, o->n_fitness, o->error, &prov);
     broker_store_note_result(b->store, e, o, w ? w->name : NULL, w ? w->host : NULL,
                              w ? w->arch : NULL);
     broker_eval_t *origin = NULL;

@@ -315,7 +315,8 @@ broker_eval_t *broker_evals_orphan_take(broker_evals_t *self, uint64_t job_id)
 }
 
 void broker_eval_set_result(broker_evals_t *self, broker_eval_t *e, uint32_t status,
-                            const double *fitness, uint32_t n_fitness, const char *error)
+                            const double *fitness, uint32_t n_fitness, const char *error,
+                            const broker_provenance_t *prov)
 {
     assert(e->state != BROKER_EVAL_DONE && e->job_id == 0 && e->worker == NULL);
     free(e->fitness);
@@ -328,6 +329,7 @@ void broker_eval_set_result(broker_evals_t *self, broker_eval_t *e, uint32_t sta
     if (error && *error)
         e->error = common_xstrdup(error);
     e->status = (uint8_t)status;
+    e->prov = prov ? *prov : (broker_provenance_t){.worker = "", .host = ""};
     e->state = BROKER_EVAL_DONE;
     e->prev = e->next = NULL;
     self->n_done++;

@@ -64,6 +64,17 @@ typedef struct {
     uint64_t seed; /* the request's own seed, reported in its result */
 } broker_waiter_t;
 
+/* Who computed a result and what it cost, passed on to the optimizer with
+ * every answer (the original evaluation's for a cached one). The strings are
+ * interned (intern.h), borrowed for the broker's life; "" when not known. */
+typedef struct {
+    const char *worker;
+    const char *host;
+    double cpu_seconds;
+    uint64_t peak_rss_kb;
+    double finished_at; /* Unix time the broker recorded the result */
+} broker_provenance_t;
+
 typedef struct broker_eval {
     uint8_t key[PROTO_KEY_BYTES];
     uint8_t state;    /* broker_eval_state_t */
@@ -94,6 +105,7 @@ typedef struct broker_eval {
     uint32_t n_fitness;
     double *fitness;
     char *error; /* NULL = "" */
+    broker_provenance_t prov;
     uint32_t genome_len;
     uint8_t genome[]; /* copied in; the evaluation owns it */
 } broker_eval_t;
@@ -157,10 +169,12 @@ void broker_evals_orphan_add(broker_evals_t *self, uint64_t job_id, broker_eval_
  * unpinned: the caller calls broker_evals_settle when done with it. */
 broker_eval_t *broker_evals_orphan_take(broker_evals_t *self, uint64_t job_id);
 
-/* Stores the final result (copies fitness and error) and marks e DONE. The
- * waiters are kept: the caller answers them, then broker_eval_clear_waiters. */
+/* Stores the final result (copies fitness and error; prov's strings must be
+ * interned, NULL prov = unknown) and marks e DONE. The waiters are kept: the
+ * caller answers them, then broker_eval_clear_waiters. */
 void broker_eval_set_result(broker_evals_t *self, broker_eval_t *e, uint32_t status,
-                            const double *fitness, uint32_t n_fitness, const char *error);
+                            const double *fitness, uint32_t n_fitness, const char *error,
+                            const broker_provenance_t *prov);
 
 /* Invariants of one evaluation per the state table above. */
 int broker_eval_check(const broker_evals_t *self, const broker_eval_t *e);

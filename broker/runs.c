@@ -324,7 +324,8 @@ static int s_push_eval(broker_runs_t *self, broker_run_t *run, uint64_t tag, uin
                            .fresh = e->fresh,
                            .n_fitness = e->n_fitness,
                            .fitness = e->fitness,
-                           .error = e->error};
+                           .error = e->error,
+                           .prov = e->prov};
     memcpy(t.key, e->key, PROTO_KEY_BYTES);
     return s_outbox_push(self, run, &t);
 }

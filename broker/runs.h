@@ -42,6 +42,7 @@ typedef struct broker_delivery {
     uint32_t n_fitness;
     double *fitness; /* owned (borrowed in the template given to the push calls) */
     char *error;     /* owned, NULL = "" */
+    broker_provenance_t prov; /* interned strings: copied as they are */
     struct broker_delivery *free_next;
 } broker_delivery_t;
 

@@ -423,7 +423,7 @@ static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *
         sqlite3_bind_double(st, 12, o->cpu_seconds);
         s_bind_u64(st, 13, o->peak_rss_kb);
     }
-    sqlite3_bind_double(st, 14, s_now());
+    sqlite3_bind_double(st, 14, e->prov.finished_at > 0 ? e->prov.finished_at : s_now());
     if (which == S_HISTORY) {
         sqlite3_bind_text(st, 15, e->home ? e->home->id : "", -1, SQLITE_STATIC);
         sqlite3_bind_int(st, 16, e->fresh != 0);

@@ -128,7 +128,10 @@ typedef struct {
 } proto_accepted_t;
 
 /* One result: [tag uint, status uint, cached bool, seed uint, key bin(32),
- *  fitness array of f64, error str] */
+ *  fitness array of f64, error str, worker str, host str, cpu_seconds f64,
+ *  peak_rss_kb uint, finished_at f64]. The last five are the provenance of
+ *  the evaluation that computed it (for a cached answer, the original one):
+ *  "" / 0 when the broker answered without a worker (an invalid request). */
 typedef struct {
     uint64_t tag;
     uint32_t status; /* proto_job_status_t */
@@ -137,7 +140,12 @@ typedef struct {
     uint8_t key[PROTO_KEY_BYTES];
     uint32_t n_fitness;
     double *fitness;
-    char *error; /* "" when none */
+    char *error;  /* "" when none */
+    char *worker; /* the worker's name */
+    char *host;   /* the worker's host name */
+    double cpu_seconds;   /* the evaluation's CPU time, as the worker measured it */
+    uint64_t peak_rss_kb; /* its child's peak resident set */
+    double finished_at;   /* Unix time (s) the broker recorded the result */
 } proto_result_t;
 
 /* [v, RESULTS, run_id str, results array of proto_result_t] */

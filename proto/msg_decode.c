@@ -16,6 +16,7 @@
  * Not here: encoding (msg_encode.c), freeing (msg_free.c). */
 #include <stdarg.h>
 #include <stdio.h>
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -219,6 +220,15 @@ static int s_read_f64(s_cursor_t *c, double *v)
         return rc;
     memcpy(v, &bits, sizeof *v); /* bit copy: NaN payloads survive */
     return PROTO_OK;
+}
+
+/* A measurement (seconds, a time stamp): finite and not negative. */
+static int s_read_f64_measure(s_cursor_t *c, double *v)
+{
+    int rc = s_read_f64(c, v);
+    if (rc == PROTO_OK && !(isfinite(*v) && *v >= 0))
+        return s_fail(c, PROTO_EVALUE, "%g, expected a finite value >= 0", *v);
+    return rc;
 }
 
 static int s_read_bool(s_cursor_t *c, uint8_t *v)
@@ -525,7 +535,7 @@ cleanup:
 static int s_result(s_cursor_t *c, proto_result_t *r)
 {
     int rc;
-    if ((rc = s_read_tuple(c, 7)))
+    if ((rc = s_read_tuple(c, 12)))
         goto cleanup;
     FIELD("tag", s_read_u64(c, &r->tag));
     FIELD("status", s_read_status(c, &r->status));
@@ -534,6 +544,11 @@ static int s_result(s_cursor_t *c, proto_result_t *r)
     FIELD("key", s_read_bin_fixed(c, r->key, PROTO_KEY_BYTES));
     FIELD("fitness", s_read_f64_array(c, c->lim.objectives, &r->n_fitness, &r->fitness));
     FIELD("error", s_read_str(c, c->lim.error_bytes, &r->error));
+    FIELD("worker", s_read_str(c, c->lim.name_bytes, &r->worker));
+    FIELD("host", s_read_str(c, c->lim.name_bytes, &r->host));
+    FIELD("cpu_seconds", s_read_f64_measure(c, &r->cpu_seconds));
+    FIELD("peak_rss_kb", s_read_u64(c, &r->peak_rss_kb));
+    FIELD("finished_at", s_read_f64_measure(c, &r->finished_at));
 cleanup:
     return rc;
 }
@@ -544,8 +559,8 @@ static int s_results(s_cursor_t *c, proto_results_t *r)
     uint32_t n = 0;
     FIELD("run_id", s_read_str(c, c->lim.name_bytes, &r->run_id));
     size_t old = s_path_push(c, ".results");
-    /* a result is at least 1 + 1 + 1 + 1 + 1 + 34 + 1 + 1 bytes */
-    if ((rc = s_read_array(c, c->lim.batch_items, 41, &n)) ||
+    /* a result is at least 1 + 1 + 1 + 1 + 1 + 34 + 1 + 1 + 1 + 1 + 9 + 1 + 9 bytes */
+    if ((rc = s_read_array(c, c->lim.batch_items, 62, &n)) ||
         (rc = s_alloc(c, (void **)&r->results, n, sizeof *r->results)))
         goto cleanup;
     r->n_results = n;
@@ -676,7 +691,7 @@ static int s_outcome(s_cursor_t *c, proto_outcome_t *o)
     FIELD("job_id", s_read_u64(c, &o->job_id));
     FIELD("status", s_read_status(c, &o->status));
     FIELD("fitness", s_read_f64_array(c, c->lim.objectives, &o->n_fitness, &o->fitness));
-    FIELD("cpu_seconds", s_read_f64(c, &o->cpu_seconds));
+    FIELD("cpu_seconds", s_read_f64_measure(c, &o->cpu_seconds));
     FIELD("peak_rss_kb", s_read_u64(c, &o->peak_rss_kb));
     FIELD("error", s_read_str(c, c->lim.error_bytes, &o->error));
 cleanup:

@@ -119,7 +119,7 @@ static int s_pack_result(msgpack_packer *pk, const proto_result_t *r)
     int rc = PROTO_OK;
     REQUIRE(r->status < PROTO_STATUS_COUNT_);
     REQUIRE(r->cached <= 1);
-    PACK(msgpack_pack_array(pk, 7));
+    PACK(msgpack_pack_array(pk, 12));
     U64(r->tag);
     U64(r->status);
     BOOL(r->cached);
@@ -127,6 +127,11 @@ static int s_pack_result(msgpack_packer *pk, const proto_result_t *r)
     BIN(r->key, PROTO_KEY_BYTES);
     F64S(r->fitness, r->n_fitness);
     STR(r->error);
+    STR(r->worker);
+    STR(r->host);
+    PACK(msgpack_pack_double(pk, r->cpu_seconds));
+    U64(r->peak_rss_kb);
+    PACK(msgpack_pack_double(pk, r->finished_at));
 cleanup:
     return rc;
 }

@@ -10,6 +10,8 @@ static void s_free_result(proto_result_t *r)
 {
     free(r->fitness);
     free(r->error);
+    free(r->worker);
+    free(r->host);
 }
 
 static void s_free_worker_info(proto_worker_info_t *w)

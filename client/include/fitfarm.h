@@ -192,6 +192,14 @@ typedef struct {
     size_t n_fitness;
     const double *fitness;
     const char *error; /* "" when none */
+    /* Provenance: who computed the result and what it cost (for a cached
+     * answer, the evaluation that first computed it); "" and 0 where the
+     * store did not record it. Borrowed like fitness. */
+    const char *worker; /* the worker's name */
+    const char *host;   /* its host name */
+    double cpu_seconds; /* CPU time of the evaluation, as the worker measured it */
+    uint64_t peak_rss_kb; /* peak resident set of the evaluating child, KiB */
+    double finished_at; /* Unix time (seconds) the broker recorded the result */
 } fitfarm_result_t;
 #define FITFARM_RESULT_INIT {.size = sizeof(fitfarm_result_t)}
 

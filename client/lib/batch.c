@@ -141,6 +141,18 @@ int client_batch_store(fitfarm_batch_t *self, size_t slot, const proto_result_t 
             return FITFARM_ENOMEM;
         }
     }
+    const char *worker = r->worker && r->worker[0] ? client_names_put(&self->names, r->worker) : "";
+    const char *host = r->host && r->host[0] ? client_names_put(&self->names, r->host) : "";
+    if (!worker || !host) {
+        free(fitness);
+        free(error);
+        return FITFARM_ENOMEM;
+    }
+    s->worker = worker;
+    s->host = host;
+    s->cpu_seconds = r->cpu_seconds;
+    s->peak_rss_kb = r->peak_rss_kb;
+    s->finished_at = r->finished_at;
     s->state = CLIENT_SLOT_ARRIVED;
     s->status = (uint8_t)r->status;
     s->cached = r->cached ? 1 : 0;
@@ -169,6 +181,11 @@ void client_batch_fill(const fitfarm_batch_t *self, size_t slot, fitfarm_result_
     full.n_fitness = s->n_fitness;
     full.fitness = s->fitness;
     full.error = s->error ? s->error : "";
+    full.worker = s->worker ? s->worker : "";
+    full.host = s->host ? s->host : "";
+    full.cpu_seconds = s->cpu_seconds;
+    full.peak_rss_kb = s->peak_rss_kb;
+    full.finished_at = s->finished_at;
     CLIENT_COPY_OUT(out, full);
 }
 
@@ -198,6 +215,7 @@ FITFARM_API void fitfarm_batch_destroy(fitfarm_batch_t **batch_p)
         }
         free(self->slots);
     }
+    client_names_fini(&self->names);
     for (size_t i = 0; i < self->n; i++)
         free(self->genomes[i]);
     free(self->genomes);

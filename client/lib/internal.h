@@ -15,6 +15,7 @@
 
 #include "client/include/fitfarm.h"
 #include "msg.h"
+#include "names.h"
 #include "pool.h"
 
 #define CLIENT_ERR_BYTES 1200
@@ -52,6 +53,10 @@ typedef struct {
     uint32_t n_fitness;
     double *fitness; /* owned; NULL when n_fitness is 0 */
     char *error;     /* owned; NULL means "" */
+    const char *worker, *host; /* in the batch's names; NULL means "" */
+    double cpu_seconds;
+    uint64_t peak_rss_kb;
+    double finished_at;
 } client_slot_t;
 
 struct fitfarm_batch {
@@ -63,6 +68,7 @@ struct fitfarm_batch {
     uint8_t **genomes;
     uint32_t *genome_len;
     client_slot_t *slots; /* n * replicates once submitted, index*replicates + r */
+    client_names_t names; /* the slots' worker and host names */
     size_t arrived;       /* slots in state ARRIVED */
     int streaming;        /* results also go to the run's poll queue */
     fitfarm_run_t *run;   /* borrowed; NULL until submitted or after the run ended */

@@ -26,3 +26,10 @@ int64_t common_wall_ms(void)
 {
     return s_ns(CLOCK_REALTIME) / 1000000;
 }
+
+double common_wall_seconds(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_REALTIME, &ts);
+    return (double)ts.tv_sec + (double)ts.tv_nsec / 1e9;
+}

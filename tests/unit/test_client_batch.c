@@ -132,6 +132,8 @@ static void s_on_submit(fake_broker_t *fb, void *sock, zmq_msg_t *id, proto_subm
         res[i].n_fitness = 2;
         res[i].fitness = &fit[2 * i];
         res[i].error = "";
+        res[i].worker = "scripted";
+        res[i].host = "";
     }
     reply.type = PROTO_RESULTS;
     reply.u.results.run_id = s->run_id;

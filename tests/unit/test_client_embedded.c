@@ -1,7 +1,8 @@
 /* test_client_embedded.c: libfitfarm with the embedded local pool (the
  * fitfarm-broker and fitfarm-worker programs spawned by this process) and the
  * bundled zdt1 plugin from $FITFARM_BUILD_DIR/plugins: blocking evaluation
- * checked against the ZDT1 formula, streaming submit/poll, an unknown plugin,
+ * checked against the ZDT1 formula, streaming submit/poll, each result's
+ * provenance (worker, host, time stamp; a cached answer's), an unknown plugin,
  * the children being those programs (not forks of this test), nothing left
  * running after fitfarm_client_destroy, a pool started by a thread that then
  * exits still working, and the default plugin folders found with no
@@ -167,6 +168,75 @@ static void test_submit_poll(void **state)
     fitfarm_run_destroy(&run);
 }
 
+/* Provenance: a result names the worker that computed it, on this machine
+ * (its host is what POSIX gethostname() says here), a CPU time, and a time
+ * stamp between the call's start and end on CLOCK_REALTIME (POSIX); a cached
+ * answer carries the original evaluation's provenance bit for bit; and a
+ * caller built against the struct before provenance (a smaller size) gets
+ * nothing written past it. */
+static void test_result_provenance(void **state)
+{
+    fitfarm_client_t *client = *state;
+    char host[256] = "";
+    assert_int_equal(gethostname(host, sizeof host), 0);
+    fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
+    ro.run_id = "provenance-a";
+    fitfarm_run_t *run = NULL, *again = NULL;
+    assert_int_equal(fitfarm_run_open(client, &ro, &run), 0);
+    ro.run_id = "provenance-b";
+    assert_int_equal(fitfarm_run_open(client, &ro, &again), 0);
+    fitfarm_batch_t *first = NULL, *second = NULL;
+    assert_int_equal(fitfarm_batch_new("zdt1", NULL, 1, &first), 0);
+    assert_int_equal(fitfarm_batch_new("zdt1", NULL, 1, &second), 0);
+    static double genomes[20][N_VARS];
+    uint64_t rng = 4000;
+    for (size_t i = 0; i < 20; i++) {
+        for (int k = 0; k < N_VARS; k++)
+            genomes[i][k] = s_uniform(&rng);
+        fitfarm_batch_add_f64(first, genomes[i], N_VARS);
+        fitfarm_batch_add_f64(second, genomes[i], N_VARS);
+    }
+    struct timespec t0, t1;
+    clock_gettime(CLOCK_REALTIME, &t0);
+    assert_int_equal(fitfarm_evaluate(run, first, NULL, NULL, 60000), 0);
+    clock_gettime(CLOCK_REALTIME, &t1);
+    assert_int_equal(fitfarm_evaluate(again, second, NULL, NULL, 60000), 0);
+    double lo = (double)t0.tv_sec + t0.tv_nsec / 1e9 - 0.01;
+    double hi = (double)t1.tv_sec + t1.tv_nsec / 1e9 + 0.01;
+    for (size_t i = 0; i < 20; i++) {
+        fitfarm_result_t a = FITFARM_RESULT_INIT, b = FITFARM_RESULT_INIT;
+        assert_int_equal(fitfarm_batch_result(first, i, 0, &a), 0);
+        assert_int_equal(fitfarm_batch_result(second, i, 0, &b), 0);
+        assert_int_equal(a.cached, 0);
+        assert_int_equal(b.cached, 1);
+        assert_true(a.worker[0] != '\0');
+        assert_string_equal(a.host, host);
+        assert_true(a.cpu_seconds >= 0 && a.cpu_seconds < 10);
+        if (!(a.finished_at >= lo && a.finished_at <= hi))
+            fail_msg("genome %zu: finished_at %.6f outside [%.6f, %.6f]", i, a.finished_at, lo, hi);
+        assert_string_equal(b.worker, a.worker);
+        assert_string_equal(b.host, a.host);
+        assert_memory_equal(&b.cpu_seconds, &a.cpu_seconds, sizeof a.cpu_seconds);
+        assert_int_equal(b.peak_rss_kb, a.peak_rss_kb);
+        assert_memory_equal(&b.finished_at, &a.finished_at, sizeof a.finished_at);
+    }
+    struct {
+        fitfarm_result_t res;
+        unsigned char canary[64];
+    } old;
+    memset(&old, 0xa5, sizeof old);
+    old.res.size = offsetof(fitfarm_result_t, worker);
+    assert_int_equal(fitfarm_batch_result(first, 0, 0, &old.res), 0);
+    const unsigned char *tail = (const unsigned char *)&old.res + offsetof(fitfarm_result_t, worker);
+    for (size_t k = 0; k < sizeof old.res - offsetof(fitfarm_result_t, worker); k++)
+        assert_int_equal(tail[k], 0xa5);
+    assert_int_equal(old.res.n_fitness, 2);
+    fitfarm_batch_destroy(&first);
+    fitfarm_batch_destroy(&second);
+    fitfarm_run_destroy(&run);
+    fitfarm_run_destroy(&again);
+}
+
 static void test_unknown_plugin(void **state)
 {
     fitfarm_client_t *client = *state;
@@ -309,6 +379,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_evaluate_zdt1),
         cmocka_unit_test(test_submit_poll),
+        cmocka_unit_test(test_result_provenance),
         cmocka_unit_test(test_unknown_plugin),
     };
     const struct CMUnitTest alone[] = {

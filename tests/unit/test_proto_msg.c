@@ -127,12 +127,15 @@ static proto_msg_t s_sample(uint32_t type)
         memset(results, 0, sizeof results);
         results[0] = (proto_result_t){.tag = 5, .status = PROTO_STATUS_OK, .cached = 1,
                                       .seed = UINT64_MAX, .n_fitness = 5, .fitness = s_fit,
-                                      .error = ""};
+                                      .error = "", .worker = "lab-3.1", .host = "lab-3",
+                                      .cpu_seconds = 0.25, .peak_rss_kb = UINT64_MAX,
+                                      .finished_at = 1795000000.5};
         for (unsigned i = 0; i < PROTO_KEY_BYTES; i++)
             results[0].key[i] = (uint8_t)(i * 7);
         results[1] = (proto_result_t){.tag = 0, .status = PROTO_STATUS_TIMEOUT, .cached = 0,
                                       .seed = 0, .n_fitness = 0, .fitness = NULL,
-                                      .error = "ran past 5000 ms"};
+                                      .error = "ran past 5000 ms", .worker = "",
+                                      .host = ""};
         m.u.results = (proto_results_t){.run_id = "run-1", .n_results = 2, .results = results};
         break;
     case PROTO_REFUSED:
@@ -251,7 +254,8 @@ static void test_round_trip_edge_values(void **state)
     double fit[4] = {-0.0, 4.9406564584124654e-324, s_from_bits(0x7ff8000000000123ull),
                      s_from_bits(0xfff0000000000001ull) /* signalling NaN, sign set */};
     proto_result_t r = {.tag = UINT64_MAX, .status = PROTO_STATUS_FAILED, .cached = 1,
-                        .seed = UINT64_MAX, .n_fitness = 4, .fitness = fit, .error = ""};
+                        .seed = UINT64_MAX, .n_fitness = 4, .fitness = fit, .error = "",
+                        .worker = "", .host = ""};
     memset(r.key, 0xff, sizeof r.key);
     proto_msg_t m = {.type = PROTO_RESULTS};
     m.u.results = (proto_results_t){.run_id = "", .n_results = 1, .results = &r};
@@ -411,7 +415,7 @@ static void test_golden_done(void **state)
 static void test_golden_results_key_bin8(void **state)
 {
     (void)state;
-    uint8_t want[64];
+    uint8_t want[96];
     size_t n = 0;
     want[n++] = 0x94; /* fixarray, 4 elements: version, type, run_id, results */
     want[n++] = 0x01; /* version 1 */
@@ -419,7 +423,7 @@ static void test_golden_results_key_bin8(void **state)
     want[n++] = 0xa1; /* fixstr, 1 byte */
     want[n++] = 'r';  /* run_id "r" */
     want[n++] = 0x91; /* fixarray, 1 result */
-    want[n++] = 0x97; /* fixarray, 7 fields */
+    want[n++] = 0x9c; /* fixarray, 12 fields */
     want[n++] = 0x00; /* tag 0 */
     want[n++] = 0x04; /* status 4 = timeout */
     want[n++] = 0xc2; /* false: not cached */
@@ -433,8 +437,21 @@ static void test_golden_results_key_bin8(void **state)
         want[n++] = (uint8_t)i;
     want[n++] = 0x90; /* fixarray, 0 fitness values */
     want[n++] = 0xa0; /* fixstr, 0 bytes: error "" */
+    want[n++] = 0xa1; /* fixstr, 1 byte: worker "w" */
+    want[n++] = 'w';
+    want[n++] = 0xa0; /* fixstr, 0 bytes: host "" */
+    want[n++] = 0xcb; /* float 64 (0xcb) + 8 bytes big-endian: cpu_seconds 1.5 */
+    want[n++] = 0x3f;
+    want[n++] = 0xf8;
+    for (int i = 0; i < 6; i++)
+        want[n++] = 0x00;
+    want[n++] = 0x00; /* peak_rss_kb 0 */
+    want[n++] = 0xcb; /* float 64: finished_at 0.0 (all bits zero) */
+    for (int i = 0; i < 8; i++)
+        want[n++] = 0x00;
     proto_result_t r = {.tag = 0, .status = PROTO_STATUS_TIMEOUT, .cached = 0,
-                        .seed = 1ull << 63, .n_fitness = 0, .fitness = NULL, .error = ""};
+                        .seed = 1ull << 63, .n_fitness = 0, .fitness = NULL, .error = "",
+                        .worker = "w", .host = "", .cpu_seconds = 1.5};
     for (int i = 0; i < 32; i++)
         r.key[i] = (uint8_t)i;
     proto_msg_t m = {.type = PROTO_RESULTS};
@@ -611,9 +628,9 @@ static void test_mistyped_fields(void **state)
     s_expect_refused(d4, sizeof d4, NULL, PROTO_ECOUNT, "DONE.outcomes[0]: 5 elements, expected 6");
 
     /* RESULTS: cached as int 1 instead of true; key of 31 bytes; key as str */
-    uint8_t r[64];
+    uint8_t r[96];
     size_t n = 0;
-    r[n++] = 0x94, r[n++] = 0x01, r[n++] = 0x0b, r[n++] = 0xa0, r[n++] = 0x91, r[n++] = 0x97;
+    r[n++] = 0x94, r[n++] = 0x01, r[n++] = 0x0b, r[n++] = 0xa0, r[n++] = 0x91, r[n++] = 0x9c;
     r[n++] = 0x00, r[n++] = 0x00;
     size_t at_cached = n;
     r[n++] = 0xc3, r[n++] = 0x00;
@@ -622,6 +639,16 @@ static void test_mistyped_fields(void **state)
     for (int i = 0; i < 32; i++)
         r[n++] = 0x11;
     r[n++] = 0x90, r[n++] = 0xa0;
+    r[n++] = 0xa0, r[n++] = 0xa0; /* worker "", host "" */
+    size_t at_cpu = n;
+    r[n++] = 0xcb; /* cpu_seconds 0.0 */
+    for (int i = 0; i < 8; i++)
+        r[n++] = 0x00;
+    r[n++] = 0x00; /* peak_rss_kb 0 */
+    size_t at_finished = n;
+    r[n++] = 0xcb; /* finished_at 0.0 */
+    for (int i = 0; i < 8; i++)
+        r[n++] = 0x00;
     proto_msg_t *d = NULL;
     assert_int_equal(proto_msg_decode(r, n, NULL, &d, NULL), PROTO_OK); /* the valid form */
     assert_int_equal(d->u.results.results[0].cached, 1);
@@ -634,6 +661,15 @@ static void test_mistyped_fields(void **state)
     r[at_key] = 0xd9; /* str 8 of 32 bytes */
     r[at_key + 1] = 32;
     s_expect_refused(r, n, NULL, PROTO_ETYPE, "RESULTS.results[0].key: str, expected bin");
+    r[at_key] = 0xc4;
+    /* a NaN (0x7ff8...) CPU time and a negative (sign bit) time stamp */
+    r[at_cpu + 1] = 0x7f, r[at_cpu + 2] = 0xf8;
+    s_expect_refused(r, n, NULL, PROTO_EVALUE,
+                     "RESULTS.results[0].cpu_seconds: nan, expected a finite value >= 0");
+    r[at_cpu + 1] = 0x00, r[at_cpu + 2] = 0x00;
+    r[at_finished + 1] = 0xbf, r[at_finished + 2] = 0xf0; /* -1.0 */
+    s_expect_refused(r, n, NULL, PROTO_EVALUE,
+                     "RESULTS.results[0].finished_at: -1, expected a finite value >= 0");
 
     /* SUBMIT: seed_mode 2; genome as str instead of bin */
     static const uint8_t s1[] = {0x9c, 0x01, 0x01, 0xa1, 'r', 0x00, 0x02, 0x00, 0x00, 0x00, 0x00,

@@ -7,7 +7,7 @@
         res = differential_evolution(f, [(-5.12, 5.12)] * 4, workers=pool.map,
                                      updating="deferred", seed=1)
 
-Pool, Run, Function, Result and the exceptions are loaded on first use, so
+Pool, Run, Function, Result, Provenance and the exceptions are loaded on first use, so
 `import fitfarm.simulator` (a simulator run by a worker) works without
 libfitfarm; the first use of Pool raises ImportError naming every place the
 library was looked for when it cannot be found. See client/python/README.md."""
@@ -17,7 +17,7 @@ from .errors import (ConnectError, Error, EvaluationError, InvalidArgumentError,
 
 __version__ = "0.1.0"
 
-_LAZY = {"Pool", "Run", "Function", "Result", "library_version", "library_path"}
+_LAZY = {"Pool", "Run", "Function", "Result", "Provenance", "library_version", "library_path"}
 
 
 def __getattr__(name):

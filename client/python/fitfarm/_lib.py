@@ -98,7 +98,9 @@ class CResult(_Sized):
     _fields_ = [("size", c_size_t), ("batch", c_void_p), ("index", c_size_t),
                 ("replicate", c_uint), ("status", c_int), ("cached", c_int),
                 ("seed", c_u64), ("key", ctypes.c_uint8 * 32), ("n_fitness", c_size_t),
-                ("fitness", ctypes.POINTER(c_double)), ("error", c_char_p)]
+                ("fitness", ctypes.POINTER(c_double)), ("error", c_char_p),
+                ("worker", c_char_p), ("host", c_char_p), ("cpu_seconds", c_double),
+                ("peak_rss_kb", c_u64), ("finished_at", c_double)]
 
 
 class Refusal(_Sized):

@@ -19,6 +19,7 @@ Not here: finding the library (_lib.py), exceptions (errors.py), the
 simulator helper (simulator.py)."""
 import atexit
 import builtins
+import collections
 import concurrent.futures
 import ctypes
 import json
@@ -45,6 +46,14 @@ STATUS_NAMES = ("ok", "invalid", "failed", "crashed", "timeout")
 _SEED_MODES = {"genome": 0, "common": 1}
 
 
+Provenance = collections.namedtuple("Provenance",
+                                    "worker host cpu_seconds peak_rss_kb finished_at")
+Provenance.__doc__ = """Who computed a result and what it cost: the worker's name and host,
+the evaluation's CPU seconds and peak resident set (KiB) as the worker measured
+them, and the Unix time the broker recorded it. For a cached answer, the
+evaluation that first computed it; "" and 0 where the store did not record it."""
+
+
 class Result:
     """One evaluation request's result (genome index x replicate).
 
@@ -52,12 +61,13 @@ class Result:
     the number); fitness: tuple of floats (a numpy array when the genomes were
     a numpy array; empty when not ok); cached: answered from the store without
     simulating; seed: the evaluation seed (int); key: the content key (hex);
-    error: the worker's sentence ("" when none)."""
+    error: the worker's sentence ("" when none); provenance: a Provenance."""
 
     __slots__ = ("index", "replicate", "status_code", "fitness", "cached", "seed", "key_bytes",
-                 "error")
+                 "error", "provenance")
 
-    def __init__(self, index, replicate, status_code, fitness, cached, seed, key_bytes, error):
+    def __init__(self, index, replicate, status_code, fitness, cached, seed, key_bytes, error,
+                 provenance=None):
         self.index = index
         self.replicate = replicate
         self.status_code = status_code
@@ -66,6 +76,7 @@ class Result:
         self.seed = seed
         self.key_bytes = key_bytes
         self.error = error
+        self.provenance = provenance or Provenance("", "", 0.0, 0, 0.0)
 
     @property
     def key(self):
@@ -267,8 +278,11 @@ class Run:
         else:
             fit = tuple(r.fitness[:nf]) if nf else ()
         err = r.error
+        prov = Provenance((r.worker or b"").decode("utf-8", "replace"),
+                          (r.host or b"").decode("utf-8", "replace"),
+                          r.cpu_seconds, r.peak_rss_kb, r.finished_at)
         res = Result(r.index, r.replicate, r.status, fit, bool(r.cached), r.seed, bytes(r.key),
-                     err.decode("utf-8", "replace") if err else "")
+                     err.decode("utf-8", "replace") if err else "", prov)
         st.results[k] = res
         if st.on_result is not None:  # a stream: wake its reader
             st.on_result(res)
