@@ -1,12 +1,14 @@
 /* batch.c: batches of genomes for one plugin, their f64 encoding, and the
  * results stored per (genome, replicate) slot as they arrive.
  *
- * Not here: tags, chunks and sending (run.c). A batch knows the run it was
- * submitted through only so it can unlink itself when destroyed first. */
+ * Not here: tags, chunks and sending (run.c), and fitfarm_batch_destroy
+ * (run.c too: it unlinks the batch from its run first). Nothing here reads
+ * a run: the batch's run pointer belongs to run.c. */
 #include <stdlib.h>
 #include <string.h>
 
-#include "internal.h"
+#include "batch.h"
+#include "sized.h"
 #include "params.h"
 
 FITFARM_API int fitfarm_batch_new(const char *plugin, const char *params_json, unsigned replicates,
@@ -30,7 +32,7 @@ FITFARM_API int fitfarm_batch_new(const char *plugin, const char *params_json, u
         /* The canonicaliser does not tell out-of-memory from bad JSON; the
          * latter is what a caller can fix, so say that. */
         int rc = self->plugin ? FITFARM_EINVAL : FITFARM_ENOMEM;
-        fitfarm_batch_destroy(&self);
+        client_batch_free(self);
         return rc;
     }
     *out = self;
@@ -201,12 +203,10 @@ FITFARM_API int fitfarm_batch_result(const fitfarm_batch_t *batch, size_t index,
     return FITFARM_OK;
 }
 
-FITFARM_API void fitfarm_batch_destroy(fitfarm_batch_t **batch_p)
+void client_batch_free(fitfarm_batch_t *self)
 {
-    if (!batch_p || !*batch_p)
+    if (!self)
         return;
-    fitfarm_batch_t *self = *batch_p;
-    client_batch_detach(self);
     if (self->slots) {
         size_t n_slots = self->n * self->replicates;
         for (size_t i = 0; i < n_slots; i++) {
@@ -223,5 +223,4 @@ FITFARM_API void fitfarm_batch_destroy(fitfarm_batch_t **batch_p)
     free(self->plugin);
     free(self->params);
     free(self);
-    *batch_p = NULL;
 }

@@ -5,7 +5,8 @@
  * pool and at answers that came in the background.
  *
  * Not here: what a message means (run.c), sockets (client.c). */
-#include "internal.h"
+#include "client.h"
+#include "run.h"
 
 /* One turn of waiting: sends what is queued, handles what arrived, and
  * checks that an embedded pool is still alive. */
@@ -13,7 +14,7 @@ static int s_wait_turn(fitfarm_client_t *cl, int wait_ms)
 {
     int rc = client_pump(cl, wait_ms);
     if (rc >= 0 && cl->pool)
-        rc = client_pool_check(cl->pool, cl->err, sizeof cl->err);
+        rc = client_pool_check(cl->pool, cl->core.err, sizeof cl->core.err);
     return rc < 0 ? rc : 0;
 }
 

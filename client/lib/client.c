@@ -5,8 +5,9 @@
  * Also the pollable descriptor for callers' own loops, and the last-error
  * sentence.
  *
- * Not here: runs, chunks and results (run.c), batches (batch.c), waiting
- * (blocking.c), the embedded pool's processes (pool.c).
+ * Not here: runs, chunks and results (run.c), batches (batch.c), the outbox
+ * itself (core.c), waiting (blocking.c), the embedded pool's processes
+ * (pool.c).
  *
  * Reconnection is ZeroMQ's: the DEALER socket reconnects by itself (100 ms,
  * backing off to 2 s) and ZMTP heartbeats drop a half-open TCP connection. A
@@ -21,9 +22,9 @@
 #include <string.h>
 #include <zmq.h>
 
+#include "client.h"
 #include "common/clock.h"
-#include "internal.h"
-#include "ring.h"
+#include "run.h"
 #include "secure.h"
 
 #define CLIENT_DEFAULT_CONNECT_MS 10000
@@ -38,7 +39,7 @@ int client_fail(fitfarm_client_t *self, int code, const char *fmt, ...)
     if (self) {
         va_list ap;
         va_start(ap, fmt);
-        vsnprintf(self->err, sizeof self->err, fmt, ap);
+        vsnprintf(self->core.err, sizeof self->core.err, fmt, ap);
         va_end(ap);
     }
     return code;
@@ -107,38 +108,13 @@ static int s_connect(fitfarm_client_t *self, const fitfarm_options_t *options)
     return FITFARM_OK;
 }
 
-int client_emit(fitfarm_client_t *self, const proto_msg_t *msg)
-{
-    uint8_t *buf = NULL;
-    size_t len = 0;
-    int prc = proto_msg_encode(msg, &buf, &len);
-    if (prc == PROTO_ENOMEM)
-        return client_fail(self, FITFARM_ENOMEM, "out of memory encoding %s",
-                           proto_type_name((int)msg->type));
-    if (prc != PROTO_OK)
-        return client_fail(self, FITFARM_EINVAL, "cannot encode %s: a field is out of protocol",
-                           proto_type_name((int)msg->type));
-    void *ring = self->outbox;
-    if (client_ring_reserve(&ring, &self->out_cap, &self->out_head, self->out_len,
-                            sizeof *self->outbox, 64) != 0) {
-        free(buf);
-        return client_fail(self, FITFARM_ENOMEM, "out of memory queueing a message");
-    }
-    self->outbox = ring;
-    self->outbox[(self->out_head + self->out_len) % self->out_cap] = (client_frame_t){buf, len};
-    self->out_len++;
-    return FITFARM_OK;
-}
-
 int client_flush(fitfarm_client_t *self, int timeout_ms)
 {
     int64_t deadline = client_deadline(timeout_ms);
-    while (self->out_len > 0) {
-        client_frame_t *f = &self->outbox[self->out_head];
+    const client_frame_t *f;
+    while ((f = client_core_peek_frame(&self->core)) != NULL) {
         if (zmq_send(self->sock, f->buf, f->len, ZMQ_DONTWAIT) >= 0) {
-            free(f->buf);
-            self->out_head = (self->out_head + 1) % self->out_cap;
-            self->out_len--;
+            client_core_drop_frame(&self->core);
             continue;
         }
         if (errno != EAGAIN && errno != EINTR)
@@ -150,7 +126,7 @@ int client_flush(fitfarm_client_t *self, int timeout_ms)
                                    : client_fail(self, FITFARM_ETIMEDOUT,
                                                  "the broker at %s did not take %zu queued "
                                                  "messages in time", self->endpoint,
-                                                 self->out_len);
+                                                 self->core.out_len);
         zmq_pollitem_t item = {self->sock, 0, ZMQ_POLLOUT, 0};
         zmq_poll(&item, 1, left < 0 || left > 100 ? 100 : left);
     }
@@ -194,28 +170,15 @@ static void s_on_monitor(fitfarm_client_t *self)
 static void s_dispatch(fitfarm_client_t *self, proto_msg_t **msg_p)
 {
     proto_msg_t *msg = *msg_p;
-    fitfarm_run_t *run;
-    switch (msg->type) {
-    case PROTO_RESULTS:
-        run = client_run_find(self, msg->u.results.run_id);
-        if (run)
-            client_run_on_results(run, &msg->u.results);
-        break;
-    case PROTO_ACCEPTED:
-        client_run_on_answer(self, msg->u.accepted.batch_tag, NULL);
-        break;
-    case PROTO_REFUSED:
-        client_run_on_answer(self, msg->u.refused.batch_tag, &msg->u.refused);
-        break;
-    case PROTO_STATUS:
+    if (client_runs_on_message(&self->core, msg))
+        return;
+    if (msg->type == PROTO_STATUS) {
         proto_msg_destroy(&self->status);
         self->status = msg;
         self->status_count++;
         *msg_p = NULL;
-        break;
-    default: /* HEARTBEAT, or anything a client has no use for */
-        break;
     }
+    /* else HEARTBEAT, or anything a client has no use for */
 }
 
 /* Receives one message without blocking; returns 1 if one was handled, 0 if
@@ -271,12 +234,9 @@ int client_pump(fitfarm_client_t *self, int timeout_ms)
     if (items[0].revents & ZMQ_POLLIN)
         for (int i = 0; i < CLIENT_PUMP_BURST && s_recv_one(self); i++)
             handled = 1;
-    int64_t now = common_clock_ms();
     int all = self->reconnected;
     self->reconnected = 0;
-    for (fitfarm_run_t *run = self->runs; run; run = run->next)
-        if (all || (run->retry_at_ms != 0 && now >= run->retry_at_ms))
-            client_run_resend(run);
+    client_runs_resend_due(&self->core, common_clock_ms(), all);
     /* What the messages produced (acknowledgements, re-sends) goes out now. */
     frc = client_flush(self, 0);
     return frc != FITFARM_OK ? frc : handled;
@@ -287,7 +247,7 @@ static int s_send_status_req(fitfarm_client_t *self)
     proto_msg_t msg;
     memset(&msg, 0, sizeof msg);
     msg.type = PROTO_STATUS_REQ;
-    int rc = client_emit(self, &msg);
+    int rc = client_core_emit(&self->core, &msg);
     return rc != FITFARM_OK ? rc : client_flush(self, 1000);
 }
 
@@ -320,7 +280,7 @@ int client_status(fitfarm_client_t *self, proto_msg_t **status_out, int timeout_
         if (rc < 0)
             return rc;
         if (self->pool) {
-            rc = client_pool_check(self->pool, self->err, sizeof self->err);
+            rc = client_pool_check(self->pool, self->core.err, sizeof self->core.err);
             if (rc != FITFARM_OK)
                 return rc;
         }
@@ -348,7 +308,7 @@ static int s_handshake(fitfarm_client_t *self)
             next_probe = now + (self->pool ? CLIENT_PROBE_LOCAL_MS : CLIENT_PROBE_MS);
         }
         if (self->pool) {
-            int rc = client_pool_check(self->pool, self->err, sizeof self->err);
+            int rc = client_pool_check(self->pool, self->core.err, sizeof self->core.err);
             if (rc != FITFARM_OK)
                 return rc;
         }
@@ -405,7 +365,7 @@ FITFARM_API int fitfarm_client_new(const fitfarm_options_t *caller_options,
     self->limits = proto_limits_default();
     self->connect_timeout_ms =
         options->connect_timeout_ms > 0 ? options->connect_timeout_ms : CLIENT_DEFAULT_CONNECT_MS;
-    self->next_batch_tag = 1;
+    client_core_init(&self->core);
 
     if (options->broker) {
         if (!*options->broker) {
@@ -415,7 +375,7 @@ FITFARM_API int fitfarm_client_new(const fitfarm_options_t *caller_options,
         self->endpoint = strdup(options->broker);
     } else {
         /* The daemons as child programs on private ipc endpoints (pool.c). */
-        rc = client_pool_new(options, &self->pool, self->err, sizeof self->err);
+        rc = client_pool_new(options, &self->pool, self->core.err, sizeof self->core.err);
         if (rc != FITFARM_OK)
             goto cleanup;
         self->endpoint = strdup(client_pool_endpoint(self->pool));
@@ -430,7 +390,8 @@ FITFARM_API int fitfarm_client_new(const fitfarm_options_t *caller_options,
 cleanup:
     if (rc != FITFARM_OK) {
         if (errbuf && errlen)
-            snprintf(errbuf, errlen, "%s", self->err[0] ? self->err : fitfarm_strerror(rc));
+            snprintf(errbuf, errlen, "%s",
+                     self->core.err[0] ? self->core.err : fitfarm_strerror(rc));
         fitfarm_client_destroy(&self);
     }
     *out = self;
@@ -443,8 +404,7 @@ FITFARM_API void fitfarm_client_destroy(fitfarm_client_t **self_p)
         return;
     fitfarm_client_t *self = *self_p;
     /* Runs outlived their client (caller misuse): make them fail cleanly. */
-    for (fitfarm_run_t *run = self->runs; run; run = run->next)
-        run->client = NULL;
+    client_runs_detach(&self->core);
     if (self->sock) {
         zmq_socket_monitor(self->sock, NULL, 0);
         zmq_close(self->sock);
@@ -455,9 +415,7 @@ FITFARM_API void fitfarm_client_destroy(fitfarm_client_t **self_p)
         zmq_ctx_term(self->zctx);
     client_pool_destroy(&self->pool);
     proto_msg_destroy(&self->status);
-    for (size_t i = 0; i < self->out_len; i++)
-        free(self->outbox[(self->out_head + i) % self->out_cap].buf);
-    free(self->outbox);
+    client_core_fini(&self->core);
     free(self->endpoint);
     free(self);
     *self_p = NULL;
@@ -467,7 +425,7 @@ FITFARM_API const char *fitfarm_client_error(const fitfarm_client_t *self)
 {
     if (!self)
         return "no client";
-    return self->err;
+    return self->core.err;
 }
 
 FITFARM_API const char *fitfarm_client_endpoint(const fitfarm_client_t *self)
@@ -497,13 +455,10 @@ FITFARM_API int fitfarm_client_next_timeout(fitfarm_client_t *self)
     if (self->reconnected ||
         (zmq_getsockopt(self->sock, ZMQ_EVENTS, &events, &len) == 0 && (events & ZMQ_POLLIN)))
         return 0;
-    int64_t now = common_clock_ms(), next = -1;
-    for (fitfarm_run_t *run = self->runs; run; run = run->next)
-        if (run->retry_at_ms != 0 && (next < 0 || run->retry_at_ms < next))
-            next = run->retry_at_ms;
+    int64_t now = common_clock_ms(), next = client_runs_next_retry(&self->core);
     /* The monitor socket has no descriptor of the caller's: look at it
      * every 100 ms while a reconnect could be pending. */
-    int poll_ms = self->runs ? 100 : -1;
+    int poll_ms = self->core.runs ? 100 : -1;
     if (next < 0)
         return poll_ms;
     int64_t left = next > now ? next - now : 0;
@@ -526,9 +481,25 @@ FITFARM_API int fitfarm_client_process(fitfarm_client_t *self)
         handled++;
     }
     if (self->pool) {
-        int rc = client_pool_check(self->pool, self->err, sizeof self->err);
+        int rc = client_pool_check(self->pool, self->core.err, sizeof self->core.err);
         if (rc != FITFARM_OK)
             return rc;
     }
     return handled;
+}
+
+FITFARM_API int fitfarm_run_open(fitfarm_client_t *client,
+                                 const fitfarm_run_options_t *caller_options, fitfarm_run_t **out)
+{
+    if (!out)
+        return FITFARM_EINVAL;
+    *out = NULL;
+    if (!client || !caller_options)
+        return FITFARM_EINVAL;
+    if (caller_options->size == 0)
+        return client_fail(client, FITFARM_EINVAL, "run options.size is 0: initialise them "
+                           "with FITFARM_RUN_OPTIONS_INIT");
+    fitfarm_run_options_t opts;
+    CLIENT_COPY_IN(opts, caller_options);
+    return client_run_new(&client->core, client, &opts, out);
 }

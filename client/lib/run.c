@@ -1,9 +1,10 @@
 /* run.c: the core of the client library: runs, and everything between a
  * batch and the messages: tags, SUBMIT chunks, ACCEPTED/REFUSED answers,
  * storing RESULTS exactly once, ACKs, re-sending after a reconnect. No I/O:
- * it is fed decoded messages (client_run_on_*) and emits the messages to
- * send into the client's outbox (client_emit); the transport (client.c)
- * moves them, the blocking calls (blocking.c) wait.
+ * it is fed decoded messages (client_runs_on_message) and emits the
+ * messages to send into the core's outbox (client_core_emit, core.h); the
+ * transport (client.c) moves them, the blocking calls (blocking.c) wait. It
+ * never sees the client object or a socket.
  *
  * Tags. Slot s (= genome index * replicates + replicate) of a batch has tag
  * tag_base + s; a run hands out tag ranges from a counter, so tags are unique
@@ -24,53 +25,46 @@
 #include <string.h>
 
 #include "common/clock.h"
-#include "internal.h"
-#include "ring.h"
 #include "key.h"
+#include "ring.h"
+#include "run.h"
 
 #define CLIENT_RETRY_EVERY_MS 1000   /* re-send refused re-sends this often ... */
 #define CLIENT_RETRY_FOR_MS 60000    /* ... for this long (workers re-register) */
 
-fitfarm_run_t *client_run_find(fitfarm_client_t *self, const char *run_id)
+static void s_resend(fitfarm_run_t *run);
+
+fitfarm_run_t *client_run_find(const client_core_t *core, const char *run_id)
 {
-    for (fitfarm_run_t *run = self->runs; run; run = run->next)
+    for (fitfarm_run_t *run = core->runs; run; run = run->next)
         if (strcmp(run->id, run_id) == 0)
             return run;
     return NULL;
 }
 
-FITFARM_API int fitfarm_run_open(fitfarm_client_t *client,
-                                 const fitfarm_run_options_t *caller_options, fitfarm_run_t **out)
+int client_run_new(client_core_t *core, fitfarm_client_t *client,
+                   const fitfarm_run_options_t *options, fitfarm_run_t **out)
 {
-    if (!out)
-        return FITFARM_EINVAL;
     *out = NULL;
-    if (!client || !caller_options)
-        return FITFARM_EINVAL;
-    if (caller_options->size == 0)
-        return client_fail(client, FITFARM_EINVAL, "run options.size is 0: initialise them "
-                           "with FITFARM_RUN_OPTIONS_INIT");
-    fitfarm_run_options_t opts;
-    CLIENT_COPY_IN(opts, caller_options);
-    const fitfarm_run_options_t *options = &opts;
     if (options->seed_mode != PROTO_SEED_GENOME && options->seed_mode != PROTO_SEED_COMMON)
-        return client_fail(client, FITFARM_EINVAL, "seed_mode %d is neither 0 (per genome) "
-                           "nor 1 (common random numbers)", options->seed_mode);
+        return client_core_fail(core, FITFARM_EINVAL, "seed_mode %d is neither 0 (per genome) "
+                                "nor 1 (common random numbers)", options->seed_mode);
     if (options->run_id) {
         size_t len = strlen(options->run_id);
         if (len == 0 || len > PROTO_MAX_NAME_BYTES)
-            return client_fail(client, FITFARM_EINVAL,
-                               "a run id must have 1 to %u bytes, not %zu",
-                               PROTO_MAX_NAME_BYTES, len);
-        if (client_run_find(client, options->run_id))
-            return client_fail(client, FITFARM_EINVAL,
-                               "run \"%s\" is already open in this client", options->run_id);
+            return client_core_fail(core, FITFARM_EINVAL,
+                                    "a run id must have 1 to %u bytes, not %zu",
+                                    PROTO_MAX_NAME_BYTES, len);
+        if (client_run_find(core, options->run_id))
+            return client_core_fail(core, FITFARM_EINVAL,
+                                    "run \"%s\" is already open in this client",
+                                    options->run_id);
     }
     if (sodium_init() < 0)
-        return client_fail(client, FITFARM_ESYSTEM, "libsodium failed to initialise");
+        return client_core_fail(core, FITFARM_ESYSTEM, "libsodium failed to initialise");
     fitfarm_run_t *run = calloc(1, sizeof *run);
     if (!run)
-        return client_fail(client, FITFARM_ENOMEM, "out of memory opening a run");
+        return client_core_fail(core, FITFARM_ENOMEM, "out of memory opening a run");
     if (options->run_id) {
         run->id = strdup(options->run_id);
     } else {
@@ -84,8 +78,9 @@ FITFARM_API int fitfarm_run_open(fitfarm_client_t *client,
     }
     if (!run->id) {
         free(run);
-        return client_fail(client, FITFARM_ENOMEM, "out of memory opening a run");
+        return client_core_fail(core, FITFARM_ENOMEM, "out of memory opening a run");
     }
+    run->core = core;
     run->client = client;
     run->seed = options->seed;
     run->seed_mode = (uint32_t)options->seed_mode;
@@ -94,10 +89,35 @@ FITFARM_API int fitfarm_run_open(fitfarm_client_t *client,
     run->timeout_s = options->timeout_s;
     run->attempts = options->attempts;
     run->next_tag = 0; /* deterministic tags: see the top of this file */
-    run->next = client->runs;
-    client->runs = run;
+    run->next = core->runs;
+    core->runs = run;
     *out = run;
     return FITFARM_OK;
+}
+
+void client_runs_detach(client_core_t *core)
+{
+    for (fitfarm_run_t *run = core->runs; run; run = run->next) {
+        run->core = NULL;
+        run->client = NULL;
+    }
+    core->runs = NULL;
+}
+
+void client_runs_resend_due(client_core_t *core, int64_t now_ms, int all)
+{
+    for (fitfarm_run_t *run = core->runs; run; run = run->next)
+        if (all || (run->retry_at_ms != 0 && now_ms >= run->retry_at_ms))
+            s_resend(run);
+}
+
+int64_t client_runs_next_retry(const client_core_t *core)
+{
+    int64_t next = -1;
+    for (const fitfarm_run_t *run = core->runs; run; run = run->next)
+        if (run->retry_at_ms != 0 && (next < 0 || run->retry_at_ms < next))
+            next = run->retry_at_ms;
+    return next;
 }
 
 FITFARM_API int fitfarm_run_stats(const fitfarm_run_t *run, fitfarm_run_stats_t *out)
@@ -163,8 +183,8 @@ FITFARM_API void fitfarm_run_destroy(fitfarm_run_t **run_p)
     if (!run_p || !*run_p)
         return;
     fitfarm_run_t *run = *run_p;
-    if (run->client) {
-        for (fitfarm_run_t **pp = &run->client->runs; *pp; pp = &(*pp)->next)
+    if (run->core) {
+        for (fitfarm_run_t **pp = &run->core->runs; *pp; pp = &(*pp)->next)
             if (*pp == run) {
                 *pp = run->next;
                 break;
@@ -207,6 +227,17 @@ void client_batch_detach(fitfarm_batch_t *batch)
     batch->run = NULL;
 }
 
+/* Here rather than in batch.c: a batch is unlinked from its run before it
+ * is freed, and the run is this file's (batch.c knows nothing of runs). */
+FITFARM_API void fitfarm_batch_destroy(fitfarm_batch_t **batch_p)
+{
+    if (!batch_p || !*batch_p)
+        return;
+    client_batch_detach(*batch_p);
+    client_batch_free(*batch_p);
+    *batch_p = NULL;
+}
+
 static fitfarm_batch_t *s_batch_of_tag(fitfarm_run_t *run, uint64_t tag, size_t *slot)
 {
     size_t lo = 0, hi = run->n_batches; /* first batch with tag_base > tag */
@@ -247,7 +278,7 @@ static void s_async_fail(fitfarm_run_t *run, int code, const char *text)
     snprintf(run->async_err, sizeof run->async_err, "%s", text);
 }
 
-void client_run_on_results(fitfarm_run_t *run, const proto_results_t *results)
+static void s_on_results(fitfarm_run_t *run, const proto_results_t *results)
 {
     uint64_t *acks = malloc((results->n_results ? results->n_results : 1) * sizeof *acks);
     uint32_t n_acks = 0;
@@ -284,7 +315,7 @@ void client_run_on_results(fitfarm_run_t *run, const proto_results_t *results)
         if (acks)
             acks[n_acks++] = r->tag;
     }
-    if (acks && n_acks > 0 && run->client) {
+    if (acks && n_acks > 0 && run->core) {
         proto_msg_t msg;
         memset(&msg, 0, sizeof msg);
         msg.type = PROTO_ACK;
@@ -292,9 +323,9 @@ void client_run_on_results(fitfarm_run_t *run, const proto_results_t *results)
         msg.u.ack.n_tags = n_acks;
         msg.u.ack.tags = acks;
         char saved[CLIENT_ERR_BYTES];
-        memcpy(saved, run->client->err, sizeof saved);
-        (void)client_emit(run->client, &msg); /* a lost ACK costs only a re-delivery */
-        memcpy(run->client->err, saved, sizeof saved); /* ... and is not the caller's error */
+        memcpy(saved, run->core->err, sizeof saved);
+        (void)client_core_emit(run->core, &msg); /* a lost ACK costs only a re-delivery */
+        memcpy(run->core->err, saved, sizeof saved); /* ... and is not the caller's error */
     }
     free(acks);
 }
@@ -324,13 +355,12 @@ static void s_background_refused(fitfarm_run_t *run, client_chunk_t *c, uint32_t
                  msg);
 }
 
-void client_run_on_answer(fitfarm_client_t *self, uint64_t batch_tag,
-                          const proto_refused_t *refused)
+static void s_on_answer(client_core_t *core, uint64_t batch_tag, const proto_refused_t *refused)
 {
     int accepted = refused == NULL;
     uint32_t code = refused ? refused->code : 0;
     const char *text = refused ? refused->text : NULL;
-    for (fitfarm_run_t *run = self->runs; run; run = run->next) {
+    for (fitfarm_run_t *run = core->runs; run; run = run->next) {
         for (size_t i = 0; i < run->n_chunks; i++) {
             client_chunk_t *c = &run->chunks[i];
             if (c->batch_tag != batch_tag || c->answered)
@@ -378,7 +408,7 @@ static int s_chunk_send(fitfarm_run_t *run, const client_chunk_t *c)
     fitfarm_batch_t *b = c->batch;
     proto_item_t *items = malloc(c->n_slots * sizeof *items);
     if (!items)
-        return client_fail(run->client, FITFARM_ENOMEM, "out of memory building a SUBMIT");
+        return client_core_fail(run->core, FITFARM_ENOMEM, "out of memory building a SUBMIT");
     for (uint32_t k = 0; k < c->n_slots; k++) {
         size_t slot = c->slots[k];
         size_t g = slot / b->replicates;
@@ -402,7 +432,7 @@ static int s_chunk_send(fitfarm_run_t *run, const client_chunk_t *c)
     msg.u.submit.params = b->params;
     msg.u.submit.n_items = c->n_slots;
     msg.u.submit.items = items;
-    int rc = client_emit(run->client, &msg);
+    int rc = client_core_emit(run->core, &msg);
     free(items);
     return rc;
 }
@@ -425,7 +455,7 @@ static int s_send_slots(fitfarm_run_t *run, fitfarm_batch_t *b, int from, int ba
             size_t cap = run->cap_chunks ? run->cap_chunks * 2 : 16;
             client_chunk_t *c = realloc(run->chunks, cap * sizeof *c);
             if (!c)
-                return client_fail(run->client, FITFARM_ENOMEM, "out of memory building chunks");
+                return client_core_fail(run->core, FITFARM_ENOMEM, "out of memory building chunks");
             run->chunks = c;
             run->cap_chunks = cap;
         }
@@ -433,7 +463,7 @@ static int s_send_slots(fitfarm_run_t *run, fitfarm_batch_t *b, int from, int ba
         memset(c, 0, sizeof *c);
         c->slots = malloc(CLIENT_CHUNK_ITEMS * sizeof *c->slots);
         if (!c->slots)
-            return client_fail(run->client, FITFARM_ENOMEM, "out of memory building chunks");
+            return client_core_fail(run->core, FITFARM_ENOMEM, "out of memory building chunks");
         size_t bytes = 0;
         for (; s < n_slots && c->n_slots < CLIENT_CHUNK_ITEMS; s++) {
             if (b->slots[s].state != from)
@@ -446,7 +476,7 @@ static int s_send_slots(fitfarm_run_t *run, fitfarm_batch_t *b, int from, int ba
         }
         c->batch = b;
         c->background = background;
-        c->batch_tag = run->client->next_batch_tag++;
+        c->batch_tag = run->core->next_batch_tag++;
         run->n_chunks++;
         if (background)
             run->n_resent += c->n_slots;
@@ -461,13 +491,13 @@ static int s_send_slots(fitfarm_run_t *run, fitfarm_batch_t *b, int from, int ba
     return FITFARM_OK;
 }
 
-void client_run_resend(fitfarm_run_t *run)
+static void s_resend(fitfarm_run_t *run)
 {
-    if (!run->client)
+    if (!run->core)
         return;
     run->retry_at_ms = 0;
     char saved[CLIENT_ERR_BYTES];
-    memcpy(saved, run->client->err, sizeof saved);
+    memcpy(saved, run->core->err, sizeof saved);
     /* Earlier re-sends that were never answered are superseded below. */
     s_chunks_remove_if(run, NULL, 0, 1);
     for (size_t i = 0; i < run->n_chunks; i++)
@@ -480,7 +510,7 @@ void client_run_resend(fitfarm_run_t *run)
             (void)s_send_slots(run, b, CLIENT_SLOT_ACCEPTED, 1, &sent);
     }
     /* A failed re-send is retried at the next reconnect; not the caller's error. */
-    memcpy(run->client->err, saved, sizeof saved);
+    memcpy(run->core->err, saved, sizeof saved);
 }
 
 /* Writes the sentence for chunk c's refusal to buf, records the refusal on
@@ -554,22 +584,22 @@ static size_t s_reattach(fitfarm_run_t *run, const fitfarm_batch_t *b)
 
 int client_run_submit_start(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int again)
 {
-    fitfarm_client_t *cl = run ? run->client : NULL;
+    client_core_t *cl = run ? run->core : NULL;
     if (!cl || !b)
-        return cl ? client_fail(cl, FITFARM_EINVAL, "no batch given") : FITFARM_EINVAL;
+        return cl ? client_core_fail(cl, FITFARM_EINVAL, "no batch given") : FITFARM_EINVAL;
     if (b->run && b->run != run)
-        return client_fail(cl, FITFARM_EINVAL, "the batch was submitted through another run");
+        return client_core_fail(cl, FITFARM_EINVAL, "the batch was submitted through another run");
     int first = b->slots == NULL;
     if (!b->slots) {
         if (client_batch_prepare(b) != FITFARM_OK)
-            return client_fail(cl, FITFARM_ENOMEM, "out of memory preparing the batch");
+            return client_core_fail(cl, FITFARM_ENOMEM, "out of memory preparing the batch");
         if (run->n_batches == run->cap_batches) {
             size_t cap = run->cap_batches ? run->cap_batches * 2 : 16;
             fitfarm_batch_t **v = realloc(run->batches, cap * sizeof *v);
             if (!v) {
                 free(b->slots);
                 b->slots = NULL;
-                return client_fail(cl, FITFARM_ENOMEM, "out of memory submitting");
+                return client_core_fail(cl, FITFARM_ENOMEM, "out of memory submitting");
             }
             run->batches = v;
             run->cap_batches = cap;
@@ -580,15 +610,15 @@ int client_run_submit_start(fitfarm_run_t *run, fitfarm_batch_t *b, int streamin
         b->run = run;
         run->batches[run->n_batches++] = b;
     } else if (!b->run) {
-        return client_fail(cl, FITFARM_EINVAL, "the batch's run was destroyed");
+        return client_core_fail(cl, FITFARM_EINVAL, "the batch's run was destroyed");
     } else if (b->streaming != streaming) {
-        return client_fail(cl, FITFARM_EINVAL, "a batch is either evaluated or submitted, "
+        return client_core_fail(cl, FITFARM_EINVAL, "a batch is either evaluated or submitted, "
                            "not both");
     }
     size_t sent = 0;
     int rc = s_send_slots(run, b, CLIENT_SLOT_UNSENT, 0, &sent);
     if (rc == FITFARM_OK && sent == 0 && !first && s_reattach(run, b) == 0 && !again)
-        return client_fail(cl, FITFARM_EINVAL, "the batch was already submitted");
+        return client_core_fail(cl, FITFARM_EINVAL, "the batch was already submitted");
     if (rc == FITFARM_OK)
         run->stats.submitted += first ? (uint64_t)b->n * b->replicates : 0;
     return rc;
@@ -605,7 +635,7 @@ int client_run_submit_pending(const fitfarm_run_t *run, const fitfarm_batch_t *b
 
 int client_run_submit_finish(fitfarm_run_t *run, fitfarm_batch_t *b, int rc)
 {
-    fitfarm_client_t *cl = run->client;
+    client_core_t *cl = run->core;
     /* Report the first refusal; forget answered and (on failure) pending chunks.
      * Unanswered slots go back to UNSENT so a later submit sends them again. */
     for (size_t i = 0; i < run->n_chunks; i++) {
@@ -615,7 +645,7 @@ int client_run_submit_finish(fitfarm_run_t *run, fitfarm_batch_t *b, int rc)
         if (c->answered == 2 && rc == FITFARM_OK) {
             char sentence[CLIENT_ERR_BYTES];
             rc = s_refusal(run, b, c, sentence, sizeof sentence);
-            client_fail(cl, rc, "%s", sentence);
+            client_core_fail(cl, rc, "%s", sentence);
         }
         if (!c->answered && (rc == FITFARM_OK || rc == FITFARM_ETIMEDOUT)) {
             c->detached = 1; /* still on its way: answered in the background */
@@ -642,7 +672,7 @@ int client_run_take_async(fitfarm_run_t *run)
 {
     int rc = run->async_rc;
     if (rc != 0) {
-        client_fail(run->client, rc, "%s", run->async_err);
+        client_core_fail(run->core, rc, "%s", run->async_err);
         run->async_rc = 0;
     }
     return rc;
@@ -657,4 +687,24 @@ int client_run_next_ready(fitfarm_run_t *run, fitfarm_result_t *out)
     run->ready_len--;
     client_batch_fill(e.batch, e.slot, out);
     return 1;
+}
+
+int client_runs_on_message(client_core_t *core, const proto_msg_t *msg)
+{
+    fitfarm_run_t *run;
+    switch (msg->type) {
+    case PROTO_RESULTS:
+        run = client_run_find(core, msg->u.results.run_id);
+        if (run)
+            s_on_results(run, &msg->u.results);
+        return 1;
+    case PROTO_ACCEPTED:
+        s_on_answer(core, msg->u.accepted.batch_tag, NULL);
+        return 1;
+    case PROTO_REFUSED:
+        s_on_answer(core, msg->u.refused.batch_tag, &msg->u.refused);
+        return 1;
+    default:
+        return 0;
+    }
 }

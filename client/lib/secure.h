@@ -7,7 +7,7 @@
 #ifndef CLIENT_SECURE_H
 #define CLIENT_SECURE_H
 
-#include "internal.h"
+#include "client.h"
 
 /* Before connecting sock to options->broker: applies the policy and the keys.
  * Returns FITFARM_OK, or a FITFARM_E* code with the client's error set to a

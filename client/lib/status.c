@@ -6,7 +6,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-#include "internal.h"
+#include "client.h"
 
 struct fitfarm_status {
     proto_msg_t *msg; /* PROTO_STATUS, owned */
