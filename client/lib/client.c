@@ -91,7 +91,10 @@ static int s_connect(fitfarm_client_t *self, const fitfarm_options_t *options)
         return client_fail(self, FITFARM_ESYSTEM, "cannot set socket options: %s",
                            zmq_strerror(errno));
     if (zmq_socket_monitor(self->sock, CLIENT_MONITOR_EP,
-                           ZMQ_EVENT_CONNECTED | ZMQ_EVENT_DISCONNECTED) != 0)
+                           ZMQ_EVENT_CONNECTED | ZMQ_EVENT_DISCONNECTED |
+                               ZMQ_EVENT_HANDSHAKE_SUCCEEDED | ZMQ_EVENT_HANDSHAKE_FAILED_NO_DETAIL |
+                               ZMQ_EVENT_HANDSHAKE_FAILED_PROTOCOL |
+                               ZMQ_EVENT_HANDSHAKE_FAILED_AUTH) != 0)
         return client_fail(self, FITFARM_ESYSTEM, "cannot monitor the socket: %s",
                            zmq_strerror(errno));
     self->monitor = zmq_socket(self->zctx, ZMQ_PAIR);
@@ -143,9 +146,12 @@ static void s_on_monitor(fitfarm_client_t *self)
             return;
         }
         uint16_t event = 0;
+        uint32_t value = 0;
         int first = zmq_msg_size(&frame) >= 6;
-        if (first)
+        if (first) {
             memcpy(&event, zmq_msg_data(&frame), sizeof event);
+            memcpy(&value, (const uint8_t *)zmq_msg_data(&frame) + 2, sizeof value);
+        }
         int more = zmq_msg_more(&frame);
         zmq_msg_close(&frame);
         while (more) { /* the endpoint frame */
@@ -160,9 +166,20 @@ static void s_on_monitor(fitfarm_client_t *self)
             continue;
         if (event == ZMQ_EVENT_DISCONNECTED) {
             self->disconnected = 1;
-        } else if (event == ZMQ_EVENT_CONNECTED && self->disconnected) {
-            self->disconnected = 0;
-            self->reconnected = 1;
+        } else if (event == ZMQ_EVENT_CONNECTED) {
+            self->hs_connects++;
+            if (self->disconnected) {
+                self->disconnected = 0;
+                self->reconnected = 1;
+            }
+        } else if (event == ZMQ_EVENT_HANDSHAKE_SUCCEEDED) {
+            self->hs_succeeded++;
+            self->hs_failed_event = 0;
+            self->hs_failed_runs = 0;
+        } else {
+            self->hs_failed_event = event;
+            self->hs_failed_value = value;
+            self->hs_failed_runs++;
         }
     }
 }
@@ -290,6 +307,63 @@ int client_status(fitfarm_client_t *self, proto_msg_t **status_out, int timeout_
     return FITFARM_OK;
 }
 
+/* Why the broker has not answered, from the socket's handshake events
+ * (libzmq's monitor: ZMQ_EVENT_HANDSHAKE_FAILED_AUTH carries the ZAP status
+ * code, _PROTOCOL a ZMQ_PROTOCOL_ERROR_* code). Writes a sentence that says
+ * what to do and returns 1 when the handshake is known to have failed (final:
+ * waiting longer will not help), 0 when nothing is known. */
+static int s_handshake_reason(const fitfarm_client_t *self, char *buf, size_t len)
+{
+    buf[0] = '\0';
+    if (self->hs_failed_event == ZMQ_EVENT_HANDSHAKE_FAILED_AUTH) {
+        snprintf(buf, len, "the broker at %s refused this client's key (fingerprint %s, ZAP "
+                 "status %u): ask the broker's operator to run 'fitfarm allow client "
+                 "YOUR.public --keys DIR' and send it SIGHUP",
+                 self->endpoint, self->curve ? self->fingerprint : "none",
+                 (unsigned)self->hs_failed_value);
+        return 1;
+    }
+    if (self->hs_failed_event == ZMQ_EVENT_HANDSHAKE_FAILED_PROTOCOL &&
+        self->hs_failed_value == ZMQ_PROTOCOL_ERROR_ZMTP_MECHANISM_MISMATCH) {
+        if (self->curve)
+            snprintf(buf, len, "the broker at %s does not use CURVE (it was started with "
+                     "--insecure) while this client does: use --insecure here too (loopback "
+                     "only), or restart the broker with its key", self->endpoint);
+        else
+            snprintf(buf, len, "the broker at %s speaks CURVE; this client was started "
+                     "with --insecure: give it --key YOUR.secret and --broker-key "
+                     "broker.public", self->endpoint);
+        return 1;
+    }
+    if (self->hs_failed_event != 0) {
+        /* The broker closed the connection mid-handshake without a reason:
+         * with CURVE, it could not open our HELLO (another broker key);
+         * without, it expects CURVE. Once could be a broker going down;
+         * three times in a row is a setting. */
+        if (self->curve)
+            snprintf(buf, len, "the broker at %s ends the CURVE handshake (%u time(s)): either "
+                     "its key is not the one in %s (ask its operator for the broker's public "
+                     "key), or it runs without CURVE (--insecure)", self->endpoint,
+                     self->hs_failed_runs, self->broker_key_file);
+        else
+            snprintf(buf, len, "the broker at %s ends the handshake (%u time(s)): it probably "
+                     "speaks CURVE while this client was started with --insecure; give it "
+                     "--key YOUR.secret and --broker-key broker.public",
+                     self->endpoint, self->hs_failed_runs);
+        return self->hs_failed_runs >= 3;
+    }
+    if (self->curve && self->hs_connects > 0 && self->hs_succeeded == 0) {
+        /* The broker drops a CURVE HELLO it cannot open without telling us:
+         * connected, never authenticated. */
+        snprintf(buf, len, "connected to %s %u time(s) but the CURVE handshake never "
+                 "completed: the broker's key is probably not the one in %s (or the endpoint "
+                 "is not a fitfarm broker's client endpoint)",
+                 self->endpoint, self->hs_connects, self->broker_key_file);
+        return 0;
+    }
+    return 0;
+}
+
 /* Waits for the first STATUS; for the embedded pool, for one with a worker. */
 static int s_handshake(fitfarm_client_t *self)
 {
@@ -312,8 +386,13 @@ static int s_handshake(fitfarm_client_t *self)
             if (rc != FITFARM_OK)
                 return rc;
         }
+        char why[CLIENT_ERR_BYTES];
+        if (s_handshake_reason(self, why, sizeof why) == 1)
+            return client_fail(self, FITFARM_ECONNECT, "%s", why);
         int left = client_ms_left(deadline);
         if (left == 0) {
+            if (s_handshake_reason(self, why, sizeof why) == 0 && why[0])
+                return client_fail(self, FITFARM_ECONNECT, "%s", why);
             if (self->pool)
                 return client_fail(self, FITFARM_ECONNECT,
                                    "the embedded pool did not come up within %d ms: %s",

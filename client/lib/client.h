@@ -11,6 +11,7 @@
 
 #include <stdint.h>
 
+#include "common/keyfile.h"
 #include "core.h"
 #include "msg.h"
 #include "pool.h"
@@ -28,6 +29,16 @@ struct fitfarm_client {
     uint64_t status_count;
     int disconnected;    /* seen a DISCONNECTED since the last CONNECTED */
     int reconnected;     /* CONNECTED after a drop: re-send unfinished work */
+    /* What the handshake said, so a refusal is reported as what it is,
+     * not as silence (see s_handshake_reason in client.c). */
+    int curve;               /* this client speaks CURVE (secure.c) */
+    char fingerprint[COMMON_KEY_FINGERPRINT]; /* of its public key, when curve */
+    char broker_key_file[512];                /* --broker-key, for the sentence */
+    unsigned hs_connects;    /* TCP/ipc connections made */
+    unsigned hs_succeeded;   /* security handshakes completed */
+    unsigned hs_failed_event;/* last ZMQ_EVENT_HANDSHAKE_FAILED_*, 0 = none */
+    uint32_t hs_failed_value;/* its value: ZAP status code or protocol error */
+    unsigned hs_failed_runs; /* handshake failures since the last success */
 };
 
 /* Sets the client's error sentence from a printf format; returns code. */

@@ -3,6 +3,7 @@
 #include "secure.h"
 
 #include <errno.h>
+#include <stdio.h>
 #include <string.h>
 #include <zmq.h>
 
@@ -45,6 +46,12 @@ int client_secure_socket(fitfarm_client_t *self, void *sock, const fitfarm_optio
         zmq_setsockopt(sock, ZMQ_CURVE_SECRETKEY, pair->secret_key, COMMON_KEY_BYTES) != 0)
         rc = client_fail(self, FITFARM_ESYSTEM, "cannot set the CURVE keys: %s",
                          zmq_strerror(errno));
+    if (rc == FITFARM_OK) {
+        self->curve = 1;
+        common_key_fingerprint(pair->public_key, self->fingerprint);
+        snprintf(self->broker_key_file, sizeof self->broker_key_file, "%s",
+                 options->broker_key_file);
+    }
 cleanup:
     common_keypair_destroy(&pair);
     return rc;

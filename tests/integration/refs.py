@@ -56,3 +56,24 @@ def seed(run_seed, genome, rep, mode="genome"):
     else:
         msg = b"\x01" + struct.pack("<I", rep)
     return struct.unpack("<Q", hashlib.blake2b(msg, digest_size=32, key=key).digest()[:8])[0]
+
+
+Z85 = "0123456789abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ.-:+=^!/*?&<>()[]{}@%$#"
+
+
+def z85_decode(s):
+    """Z85 (ZeroMQ RFC 32), written from the spec."""
+    out = b""
+    for i in range(0, len(s), 5):
+        v = 0
+        for c in s[i:i + 5]:
+            v = v * 85 + Z85.index(c)
+        out += v.to_bytes(4, "big")
+    return out
+
+
+def key_fingerprint(public_path):
+    """A public key file's fingerprint as fitfarm prints it: the first 8 bytes
+    of BLAKE2b-256 (RFC 7693, Python's hashlib) of the key, in hex."""
+    line = [l for l in open(public_path).read().splitlines() if l and not l.startswith("#")][0]
+    return hashlib.blake2b(z85_decode(line.strip()), digest_size=32).hexdigest()[:16]

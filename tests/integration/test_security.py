@@ -7,7 +7,6 @@ start; keygen refuses to overwrite and writes the secret 0600; SIGHUP applies
 an allow-list change (a removed worker is dropped, its jobs re-queued and
 finished by another worker); a run over its queue cap gets "queue full".
 Fingerprints are checked against Python's hashlib.blake2b (RFC 7693)."""
-import hashlib
 import os
 import signal
 import stat
@@ -20,23 +19,7 @@ import refs
 FITFARM = fflib.exe("fitfarm")
 check = fflib.Check("test_security")
 
-Z85 = "0123456789abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ.-:+=^!/*?&<>()[]{}@%$#"
-
-
-def z85_decode(s):
-    """ZeroMQ RFC 32, written from the spec."""
-    out = b""
-    for i in range(0, len(s), 5):
-        v = 0
-        for c in s[i:i + 5]:
-            v = v * 85 + Z85.index(c)
-        out += v.to_bytes(4, "big")
-    return out
-
-
-def fingerprint(public_path):
-    line = [l for l in open(public_path).read().splitlines() if l and not l.startswith("#")][0]
-    return hashlib.blake2b(z85_decode(line.strip()), digest_size=32).hexdigest()[:16]
+fingerprint = refs.key_fingerprint
 
 
 def wait_log(pool, name, text, timeout=15):
