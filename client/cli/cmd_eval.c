@@ -29,6 +29,7 @@
 #define EVAL_BATCH_LINES 4096   /* submit once this many lines are waiting */
 #define EVAL_READ_BYTES 65536
 #define CLI_SUBMIT_WAIT_MS 60000 /* how long the broker may take to accept a batch */
+#define EVAL_REPLAY_STOPPED 3 /* s_submit_building: a replay met an unseen line */
 #define EVAL_MAX_EXEC 16 /* the worker program's own cap on --exec */
 
 static const char s_help[] =
@@ -61,7 +62,10 @@ static const char s_help[] =
     "  --in FILE          read genomes from FILE (default stdin)\n"
     "  --out FILE         write results to FILE (default stdout)\n"
     "  --broker ENDPOINT  use the pool behind this broker client endpoint, e.g.\n"
-    "                     tcp://host:5555; without it an embedded local pool runs\n"
+    "                     tcp://host:5555; without it (and without FITFARM_BROKER or\n"
+    "                     'broker =' in the config file) an embedded local pool runs\n"
+    "  --local            the embedded local pool, whatever FITFARM_BROKER or the\n"
+    "                     config file say\n"
     "  --slots N          embedded pool: worker slots (default: online CPUs)\n"
     "  --plugin-dir DIR   embedded pool: also load plugins from DIR\n"
     "  --exec NAME=CMD    embedded pool: run program CMD (JSON Lines on stdin and\n"
@@ -109,7 +113,7 @@ typedef struct {
     /* options */
     const char *plugin, *params, *run_id, *in_path, *out_path, *broker, *plugin_dir, *store;
     const char *seed_mode_name, *aggregate_name;
-    int stats, no_cache, replay, seed_mode;
+    int stats, no_cache, replay, seed_mode, local;
     int aggregate; /* 0 none, 1 mean, 2 median */
     uint64_t seed, replicates, slots, timeout_s, attempts;
     const char *exec[EVAL_MAX_EXEC + 1]; /* --exec NAME=CMD, NULL-terminated */
@@ -123,6 +127,7 @@ typedef struct {
     size_t n_records, cap_records;
     size_t cursor;     /* next record to print */
     unsigned cursor_r; /* next replicate of it */
+    size_t replay_stop_line; /* replay: the first input line the run never saw, 0 = none */
     fitfarm_batch_t *building;
     fitfarm_batch_t **batches; /* submitted, oldest first; freed once printed */
     size_t *batch_last;        /* last record index of each submitted batch */
@@ -214,6 +219,10 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
             e->replay = 1;
             continue;
         }
+        if (strcmp(arg, "--local") == 0) {
+            e->local = 1;
+            continue;
+        }
         NUM_OPT("--seed", seed, 0, UINT64_MAX)
         NUM_OPT("--replicates", replicates, 1, 10000)
         NUM_OPT("--slots", slots, 0, 4096)
@@ -252,6 +261,11 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         e->aggregate = 2;
     } else {
         *exit_code = s_usage("--aggregate is mean, median or none, not '%s'", e->aggregate_name);
+        return -1;
+    }
+    if (e->local && e->broker) {
+        *exit_code = s_usage("--local and --broker contradict each other: --local runs the "
+                             "embedded pool%s", NULL);
         return -1;
     }
     if (e->n_exec && e->broker) {
@@ -421,12 +435,40 @@ static int s_not_recorded(eval_t *e, const fitfarm_batch_t *b)
                 break;
             }
     }
-    if (line)
-        fprintf(stderr, "fitfarm eval: replay of run %s stopped: input line %zu was never seen "
-                "by the recorded run (other genome, params, plugin, seed or order); nothing "
-                "was simulated\n", e->run_id, line);
-    else
-        fprintf(stderr, "fitfarm eval: %s\n", msg);
+    if (line) {
+        /* The lines before it were recorded: the library asks for them
+         * again on its own; print them first (s_finish_replay). */
+        e->replay_stop_line = line;
+        return EVAL_REPLAY_STOPPED;
+    }
+    fprintf(stderr, "fitfarm eval: %s\n", msg);
+    return 1;
+}
+
+/* Replay met an unseen line: prints every recorded line before it as its
+ * results come in, then says where it stopped. Returns the exit status. */
+static void s_flush_prefix(eval_t *e);
+static int s_finish_replay(eval_t *e)
+{
+    for (;;) {
+        s_flush_prefix(e);
+        if (e->cursor >= e->n_records || e->records[e->cursor].line >= e->replay_stop_line)
+            break;
+        fitfarm_result_t res = FITFARM_RESULT_INIT;
+        int prc = fitfarm_poll(e->run, &res, 200);
+        while (prc == 1)
+            prc = fitfarm_poll(e->run, &res, 0);
+        if (prc < 0 && prc != FITFARM_ENOTRECORDED) {
+            fprintf(stderr, "fitfarm eval: %s\n", fitfarm_client_error(e->client));
+            return 1;
+        }
+        if (s_stop)
+            return 130;
+    }
+    fprintf(stderr, "fitfarm eval: replay of run %s stopped: input line %zu was never seen "
+            "by the recorded run (other genome, params, plugin, seed or order); the %zu "
+            "results before it are printed; nothing was simulated\n", e->run_id,
+            e->replay_stop_line, e->printed_slots);
     return 1;
 }
 
@@ -724,6 +766,8 @@ static int s_loop(eval_t *e)
             break;
         }
     }
+    if (rc == EVAL_REPLAY_STOPPED)
+        rc = s_finish_replay(e);
     if (s_stop && rc == 0) {
         fprintf(stderr, "\nfitfarm eval: interrupted; %zu of %zu results written\n",
                 e->printed_slots, e->submitted);
@@ -780,6 +824,24 @@ int cli_cmd_eval(int argc, char **argv)
     if (cli_keys_apply(&opts, "fitfarm eval") != 0) {
         rc = 2;
         goto cleanup;
+    }
+    if (e.local) {
+        opts.broker = NULL; /* whatever the environment or config said */
+    } else if (!e.broker && opts.broker) {
+        /* The broker came from FITFARM_BROKER or the config file: options
+         * that only mean something for the embedded pool would be ignored
+         * in silence. Say so, naming both. */
+        const char *embedded_only = e.slots ? "--slots" : e.store ? "--store"
+                                    : e.plugin_dir ? "--plugin-dir" : e.n_exec ? "--exec" : NULL;
+        if (embedded_only) {
+            const char *from = getenv("FITFARM_BROKER") && *getenv("FITFARM_BROKER")
+                                   ? "FITFARM_BROKER" : "'broker =' in the config file";
+            fprintf(stderr, "fitfarm eval: %s is for the embedded pool, but %s sends this run "
+                    "to the broker at %s; drop %s, or add --local to use the embedded pool\n",
+                    embedded_only, from, opts.broker, embedded_only);
+            rc = 2;
+            goto cleanup;
+        }
     }
     char err[1200];
     if (fitfarm_client_new(&opts, &e.client, err, sizeof err) != 0) {

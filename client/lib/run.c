@@ -269,6 +269,8 @@ static int s_ready_reserve(fitfarm_run_t *run)
 
 static int s_refusal(fitfarm_run_t *run, const fitfarm_batch_t *b, const client_chunk_t *c,
                      char *buf, size_t len);
+static int s_send_listed(fitfarm_run_t *run, fitfarm_batch_t *b, const uint32_t *slots,
+                         uint32_t n, int detached);
 
 static void s_async_fail(fitfarm_run_t *run, int code, const char *text)
 {
@@ -380,6 +382,19 @@ static void s_on_answer(client_core_t *core, uint64_t batch_tag, const proto_ref
                 c->refuse_has_tag = refused->has_tag;
                 c->refuse_tag = refused->tag;
             }
+            /* A replay stops at the first request the run never recorded;
+             * the recorded ones before it in this chunk are still owed to
+             * the caller, so they go out again alone (same tags). */
+            fitfarm_batch_t *prefix_batch = NULL;
+            uint32_t *prefix = NULL, n_prefix = 0;
+            int prefix_detached = c->detached;
+            if (!accepted && !c->background && code == PROTO_REFUSE_NOT_RECORDED &&
+                refused->has_tag && (prefix = malloc(c->n_slots * sizeof *prefix)) != NULL) {
+                prefix_batch = c->batch;
+                for (uint32_t k = 0; k < c->n_slots; k++)
+                    if (c->batch->tag_base + c->slots[k] < refused->tag)
+                        prefix[n_prefix++] = c->slots[k];
+            }
             if (c->background) {
                 if (accepted)
                     run->retry_until_ms = 0;
@@ -397,6 +412,9 @@ static void s_on_answer(client_core_t *core, uint64_t batch_tag, const proto_ref
                 s_chunk_free(c);
                 run->chunks[i] = run->chunks[--run->n_chunks];
             }
+            if (n_prefix > 0)
+                (void)s_send_listed(run, prefix_batch, prefix, n_prefix, prefix_detached);
+            free(prefix);
             return;
         }
     }
@@ -435,6 +453,36 @@ static int s_chunk_send(fitfarm_run_t *run, const client_chunk_t *c)
     int rc = client_core_emit(run->core, &msg);
     free(items);
     return rc;
+}
+
+/* Sends the listed slots of b (at most one chunk's worth, in order) as a new
+ * chunk; detached: nobody waits for its answer. */
+static int s_send_listed(fitfarm_run_t *run, fitfarm_batch_t *b, const uint32_t *slots,
+                         uint32_t n, int detached)
+{
+    if (run->n_chunks == run->cap_chunks) {
+        size_t cap = run->cap_chunks ? run->cap_chunks * 2 : 16;
+        client_chunk_t *c = realloc(run->chunks, cap * sizeof *c);
+        if (!c)
+            return client_core_fail(run->core, FITFARM_ENOMEM, "out of memory building chunks");
+        run->chunks = c;
+        run->cap_chunks = cap;
+    }
+    client_chunk_t *c = &run->chunks[run->n_chunks];
+    memset(c, 0, sizeof *c);
+    c->slots = malloc(n * sizeof *c->slots);
+    if (!c->slots)
+        return client_core_fail(run->core, FITFARM_ENOMEM, "out of memory building chunks");
+    memcpy(c->slots, slots, n * sizeof *slots);
+    c->n_slots = n;
+    c->batch = b;
+    c->detached = detached;
+    c->batch_tag = run->core->next_batch_tag++;
+    run->n_chunks++;
+    for (uint32_t k = 0; k < n; k++)
+        if (b->slots[slots[k]].state == CLIENT_SLOT_UNSENT)
+            b->slots[slots[k]].state = CLIENT_SLOT_SENT;
+    return s_chunk_send(run, c);
 }
 
 /* Cuts the slots of batch in state from (UNSENT or ACCEPTED) into chunks of

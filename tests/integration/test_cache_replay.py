@@ -11,7 +11,8 @@
 3. --seed-mode common: every genome of a replicate gets one seed; genome mode
    gives each genome its own.
 4. --replay prints the original output byte for byte (including its cached
-   flags) and stops naming the first line the run never saw.
+   flags) and stops naming the first line the run never saw, after printing
+   every recorded line before it (also for input one line longer than recorded).
 5. --no-cache evaluates again and keeps both results in the store.
 6. `fitfarm runs` and `export` list what the store holds; --aggregate mean
    matches numpy's mean and sample standard deviation.
@@ -180,6 +181,15 @@ with fflib.Pool(log_prefix="cache") as pool:
                          text=True, timeout=120)
     check.ok(rep.returncode == 1 and "input line 42 was never seen" in rep.stderr,
              f"replay stops at line 42: exit {rep.returncode}, {rep.stderr[-300:]}")
+    check.ok(rep.stdout.splitlines() == orig.stdout.splitlines()[:41],
+             f"... after printing the 41 recorded lines before it, as recorded "
+             f"({len(rep.stdout.splitlines())} lines printed)")
+    more = mix + json.dumps({"id": "extra", "genome": [0.1, 0.2, 0.3, 0.4]}) + "\n"
+    rep = subprocess.run(args + ["--replay"], input=more, capture_output=True, text=True,
+                         timeout=120)
+    check.ok(rep.returncode == 1 and rep.stdout == orig.stdout and "input line 151" in rep.stderr,
+             f"one line more than recorded: all 150 recorded lines, then the stop "
+             f"(exit {rep.returncode}, {len(rep.stdout.splitlines())} lines) {rep.stderr[-200:]}")
     st = pool.status()
     runs = {r["run"]: r for r in st["runs"]}
     check.ok(runs["mix"]["evaluated"] == 50, f"replay simulated nothing: {runs['mix']}")
