@@ -166,6 +166,8 @@ uint32_t broker_dispatch_drop_worker(broker_t *b, broker_worker_t *w)
     while ((e = w->jobs_tail)) {
         broker_evals_orphan_add(&b->evals, e->job_id, e);
         s_detach(b, e);
+        if (e->lost < UINT16_MAX)
+            e->lost++; /* counted in the stored attempts, not against --attempts */
         e->state = BROKER_EVAL_QUEUED;
         broker_runs_enqueue(&b->runs, e->home, e, 1);
         assert(broker_eval_check(&b->evals, e));

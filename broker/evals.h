@@ -82,6 +82,7 @@ typedef struct broker_eval {
     uint8_t status;   /* proto_status_t once DONE */
     uint8_t in_lru;   /* DONE, unpinned, in the LRU list through prev/next */
     uint16_t attempts;/* dispatches that ended CRASHED or TIMEOUT */
+    uint16_t lost;    /* dispatches lost with a worker that vanished (re-queued; no cap) */
     uint16_t max_attempts; /* from the submitting run's SUBMIT; 0 = the broker's --attempts */
     uint32_t timeout_ms;   /* per evaluation, sent with the job; 0 = the worker's default */
     uint64_t job_id;  /* current dispatch; 0 when not RUNNING */

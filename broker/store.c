@@ -407,9 +407,10 @@ static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *
         sqlite3_bind_text(st, 5, json, -1, SQLITE_STATIC);
     }
     sqlite3_bind_text(st, 6, e->error ? e->error : "", -1, SQLITE_STATIC);
-    /* attempts counts dispatches that crashed or timed out; the final one
-     * counts too when it ended the same way. */
-    sqlite3_bind_int(st, 7, e->attempts);
+    /* attempts counts dispatches that did not end with this result: crashed
+     * or timed out (the final one counts too when it ended the same way),
+     * or lost with a worker that vanished. */
+    sqlite3_bind_int(st, 7, (int)e->attempts + (int)e->lost);
     if (worker) {
         sqlite3_bind_text(st, 8, worker, -1, SQLITE_STATIC);
         sqlite3_bind_text(st, 9, host, -1, SQLITE_STATIC);

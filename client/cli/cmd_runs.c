@@ -37,7 +37,10 @@ static const char s_export_help[] =
     "provenance of that result: run, tag, batch_tag, replicate, cached, no_cache,\n"
     "key, plugin, version, params, genome, seed, status, fitness, error, attempts,\n"
     "worker, host, arch, digest (the plugin build), cpu_seconds, peak_rss_kb,\n"
-    "requested_at, finished_at. A no-cache request shows its own re-evaluation.\n"
+    "requested_at, finished_at (when it was answered: for a cached request, when it was\n"
+    "asked), computed_at (when its evaluation finished). A no-cache request shows its\n"
+    "own re-evaluation; attempts counts dispatches that crashed, timed out or were\n"
+    "lost with a worker that vanished.\n"
     "\n"
     "options:\n"
     "  --store DIR      the store folder (default ./" CLI_DEFAULT_STORE ")\n"
@@ -194,8 +197,14 @@ static void s_export_row(FILE *f, sqlite3_stmt *st, const char *run, int csv)
     char requested[32], finished[32];
     cli_store_hex(st, C_KEY, key, PROTO_KEY_BYTES);
     cli_store_hex(st, E_DIGEST + r, digest, PROTO_DIGEST_BYTES);
+    char computed[32];
     cli_store_time(st, C_REQUESTED, requested);
-    cli_store_time(st, E_FINISHED + r, finished);
+    cli_store_time(st, E_FINISHED + r, computed);
+    /* A cached request was answered when it was asked, from a result
+     * computed before: finished_at is the answer's time, computed_at the
+     * evaluation's, so no row reads as finished before it was requested. */
+    snprintf(finished, sizeof finished, "%s",
+             sqlite3_column_int(st, C_CACHED) && computed[0] ? requested : computed);
     const char *status = (const char *)sqlite3_column_text(st, E_STATUS + r);
     const char *text[] = {
         (const char *)sqlite3_column_text(st, C_PLUGIN),
@@ -234,7 +243,7 @@ static void s_export_row(FILE *f, sqlite3_stmt *st, const char *run, int csv)
             s_csv_text(f, text[i]);
             fputc(',', f);
         }
-        fprintf(f, "%s,%s,%s,%s,%s\n", digest, cpu, rss, requested, finished);
+        fprintf(f, "%s,%s,%s,%s,%s,%s\n", digest, cpu, rss, requested, finished, computed);
         return;
     }
     fputs("{\"run\": ", f);
@@ -265,10 +274,11 @@ static void s_export_row(FILE *f, sqlite3_stmt *st, const char *run, int csv)
             fputs("null", f);
     }
     fprintf(f, ", \"digest\": %s%s%s, \"cpu_seconds\": %s, \"peak_rss_kb\": %s, "
-            "\"requested_at\": \"%s\", \"finished_at\": %s%s%s}\n",
+            "\"requested_at\": \"%s\", \"finished_at\": %s%s%s, \"computed_at\": %s%s%s}\n",
             digest[0] ? "\"" : "", digest[0] ? digest : "null", digest[0] ? "\"" : "",
             cpu[0] ? cpu : "null", rss[0] ? rss : "null", requested, finished[0] ? "\"" : "",
-            finished[0] ? finished : "null", finished[0] ? "\"" : "");
+            finished[0] ? finished : "null", finished[0] ? "\"" : "", computed[0] ? "\"" : "",
+            computed[0] ? computed : "null", computed[0] ? "\"" : "");
 }
 
 int cli_cmd_export(int argc, char **argv)
@@ -338,7 +348,7 @@ int cli_cmd_export(int argc, char **argv)
     if (csv)
         fputs("run,tag,batch_tag,replicate,cached,no_cache,key,plugin,version,params,genome,seed,"
               "status,fitness,error,attempts,worker,host,arch,digest,cpu_seconds,peak_rss_kb,"
-              "requested_at,finished_at\n", f);
+              "requested_at,finished_at,computed_at\n", f);
     int step;
     while ((step = sqlite3_step(st)) == SQLITE_ROW)
         s_export_row(f, st, run, csv);
