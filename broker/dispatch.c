@@ -158,6 +158,16 @@ void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcom
              w ? "worker " : "an unregistered worker", w ? w->name : "");
 }
 
+uint32_t broker_dispatch_lose_worker(broker_t *b, broker_worker_t *w)
+{
+    /* Counted in the stored attempts, not against --attempts: losing a
+     * machine says nothing about the job. */
+    for (broker_eval_t *e = w->jobs_head; e; e = e->next)
+        if (e->lost < UINT16_MAX)
+            e->lost++;
+    return broker_dispatch_drop_worker(b, w);
+}
+
 uint32_t broker_dispatch_drop_worker(broker_t *b, broker_worker_t *w)
 {
     uint32_t n = 0;
@@ -166,8 +176,6 @@ uint32_t broker_dispatch_drop_worker(broker_t *b, broker_worker_t *w)
     while ((e = w->jobs_tail)) {
         broker_evals_orphan_add(&b->evals, e->job_id, e);
         s_detach(b, e);
-        if (e->lost < UINT16_MAX)
-            e->lost++; /* counted in the stored attempts, not against --attempts */
         e->state = BROKER_EVAL_QUEUED;
         broker_runs_enqueue(&b->runs, e->home, e, 1);
         assert(broker_eval_check(&b->evals, e));

@@ -29,5 +29,10 @@ void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker
  * kept), their job ids become orphans, the registration is freed. Returns how
  * many jobs were re-queued. The caller logs why. */
 uint32_t broker_dispatch_drop_worker(broker_t *b, broker_worker_t *w);
+/* The same for a worker that vanished (silent past the liveness window, or
+ * registered again after a restart): each held job also counts one lost
+ * dispatch in its stored attempts. A worker that says goodbye or is revoked
+ * hands its jobs back instead (broker_dispatch_drop_worker). */
+uint32_t broker_dispatch_lose_worker(broker_t *b, broker_worker_t *w);
 
 #endif

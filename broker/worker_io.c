@@ -36,7 +36,7 @@ static void s_liveness_cb(broker_timer_t *t, void *arg, int64_t now_ms)
         char name[PROTO_MAX_NAME_BYTES + 1];
         snprintf(name, sizeof name, "%s", w->name);
         double silent = (double)(now_ms - w->last_seen_ms) / 1000.0;
-        uint32_t n = broker_dispatch_drop_worker(b, w);
+        uint32_t n = broker_dispatch_lose_worker(b, w);
         LOG_INFO("worker %s left: silent for %.1f s; re-queued %u jobs", name, silent, n);
     }
     s_arm_liveness(b);
@@ -65,7 +65,7 @@ broker_worker_t *broker_worker_on_hello(broker_t *b, const uint8_t *rid, size_t 
         /* It started over without us noticing: what it held is lost on its side. */
         char name[PROTO_MAX_NAME_BYTES + 1];
         snprintf(name, sizeof name, "%s", old->name);
-        uint32_t n = broker_dispatch_drop_worker(b, old);
+        uint32_t n = broker_dispatch_lose_worker(b, old);
         LOG_INFO("worker %s left: registered again; re-queued %u jobs", name, n);
     }
     broker_worker_t *w = broker_registry_add(&b->registry, rid, rid_len, h->name, h->host,
