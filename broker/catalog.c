@@ -181,6 +181,20 @@ uint32_t broker_catalog_warnings(const broker_catalog_t *self, char ***warnings,
                      p->name, p->version, p->n_digests == 2 ? "two" : "several", a, b, a);
             s_push(warnings, &n, common_xstrdup(text));
         }
+        if (p->carriers == 0 && p->blocked_offers > 0) {
+            char pinned[2 * PROTO_DIGEST_BYTES + 1] = "";
+            if (p->n_digests > 0) {
+                proto_hex(p->digests[0], PROTO_DIGEST_BYTES, pinned);
+                pinned[12] = '\0';
+            }
+            snprintf(text, sizeof text,
+                     "plugin %s %s: no connected worker can take its jobs: %u worker(s) offer "
+                     "it with another build or version; its jobs wait for a worker with "
+                     "version %s%s%s",
+                     p->name, p->version, p->blocked_offers, p->version,
+                     pinned[0] ? " and build " : "", pinned[0] ? pinned : "");
+            s_push(warnings, &n, common_xstrdup(text));
+        }
         if (p->other_version) {
             snprintf(text, sizeof text,
                      "plugin %s is reported at versions %s and %s: only workers with %s get "

@@ -41,6 +41,8 @@ typedef struct {
     int seed_params_known;
     char *other_version; /* a different version seen for this name, or NULL */
     uint32_t carriers;   /* connected workers that carry it */
+    uint32_t blocked_offers; /* connected workers offering the name with another
+                              * build or version: they get none of its jobs */
 } broker_plugin_t;
 
 typedef struct {

@@ -20,7 +20,10 @@ static void s_free_worker(broker_worker_t *w)
 {
     for (uint32_t i = 0; i < w->n_plugins; i++)
         w->plugins[i]->carriers--;
+    for (uint32_t i = 0; i < w->n_blocked; i++)
+        w->blocked[i]->blocked_offers--;
     free(w->plugins);
+    free(w->blocked);
     free(w->carries);
     free(w->name);
     free(w->host);
@@ -132,6 +135,16 @@ void broker_worker_carry(broker_worker_t *w, broker_plugin_t *plugin)
     w->plugins = common_xrealloc(w->plugins, (size_t)w->n_plugins + 1, sizeof *w->plugins);
     w->plugins[w->n_plugins++] = plugin;
     plugin->carriers++;
+}
+
+void broker_worker_block(broker_worker_t *w, broker_plugin_t *plugin)
+{
+    for (uint32_t i = 0; i < w->n_blocked; i++)
+        if (w->blocked[i] == plugin)
+            return;
+    w->blocked = common_xrealloc(w->blocked, (size_t)w->n_blocked + 1, sizeof *w->blocked);
+    w->blocked[w->n_blocked++] = plugin;
+    plugin->blocked_offers++;
 }
 
 int broker_worker_carries(const broker_worker_t *w, const broker_plugin_t *plugin)

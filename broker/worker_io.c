@@ -77,9 +77,11 @@ broker_worker_t *broker_worker_on_hello(broker_t *b, const uint8_t *rid, size_t 
         if (p)
             broker_worker_carry(w, p);
         /* Remembered, so a restarted broker accepts work for it at once. */
-        const broker_plugin_t *known = broker_catalog_get(&b->catalog, h->plugins[i].name);
+        broker_plugin_t *known = broker_catalog_get(&b->catalog, h->plugins[i].name);
         if (known)
             broker_store_note_plugin(b->store, known);
+        if (!p && known)
+            broker_worker_block(w, known); /* STATUS says why its jobs wait */
         if (used < sizeof list) {
             int k = snprintf(list + used, sizeof list - used, "%s%s %s%s", i ? ", " : "",
                              h->plugins[i].name, h->plugins[i].version,

@@ -18,6 +18,7 @@
 #include <unistd.h>
 
 #include "cli_keys.h"
+#include "cli_pool.h"
 #include "cli_util.h"
 #include "client/include/fitfarm.h"
 #include "commands.h"
@@ -854,7 +855,14 @@ int cli_cmd_eval(int argc, char **argv)
         char list[4096];
         int has, n_workers;
         s_pool_plugins(e.client, list, sizeof list, &has, e.plugin, &n_workers);
-        if (n_workers > 0 && !has) {
+        char why[1024];
+        if (n_workers > 0 && !has &&
+            cli_pool_plugin_blocked(e.client, e.plugin, 5000, why, sizeof why)) {
+            /* Offered, but not with the build the store pinned: the jobs
+             * wait for a worker that has it. Say so rather than "no such
+             * plugin" or silence. */
+            fprintf(stderr, "fitfarm eval: waiting: %s\n", why);
+        } else if (n_workers > 0 && !has) {
             fprintf(stderr, "fitfarm eval: the pool has no plugin \"%s\"; it has: %s\n",
                     e.plugin, list[0] ? list : "(none)");
             rc = 2;

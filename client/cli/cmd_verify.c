@@ -20,6 +20,7 @@
 #include <unistd.h>
 
 #include "cli_keys.h"
+#include "cli_pool.h"
 #include "cli_store.h"
 #include "cli_util.h"
 #include "client/include/fitfarm.h"
@@ -301,6 +302,9 @@ int cli_cmd_verify(int argc, char **argv)
         goto cleanup;
     }
     for (size_t g = 0; g < n_groups; g++) {
+        char why[1024];
+        if (cli_pool_plugin_blocked(client, groups[g].plugin, 5000, why, sizeof why))
+            fprintf(stderr, "fitfarm verify: waiting: %s\n", why);
         if (fitfarm_evaluate(vrun, groups[g].batch, NULL, NULL,
                              timeout_s ? (int)(timeout_s * 1000 > INT32_MAX ? INT32_MAX
                                                                              : timeout_s * 1000)

@@ -273,4 +273,30 @@ with fflib.Pool(log_prefix="cache") as pool:
     rc, d, _ = fflib.run_eval(ep + sphere + ["--run", "det-d"], fflib.jsonl(gs[500:700]))
     check.ok(rc == 0 and all(r["fitness"][0] == sum(x * x for x in gs[500 + r["id"]]) for r in d),
              "new work still goes to the pinned build only (exact sum of squares)")
+
+    # Only the other build left: eval says its jobs wait (not "no such
+    # plugin", not silence), status says why, and a worker with the pinned
+    # build finishes them.
+    pool.kill(pool.workers[0], signal.SIGTERM)
+    deadline = time.time() + 20
+    while time.time() < deadline and len((pool.status() or {}).get("workers", [])) != 1:
+        time.sleep(0.1)
+    st = pool.status() or {}
+    check.ok(any("plugin sphere 1.0.0: no connected worker can take its jobs" in w
+                 for w in st.get("warnings", [])), f"status says the jobs wait: {st.get('warnings')}")
+    waiting = subprocess.Popen([fflib.exe("fitfarm"), "eval", "--insecure"] + ep + sphere +
+                               ["--run", "det-e"], stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                               stderr=subprocess.PIPE, text=True)
+    waiting.stdin.write(fflib.jsonl(gs[700:720]))
+    waiting.stdin.close()
+    first_err = waiting.stderr.readline()
+    check.ok("waiting: plugin sphere 1.0.0: no connected worker can take its jobs" in first_err,
+             f"eval says its jobs wait for the pinned build: {first_err.strip()}")
+    pool.start_worker(slots=1, name="pinned-again")
+    out_e = waiting.stdout.read()
+    waiting.wait(timeout=60)
+    e_lines = [json.loads(l) for l in out_e.splitlines()]
+    check.ok(waiting.returncode == 0 and len(e_lines) == 20 and
+             all(r["fitness"][0] == sum(x * x for x in gs[700 + r["id"]]) for r in e_lines),
+             f"... and finishes once a worker with it joins (exit {waiting.returncode})")
 check.done(pool)

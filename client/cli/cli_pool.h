@@ -1,0 +1,18 @@
+/* cli_pool.h: what the pool's status says about one plugin, for the
+ * subcommands that are about to wait on it. Not the status command's view
+ * (cmd_status.c). */
+#ifndef CLIENT_CLI_POOL_H
+#define CLIENT_CLI_POOL_H
+
+#include <stddef.h>
+
+#include "fitfarm.h"
+
+/* 1 when the broker warns that no connected worker can take plugin's jobs
+ * although some offer it with another build or version (the jobs will wait),
+ * with the broker's sentence in out; 0 otherwise (also when the status could
+ * not be read within timeout_ms). */
+int cli_pool_plugin_blocked(fitfarm_client_t *client, const char *plugin, int timeout_ms,
+                            char *out, size_t len);
+
+#endif
