@@ -45,6 +45,17 @@ static void s_take_seed_params(broker_plugin_t *p, const proto_plugin_info_t *in
     p->n_seed_params = info->n_seed_params;
 }
 
+/* Takes the defaults from a report: NULL means "not recorded" (the store
+ * loader, for a store older than them), "" means none. */
+static void s_take_param_defaults(broker_plugin_t *p, const proto_plugin_info_t *info)
+{
+    free(p->param_defaults);
+    p->param_defaults = NULL;
+    p->param_defaults_known = info->param_defaults != NULL;
+    if (info->param_defaults && info->param_defaults[0])
+        p->param_defaults = common_xstrdup(info->param_defaults);
+}
+
 void broker_catalog_init(broker_catalog_t *self)
 {
     memset(self, 0, sizeof *self);
@@ -58,6 +69,7 @@ void broker_catalog_fini(broker_catalog_t *self)
         free(self->list[i]->version);
         free(self->list[i]->other_version);
         s_free_seed_params(self->list[i]);
+        free(self->list[i]->param_defaults);
         free(self->list[i]);
     }
     free(self->list);
@@ -88,6 +100,7 @@ broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugi
         p->objectives = info->objectives;
         p->flags = info->flags;
         s_take_seed_params(p, info);
+        s_take_param_defaults(p, info);
         if (self->n == self->cap) {
             self->cap = self->cap ? self->cap * 2 : 8;
             self->list = common_xrealloc(self->list, self->cap, sizeof *self->list);
@@ -131,6 +144,13 @@ broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugi
     /* Only the pinned build may fill a list the store did not record. */
     if (!p->seed_params_known)
         s_take_seed_params(p, info);
+    if (!p->param_defaults_known)
+        s_take_param_defaults(p, info);
+    else if (info->param_defaults &&
+             strcmp(p->param_defaults ? p->param_defaults : "", info->param_defaults) != 0)
+        LOG_WARN("plugin %s %s is reported with other param defaults (%.200s, keeping %.200s)",
+                 p->name, p->version, info->param_defaults,
+                 p->param_defaults ? p->param_defaults : "none");
     return p;
 }
 

@@ -39,6 +39,13 @@ typedef struct {
     char **seed_params;
     uint32_t n_seed_params;
     int seed_params_known;
+    /* The plugin's declared param defaults (canonical JSON), or NULL for
+     * none: a request's params are completed with them before keying
+     * (proto_params_with_defaults). First report wins, like seed params;
+     * param_defaults_known is 0 for an entry reloaded from a store that
+     * predates them, which the next HELLO of the pinned build then fills. */
+    char *param_defaults;
+    int param_defaults_known;
     char *other_version; /* a different version seen for this name, or NULL */
     uint32_t carriers;   /* connected workers that carry it */
     uint32_t blocked_offers; /* connected workers offering the name with another

@@ -133,7 +133,7 @@ static void s_redeliver_fresh(broker_t *b, broker_run_t *run, uint64_t tag, uint
 int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const proto_submit_t *s)
 {
     int rc = 0;
-    char *canon = NULL;
+    char *canon = NULL, *given = NULL; /* given: as sent, when defaults completed canon */
     uint8_t(*keys)[PROTO_KEY_BYTES] = NULL;
     uint64_t *seeds = NULL;
     uint8_t *recorded = NULL; /* per item: 0 new, 1 recorded, 2 recorded cached, 3 recorded no-cache */
@@ -179,6 +179,21 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
         goto cleanup;
     }
+    if (plugin->param_defaults) {
+        /* Key what the plugin will compute: {} and its explicit defaults,
+         * or 10 and 10.0, are one evaluation (params.h). */
+        char *full = NULL;
+        if (proto_params_with_defaults(canon, plugin->param_defaults, &full, perr,
+                                       sizeof perr) != 0) {
+            snprintf(text, sizeof text, "params with plugin %s's defaults: %s", plugin->name,
+                     perr);
+            rc = PROTO_REFUSE_BAD_PARAMS;
+            s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+            goto cleanup;
+        }
+        given = canon; /* kept for requests recorded before defaults were known */
+        canon = full;
+    }
     broker_run_t *run = broker_runs_get(&b->runs, s->run_id);
     if (run && (run->seed != s->run_seed || run->seed_mode != s->seed_mode)) {
         snprintf(text, sizeof text,
@@ -223,6 +238,16 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             if (s->flags & PROTO_SUBMIT_REPLAY)
                 break; /* refused below, naming this request */
             continue;
+        }
+        if (memcmp(old, keys[i], PROTO_KEY_BYTES) != 0 && given) {
+            /* Recorded by a broker that did not know the plugin's defaults
+             * (an older store): the run's resume and replay keep its key. */
+            uint8_t legacy[PROTO_KEY_BYTES];
+            uint64_t unused;
+            s_item_key(plugin, given, broker_plugin_stochastic(plugin, given), s->run_seed,
+                       s->seed_mode, &s->items[i], &unused, legacy);
+            if (memcmp(old, legacy, PROTO_KEY_BYTES) == 0)
+                memcpy(keys[i], legacy, PROTO_KEY_BYTES);
         }
         if (memcmp(old, keys[i], PROTO_KEY_BYTES) != 0) {
             if (s->flags & PROTO_SUBMIT_REPLAY)
@@ -335,6 +360,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
 
 cleanup:
     free(canon);
+    free(given);
     free(keys);
     free(seeds);
     free(recorded);

@@ -65,7 +65,7 @@ static const char s_schema[] =
     "CREATE TABLE IF NOT EXISTS plugins("
     " name TEXT PRIMARY KEY, version TEXT NOT NULL, objectives INTEGER NOT NULL,"
     " flags INTEGER NOT NULL, digests BLOB NOT NULL, last_seen REAL NOT NULL,"
-    " seed_params TEXT);";
+    " seed_params TEXT, param_defaults TEXT);";
 
 enum {
     S_BEGIN,
@@ -107,9 +107,10 @@ static const char *const s_sql[S_COUNT_] = {
     [S_ACK] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag = ?2",
     [S_UNACK] = "UPDATE requests SET acked = 0 WHERE run_id = ?1 AND tag = ?2 AND acked = 1",
     [S_PLUGIN] = "INSERT INTO plugins(name, version, objectives, flags, digests, last_seen,"
-                 " seed_params) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7) ON CONFLICT(name) DO UPDATE"
+                 " seed_params, param_defaults) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)"
+                 " ON CONFLICT(name) DO UPDATE"
                  " SET version = ?2, objectives = ?3, flags = ?4, digests = ?5, last_seen = ?6,"
-                 " seed_params = ?7",
+                 " seed_params = ?7, param_defaults = ?8",
 };
 
 struct broker_store {
@@ -197,6 +198,11 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
     if (sqlite3_exec(self->db, "SELECT seed_params FROM plugins LIMIT 0", NULL, NULL, NULL) !=
             SQLITE_OK &&
         s_exec(self, "ALTER TABLE plugins ADD COLUMN seed_params TEXT") != 0)
+        goto fail;
+    /* ... and plugins.param_defaults (NULL: not recorded, filled likewise). */
+    if (sqlite3_exec(self->db, "SELECT param_defaults FROM plugins LIMIT 0", NULL, NULL, NULL) !=
+            SQLITE_OK &&
+        s_exec(self, "ALTER TABLE plugins ADD COLUMN param_defaults TEXT") != 0)
         goto fail;
     for (int i = 0; i < S_COUNT_; i++) {
         if (sqlite3_prepare_v3(self->db, s_sql[i], -1, SQLITE_PREPARE_PERSISTENT, &self->stmt[i],
@@ -475,6 +481,11 @@ void broker_store_note_plugin(broker_store_t *self, const broker_plugin_t *p)
     else
         sqlite3_bind_null(st, 7);
     free(seeds);
+    /* param defaults: the text, "" for none, NULL while not known */
+    if (p->param_defaults_known)
+        sqlite3_bind_text(st, 8, p->param_defaults ? p->param_defaults : "", -1, SQLITE_STATIC);
+    else
+        sqlite3_bind_null(st, 8);
     s_step(self, S_PLUGIN);
 }
 

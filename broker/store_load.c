@@ -15,6 +15,7 @@
 #include "backlog.h"
 #include "cache.h"
 #include "common/log.h"
+#include "params.h"
 #include "core.h"
 
 static int s_fail(sqlite3 *db, const char *what)
@@ -62,8 +63,8 @@ static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
 {
     sqlite3_stmt *st = NULL;
     if (sqlite3_prepare_v2(db,
-                           "SELECT name, version, objectives, flags, digests, seed_params"
-                           " FROM plugins",
+                           "SELECT name, version, objectives, flags, digests, seed_params,"
+                           " param_defaults FROM plugins",
                            -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "plugins");
     while (sqlite3_step(st) == SQLITE_ROW) {
@@ -79,12 +80,24 @@ static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
         if (!info.name || !info.version)
             continue;
         json_t *seeds = s_seed_params(st, 5, info.name, &info, names);
+        /* NULL (not recorded) stays NULL: the next HELLO fills it. A text
+         * that is not canonical is not trusted either. */
+        const char *dflt = (const char *)sqlite3_column_text(st, 6);
+        char *canon_dflt = NULL;
+        if (dflt && dflt[0] &&
+            (proto_params_canonical(dflt, &canon_dflt, NULL, 0) != 0 || strcmp(canon_dflt, dflt))) {
+            LOG_WARN("store: plugin %s has unreadable param defaults %.64s; waiting for a "
+                     "worker's", info.name, dflt);
+            dflt = NULL;
+        }
+        info.param_defaults = (char *)dflt;
         for (int i = 0; i < (nd > 0 ? nd : 1); i++) {
             if (nd > 0)
                 memcpy(info.digest, d + (size_t)i * PROTO_DIGEST_BYTES, PROTO_DIGEST_BYTES);
             broker_catalog_report(&b->catalog, &info);
         }
         json_decref(seeds);
+        free(canon_dflt);
         (*n)++;
     }
     sqlite3_finalize(st);

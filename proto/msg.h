@@ -208,7 +208,9 @@ typedef struct {
 #define PROTO_PLUGIN_DETERMINISTIC 0x1u
 
 /* [name str, version str, objectives uint, flags uint, digest bin(32),
- *  seed_params array of str]
+ *  seed_params array of str, param_defaults str]
+ * param_defaults: the plugin's fitfarm_plugin_param_defaults in canonical
+ * form, at most params_bytes; "" when it declares none.
  * seed_params: the plugin's fitfarm_plugin_seed_params, at most
  * PROTO_MAX_SEED_PARAMS names of at most name_bytes each; empty when none.
  * A stochastic plugin's request whose canonical params hold every listed name
@@ -221,6 +223,7 @@ typedef struct {
     uint8_t digest[PROTO_DIGEST_BYTES]; /* BLAKE2b-256 of the shared object file */
     uint32_t n_seed_params;
     char **seed_params; /* NULL when n_seed_params is 0 */
+    char *param_defaults; /* canonical JSON object, or "" */
 } proto_plugin_info_t;
 
 /* [v, HELLO, name str, host str, arch str, slots uint, plugins array] */

@@ -646,7 +646,7 @@ cleanup:
 static int s_plugin_info(s_cursor_t *c, proto_plugin_info_t *p)
 {
     int rc;
-    if ((rc = s_read_tuple(c, 6)))
+    if ((rc = s_read_tuple(c, 7)))
         goto cleanup;
     FIELD("name", s_read_str(c, c->lim.name_bytes, &p->name));
     FIELD("version", s_read_str(c, c->lim.name_bytes, &p->version));
@@ -658,6 +658,7 @@ static int s_plugin_info(s_cursor_t *c, proto_plugin_info_t *p)
     FIELD("digest", s_read_bin_fixed(c, p->digest, PROTO_DIGEST_BYTES));
     FIELD("seed_params", s_read_str_array(c, PROTO_MAX_SEED_PARAMS, c->lim.name_bytes,
                                           &p->n_seed_params, &p->seed_params));
+    FIELD("param_defaults", s_read_str(c, c->lim.params_bytes, &p->param_defaults));
 cleanup:
     return rc;
 }
@@ -671,8 +672,8 @@ static int s_hello(s_cursor_t *c, proto_hello_t *h)
     FIELD("arch", s_read_str(c, c->lim.name_bytes, &h->arch));
     FIELD("slots", s_read_u32(c, &h->slots));
     size_t old = s_path_push(c, ".plugins");
-    /* a plugin info is at least 1 + 1 + 1 + 1 + 1 + 34 + 1 bytes */
-    if ((rc = s_read_array(c, PROTO_MAX_PLUGINS, 40, &n)) ||
+    /* a plugin info is at least 1 + 1 + 1 + 1 + 1 + 34 + 1 + 1 bytes */
+    if ((rc = s_read_array(c, PROTO_MAX_PLUGINS, 41, &n)) ||
         (rc = s_alloc(c, (void **)&h->plugins, n, sizeof *h->plugins)))
         goto cleanup;
     h->n_plugins = n;

@@ -187,7 +187,7 @@ static int s_pack_hello(msgpack_packer *pk, const proto_hello_t *h)
     for (uint32_t i = 0; i < h->n_plugins; i++) {
         const proto_plugin_info_t *p = &h->plugins[i];
         REQUIRE(p->seed_params || p->n_seed_params == 0);
-        PACK(msgpack_pack_array(pk, 6));
+        PACK(msgpack_pack_array(pk, 7));
         STR(p->name);
         STR(p->version);
         U64(p->objectives);
@@ -196,6 +196,7 @@ static int s_pack_hello(msgpack_packer *pk, const proto_hello_t *h)
         PACK(msgpack_pack_array(pk, p->n_seed_params));
         for (uint32_t j = 0; j < p->n_seed_params; j++)
             STR(p->seed_params[j]);
+        STR(p->param_defaults ? p->param_defaults : "");
     }
 cleanup:
     return rc;

@@ -104,6 +104,7 @@ void proto_msg_destroy(proto_msg_t **msg_p)
                     for (uint32_t j = 0; j < h->plugins[i].n_seed_params; j++)
                         free(h->plugins[i].seed_params[j]);
                 free(h->plugins[i].seed_params);
+                free(h->plugins[i].param_defaults);
             }
         free(h->plugins);
         break;

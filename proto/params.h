@@ -24,6 +24,18 @@ int proto_params_canonical(const char *text, char **out, char *err, size_t errle
  * seed params, fitfarm_plugin.h). */
 int proto_params_all_zero(const char *canonical_json, char *const *names, uint32_t n);
 
+/* The params the plugin will compute with: canonical (canonical form) merged
+ * with defaults (the plugin's declared defaults, a JSON object): a name left
+ * out takes its default; a number given where the default is a number takes
+ * the default's type when that is exact (an integral real within 2^53 for an
+ * integer default, an integer within 2^53 for a real default); every other
+ * value, and every name the defaults do not list, stays as given. On success
+ * returns 0 and *out is the canonical result (caller frees). On failure
+ * returns -1 with a sentence in err. So {} and the explicit defaults, or 10
+ * and 10.0, give one content key (params_defaults.c). */
+int proto_params_with_defaults(const char *canonical, const char *defaults, char **out,
+                               char *err, size_t errlen);
+
 /* Prints a double so that it parses back to the same bits: "%.17g", with
  * non-finite values as null (JSON has no NaN). Returns the length written
  * (always < 32); out must hold 32 bytes. */

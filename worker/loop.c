@@ -140,6 +140,7 @@ static void s_register(s_worker_t *self)
         memcpy(infos[i].digest, p->digest, PROTO_DIGEST_BYTES);
         infos[i].n_seed_params = p->n_seed_params;
         infos[i].seed_params = (char **)p->seed_params;
+        infos[i].param_defaults = p->param_defaults ? p->param_defaults : (char *)"";
     }
     proto_msg_t msg = {.type = PROTO_HELLO};
     msg.u.hello.name = self->name;

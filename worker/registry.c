@@ -17,6 +17,8 @@
 #include "common/alloc.h"
 #include "common/log.h"
 #include "key.h"
+#include "limits.h"
+#include "params.h"
 #include "worker.h"
 #ifdef FITFARM_HAVE_EXEC
 #include "exec_plugin.h"
@@ -46,6 +48,7 @@ void worker_registry_destroy(worker_registry_t **self_p)
         if (p->dl)
             dlclose(p->dl);
         free(p->origin);
+        free(p->param_defaults);
     }
     free(self->plugins);
     free(self);
@@ -122,10 +125,11 @@ static void s_log_loaded(const worker_plugin_t *e)
     for (uint32_t i = 0; i < e->n_seed_params; i++)
         used += (size_t)snprintf(seeds + used, sizeof seeds - used, "%s%s",
                                  i ? ", " : "; deterministic when 0: ", e->seed_params[i]);
-    LOG_INFO("plugin %s %s (%u objectives, %s%s) from %s, digest %.16s", e->plugin->name,
-             e->plugin->version, e->plugin->objectives,
+    LOG_INFO("plugin %s %s (%u objectives, %s%s%s%.200s) from %s, digest %.16s",
+             e->plugin->name, e->plugin->version, e->plugin->objectives,
              (e->plugin->flags & FITFARM_PLUGIN_DETERMINISTIC) ? "deterministic" : "stochastic",
-             seeds, e->origin, hex);
+             seeds, e->param_defaults ? "; defaults " : "",
+             e->param_defaults ? e->param_defaults : "", e->origin, hex);
 }
 
 /* The optional seed params list (fitfarm_plugin.h): at most
@@ -185,6 +189,38 @@ static int s_seed_params(void *dl, const char *plugin, worker_plugin_t *e, char 
     return 0;
 }
 
+/* The optional param defaults (fitfarm_plugin.h): a JSON object within
+ * PROTO_MAX_PARAMS_BYTES, read with a bounded scan (the text is the
+ * plugin's own data). Returns 0 (e->param_defaults canonical, or NULL when
+ * not exported) or -1 with a sentence in err: wrong defaults would key two
+ * meanings as one, so the plugin is refused. */
+static int s_param_defaults(void *dl, const char *plugin, worker_plugin_t *e, char *err,
+                            size_t errlen)
+{
+    dlerror();
+    void *sym = dlsym(dl, FITFARM_PLUGIN_PARAM_DEFAULTS_SYMBOL);
+    if (!sym)
+        return 0;
+    const char *text = *(const char *const *)sym;
+    if (!text) {
+        snprintf(err, errlen, "plugin %s: %s is a NULL pointer (do not export it, or point it "
+                 "at a JSON object)", plugin, FITFARM_PLUGIN_PARAM_DEFAULTS_SYMBOL);
+        return -1;
+    }
+    if (strnlen(text, PROTO_MAX_PARAMS_BYTES + 1) > PROTO_MAX_PARAMS_BYTES) {
+        snprintf(err, errlen, "plugin %s: %s is longer than %u bytes", plugin,
+                 FITFARM_PLUGIN_PARAM_DEFAULTS_SYMBOL, PROTO_MAX_PARAMS_BYTES);
+        return -1;
+    }
+    char why[256];
+    if (proto_params_canonical(text, &e->param_defaults, why, sizeof why) != 0) {
+        snprintf(err, errlen, "plugin %s: %s: %s", plugin, FITFARM_PLUGIN_PARAM_DEFAULTS_SYMBOL,
+                 why);
+        return -1;
+    }
+    return 0;
+}
+
 int worker_registry_load_file(worker_registry_t *self, const char *path, char *err,
                               size_t errlen)
 {
@@ -214,12 +250,14 @@ int worker_registry_load_file(worker_registry_t *self, const char *path, char *e
         goto cleanup;
     }
     worker_plugin_t e = {.plugin = plugin, .dl = dl};
-    if (s_seed_params(dl, plugin->name, &e, err, errlen) != 0)
+    if (s_seed_params(dl, plugin->name, &e, err, errlen) != 0 ||
+        s_param_defaults(dl, plugin->name, &e, err, errlen) != 0)
         goto cleanup;
     e.origin = common_xstrdup(path);
     if (proto_digest_file(path, e.digest) != 0) {
         snprintf(err, errlen, "cannot read the file to digest it");
         free(e.origin);
+        free(e.param_defaults);
         goto cleanup;
     }
     s_append(self, &e);

@@ -25,6 +25,9 @@ typedef struct {
      * NULL and 0 when the plugin exports none. */
     const char *const *seed_params;
     uint32_t n_seed_params;
+    /* fitfarm_plugin_param_defaults in canonical form (owned), or NULL when
+     * the plugin declares none. */
+    char *param_defaults;
 } worker_plugin_t;
 
 typedef struct worker_registry worker_registry_t;

@@ -161,7 +161,8 @@ static proto_msg_t s_sample(uint32_t type)
         memset(pinfo[0].digest, 0xab, PROTO_DIGEST_BYTES);
         pinfo[1] = (proto_plugin_info_t){.name = "granular", .version = "2.3",
                                          .objectives = PROTO_MAX_OBJECTIVES, .flags = 0,
-                                         .n_seed_params = 2, .seed_params = s_seed_params};
+                                         .n_seed_params = 2, .seed_params = s_seed_params,
+                                         .param_defaults = "{\"jitter\":0.01,\"n\":30}"};
         m.u.hello = (proto_hello_t){.name = "w1", .host = "lab-3", .arch = "x86_64",
                                     .slots = UINT32_MAX, .n_plugins = 2, .plugins = pinfo};
         break;
@@ -713,35 +714,39 @@ static void test_hello_seed_params(void **state)
 {
     (void)state;
     uint8_t b[256];
-    size_t n = s_hello_head(b, 0x96);
+    size_t n = s_hello_head(b, 0x97);
     b[n++] = 0x92, b[n++] = 0xa1, b[n++] = 'x', b[n++] = 0xa1, b[n++] = 'y'; /* ["x", "y"] */
+    b[n++] = 0xa7, b[n++] = '{', b[n++] = '"', b[n++] = 'x', b[n++] = '"', b[n++] = ':';
+    b[n++] = '0', b[n++] = '}'; /* param_defaults {"x":0} */
     proto_msg_t *d = NULL;
     proto_err_t err;
     if (proto_msg_decode(b, n, NULL, &d, &err) != PROTO_OK)
         fail_msg("valid HELLO refused: %s", err.text);
     assert_int_equal(d->u.hello.plugins[0].n_seed_params, 2);
     assert_string_equal(d->u.hello.plugins[0].seed_params[1], "y");
+    assert_string_equal(d->u.hello.plugins[0].param_defaults, "{\"x\":0}");
     proto_msg_destroy(&d);
 
-    n = s_hello_head(b, 0x96);
+    n = s_hello_head(b, 0x97);
     b[n++] = 0xa1, b[n++] = 'x'; /* a str where the array belongs */
     s_expect_refused(b, n, NULL, PROTO_ETYPE, "HELLO.plugins[0].seed_params: str, expected array");
-    n = s_hello_head(b, 0x96);
+    n = s_hello_head(b, 0x97);
     b[n++] = 0x91, b[n++] = 0x00; /* [0]: a uint where a name belongs */
     s_expect_refused(b, n, NULL, PROTO_ETYPE, "HELLO.plugins[0].seed_params[0]: uint, expected str");
-    n = s_hello_head(b, 0x96);
+    n = s_hello_head(b, 0x97);
     b[n++] = 0xdc, b[n++] = 0x00, b[n++] = 17; /* array 16 of 17 names */
     for (int i = 0; i < 17; i++)
         b[n++] = 0xa1, b[n++] = (uint8_t)('a' + i);
     s_expect_refused(b, n, NULL, PROTO_ELIMIT, "HELLO.plugins[0].seed_params: 17 elements, limit 16");
-    n = s_hello_head(b, 0x96);
+    n = s_hello_head(b, 0x97);
     b[n++] = 0x91, b[n++] = 0xa5, b[n++] = 'a', b[n++] = 'b', b[n++] = 'c', b[n++] = 'd', b[n++] = 'e';
     proto_limits_t lim = proto_limits_default();
     lim.name_bytes = 4;
     s_expect_refused(b, n, &lim, PROTO_ELIMIT, "seed_params[0]: 5 bytes, limit 4");
-    n = s_hello_head(b, 0x95); /* the old five-element form */
+    n = s_hello_head(b, 0x96); /* the older six-element form, without param_defaults */
+    b[n++] = 0x90;             /* seed_params [] */
     b[n++] = 0x00;             /* a spare byte, so the count is what is refused */
-    s_expect_refused(b, n, NULL, PROTO_ECOUNT, "HELLO.plugins[0]: 5 elements, expected 6");
+    s_expect_refused(b, n, NULL, PROTO_ECOUNT, "HELLO.plugins[0]: 6 elements, expected 7");
     /* the encoder refuses a count without names */
     proto_msg_t m = s_sample(PROTO_HELLO);
     proto_plugin_info_t pi = m.u.hello.plugins[1];

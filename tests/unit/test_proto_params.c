@@ -289,6 +289,47 @@ static void test_all_zero(void **state)
     assert_int_equal(proto_params_all_zero("{\"jitter\":0}", one, 1), 1);
 }
 
+/* With the plugin's defaults, equal meanings have one text: a left-out
+ * parameter takes its default, 30.0 for an integer default is 30 and 2 for a
+ * real default is 2.0 (exact: within 2^53, IEEE 754 binary64's integer
+ * range); other values and names the defaults do not list stay as given.
+ * The expected texts are written by hand from RFC 8259 numbers. */
+static void test_with_defaults(void **state)
+{
+    (void)state;
+    const char *dflt = "{\"dt\":0.5,\"n\":30,\"shape\":\"hex\"}";
+    struct {
+        const char *given, *want;
+    } cases[] = {
+        {"{}", "{\"dt\":0.5,\"n\":30,\"shape\":\"hex\"}"},
+        {"{\"n\":30}", "{\"dt\":0.5,\"n\":30,\"shape\":\"hex\"}"},
+        {"{\"n\":30.0}", "{\"dt\":0.5,\"n\":30,\"shape\":\"hex\"}"},
+        {"{\"dt\":2}", "{\"dt\":2.0,\"n\":30,\"shape\":\"hex\"}"},
+        {"{\"n\":30.5}", "{\"dt\":0.5,\"n\":30.5,\"shape\":\"hex\"}"},      /* not exact */
+        {"{\"n\":1e300}", "{\"dt\":0.5,\"n\":1e300,\"shape\":\"hex\"}"},    /* past 2^53 */
+        {"{\"n\":\"30\"}", "{\"dt\":0.5,\"n\":\"30\",\"shape\":\"hex\"}"},  /* a string */
+        {"{\"extra\":[1]}", "{\"dt\":0.5,\"extra\":[1],\"n\":30,\"shape\":\"hex\"}"},
+    };
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        char *canon = s_canon(cases[i].given);
+        char *out = NULL;
+        char err[200];
+        if (proto_params_with_defaults(canon, dflt, &out, err, sizeof err) != 0)
+            fail_msg("case %zu (%s): %s", i, cases[i].given, err);
+        char *want = s_canon(cases[i].want); /* same printer for 1e300 */
+        if (strcmp(out, want) != 0)
+            fail_msg("case %zu: %s with defaults gave %s, want %s", i, cases[i].given, out, want);
+        free(out);
+        free(want);
+        free(canon);
+    }
+    char *out = NULL;
+    char err[200];
+    assert_int_equal(proto_params_with_defaults("{}", "[1]", &out, err, sizeof err), -1);
+    assert_null(out);
+    assert_non_null(strstr(err, "defaults"));
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -299,6 +340,7 @@ int main(void)
         cmocka_unit_test(test_format_double_round_trip),
         cmocka_unit_test(test_format_double_non_finite),
         cmocka_unit_test(test_all_zero),
+        cmocka_unit_test(test_with_defaults),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

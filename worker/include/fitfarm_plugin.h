@@ -114,11 +114,31 @@ typedef int (*fitfarm_plugin_trace_fn)(const char *params_json, const uint8_t *g
  * seed is still passed to evaluate (the plugin ignores it) and reported with
  * the result. At most 16 names, each 1 to 64 characters of [a-z0-9_]; a
  * plugin exporting a longer list or another name is refused by the worker.
- * A parameter absent from params counts as not zero, even if its default is 0.
- * Read once when the worker loads the plugin. */
+ * A parameter absent from params counts as not zero, even if its default is
+ * 0, unless the plugin declares its defaults (fitfarm_plugin_param_defaults,
+ * below). Read once when the worker loads the plugin. */
 extern FITFARM_PLUGIN_EXPORT const char *const *fitfarm_plugin_seed_params;
 #define FITFARM_PLUGIN_SEED_PARAMS_SYMBOL "fitfarm_plugin_seed_params"
 #define FITFARM_PLUGIN_MAX_SEED_PARAMS 16
 #define FITFARM_PLUGIN_MAX_SEED_PARAM_CHARS 64
+
+/* Optional: any plugin may export the defaults of the parameters it reads,
+ *
+ *     FITFARM_PLUGIN_EXPORT const char *fitfarm_plugin_param_defaults = "{\"n\": 30}";
+ *
+ * a JSON object naming every parameter with the value the plugin uses when
+ * it is left out. The broker then keys a request by the params the plugin
+ * will compute with: a parameter left out takes its default, and a number is
+ * written as the type of its default (30.0 becomes 30 for an integer
+ * default, 2 becomes 2.0 for a real one, when exact), so {} and the explicit
+ * defaults, or 10 and 10.0, are one evaluation and one cached result. The
+ * plugin's create() then receives the completed params. Declare only what
+ * create() really does: a default listed here but different in create()
+ * would key two meanings as one. With defaults declared, a seed param left
+ * out counts as its default (so a default of 0 makes the request seed-free).
+ * A JSON object of at most 64 KiB; anything else refuses the plugin. Read
+ * once when the worker loads the plugin. */
+extern FITFARM_PLUGIN_EXPORT const char *fitfarm_plugin_param_defaults;
+#define FITFARM_PLUGIN_PARAM_DEFAULTS_SYMBOL "fitfarm_plugin_param_defaults"
 
 #endif

@@ -91,6 +91,10 @@ static const fitfarm_plugin_t s_plugin = {
     .destroy = s_destroy,
 };
 
+/* The defaults s_create uses, so {} and the explicit defaults (or 30
+ * and 30.0) are one evaluation to the broker (fitfarm_plugin.h). */
+FITFARM_PLUGIN_EXPORT const char *fitfarm_plugin_param_defaults = "{\"n\": 30}";
+
 FITFARM_PLUGIN_EXPORT const fitfarm_plugin_t *fitfarm_plugin(void)
 {
     return &s_plugin;
