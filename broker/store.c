@@ -217,7 +217,9 @@ static int s_quick_check(broker_store_t *self)
     int rc = sqlite3_prepare_v2(self->db, "PRAGMA quick_check(5)", -1, &st, NULL);
     char first[512] = "";
     int rows = 0, ok = 0;
-    while (rc == SQLITE_OK && (rc = sqlite3_step(st)) == SQLITE_ROW) {
+    if (rc == SQLITE_OK)
+        rc = SQLITE_ROW;
+    while (rc == SQLITE_ROW && (rc = sqlite3_step(st)) == SQLITE_ROW) {
         const char *line = (const char *)sqlite3_column_text(st, 0);
         if (rows++ == 0) {
             snprintf(first, sizeof first, "%s", line ? line : "");
@@ -361,10 +363,10 @@ static void s_fail(broker_store_t *self, int rc, const char *what)
         self->retries_unreported = 0;
         self->backoff_ms = STORE_RETRY_FIRST_MS;
         LOG_ERROR("store %s cannot write (%s failed: %s); this turn is rolled back and nothing "
-                  "it covered is sent; %" PRIu64 " results and %" PRIu64
-                  " requests are kept in memory and written when the store can take them; no "
-                  "new work is dispatched or accepted meanwhile",
-                  self->path, what, msg, self->log_results, self->log_requests);
+                  "it covered is sent; its writes and every later one are kept in memory and "
+                  "written when the store can take them; no new work is dispatched or "
+                  "accepted meanwhile",
+                  self->path, what, msg);
     } else {
         self->retries_unreported++;
         self->backoff_ms = self->backoff_ms * 2 > STORE_RETRY_MAX_MS ? STORE_RETRY_MAX_MS
