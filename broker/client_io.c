@@ -42,11 +42,13 @@ static void s_refuse_item(broker_t *b, const uint8_t *rid, size_t rid_len, uint3
 static void s_refuse_store(broker_t *b, const uint8_t *rid, size_t rid_len, uint64_t batch_tag,
                            const char *run_id)
 {
-    static int64_t s_logged_ms = INT64_MIN;
+    static int s_logged;
+    static int64_t s_logged_ms;
     static uint64_t s_unlogged;
     char text[1200];
     broker_store_describe(b->store, text, sizeof text);
-    if (b->now_ms - s_logged_ms >= STORE_REFUSAL_LOG_MS) {
+    if (!s_logged || b->now_ms - s_logged_ms >= STORE_REFUSAL_LOG_MS) {
+        s_logged = 1;
         char hex[BROKER_RID_HEX];
         LOG_INFO("refused batch %" PRIu64 " of run %s from client %s: %s (%" PRIu64
                  " more batches refused for this since the last such line)",

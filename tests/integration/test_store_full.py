@@ -30,6 +30,7 @@ import fflib  # noqa: E402
 
 check = fflib.Check("test_store_full")
 PARAMS = ["--plugin", "spin", "--params", '{"ms": 20}', "--seed", "11"]
+PARAMS_FAST = ["--plugin", "spin", "--params", '{"ms": 0}', "--seed", "11"]
 
 
 def wait_for(cond, timeout, step=0.1):
@@ -70,9 +71,9 @@ def run_of(st, run):
     return None
 
 
-def start_client(pool, run, inp, out):
+def start_client(pool, run, inp, out, params=PARAMS):
     return subprocess.Popen([fflib.exe("fitfarm"), "eval", "--broker", pool.clients_ep, "--insecure",
-                             "--run", run, "--in", inp, "--out", out] + PARAMS,
+                             "--run", run, "--in", inp, "--out", out] + params,
                             stderr=open(os.path.join(pool.tmp, f"cli-{run}.log"), "wb"))
 
 
@@ -93,8 +94,8 @@ def check_results(what, out, gs, ref):
              f"{what}: fitness 0 is each genome's sum")
 
 
-def reference(gs, run):
-    rc, ref, err = fflib.run_eval(["--slots", "2", "--run", run] + PARAMS, fflib.jsonl(gs))
+def reference(gs, run, params=PARAMS):
+    rc, ref, err = fflib.run_eval(["--slots", "2", "--run", run] + params, fflib.jsonl(gs))
     check.ok(rc == 0 and len(ref) == len(gs), f"reference run {run}: {err[-300:]}")
     return ref
 
@@ -207,4 +208,87 @@ with fflib.Pool(tmp=tmp, broker_exe="fitfarm-broker-faults",
     pool.kill(pool.broker, signal.SIGTERM)
     check.ok(pool.broker.returncode == 0, "a healthy SIGTERM exits 0")
     print(f"outage: {span:.1f} s, {again} repeat lines; stored at SIGTERM {stored_at_term}")
-check.done(pool)
+if check.failed:
+    check.done(pool)
+
+
+# ---- 3. A real full filesystem (root only: mount a small tmpfs) ----------
+def fill(path):
+    """Writes path until the filesystem says ENOSPC; returns bytes written."""
+    n = 0
+    with open(path, "wb", buffering=0) as f:
+        for chunk in (1 << 16, 4096, 512, 1):
+            try:
+                while True:
+                    n += f.write(b"\0" * chunk)
+            except OSError:
+                pass
+    return n
+
+
+def tmpfs_part():
+    if os.geteuid() != 0:
+        print("SKIP part 3 (real full filesystem): needs root to mount a tmpfs; "
+              "parts 1 and 2 (SQLite's page limit) ran")
+        return None
+    mnt = tempfile.mkdtemp(prefix="fitfarm-tmpfs-")
+    r = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=64m", "tmpfs", mnt],
+                       capture_output=True, text=True)
+    if r.returncode != 0:
+        print(f"SKIP part 3 (real full filesystem): mount -t tmpfs failed: {r.stderr.strip()}")
+        os.rmdir(mnt)
+        return None
+    # Enough requests that their first commit outgrows the WAL space SQLite
+    # can recycle: the write must reach the full filesystem.
+    gs3 = fflib.genomes(20000, 4, seed=8)
+    ref3 = reference(gs3, "ref-tmpfs", params=PARAMS_FAST)
+    try:
+        store = os.path.join(mnt, "store")
+        with fflib.Pool(broker_args=["--store", store]) as pool:  # the shipped broker
+            pool.start_broker()
+            pool.start_worker(slots=2, name="t0")
+            pool.wait_workers(1)
+            filled = fill(os.path.join(mnt, "filler"))
+            inp = os.path.join(pool.tmp, "tmpfs.jsonl")
+            out_path = os.path.join(pool.tmp, "tmpfs.out")
+            open(inp, "w").write(fflib.jsonl(gs3))
+            cli = start_client(pool, "tmpfs", inp, out_path, params=PARAMS_FAST)
+            check.ok(wait_for(lambda: failures(log_text(pool)) == 1, 30),
+                     f"tmpfs: the broker logged that the full filesystem ({filled} bytes filled) "
+                     "cannot take its writes")
+            db_path = os.path.join(store, "fitfarm.db")
+            rc, lines, err = fflib.run_eval(["--broker", pool.clients_ep, "--run", "late"] + PARAMS,
+                                            fflib.jsonl(fflib.genomes(3, 4, seed=98)), timeout=120)
+            check.ok(rc != 0 and f"store cannot write: database or disk is full at {db_path}" in err,
+                     f"tmpfs: a new client is told the store is full: {err[-500:]}")
+            st = pool.status()
+            check.ok(st and any("database or disk is full" in w for w in st.get("warnings", [])),
+                     f"tmpfs: status says so: {st and st.get('warnings')}")
+            time.sleep(3)
+            check.ok("writable again" not in log_text(pool), "tmpfs: still failing while the disk is full")
+            os.unlink(os.path.join(mnt, "filler"))  # space comes back
+            check.ok(wait_for(lambda: "writable again" in log_text(pool), 20),
+                     "tmpfs: writable again, by itself")
+            cli.wait(timeout=300)
+            cli_err = open(os.path.join(pool.tmp, "cli-tmpfs.log"), errors="replace").read()
+            if cli.returncode != 0:
+                # Chunks it sent while the store was full were refused, with the cause.
+                check.ok("store cannot write: database or disk is full" in cli_err,
+                         f"tmpfs: the first client was told why: {cli_err[-400:]}")
+                cli = start_client(pool, "tmpfs", inp, out_path, params=PARAMS_FAST)  # resume
+                cli.wait(timeout=300)
+            check.ok(cli.returncode == 0, f"tmpfs: the client finished: exit {cli.returncode}")
+            check_results("tmpfs", read_out(out_path), gs3, ref3)
+            pool.kill(pool.broker, signal.SIGTERM)
+            check.ok(pool.broker.returncode == 0, "tmpfs: SIGTERM after recovery exits 0")
+            return pool
+    finally:
+        for _ in range(50):
+            if subprocess.run(["umount", mnt], capture_output=True).returncode == 0:
+                break
+            time.sleep(0.1)
+        shutil.rmtree(mnt, ignore_errors=True)
+
+
+pool3 = tmpfs_part()
+check.done(pool3 or pool)
