@@ -174,13 +174,14 @@ void broker_store_report_damage(const char *path, const char *what, const char *
 {
     LOG_ERROR("store %s is damaged (%s: %s); the broker does not start on a damaged store, "
               "so that nothing it holds is half-read or overwritten. To recover: stop "
-              "everything using the folder, keep a copy of it (cp -a), then rebuild the "
-              "file with the sqlite3 shell: sqlite3 %s .recover | sqlite3 %s.recovered, "
-              "check the result with sqlite3 %s.recovered 'PRAGMA integrity_check' (it "
-              "should print ok), and move it in place of %s (removing %s-wal and %s-shm). "
-              "Work that was accepted but lost with the damage is submitted again by "
-              "resuming the run",
-              path, what, msg, path, path, path, path, path, path);
+              "everything using the folder and keep a copy of it (cp -a); rebuild the file "
+              "with the sqlite3 shell: sqlite3 %s .recover | sqlite3 %s.recovered (a shell "
+              "built without .recover says \"SQL logic error\"; then: sqlite3 %s .dump | sed "
+              "'s/^ROLLBACK; -- due to errors$/COMMIT;/' | sqlite3 %s.recovered); check it with "
+              "sqlite3 %s.recovered 'PRAGMA integrity_check' (it prints ok), and move it in "
+              "place of %s, removing %s-wal and %s-shm. Rows lost with the damaged page are "
+              "gone from the store: resuming a run submits its lost requests again",
+              path, what, msg, path, path, path, path, path, path, path, path);
 }
 
 /* SQLite's word for a file that is not a sound database. */
