@@ -478,6 +478,15 @@ static int s_send_batch(eval_t *e, fitfarm_batch_t *b)
 {
     int rc = fitfarm_submit(e->run, b, CLI_SUBMIT_WAIT_MS);
     int64_t now = common_clock_ms();
+    /* Over the cap with nothing of ours queued: no result will make room,
+     * the batch alone is over it (a smaller cap than a batch): say so. */
+    if (rc == FITFARM_EQUEUEFULL && e->submitted == e->printed_slots &&
+        fitfarm_batch_arrived(b) == 0) {
+        fprintf(stderr, "fitfarm eval: %s; nothing of this run is queued, so this batch of %zu "
+                "lines alone is over the cap\n",
+                fitfarm_client_error(e->client), fitfarm_batch_size(b));
+        return 1;
+    }
     if (rc == FITFARM_EQUEUEFULL) {
         e->retry = b;
         e->retry_at = now + EVAL_QUEUE_RETRY_MS;
