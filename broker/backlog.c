@@ -74,13 +74,26 @@ int broker_backlog_load(broker_t *b)
         return -1;
     }
     uint32_t n = 0;
-    while (sqlite3_step(st) == SQLITE_ROW) {
+    int rc;
+    while ((rc = sqlite3_step(st)) == SQLITE_ROW) {
         const char *id = (const char *)sqlite3_column_text(st, 0);
         broker_run_t *run = id ? broker_runs_get(&b->runs, id) : NULL;
         if (run) {
             broker_runs_owe_all(&b->runs, run);
             n++;
         }
+    }
+    if (rc != SQLITE_DONE) {
+        /* Not the last row: the runs after it would never be paged back. */
+        int prim = rc & 0xff;
+        if (prim == SQLITE_CORRUPT || prim == SQLITE_NOTADB)
+            broker_store_report_damage(broker_store_path(b->store),
+                                       "reading the runs owed results", sqlite3_errmsg(db));
+        else
+            LOG_ERROR("cannot load the store %s (runs owed results): %s",
+                      broker_store_path(b->store), sqlite3_errmsg(db));
+        sqlite3_finalize(st);
+        return -1;
     }
     sqlite3_finalize(st);
     if (n)

@@ -62,7 +62,8 @@ typedef struct {
 
 /* Runs the broker until SIGTERM or SIGINT (handlers installed here set a flag
  * that the loop reads). Returns 0 on a clean stop, or 1 after logging why it
- * could not start. Blocks; not thread-safe (one broker per process). */
+ * could not start or why the stop was not clean (the final store commit
+ * failed: results not written, to be evaluated again after a restart). Blocks; not thread-safe (one broker per process). */
 int broker_main_run(const broker_config_t *config);
 
 #endif

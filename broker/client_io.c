@@ -20,6 +20,10 @@
 
 /* Refuses a SUBMIT; item names the one request it is about (NULL: the
  * whole batch), so the client needs no text parsing to name the genome. */
+static void s_send_refused(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t code,
+                           uint64_t batch_tag, const char *run_id, const proto_item_t *item,
+                           const char *text);
+
 static void s_refuse_item(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t code,
                           uint64_t batch_tag, const char *run_id, const proto_item_t *item,
                           const char *text)
@@ -27,6 +31,41 @@ static void s_refuse_item(broker_t *b, const uint8_t *rid, size_t rid_len, uint3
     char hex[BROKER_RID_HEX];
     LOG_INFO("refused batch %" PRIu64 " of run %s from client %s: %s", batch_tag,
              run_id ? run_id : "", broker_rid_hex(rid, rid_len, hex), text);
+    s_send_refused(b, rid, rid_len, code, batch_tag, run_id, item, text);
+}
+
+/* While the store cannot write every batch is refused for the same reason,
+ * and a retrying client sends one a second: one log line per
+ * STORE_REFUSAL_LOG_MS with the count of the ones not logged. */
+#define STORE_REFUSAL_LOG_MS 5000
+
+static void s_refuse_store(broker_t *b, const uint8_t *rid, size_t rid_len, uint64_t batch_tag,
+                           const char *run_id)
+{
+    static int s_logged;
+    static int64_t s_logged_ms;
+    static uint64_t s_unlogged;
+    char text[1200];
+    broker_store_describe(b->store, text, sizeof text);
+    if (!s_logged || b->now_ms - s_logged_ms >= STORE_REFUSAL_LOG_MS) {
+        s_logged = 1;
+        char hex[BROKER_RID_HEX];
+        LOG_INFO("refused batch %" PRIu64 " of run %s from client %s: %s (%" PRIu64
+                 " more batches refused for this since the last such line)",
+                 batch_tag, run_id ? run_id : "", broker_rid_hex(rid, rid_len, hex), text,
+                 s_unlogged);
+        s_logged_ms = b->now_ms;
+        s_unlogged = 0;
+    } else {
+        s_unlogged++;
+    }
+    s_send_refused(b, rid, rid_len, PROTO_REFUSE_STORE, batch_tag, run_id, NULL, text);
+}
+
+static void s_send_refused(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t code,
+                           uint64_t batch_tag, const char *run_id, const proto_item_t *item,
+                           const char *text)
+{
     if (!b->clients)
         return;
     proto_msg_t msg = {.type = PROTO_REFUSED};
@@ -143,6 +182,13 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     if (b->stopping) {
         rc = PROTO_REFUSE_SHUTTING_DOWN;
         s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, "the broker is shutting down");
+        goto cleanup;
+    }
+    if (broker_store_failing(b->store)) {
+        /* Nothing could be made durable, so nothing may be accepted: the
+         * client is told why, and accepted work still waits in memory. */
+        rc = PROTO_REFUSE_STORE;
+        s_refuse_store(b, rid, rid_len, s->batch_tag, s->run_id);
         goto cleanup;
     }
     if (!s->run_id || !*s->run_id || s->seed_mode > PROTO_SEED_COMMON) {
@@ -417,12 +463,19 @@ static void s_on_status(broker_t *b, const uint8_t *rid, size_t rid_len)
         ri->run_id = run->id;
         ri->queued = run->n_queued;
         ri->running = run->n_running;
-        ri->done = run->n_answered;
+        ri->done = broker_runs_durable_answered(&b->runs, run); /* only what the store holds */
         ri->evaluated = run->n_evaluated;
         ri->cached = run->n_cached;
         ri->failed = run->n_failed;
     }
     st->n_warnings = broker_catalog_warnings(&b->catalog, &st->warnings, 0);
+    if (broker_store_failing(b->store)) {
+        char text[1200];
+        broker_store_describe(b->store, text, sizeof text);
+        st->warnings = common_xrealloc(st->warnings, (size_t)st->n_warnings + 1,
+                                       sizeof *st->warnings);
+        st->warnings[st->n_warnings++] = common_xstrdup(text);
+    }
     if (b->clients)
         broker_envelope_send(b->clients, rid, rid_len, &msg);
     for (i = 0; i < st->n_workers; i++) {

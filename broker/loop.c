@@ -112,20 +112,22 @@ static void s_drain(broker_t *b, void *sock, int workers)
     }
 }
 
-static void s_before_sleep(broker_t *b)
+/* Returns 0, or -1 when the store could not commit (nothing went out). */
+static int s_before_sleep(broker_t *b)
 {
-    if (!b->stopping)
+    /* A store that cannot write could not keep the results of new jobs:
+     * the running ones finish and wait in memory, nothing more is sent. */
+    if (!b->stopping && !broker_store_failing(b->store))
         broker_dispatch_turn(b);
-    if (broker_store_commit(b->store) != 0) {
-        /* Nothing that depends on this turn may go out; it stays queued. */
-        LOG_ERROR("store commit failed; holding this turn's replies");
-        return;
-    }
+    if (broker_store_commit(b->store) != 0)
+        return -1; /* nothing that depends on it may go out (store.c logs, rate-limited) */
+    b->runs.epoch++; /* every answer so far is durable (runs.h) */
     broker_client_flush(b);
     if (b->runs.went_idle) {
         b->runs.went_idle = 0;
         broker_cache_log(b);
     }
+    return 0;
 }
 
 int broker_main_run(const broker_config_t *config)
@@ -193,6 +195,9 @@ int broker_main_run(const broker_config_t *config)
     while (!s_stop) {
         b.now_ms = common_clock_ms();
         long timeout = b.backlog_more ? 0 : broker_timers_timeout(&b.timers, b.now_ms);
+        long retry = broker_store_retry_in_ms(b.store);
+        if (retry >= 0 && (timeout < 0 || retry < timeout))
+            timeout = retry; /* wake for the store's next retry */
         if (s_reload) {
             s_reload = 0;
             broker_guard_reload(&b);
@@ -218,16 +223,28 @@ int broker_main_run(const broker_config_t *config)
         if (items[1].revents & ZMQ_POLLIN)
             s_drain(&b, b.workers, 1);
         broker_timers_run(&b.timers, b.now_ms);
-        s_before_sleep(&b);
+        (void)s_before_sleep(&b);
     }
     /* Stop accepting; what this process owes goes out before the sockets close. */
     b.stopping = 1;
-    s_before_sleep(&b);
+    broker_store_retry_now(b.store); /* a failing store gets its last try now */
+    if (s_before_sleep(&b) != 0) {
+        /* Their requests are durable (accepted only after commit), so a
+         * restarted broker queues them again: nothing accepted is lost, but
+         * the stop was not clean and the exit status says so. */
+        char why[1024];
+        broker_store_describe(b.store, why, sizeof why);
+        LOG_ERROR("broker stopping with %" PRIu64 " results not written (%s); their requests "
+                  "are durable and are evaluated again when a broker restarts on this store",
+                  broker_store_unwritten(b.store), why);
+        rc = 1;
+    } else {
+        rc = 0;
+    }
     LOG_INFO("broker stopping: %" PRIu64 " jobs sent, %" PRIu64 " results sent, %" PRIu64
              " messages dropped",
              b.jobs_sent, b.results_sent, b.dropped_msgs);
     broker_cache_log(&b);
-    rc = 0;
 
 cleanup:
     if (b.clients || b.workers) {

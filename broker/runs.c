@@ -342,6 +342,11 @@ void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, ui
     assert(e->state == BROKER_EVAL_DONE || cached == 0);
     (void)s_push_eval(self, run, tag, seed, e, cached); /* past a cap: the store has it, acked = 0 */
     run->n_answered++;
+    if (run->answered_epoch != self->epoch) {
+        run->answered_epoch = self->epoch; /* the earlier ones committed since */
+        run->answered_since = 0;
+    }
+    run->answered_since++;
     run->p_answered++;
     if (cached) {
         run->p_cached++;
@@ -451,6 +456,11 @@ int broker_runs_ack(broker_runs_t *self, broker_run_t *run, uint64_t tag)
     d->free_next = self->free_nodes;
     self->free_nodes = d;
     return 1;
+}
+
+uint64_t broker_runs_durable_answered(const broker_runs_t *self, const broker_run_t *run)
+{
+    return run->n_answered - (run->answered_epoch == self->epoch ? run->answered_since : 0);
 }
 
 int broker_runs_check(const broker_runs_t *self)

@@ -57,6 +57,10 @@ typedef struct broker_run {
     uint64_t n_queued, n_running, n_answered;
     uint64_t n_evaluated, n_cached, n_failed; /* since the broker started */
     uint64_t outstanding; /* accepted requests not yet answered */
+    /* Answers since the store commit numbered answered_epoch (runs_t.epoch):
+     * not durable while that is still the current epoch, so status leaves
+     * them out of "done" (broker_runs_durable_answered). */
+    uint64_t answered_epoch, answered_since;
     /* since the run last went idle, for the idle log line */
     uint64_t p_answered, p_evaluated, p_cached, p_failed;
     struct broker_run *rr_prev, *rr_next;
@@ -88,6 +92,7 @@ typedef struct {
     uint64_t n_spilled;         /* results left in the store at a cap */
     broker_run_t *spill_head;   /* runs that owe results from the store */
     int went_idle;              /* a run went idle: the loop logs memory use */
+    uint64_t epoch;             /* successful store commits so far (loop.c counts them) */
 } broker_runs_t;
 
 void broker_runs_init(broker_runs_t *self);
@@ -152,6 +157,10 @@ broker_run_t *broker_runs_take_dirty(broker_runs_t *self);
 void broker_runs_sent(broker_runs_t *self, broker_run_t *run);
 /* The client delivered tag: forget it. Returns 1 if it was unacked. */
 int broker_runs_ack(broker_runs_t *self, broker_run_t *run, uint64_t tag);
+
+/* Requests of run answered and committed to the store (n_answered less
+ * those of the current, not yet committed epoch). */
+uint64_t broker_runs_durable_answered(const broker_runs_t *self, const broker_run_t *run);
 
 int broker_runs_check(const broker_runs_t *self);
 

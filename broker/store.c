@@ -11,6 +11,17 @@
  * 44,000 trivial evaluations/s and a single-evaluation round trip of 415 to
  * 620 us, one fsync per loop turn included (commits cover a whole turn).
  *
+ * Sticky failures, as SQLite's own pager treats an I/O error: the first
+ * failed write, BEGIN or COMMIT of a turn fails the whole turn. The
+ * transaction is rolled back (SQLite may have done it already:
+ * sqlite3_get_autocommit says), so the file holds exactly what the last
+ * successful commit made; every write since is kept in store_log.h's log and
+ * the whole of it is written again in one transaction by a later commit,
+ * paced by a doubling back-off. Until that commits the loop sends nothing
+ * that depends on it, dispatches no new jobs and refuses new batches
+ * (loop.c, client_io.c), so no client ever holds an ACCEPTED or a result
+ * that the file does not.
+ *
  * u64 values (seeds, tags) are stored as SQLite INTEGER by a two's-complement
  * cast: a value >= 2^63 reads back negative in the sqlite3 shell (add
  * 18446744073709551616 to see it unsigned); the broker casts back exactly. */
@@ -30,9 +41,12 @@
 #include <unistd.h>
 
 #include "common/alloc.h"
+#include "common/clock.h"
 #include "common/log.h"
 #include "params.h"
+#include "store_hook.h"
 #include "store_lock.h"
+#include "store_log.h"
 
 #define STORE_FILE "fitfarm.db"
 #define STORE_SCHEMA_VERSION 1
@@ -113,13 +127,30 @@ static const char *const s_sql[S_COUNT_] = {
                  " seed_params = ?7, param_defaults = ?8",
 };
 
+/* Retry pacing while the store cannot write: the first retry soon (a
+ * checkpoint may free WAL space at once), then doubling up to a ceiling low
+ * enough that a broker whose disk was cleaned resumes within seconds.
+ * One log line per STORE_REPORT_MS while it lasts (common practice: a
+ * repeating failure is reported with a count, not once per attempt). */
+#define STORE_RETRY_FIRST_MS 100
+#define STORE_RETRY_MAX_MS 5000
+#define STORE_REPORT_MS 5000
+
 struct broker_store {
     sqlite3 *db;
     sqlite3_stmt *stmt[S_COUNT_];
-    int in_txn;
     int lock_fd; /* DIR/fitfarm.lock, flock'ed for the broker's life; -1 in memory */
     uint64_t commits;
-    uint64_t write_errors;
+    /* Every write since the last successful commit (store_log.h), and what
+     * it holds in the user's terms. */
+    broker_store_log_t log;
+    uint64_t log_results, log_requests;
+    /* Sticky failure: fail_rc != 0 from the first failed write or commit
+     * until a retry of the whole log commits. */
+    int fail_rc;
+    char fail_msg[256];
+    int64_t fail_since_ms, retry_at_ms, backoff_ms, report_ms;
+    uint64_t retries, retries_unreported, outages;
     char path[4096];
 };
 
@@ -140,14 +171,76 @@ uint64_t broker_store_commits(const broker_store_t *self)
     return self ? self->commits : 0;
 }
 
+void broker_store_report_damage(const char *path, const char *what, const char *msg)
+{
+    LOG_ERROR("store %s is damaged (%s: %s); the broker does not start on a damaged store, "
+              "so that nothing it holds is half-read or overwritten. To recover: stop "
+              "everything using the folder and keep a copy of it (cp -a); rebuild the file "
+              "with the sqlite3 shell: sqlite3 %s .recover | sqlite3 %s.recovered (a shell "
+              "built without .recover says \"SQL logic error\"; then: sqlite3 %s .dump | sed "
+              "'s/^ROLLBACK; -- due to errors$/COMMIT;/' | sqlite3 %s.recovered); check it with "
+              "sqlite3 %s.recovered 'PRAGMA integrity_check' (it prints ok), and move it in "
+              "place of %s, removing %s-wal and %s-shm. Rows lost with the damaged page are "
+              "gone from the store: resuming a run submits its lost requests again",
+              path, what, msg, path, path, path, path, path, path, path, path);
+}
+
+/* SQLite's word for a file that is not a sound database. */
+static int s_is_damage(int rc)
+{
+    rc &= 0xff;
+    return rc == SQLITE_CORRUPT || rc == SQLITE_NOTADB;
+}
+
 static int s_exec(broker_store_t *self, const char *sql)
 {
     char *msg = NULL;
-    if (sqlite3_exec(self->db, sql, NULL, NULL, &msg) != SQLITE_OK) {
-        LOG_ERROR("store %s: %s failed: %s", self->path, sql, msg ? msg : "?");
+    int rc = sqlite3_exec(self->db, sql, NULL, NULL, &msg);
+    if (rc != SQLITE_OK) {
+        if (s_is_damage(rc))
+            broker_store_report_damage(self->path, sql, msg ? msg : sqlite3_errstr(rc));
+        else
+            LOG_ERROR("store %s: %s failed: %s", self->path, sql, msg ? msg : "?");
         sqlite3_free(msg);
         return -1;
     }
+    return 0;
+}
+
+/* PRAGMA quick_check at start: every b-tree page and record header of the
+ * file is read once (not the index-to-table cross-checks of integrity_check),
+ * so a damaged page is found before the broker relies on it. Its cost,
+ * measured on our 2-core machine, is in the README ("The store"). Returns 0
+ * when the file is sound. */
+static int s_quick_check(broker_store_t *self)
+{
+    int64_t t0 = common_clock_ms();
+    sqlite3_stmt *st = NULL;
+    int rc = sqlite3_prepare_v2(self->db, "PRAGMA quick_check(5)", -1, &st, NULL);
+    char first[512] = "";
+    int rows = 0, ok = 0;
+    if (rc == SQLITE_OK)
+        rc = SQLITE_ROW;
+    while (rc == SQLITE_ROW && (rc = sqlite3_step(st)) == SQLITE_ROW) {
+        const char *line = (const char *)sqlite3_column_text(st, 0);
+        if (rows++ == 0) {
+            snprintf(first, sizeof first, "%s", line ? line : "");
+            ok = line && strcmp(line, "ok") == 0;
+        }
+    }
+    if (rc != SQLITE_DONE) {
+        snprintf(first, sizeof first, "%s", sqlite3_errmsg(self->db));
+        ok = 0;
+    }
+    sqlite3_finalize(st);
+    if (!ok) {
+        broker_store_report_damage(self->path, "PRAGMA quick_check", first);
+        return -1;
+    }
+    int64_t took = common_clock_ms() - t0;
+    if (took >= 1000)
+        LOG_INFO("store %s checked (PRAGMA quick_check: ok) in %.1f s", self->path,
+                 (double)took / 1000.0);
     return 0;
 }
 
@@ -155,6 +248,7 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
 {
     broker_store_t *self = common_xcalloc(1, sizeof *self);
     self->lock_fd = -1;
+    broker_store_log_init(&self->log);
     if (dir) {
         if (mkdir(dir, 0700) != 0 && errno != EEXIST) {
             LOG_ERROR("cannot create the store folder %s: %s", dir, strerror(errno));
@@ -178,7 +272,7 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
         goto fail;
     }
     sqlite3_busy_timeout(self->db, 2000); /* a reader checkpointing, at most */
-    if (s_exec(self, "PRAGMA journal_mode=WAL") != 0 ||
+    if ((dir && s_quick_check(self) != 0) || s_exec(self, "PRAGMA journal_mode=WAL") != 0 ||
         s_exec(self, scratch ? "PRAGMA synchronous=OFF" : "PRAGMA synchronous=FULL") != 0 ||
         s_exec(self, s_schema) != 0 ||
         s_exec(self, "BEGIN IMMEDIATE") != 0)
@@ -207,8 +301,12 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
     for (int i = 0; i < S_COUNT_; i++) {
         if (sqlite3_prepare_v3(self->db, s_sql[i], -1, SQLITE_PREPARE_PERSISTENT, &self->stmt[i],
                                NULL) != SQLITE_OK) {
-            LOG_ERROR("store %s: cannot prepare \"%s\": %s", self->path, s_sql[i],
-                      sqlite3_errmsg(self->db));
+            if (s_is_damage(sqlite3_errcode(self->db)))
+                broker_store_report_damage(self->path, "preparing a statement",
+                                         sqlite3_errmsg(self->db));
+            else
+                LOG_ERROR("store %s: cannot prepare \"%s\": %s", self->path, s_sql[i],
+                          sqlite3_errmsg(self->db));
             goto fail;
         }
     }
@@ -226,7 +324,8 @@ void broker_store_close(broker_store_t **self_p)
     if (!self_p || !*self_p)
         return;
     broker_store_t *self = *self_p;
-    if (self->db && self->in_txn)
+    /* A failing store had its last try from the loop, which reported it. */
+    if (self->db && self->stmt[S_COMMIT] && !self->fail_rc && self->log.n_ops > 0)
         (void)broker_store_commit(self);
     for (int i = 0; i < S_COUNT_; i++)
         sqlite3_finalize(self->stmt[i]);
@@ -234,32 +333,132 @@ void broker_store_close(broker_store_t **self_p)
         sqlite3_close(self->db);
     if (self->lock_fd >= 0)
         close(self->lock_fd); /* releases the flock */
+    broker_store_log_fini(&self->log);
     free(self);
     *self_p = NULL;
 }
 
-/* Runs a prepared write statement (bound by the caller) inside the turn's
- * transaction, opening it if needed; resets it. */
-static void s_step(broker_store_t *self, int which)
+/* ---- sticky failures ---------------------------------------------------- */
+
+/* The primary cause in a user's words ("database or disk is full"). */
+static const char *s_cause(const broker_store_t *self)
 {
-    sqlite3_stmt *st = self->stmt[which];
-    if (!self->in_txn) {
-        sqlite3_stmt *b = self->stmt[S_BEGIN];
-        if (sqlite3_step(b) == SQLITE_DONE)
-            self->in_txn = 1;
-        else
-            LOG_ERROR("store %s: BEGIN failed: %s", self->path, sqlite3_errmsg(self->db));
-        sqlite3_reset(b);
+    return sqlite3_errstr(self->fail_rc & 0xff);
+}
+
+/* A write, BEGIN or COMMIT failed with rc. SQLite may already have rolled
+ * the transaction back (a full disk, an I/O error) or left it open (busy):
+ * ask it, and roll back what is left, so the store is known to hold exactly
+ * what the last successful commit made. The log keeps everything since, for
+ * a retry of the whole turn. */
+static void s_fail(broker_store_t *self, int rc, const char *what)
+{
+    char msg[sizeof self->fail_msg];
+    snprintf(msg, sizeof msg, "%s", sqlite3_errmsg(self->db));
+    if (!sqlite3_get_autocommit(self->db) &&
+        sqlite3_exec(self->db, "ROLLBACK", NULL, NULL, NULL) != SQLITE_OK)
+        LOG_ERROR("store %s: ROLLBACK after a failed %s also failed: %s", self->path, what,
+                  sqlite3_errmsg(self->db));
+    int64_t now = common_clock_ms();
+    int first = self->fail_rc == 0;
+    self->fail_rc = rc;
+    memcpy(self->fail_msg, msg, sizeof msg);
+    if (first) {
+        self->outages++;
+        self->fail_since_ms = now;
+        self->report_ms = now;
+        self->retries_unreported = 0;
+        self->backoff_ms = STORE_RETRY_FIRST_MS;
+        LOG_ERROR("store %s cannot write (%s failed: %s); this turn is rolled back and nothing "
+                  "it covered is sent; its writes and every later one are kept in memory and "
+                  "written when the store can take them; no new work is dispatched or "
+                  "accepted meanwhile",
+                  self->path, what, msg);
+    } else {
+        self->retries_unreported++;
+        self->backoff_ms = self->backoff_ms * 2 > STORE_RETRY_MAX_MS ? STORE_RETRY_MAX_MS
+                                                                      : self->backoff_ms * 2;
+        if (now - self->report_ms >= STORE_REPORT_MS) {
+            LOG_ERROR("store %s still cannot write (%s) after %.1f s: %" PRIu64
+                      " retries failed since the last line; %" PRIu64 " results and %" PRIu64
+                      " requests waiting to be written; next retry in %" PRId64 " ms",
+                      self->path, msg, (double)(now - self->fail_since_ms) / 1000.0,
+                      self->retries_unreported, self->log_results, self->log_requests,
+                      self->backoff_ms);
+            self->report_ms = now;
+            self->retries_unreported = 0;
+        }
     }
-    int rc = sqlite3_step(st);
-    if (rc != SQLITE_DONE && rc != SQLITE_ROW) {
-        /* One line per hundred failures: a full disk must not flood the log. */
-        if (self->write_errors++ % 100 == 0)
-            LOG_ERROR("store %s: write failed (%" PRIu64 " so far): %s", self->path,
-                      self->write_errors, sqlite3_errmsg(self->db));
+    self->retry_at_ms = now + self->backoff_ms;
+}
+
+/* Opens the turn's transaction if none is. Returns 0, or -1 (failed). */
+static int s_begin(broker_store_t *self, const char *sql_begin, sqlite3_stmt *st)
+{
+    if (!sqlite3_get_autocommit(self->db))
+        return 0;
+    broker_store_hook_txn(self->db);
+    int rc;
+    if (st) {
+        rc = sqlite3_step(st);
+        sqlite3_reset(st);
+    } else {
+        rc = sqlite3_exec(self->db, sql_begin, NULL, NULL, NULL);
+        if (rc == SQLITE_OK)
+            rc = SQLITE_DONE;
     }
-    sqlite3_reset(st);
-    sqlite3_clear_bindings(st);
+    if (rc != SQLITE_DONE) {
+        s_fail(self, rc, "BEGIN");
+        return -1;
+    }
+    return 0;
+}
+
+/* Starts op `which` in the log; the caller fills its values and calls s_write. */
+static size_t s_op(broker_store_t *self, int which)
+{
+    if (which == S_HISTORY)
+        self->log_results++;
+    else if (which == S_REQUEST)
+        self->log_requests++;
+    return broker_store_log_begin(&self->log, which);
+}
+
+/* Writes op i inside the turn's transaction, opening it if needed. While
+ * the store is failing it is only kept: the retry writes it with the rest. */
+static void s_write(broker_store_t *self, size_t i)
+{
+    if (self->fail_rc || s_begin(self, NULL, self->stmt[S_BEGIN]) != 0)
+        return;
+    int which = self->log.ops[i].which;
+    int rc = broker_store_log_apply(&self->log, i, self->stmt[which]);
+    if (rc != SQLITE_DONE && rc != SQLITE_ROW)
+        s_fail(self, rc, "write");
+}
+
+static void s_int(broker_store_t *self, size_t i, int k, int64_t v)
+{
+    broker_store_log_int(&self->log, i, k, v);
+}
+
+static void s_u64(broker_store_t *self, size_t i, int k, uint64_t v)
+{
+    broker_store_log_int(&self->log, i, k, (int64_t)v); /* two's-complement cast, see top */
+}
+
+static void s_real(broker_store_t *self, size_t i, int k, double v)
+{
+    broker_store_log_real(&self->log, i, k, v);
+}
+
+static void s_text(broker_store_t *self, size_t i, int k, const char *v)
+{
+    broker_store_log_text(&self->log, i, k, v);
+}
+
+static void s_blob(broker_store_t *self, size_t i, int k, const void *p, size_t n)
+{
+    broker_store_log_blob(&self->log, i, k, p, n);
 }
 
 static void s_bind_u64(sqlite3_stmt *st, int i, uint64_t v)
@@ -269,43 +468,43 @@ static void s_bind_u64(sqlite3_stmt *st, int i, uint64_t v)
 
 void broker_store_note_run(broker_store_t *self, const broker_run_t *run)
 {
-    sqlite3_stmt *st = self->stmt[S_RUN];
-    sqlite3_bind_text(st, 1, run->id, -1, SQLITE_STATIC);
-    s_bind_u64(st, 2, run->seed);
-    sqlite3_bind_int(st, 3, (int)run->seed_mode);
-    sqlite3_bind_double(st, 4, s_now());
-    s_step(self, S_RUN);
+    size_t i = s_op(self, S_RUN);
+    s_text(self, i, 1, run->id);
+    s_u64(self, i, 2, run->seed);
+    s_int(self, i, 3, run->seed_mode);
+    s_real(self, i, 4, s_now());
+    s_write(self, i);
 }
 
 void broker_store_note_eval(broker_store_t *self, const broker_eval_t *e)
 {
-    sqlite3_stmt *st = self->stmt[S_EVAL];
-    sqlite3_bind_blob(st, 1, e->key, PROTO_KEY_BYTES, SQLITE_STATIC);
-    sqlite3_bind_text(st, 2, e->plugin->name, -1, SQLITE_STATIC);
-    sqlite3_bind_text(st, 3, e->plugin->version, -1, SQLITE_STATIC);
-    sqlite3_bind_text(st, 4, e->params, -1, SQLITE_STATIC);
-    sqlite3_bind_blob(st, 5, e->genome, (int)e->genome_len, SQLITE_STATIC);
-    s_bind_u64(st, 6, e->seed);
-    sqlite3_bind_int64(st, 7, e->timeout_ms);
-    sqlite3_bind_int(st, 8, e->max_attempts);
-    sqlite3_bind_double(st, 9, s_now());
-    s_step(self, S_EVAL);
+    size_t i = s_op(self, S_EVAL);
+    s_blob(self, i, 1, e->key, PROTO_KEY_BYTES);
+    s_text(self, i, 2, e->plugin->name);
+    s_text(self, i, 3, e->plugin->version);
+    s_text(self, i, 4, e->params);
+    s_blob(self, i, 5, e->genome, e->genome_len);
+    s_u64(self, i, 6, e->seed);
+    s_int(self, i, 7, e->timeout_ms);
+    s_int(self, i, 8, e->max_attempts);
+    s_real(self, i, 9, s_now());
+    s_write(self, i);
 }
 
 void broker_store_note_request(broker_store_t *self, const broker_run_t *run, uint64_t tag,
                                uint64_t batch_tag, uint32_t replicate, const broker_eval_t *e,
                                int cached)
 {
-    sqlite3_stmt *st = self->stmt[S_REQUEST];
-    sqlite3_bind_text(st, 1, run->id, -1, SQLITE_STATIC);
-    s_bind_u64(st, 2, tag);
-    s_bind_u64(st, 3, batch_tag);
-    sqlite3_bind_int64(st, 4, replicate);
-    sqlite3_bind_blob(st, 5, e->key, PROTO_KEY_BYTES, SQLITE_STATIC);
-    sqlite3_bind_int(st, 6, cached != 0);
-    sqlite3_bind_double(st, 7, s_now());
-    sqlite3_bind_int(st, 8, e->fresh != 0);
-    s_step(self, S_REQUEST);
+    size_t i = s_op(self, S_REQUEST);
+    s_text(self, i, 1, run->id);
+    s_u64(self, i, 2, tag);
+    s_u64(self, i, 3, batch_tag);
+    s_int(self, i, 4, replicate);
+    s_blob(self, i, 5, e->key, PROTO_KEY_BYTES);
+    s_int(self, i, 6, cached != 0);
+    s_real(self, i, 7, s_now());
+    s_int(self, i, 8, e->fresh != 0);
+    s_write(self, i);
 }
 
 int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t tag,
@@ -393,79 +592,76 @@ static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *
                           const proto_outcome_t *o, const char *worker, const char *host,
                           const char *arch)
 {
-    sqlite3_stmt *st = self->stmt[which];
-    uint8_t *le = NULL;
-    char *json = NULL;
-    sqlite3_bind_blob(st, 1, e->key, PROTO_KEY_BYTES, SQLITE_STATIC);
-    sqlite3_bind_int(st, 2, e->status);
-    sqlite3_bind_text(st, 3, proto_status_name(e->status), -1, SQLITE_STATIC);
+    size_t i = s_op(self, which);
+    s_blob(self, i, 1, e->key, PROTO_KEY_BYTES);
+    s_int(self, i, 2, e->status);
+    s_text(self, i, 3, proto_status_name(e->status));
     if (e->n_fitness) {
         /* Little-endian IEEE 754 doubles, whatever the host. */
-        le = common_xmalloc((size_t)e->n_fitness * 8);
-        for (uint32_t i = 0; i < e->n_fitness; i++) {
+        uint8_t le[PROTO_MAX_OBJECTIVES * 8];
+        uint32_t nf = e->n_fitness < PROTO_MAX_OBJECTIVES ? e->n_fitness : PROTO_MAX_OBJECTIVES;
+        for (uint32_t f = 0; f < nf; f++) {
             uint64_t bits;
-            memcpy(&bits, &e->fitness[i], 8);
+            memcpy(&bits, &e->fitness[f], 8);
             for (int k = 0; k < 8; k++)
-                le[i * 8 + (uint32_t)k] = (uint8_t)(bits >> (8 * k));
+                le[f * 8 + (uint32_t)k] = (uint8_t)(bits >> (8 * k));
         }
-        sqlite3_bind_blob(st, 4, le, (int)e->n_fitness * 8, SQLITE_STATIC);
-        json = s_fitness_json(e->fitness, e->n_fitness);
-        sqlite3_bind_text(st, 5, json, -1, SQLITE_STATIC);
+        s_blob(self, i, 4, le, (size_t)nf * 8);
+        char *json = s_fitness_json(e->fitness, nf);
+        s_text(self, i, 5, json);
+        free(json);
     }
-    sqlite3_bind_text(st, 6, e->error ? e->error : "", -1, SQLITE_STATIC);
+    s_text(self, i, 6, e->error ? e->error : "");
     /* attempts counts dispatches that did not end with this result: crashed
      * or timed out (the final one counts too when it ended the same way),
      * or lost with a worker that vanished. */
-    sqlite3_bind_int(st, 7, (int)e->attempts + (int)e->lost);
+    s_int(self, i, 7, (int)e->attempts + (int)e->lost);
     if (worker) {
-        sqlite3_bind_text(st, 8, worker, -1, SQLITE_STATIC);
-        sqlite3_bind_text(st, 9, host, -1, SQLITE_STATIC);
-        sqlite3_bind_text(st, 10, arch, -1, SQLITE_STATIC);
+        s_text(self, i, 8, worker);
+        s_text(self, i, 9, host);
+        s_text(self, i, 10, arch);
     }
     /* Only workers with the plugin's pinned build get its jobs (catalog.h),
      * so the pinned digest is the build that computed this result. */
     if (worker && e->plugin->n_digests > 0)
-        sqlite3_bind_blob(st, 11, e->plugin->digests[0], PROTO_DIGEST_BYTES, SQLITE_STATIC);
+        s_blob(self, i, 11, e->plugin->digests[0], PROTO_DIGEST_BYTES);
     if (o) {
-        sqlite3_bind_double(st, 12, o->cpu_seconds);
-        s_bind_u64(st, 13, o->peak_rss_kb);
+        s_real(self, i, 12, o->cpu_seconds);
+        s_u64(self, i, 13, o->peak_rss_kb);
     }
-    sqlite3_bind_double(st, 14, e->prov.finished_at > 0 ? e->prov.finished_at : s_now());
+    s_real(self, i, 14, e->prov.finished_at > 0 ? e->prov.finished_at : s_now());
     if (which == S_HISTORY) {
-        sqlite3_bind_text(st, 15, e->home ? e->home->id : "", -1, SQLITE_STATIC);
-        sqlite3_bind_int(st, 16, e->fresh != 0);
+        s_text(self, i, 15, e->home ? e->home->id : "");
+        s_int(self, i, 16, e->fresh != 0);
     }
-    s_step(self, which);
-    free(le);
-    free(json);
+    s_write(self, i);
 }
 
 void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64_t tag)
 {
-    sqlite3_stmt *st = self->stmt[S_ACK];
-    sqlite3_bind_text(st, 1, run->id, -1, SQLITE_STATIC);
-    s_bind_u64(st, 2, tag);
-    s_step(self, S_ACK);
+    size_t i = s_op(self, S_ACK);
+    s_text(self, i, 1, run->id);
+    s_u64(self, i, 2, tag);
+    s_write(self, i);
 }
 
 void broker_store_note_unack(broker_store_t *self, const broker_run_t *run, uint64_t tag)
 {
-    sqlite3_stmt *st = self->stmt[S_UNACK];
-    sqlite3_bind_text(st, 1, run->id, -1, SQLITE_STATIC);
-    s_bind_u64(st, 2, tag);
-    s_step(self, S_UNACK);
+    size_t i = s_op(self, S_UNACK);
+    s_text(self, i, 1, run->id);
+    s_u64(self, i, 2, tag);
+    s_write(self, i);
 }
 
 void broker_store_note_plugin(broker_store_t *self, const broker_plugin_t *p)
 {
-    sqlite3_stmt *st = self->stmt[S_PLUGIN];
-    sqlite3_bind_text(st, 1, p->name, -1, SQLITE_STATIC);
-    sqlite3_bind_text(st, 2, p->version, -1, SQLITE_STATIC);
-    sqlite3_bind_int64(st, 3, p->objectives);
-    sqlite3_bind_int64(st, 4, p->flags);
-    sqlite3_bind_blob(st, 5, p->digests, (int)(p->n_digests * PROTO_DIGEST_BYTES),
-                      SQLITE_STATIC);
-    sqlite3_bind_double(st, 6, s_now());
+    size_t i = s_op(self, S_PLUGIN);
+    s_text(self, i, 1, p->name);
+    s_text(self, i, 2, p->version);
+    s_int(self, i, 3, p->objectives);
+    s_int(self, i, 4, p->flags);
+    s_blob(self, i, 5, p->digests, (size_t)p->n_digests * PROTO_DIGEST_BYTES);
+    s_real(self, i, 6, s_now());
     /* seed params as a JSON array of names; NULL while not known */
     char *seeds = NULL;
     if (p->seed_params_known) {
@@ -476,32 +672,106 @@ void broker_store_note_plugin(broker_store_t *self, const broker_plugin_t *p)
         seeds = a ? json_dumps(a, JSON_COMPACT) : NULL;
         json_decref(a);
     }
-    if (seeds)
-        sqlite3_bind_text(st, 7, seeds, -1, SQLITE_TRANSIENT);
-    else
-        sqlite3_bind_null(st, 7);
+    s_text(self, i, 7, seeds); /* NULL stays NULL */
     free(seeds);
     /* param defaults: the text, "" for none, NULL while not known */
-    if (p->param_defaults_known)
-        sqlite3_bind_text(st, 8, p->param_defaults ? p->param_defaults : "", -1, SQLITE_STATIC);
-    else
-        sqlite3_bind_null(st, 8);
-    s_step(self, S_PLUGIN);
+    s_text(self, i, 8,
+           p->param_defaults_known ? (p->param_defaults ? p->param_defaults : "") : NULL);
+    s_write(self, i);
 }
 
-int broker_store_commit(broker_store_t *self)
+/* The whole log again in one transaction, after a failure. Returns 0 when it
+ * committed. */
+static int s_retry(broker_store_t *self)
 {
-    if (!self->in_txn)
-        return 0;
+    self->retries++;
+    if (s_begin(self, "BEGIN IMMEDIATE", NULL) != 0)
+        return -1;
+    for (size_t i = 0; i < self->log.n_ops; i++) {
+        int which = self->log.ops[i].which;
+        int rc = broker_store_log_apply(&self->log, i, self->stmt[which]);
+        if (rc != SQLITE_DONE && rc != SQLITE_ROW) {
+            s_fail(self, rc, "write");
+            return -1;
+        }
+    }
     sqlite3_stmt *st = self->stmt[S_COMMIT];
     int rc = sqlite3_step(st);
     sqlite3_reset(st);
     if (rc != SQLITE_DONE) {
-        /* The transaction stays open; the next turn's commit tries again. */
-        LOG_ERROR("store %s: commit failed: %s", self->path, sqlite3_errmsg(self->db));
+        s_fail(self, rc, "COMMIT");
         return -1;
     }
-    self->in_txn = 0;
-    self->commits++;
+    LOG_INFO("store %s writable again after %.1f s (%" PRIu64 " retries): wrote %" PRIu64
+             " results and %" PRIu64 " requests kept meanwhile; dispatching and accepting again",
+             self->path, (double)(common_clock_ms() - self->fail_since_ms) / 1000.0,
+             self->retries, self->log_results, self->log_requests);
+    self->fail_rc = 0;
+    self->fail_msg[0] = '\0';
+    self->retries = 0;
     return 0;
+}
+
+int broker_store_commit(broker_store_t *self)
+{
+    if (self->fail_rc) {
+        if (common_clock_ms() < self->retry_at_ms || s_retry(self) != 0)
+            return -1;
+    } else if (sqlite3_get_autocommit(self->db)) {
+        return 0; /* nothing written this turn */
+    } else {
+        sqlite3_stmt *st = self->stmt[S_COMMIT];
+        int rc = sqlite3_step(st);
+        sqlite3_reset(st);
+        if (rc != SQLITE_DONE) {
+            s_fail(self, rc, "COMMIT");
+            return -1;
+        }
+    }
+    self->commits++;
+    broker_store_log_clear(&self->log);
+    self->log_results = self->log_requests = 0;
+    return 0;
+}
+
+int broker_store_failing(const broker_store_t *self)
+{
+    return self && self->fail_rc != 0;
+}
+
+long broker_store_retry_in_ms(const broker_store_t *self)
+{
+    if (!broker_store_failing(self))
+        return -1;
+    int64_t left = self->retry_at_ms - common_clock_ms();
+    return left > 0 ? (long)left : 0;
+}
+
+void broker_store_retry_now(broker_store_t *self)
+{
+    if (self)
+        self->retry_at_ms = 0;
+}
+
+uint64_t broker_store_unwritten(const broker_store_t *self)
+{
+    return self ? self->log_results : 0;
+}
+
+void broker_store_describe(const broker_store_t *self, char *buf, size_t len)
+{
+    if (!broker_store_failing(self)) {
+        snprintf(buf, len, "store %s: writable", self ? self->path : "(none)");
+        return;
+    }
+    snprintf(buf, len,
+             "store cannot write: %s at %s; %" PRIu64 " results waiting to be written "
+             "(failing for %.0f s; SQLite said: %s)",
+             s_cause(self), self->path, self->log_results,
+             (double)(common_clock_ms() - self->fail_since_ms) / 1000.0, self->fail_msg);
+}
+
+const char *broker_store_path(const broker_store_t *self)
+{
+    return self->path;
 }

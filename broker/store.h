@@ -31,13 +31,15 @@
 typedef struct broker_store broker_store_t;
 struct broker;
 
-/* Opens (creating if needed) DIR/fitfarm.db; dir NULL: a private in-memory
- * database (unit tests). scratch: commit without fsync (broker.h says when
+/* Opens (creating if needed) DIR/fitfarm.db, after PRAGMA quick_check on
+ * it (a damaged file is refused with how to recover it); dir NULL: a private
+ * in-memory database (unit tests). scratch: commit without fsync (broker.h says when
  * that is right). lock_wait_ms: how long to wait for another broker's lock
  * on the folder (store_lock.h). Caller closes it. Returns NULL after logging why when the
  * folder or database cannot be opened. */
 broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms);
-/* Commits what is pending and closes. Accepts NULL. */
+/* Commits what is pending (unless failing: broker_main_run tried and reported
+ * it) and closes. Accepts NULL. */
 void broker_store_close(broker_store_t **self_p);
 
 /* Rebuilds b's catalog, runs, results and queues from the store (store_load.c).
@@ -74,9 +76,35 @@ void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64
  * past the delivery cap, runs.h): acked back to 0 so the backlog reads it. */
 void broker_store_note_unack(broker_store_t *self, const broker_run_t *run, uint64_t tag);
 void broker_store_note_plugin(broker_store_t *self, const broker_plugin_t *p);
-/* Makes this turn's notes durable. Returns 0, or -1 (nothing may be sent;
- * the notes are retried with the next commit). */
+/* Makes this turn's notes durable. Returns 0, or -1: nothing that depends
+ * on a note since the last successful commit may be sent. After a failure
+ * the store is failing (sticky): every note since the last successful
+ * commit is kept in memory, and each later call retries all of them in one
+ * transaction once the back-off allows (broker_store_retry_in_ms), until one
+ * commits. */
 int broker_store_commit(broker_store_t *self);
+/* 1 while the store cannot write (a failed write or commit not yet
+ * retried successfully); 0 when writable or self is NULL. */
+int broker_store_failing(const broker_store_t *self);
+/* Milliseconds until the next retry is due (0: now), or -1 when not
+ * failing: the loop's poll time-out must not pass it. */
+long broker_store_retry_in_ms(const broker_store_t *self);
+/* The next commit retries at once, whatever the back-off (the final commit
+ * at shutdown). */
+void broker_store_retry_now(broker_store_t *self);
+/* Results noted since the last successful commit (while failing: the ones
+ * not written). */
+uint64_t broker_store_unwritten(const broker_store_t *self);
+/* One sentence for clients and status: "store cannot write: database or
+ * disk is full at PATH; N results waiting to be written (...)", or that
+ * the store is writable. */
+void broker_store_describe(const broker_store_t *self, char *buf, size_t len);
+/* DIR/fitfarm.db (or ":memory:"). Borrowed, valid until close. */
+const char *broker_store_path(const broker_store_t *self);
+/* Logs that the store at path is damaged (what failed, SQLite's message)
+ * and how to recover it: the one wording for store.c, store_load.c and
+ * backlog.c. */
+void broker_store_report_damage(const char *path, const char *what, const char *msg);
 /* Counters for the log: commits made, statements written. */
 uint64_t broker_store_commits(const broker_store_t *self);
 

@@ -18,10 +18,37 @@
 #include "params.h"
 #include "core.h"
 
+static const char *s_path;
+
+/* Any error while reading the store at start stops the start: an error
+ * that ended a loop early would otherwise read like its last row, and a
+ * broker that half-loaded its pending work would leave accepted requests
+ * unanswered for good. rc is SQLite's code (damage gets the recovery text). */
+static int s_fail_rc(sqlite3 *db, const char *what, int rc)
+{
+    int prim = rc & 0xff;
+    char text[160];
+    snprintf(text, sizeof text, "reading %s", what);
+    if (prim == SQLITE_CORRUPT || prim == SQLITE_NOTADB)
+        broker_store_report_damage(s_path, text, sqlite3_errmsg(db));
+    else
+        LOG_ERROR("cannot load the store %s (%s): %s; the broker does not start on a store it "
+                  "could not read whole",
+                  s_path, text, sqlite3_errmsg(db));
+    return -1;
+}
+
 static int s_fail(sqlite3 *db, const char *what)
 {
-    LOG_ERROR("cannot load the store (%s): %s", what, sqlite3_errmsg(db));
-    return -1;
+    return s_fail_rc(db, what, sqlite3_errcode(db));
+}
+
+/* After a row loop: rc must be SQLITE_DONE. Finalizes st either way. */
+static int s_end(sqlite3 *db, sqlite3_stmt *st, int rc, const char *what)
+{
+    int ret = rc == SQLITE_DONE ? 0 : s_fail_rc(db, what, rc);
+    sqlite3_finalize(st);
+    return ret;
 }
 
 static uint64_t s_u64(sqlite3_stmt *st, int col)
@@ -67,7 +94,8 @@ static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
                            " param_defaults FROM plugins",
                            -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "plugins");
-    while (sqlite3_step(st) == SQLITE_ROW) {
+    int rc;
+    while ((rc = sqlite3_step(st)) == SQLITE_ROW) {
         proto_plugin_info_t info;
         memset(&info, 0, sizeof info);
         char *names[PROTO_MAX_SEED_PARAMS];
@@ -100,8 +128,7 @@ static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
         free(canon_dflt);
         (*n)++;
     }
-    sqlite3_finalize(st);
-    return 0;
+    return s_end(db, st, rc, "plugins");
 }
 
 static int s_load_runs(broker_t *b, sqlite3 *db, uint32_t *n)
@@ -110,15 +137,15 @@ static int s_load_runs(broker_t *b, sqlite3 *db, uint32_t *n)
     if (sqlite3_prepare_v2(db, "SELECT run_id, seed, seed_mode FROM runs", -1, &st, NULL) !=
         SQLITE_OK)
         return s_fail(db, "runs");
-    while (sqlite3_step(st) == SQLITE_ROW) {
+    int rc;
+    while ((rc = sqlite3_step(st)) == SQLITE_ROW) {
         const char *id = (const char *)sqlite3_column_text(st, 0);
         if (!id || broker_runs_get(&b->runs, id))
             continue;
         broker_runs_new(&b->runs, id, s_u64(st, 1), (uint32_t)sqlite3_column_int(st, 2));
         (*n)++;
     }
-    sqlite3_finalize(st);
-    return 0;
+    return s_end(db, st, rc, "runs");
 }
 
 /* A new evaluation from columns [key, plugin, params, genome, seed,
@@ -167,7 +194,8 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
                            " WHERE r.fresh = 0 AND e.status IS NULL ORDER BY r.created",
                            -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "requests");
-    while (sqlite3_step(st) == SQLITE_ROW) {
+    int rc;
+    while ((rc = sqlite3_step(st)) == SQLITE_ROW) {
         const char *run_id = (const char *)sqlite3_column_text(st, 0);
         broker_run_t *run = run_id ? broker_runs_get(&b->runs, run_id) : NULL;
         const uint8_t *key = sqlite3_column_blob(st, 4);
@@ -191,8 +219,7 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
             (*pending)++;
         }
     }
-    sqlite3_finalize(st);
-    return 0;
+    return s_end(db, st, rc, "requests");
 }
 
 /* No-cache requests not yet acknowledged and not answered (no results row of
@@ -211,7 +238,8 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
                            " WHERE r.fresh = 1 AND r.acked = 0 ORDER BY r.created",
                            -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "no-cache requests");
-    while (sqlite3_step(st) == SQLITE_ROW) {
+    int rc;
+    while ((rc = sqlite3_step(st)) == SQLITE_ROW) {
         const char *run_id = (const char *)sqlite3_column_text(st, 0);
         broker_run_t *run = run_id ? broker_runs_get(&b->runs, run_id) : NULL;
         const uint8_t *key = sqlite3_column_blob(st, 2);
@@ -240,13 +268,13 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
             (*pending)++;
         }
     }
-    sqlite3_finalize(st);
-    return 0;
+    return s_end(db, st, rc, "no-cache requests");
 }
 
 int broker_store_load(broker_t *b)
 {
     sqlite3 *db = broker_store_db(b->store);
+    s_path = broker_store_path(b->store);
     uint32_t n_plugins = 0, n_runs = 0;
     uint64_t n_pending = 0;
     if (s_load_plugins(b, db, &n_plugins) != 0 || s_load_runs(b, db, &n_runs) != 0 ||

@@ -77,6 +77,7 @@ typedef enum {
     PROTO_REFUSE_NOT_RECORDED = 5,  /* replay: the run never saw this request */
     PROTO_REFUSE_SHUTTING_DOWN = 6,
     PROTO_REFUSE_RUN_MISMATCH = 7,  /* run exists with another seed or seed mode */
+    PROTO_REFUSE_STORE = 8,         /* the broker's store cannot write (text says why) */
 } proto_refuse_t;
 
 /* ---- client -> broker -------------------------------------------------- */

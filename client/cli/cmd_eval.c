@@ -8,6 +8,7 @@
  * line parser (jsonl.c), the protocol (the library). */
 #include <errno.h>
 #include <fcntl.h>
+#include <inttypes.h>
 #include <math.h>
 #include <poll.h>
 #include <signal.h>
@@ -32,6 +33,15 @@
 #define CLI_SUBMIT_WAIT_MS 60000 /* how long the broker may take to accept a batch */
 #define EVAL_REPLAY_STOPPED 3 /* s_submit_building: a replay met an unseen line */
 #define EVAL_MAX_EXEC 16 /* the worker program's own cap on --exec */
+/* Read-ahead bounds: input is read only while fewer than this many lines
+ * wait to be printed and fewer than this many results are owed, so memory
+ * stays bounded whatever the input (5 million invalid lines, /dev/urandom)
+ * and the run's queue at the broker stays far below its default cap
+ * (1,000,000 per run). */
+#define EVAL_AHEAD_LINES 65536
+#define EVAL_AHEAD_SLOTS 262144
+#define EVAL_QUEUE_RETRY_MS 500   /* a batch refused as "queue full" is sent again this often */
+#define EVAL_QUEUE_NOTE_MS 10000  /* and the wait is reported on stderr this often */
 
 static const char s_help[] =
     "usage: fitfarm eval --plugin NAME [options] [< genomes.jsonl]\n"
@@ -137,6 +147,11 @@ typedef struct {
     int any_not_ok;
     int progress_tty;
     int64_t progress_at;
+    /* backpressure: a batch the broker refused as over its queue cap waits
+     * here (its slots keep their tags) and is sent again as the queue drains */
+    fitfarm_batch_t *retry;
+    int64_t retry_at, retry_noted_at;
+    uint64_t retry_count;
 } eval_t;
 
 static volatile sig_atomic_t s_stop = 0;
@@ -473,6 +488,8 @@ static int s_finish_replay(eval_t *e)
     return 1;
 }
 
+static int s_send_batch(eval_t *e, fitfarm_batch_t *b);
+
 static int s_submit_building(eval_t *e)
 {
     if (!e->building)
@@ -494,7 +511,42 @@ static int s_submit_building(eval_t *e)
     e->batches[e->n_batches] = b;
     e->batch_last[e->n_batches] = e->n_records - 1;
     e->n_batches++;
+    return s_send_batch(e, b);
+}
+
+/* Submits b (new, or refused before as "queue full"). Over the queue cap it
+ * is kept for a later try, not an error: the queue drains as results come
+ * back. Returns 0 or the exit status of a failure (reported). */
+static int s_send_batch(eval_t *e, fitfarm_batch_t *b)
+{
     int rc = fitfarm_submit(e->run, b, CLI_SUBMIT_WAIT_MS);
+    int64_t now = common_clock_ms();
+    /* Over the cap with nothing of ours queued: no result will make room,
+     * the batch alone is over it (a smaller cap than a batch): say so. */
+    if (rc == FITFARM_EQUEUEFULL && e->submitted == e->printed_slots &&
+        fitfarm_batch_arrived(b) == 0) {
+        fprintf(stderr, "fitfarm eval: %s; nothing of this run is queued, so this batch of %zu "
+                "lines alone is over the cap\n",
+                fitfarm_client_error(e->client), fitfarm_batch_size(b));
+        return 1;
+    }
+    if (rc == FITFARM_EQUEUEFULL) {
+        e->retry = b;
+        e->retry_at = now + EVAL_QUEUE_RETRY_MS;
+        e->retry_count++;
+        if (e->retry_noted_at == 0 || now - e->retry_noted_at >= EVAL_QUEUE_NOTE_MS) {
+            fprintf(stderr, "fitfarm eval: waiting for the broker's queue to drain (%s); %" PRIu64
+                    " tries so far, input is read again when it takes the batch\n",
+                    fitfarm_client_error(e->client), e->retry_count);
+            e->retry_noted_at = now;
+        }
+        return 0;
+    }
+    if (e->retry == b) {
+        e->retry = NULL;
+        e->retry_count = 0;
+        e->retry_noted_at = 0;
+    }
     if (rc == FITFARM_EPLUGIN)
         return s_unknown_plugin(e, fitfarm_client_error(e->client));
     if (rc == FITFARM_ENOTRECORDED)
@@ -652,6 +704,32 @@ static void s_flush_prefix(eval_t *e)
     }
     if (wrote)
         fflush(e->out);
+    /* Printed records are dead: drop them, so the array holds only the
+     * read-ahead window however long the input. */
+    if (e->cursor >= 4096 && e->cursor * 2 >= e->n_records) {
+        size_t shift = e->cursor;
+        memmove(e->records, e->records + shift, (e->n_records - shift) * sizeof *e->records);
+        e->n_records -= shift;
+        e->cursor = 0;
+        for (size_t i = 0; i < e->n_batches; i++)
+            e->batch_last[i] -= shift;
+        if (e->cap_records > 2 * EVAL_AHEAD_LINES && e->n_records < e->cap_records / 4) {
+            eval_record_t *r = realloc(e->records, (e->cap_records / 2) * sizeof *r);
+            if (r) {
+                e->records = r;
+                e->cap_records /= 2;
+            }
+        }
+    }
+}
+
+/* 1 while more input may be read: the window of lines not yet printed and
+ * of results owed has room, and no batch waits for the queue to drain. */
+static int s_room(const eval_t *e)
+{
+    size_t building = e->building ? fitfarm_batch_size(e->building) * e->replicates : 0;
+    return !e->retry && e->n_records - e->cursor < EVAL_AHEAD_LINES &&
+           e->submitted + building - e->printed_slots < EVAL_AHEAD_SLOTS;
 }
 
 static void s_progress(eval_t *e, int final)
@@ -681,7 +759,7 @@ static int s_loop(eval_t *e)
     while (!s_stop) {
         /* 1. Take what input is there, without waiting for more. */
         int readable = 0;
-        if (!eof) {
+        if (!eof && s_room(e)) {
             struct pollfd pfd = {e->in_fd, POLLIN, 0};
             readable = poll(&pfd, 1, 0) > 0;
         }
@@ -740,11 +818,16 @@ static int s_loop(eval_t *e)
                 if (rc)
                     break;
             }
+            s_flush_prefix(e); /* invalid lines are printed as they are read */
             if (!eof)
                 continue; /* more may be ready right away */
         }
-        /* 2. The input paused or ended: send what it gave. */
-        rc = s_submit_building(e);
+        /* 2. The input paused or ended, or the window is full: send what
+         * it gave (after a batch waiting for the queue, in order). */
+        if (e->retry && common_clock_ms() >= e->retry_at)
+            rc = s_send_batch(e, e->retry);
+        if (!rc && !e->retry)
+            rc = s_submit_building(e);
         if (rc)
             break;
         s_flush_prefix(e);

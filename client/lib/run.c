@@ -340,7 +340,7 @@ static void s_background_refused(fitfarm_run_t *run, client_chunk_t *c, uint32_t
 {
     int64_t now = common_clock_ms();
     int transient = code == PROTO_REFUSE_UNKNOWN_PLUGIN || code == PROTO_REFUSE_QUEUE_FULL ||
-                    code == PROTO_REFUSE_SHUTTING_DOWN;
+                    code == PROTO_REFUSE_SHUTTING_DOWN || code == PROTO_REFUSE_STORE;
     if (transient && (run->retry_until_ms == 0 || now < run->retry_until_ms)) {
         if (run->retry_until_ms == 0)
             run->retry_until_ms = now + CLIENT_RETRY_FOR_MS;
@@ -593,6 +593,12 @@ static int s_refusal(fitfarm_run_t *run, const fitfarm_batch_t *b, const client_
                      "was simulated (%s)", run->id, which, text);
         else
             snprintf(buf, len, "replay of run \"%s\": %s", run->id, text);
+        break;
+    case PROTO_REFUSE_STORE:
+        code = FITFARM_EREFUSED;
+        snprintf(buf, len, "the broker accepts no new work while its store cannot be written "
+                 "(what it accepted before is kept and answered once the store can take it): "
+                 "%s", text);
         break;
     case PROTO_REFUSE_BAD_PARAMS:
         code = FITFARM_EREFUSED;

@@ -20,7 +20,7 @@ SOURCE = os.environ.get("FITFARM_SOURCE_DIR", os.path.join(os.path.dirname(__fil
 
 def exe(name):
     """Path of a built program (fitfarm, fitfarm-broker, fitfarm-worker)."""
-    for sub in ("client", "broker", "worker", ""):
+    for sub in ("client", "broker", "worker", "tests/integration", ""):
         p = os.path.join(BUILD, sub, name)
         if os.path.isfile(p) and os.access(p, os.X_OK):
             return p
@@ -31,7 +31,8 @@ class Pool:
     """A broker and workers as real processes. Use as a context manager: on
     exit every process still running is sent SIGTERM, then SIGKILL, by PID."""
 
-    def __init__(self, tmp=None, broker_args=(), log_prefix="pool", secure=False):
+    def __init__(self, tmp=None, broker_args=(), log_prefix="pool", secure=False,
+                 broker_exe="fitfarm-broker", broker_env=None):
         """secure=False: plaintext on loopback (every daemon gets --insecure).
         secure=True: CURVE with keys made in tmp/keys by `fitfarm keygen`
         (broker, client, worker) and admitted with `fitfarm allow`."""
@@ -51,6 +52,8 @@ class Pool:
         self.workers_ep = None
         self.log_prefix = log_prefix
         self.store = os.path.join(self.tmp, "store")
+        self.broker_exe = broker_exe  # a test build of the broker (fitfarm-broker-faults)
+        self.broker_env = broker_env  # extra environment for the broker
 
     def __enter__(self):
         return self
@@ -73,12 +76,13 @@ class Pool:
         # Each pool keeps its durable store in its own folder (the daemon's
         # default, ./fitfarm-store, would be shared by tests running at once).
         store = [] if "--store" in self.broker_args + list(extra) else ["--store", self.store]
-        args = [exe("fitfarm-broker"), "--clients", clients, "--workers", workers,
+        args = [exe(self.broker_exe), "--clients", clients, "--workers", workers,
                 "--endpoints-file", epfile] + store + self.broker_args + list(extra)
         if "--key" not in args and "--insecure" not in args:
             args += (["--key", self.key("broker.secret"), "--keys", self.keys] if self.secure
                      else ["--insecure"])
-        p = subprocess.Popen(args, stdout=subprocess.DEVNULL, stderr=self._log("broker"))
+        env = dict(os.environ, **self.broker_env) if self.broker_env else None
+        p = subprocess.Popen(args, stdout=subprocess.DEVNULL, stderr=self._log("broker"), env=env)
         self.procs.append(p)
         self.broker = p
         deadline = time.time() + 20

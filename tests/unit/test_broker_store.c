@@ -1,0 +1,211 @@
+/* test_broker_store.c: the store's sticky write failures, through the same
+ * functions the loop calls, on an in-memory store. SQLite's own
+ * PRAGMA max_page_count makes writes fail with SQLITE_FULL exactly as a full
+ * disk does (sqlite.org/pragma.html#pragma_max_page_count), so no disk needs
+ * filling: a turn whose write fails is rolled back whole (nothing partial
+ * committed), the store refuses new batches with a sentence naming the
+ * cause, keeps every later write in memory, and when space returns one
+ * commit writes all of it. */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <cmocka.h>
+#include <sqlite3.h>
+
+#include "broker/client_io.h"
+#include "broker/core.h"
+#include "broker/dispatch.h"
+#include "broker/worker_io.h"
+
+static broker_t *s_broker(void)
+{
+    broker_t *b = calloc(1, sizeof *b);
+    broker_core_init(b, 5000, 1000, 3, NULL);
+    broker_worker_timers_start(b);
+    return b;
+}
+
+static void s_broker_destroy(broker_t **b)
+{
+    broker_core_fini(*b);
+    free(*b);
+    *b = NULL;
+}
+
+static broker_worker_t *s_worker(broker_t *b, uint32_t credits)
+{
+    proto_plugin_info_t pi = {.name = (char *)"spin", .version = (char *)"1.0", .objectives = 1};
+    proto_hello_t h = {.name = (char *)"w1",
+                       .host = (char *)"localhost",
+                       .arch = (char *)"x86_64",
+                       .slots = 4,
+                       .n_plugins = 1,
+                       .plugins = &pi};
+    broker_worker_t *w = broker_worker_on_hello(b, (const uint8_t *)"w1", 2, &h);
+    broker_registry_add_credits(&b->registry, w, credits);
+    return w;
+}
+
+/* Submits genomes {x0 + i} for i < n under tags tag0 + i. Returns the
+ * refusal code or 0. */
+static int s_submit(broker_t *b, const char *run_id, double x0, uint32_t n, uint64_t tag0)
+{
+    proto_item_t *items = calloc(n, sizeof *items);
+    double *g = calloc(n, sizeof *g);
+    for (uint32_t i = 0; i < n; i++) {
+        g[i] = x0 + i;
+        items[i].tag = tag0 + i;
+        items[i].genome_len = sizeof(double);
+        items[i].genome = (uint8_t *)&g[i];
+    }
+    proto_submit_t s = {.run_id = (char *)run_id, .run_seed = 7, .batch_tag = 1,
+                        .plugin = (char *)"spin", .params = (char *)"{}", .n_items = n,
+                        .items = items};
+    int rc = broker_client_submit(b, (const uint8_t *)"c1", 2, &s);
+    free(items);
+    free(g);
+    return rc;
+}
+
+/* Completes the worker's first n held jobs as failed with a long error, so
+ * every result needs pages of its own. */
+static void s_complete(broker_t *b, broker_worker_t *w, uint32_t n)
+{
+    static char err[3000];
+    memset(err, 'e', sizeof err - 1);
+    for (uint32_t i = 0; i < n && w->jobs_head; i++) {
+        proto_outcome_t o = {.job_id = w->jobs_head->job_id, .status = PROTO_STATUS_FAILED,
+                             .error = err};
+        broker_dispatch_outcome(b, w, &o);
+    }
+}
+
+static long long s_count(broker_t *b, const char *sql)
+{
+    sqlite3_stmt *st = NULL;
+    long long n = -1;
+    assert_int_equal(sqlite3_prepare_v2(broker_store_db(b->store), sql, -1, &st, NULL), SQLITE_OK);
+    if (sqlite3_step(st) == SQLITE_ROW)
+        n = sqlite3_column_int64(st, 0);
+    sqlite3_finalize(st);
+    return n;
+}
+
+static void s_pages(broker_t *b, const char *sql)
+{
+    assert_int_equal(sqlite3_exec(broker_store_db(b->store), sql, NULL, NULL, NULL), SQLITE_OK);
+}
+
+/* Usage example: a healthy turn commits its writes and the store says so. */
+static void test_usage_example(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker();
+    broker_worker_t *w = s_worker(b, 100);
+    assert_int_equal(s_submit(b, "r1", 0.0, 20, 1), 0);
+    assert_int_equal(broker_dispatch_turn(b), 20);
+    s_complete(b, w, 20);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    assert_false(broker_store_failing(b->store));
+    assert_int_equal(broker_store_retry_in_ms(b->store), -1);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM evaluations WHERE status IS NOT NULL"), 20);
+    assert_int_equal(broker_store_unwritten(b->store), 0);
+    s_broker_destroy(&b);
+}
+
+static void test_full_store_fails_the_turn_and_recovers(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker();
+    broker_worker_t *w = s_worker(b, 1000);
+    assert_int_equal(s_submit(b, "r1", 0.0, 100, 1), 0);
+    assert_int_equal(broker_dispatch_turn(b), 100);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM requests"), 100);
+
+    /* The disk is full: not one page more. */
+    s_pages(b, "PRAGMA max_page_count = 1"); /* SQLite keeps it at the current size */
+    s_complete(b, w, 50);
+    assert_true(broker_store_failing(b->store));
+    assert_int_equal(broker_store_commit(b->store), -1);
+    /* Nothing of the failed turn is in the file, not even the writes before
+     * the one that failed. */
+    assert_int_equal(s_count(b, "SELECT count(*) FROM evaluations WHERE status IS NOT NULL"), 0);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM results"), 0);
+    assert_int_equal(broker_store_unwritten(b->store), 50);
+    assert_true(broker_store_retry_in_ms(b->store) >= 0);
+
+    /* New work is refused with the cause; the sentence is what clients see. */
+    assert_int_equal(s_submit(b, "r2", 1000.0, 5, 1), PROTO_REFUSE_STORE);
+    assert_null(broker_runs_get(&b->runs, "r2"));
+    char text[1200];
+    broker_store_describe(b->store, text, sizeof text);
+    assert_non_null(strstr(text, "store cannot write: database or disk is full at :memory:; "
+                                 "50 results waiting to be written"));
+
+    /* Results of jobs already running keep coming: kept, not written. */
+    s_complete(b, w, 50);
+    assert_int_equal(broker_store_unwritten(b->store), 100);
+    broker_store_retry_now(b->store);
+    assert_int_equal(broker_store_commit(b->store), -1); /* still full */
+    assert_true(broker_store_failing(b->store));
+    assert_int_equal(s_count(b, "SELECT count(*) FROM results"), 0);
+
+    /* Space comes back: one commit writes everything kept. */
+    s_pages(b, "PRAGMA max_page_count = 1000000");
+    broker_store_retry_now(b->store);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    assert_false(broker_store_failing(b->store));
+    assert_int_equal(broker_store_unwritten(b->store), 0);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM evaluations WHERE status IS NOT NULL"), 100);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM results"), 100);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM results WHERE length(error) = 2999"), 100);
+    /* and the store takes new work again */
+    assert_int_equal(s_submit(b, "r2", 1000.0, 5, 1), 0);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM requests WHERE run_id = 'r2'"), 5);
+    s_broker_destroy(&b);
+}
+
+/* Turn after turn while full: each retry of the whole log fails whole, so
+ * not one row lands until a retry succeeds, which then writes every result
+ * once. */
+static void test_nothing_partial_after_many_turns(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker();
+    broker_worker_t *w = s_worker(b, 1000);
+    assert_int_equal(s_submit(b, "r1", 0.0, 300, 1), 0);
+    assert_int_equal(broker_dispatch_turn(b), 300);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    s_pages(b, "PRAGMA max_page_count = 1");
+    /* Ten turns of 30 results while full: every one fails, nothing lands. */
+    for (int turn = 0; turn < 10; turn++) {
+        s_complete(b, w, 30);
+        broker_store_retry_now(b->store);
+        assert_int_equal(broker_store_commit(b->store), -1);
+        assert_int_equal(s_count(b, "SELECT count(*) FROM results"), 0);
+    }
+    assert_int_equal(broker_store_unwritten(b->store), 300);
+    s_pages(b, "PRAGMA max_page_count = 1000000");
+    broker_store_retry_now(b->store);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM results"), 300);
+    assert_int_equal(s_count(b, "SELECT count(DISTINCT key) FROM results"), 300);
+    s_broker_destroy(&b);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_usage_example),
+        cmocka_unit_test(test_full_store_fails_the_turn_and_recovers),
+        cmocka_unit_test(test_nothing_partial_after_many_turns),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
