@@ -23,12 +23,14 @@
 
 #include "common/alloc.h"
 #include "common/clock.h"
+#include "common/fdlimit.h"
 #include "common/lifeline.h"
 #include "common/replace_file.h"
 #include "common/log.h"
 #include "credits.h"
 #include "msg.h"
 #include "pool.h"
+#include "reaper.h"
 #include "registry.h"
 #include "secure.h"
 #include "worker.h"
@@ -458,7 +460,7 @@ static int s_write_ready(const char *path)
 /* Runs the reactor until drained or forced. */
 static void s_run(s_worker_t *self)
 {
-    zmq_pollitem_t items[2 + WORKER_POOL_MAX_SLOTS];
+    zmq_pollitem_t items[2 + WORKER_POOL_ITEMS];
     int forced = 0;
     int64_t drain_stuck_ms = 0;
     int lifeline = self->config.lifeline_fd;
@@ -505,7 +507,7 @@ static void s_run(s_worker_t *self)
         items[0].fd = 0;
         items[0].events = ZMQ_POLLIN;
         items[0].revents = 0;
-        size_t n = worker_pool_pollitems(self->pool, items + 1, WORKER_POOL_MAX_SLOTS);
+        size_t n = worker_pool_pollitems(self->pool, items + 1, WORKER_POOL_ITEMS);
         size_t n_items = 1 + n;
         if (lifeline > 0)
             items[n_items++] = (zmq_pollitem_t){.fd = lifeline, .events = ZMQ_POLLIN};
@@ -557,6 +559,14 @@ int worker_main_run(const worker_config_t *config)
     s_identity(self);
     worker_credits_init(&self->credits, self->config.slots);
     s_stop_signals = 0;
+    (void)common_fdlimit_raise("worker");
+    /* A plugin's process that leaves its group and loses its parent comes
+     * to us instead of init, so it cannot outlive the worker (reaper.h). */
+    int subreaper = worker_reaper_become() == 0;
+    if (!subreaper)
+        LOG_WARN("cannot become a child subreaper (%s): a plugin's process that calls setsid() "
+                 "and loses its parent may outlive its evaluation",
+                 strerror(errno));
 
     struct sigaction sa;
     memset(&sa, 0, sizeof sa);
@@ -570,10 +580,14 @@ int worker_main_run(const worker_config_t *config)
     self->registry = worker_registry_new();
     if (s_load_plugins(self) != 0)
         goto cleanup;
+    /* The exec plugins' probes ran and stopped: nothing they started stays. */
+    if (subreaper && worker_reaper_sweep(NULL, 0, 1000) > 0)
+        LOG_WARN("killed processes that exec programs started while introducing themselves");
     worker_pool_config_t pc = {
         .slots = self->config.slots,
         .registry = self->registry,
         .mem_limit_mb = self->config.mem_limit_mb,
+        .reap_orphans = subreaper,
         .default_timeout_ms = self->config.default_timeout_s > 4000000u
                                   ? 4000000000u
                                   : self->config.default_timeout_s * 1000u,
