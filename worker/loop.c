@@ -29,6 +29,7 @@
 #include "common/log.h"
 #include "credits.h"
 #include "msg.h"
+#include "handshake.h"
 #include "pool.h"
 #include "reaper.h"
 #include "registry.h"
@@ -57,6 +58,7 @@ typedef struct {
     worker_registry_t *registry;
     worker_pool_t *pool;
     void *ctx;
+    worker_handshake_t handshake; /* refusals by the broker, for our own log */
     void *sock;
     worker_credits_t credits;
     /* Jobs in hand, not started: FIFO [head, count) of jobs we own. */
@@ -355,6 +357,9 @@ static int s_open_socket(s_worker_t *self)
     zmq_setsockopt(self->sock, ZMQ_MAXMSGSIZE, &maxmsg, sizeof maxmsg);
     if (worker_secure_socket(self->sock, &self->config) != 0)
         return -1;
+    if (!self->config.insecure)
+        (void)worker_handshake_open(&self->handshake, self->ctx, self->sock,
+                                    self->config.broker_endpoint);
     if (zmq_connect(self->sock, self->config.broker_endpoint) != 0) {
         LOG_ERROR("cannot connect to %s: %s", self->config.broker_endpoint,
                   zmq_strerror(zmq_errno()));
@@ -460,7 +465,7 @@ static int s_write_ready(const char *path)
 /* Runs the reactor until drained or forced. */
 static void s_run(s_worker_t *self)
 {
-    zmq_pollitem_t items[2 + WORKER_POOL_ITEMS];
+    zmq_pollitem_t items[3 + WORKER_POOL_ITEMS];
     int forced = 0;
     int64_t drain_stuck_ms = 0;
     int lifeline = self->config.lifeline_fd;
@@ -511,6 +516,10 @@ static void s_run(s_worker_t *self)
         size_t n_items = 1 + n;
         if (lifeline > 0)
             items[n_items++] = (zmq_pollitem_t){.fd = lifeline, .events = ZMQ_POLLIN};
+        size_t monitor_at = n_items;
+        if (self->handshake.pair)
+            items[n_items++] = (zmq_pollitem_t){.socket = self->handshake.pair,
+                                                .events = ZMQ_POLLIN};
         int rc = zmq_poll(items, (int)n_items, timeout);
         if (rc < 0 && zmq_errno() != EINTR) {
             LOG_ERROR("zmq_poll failed: %s; stopping", zmq_strerror(zmq_errno()));
@@ -528,6 +537,8 @@ static void s_run(s_worker_t *self)
             forced = 1;
             break;
         }
+        if (rc > 0 && monitor_at < n_items && (items[monitor_at].revents & ZMQ_POLLIN))
+            worker_handshake_handle(&self->handshake);
         if (rc > 0 && (items[0].revents & ZMQ_POLLIN))
             s_read_broker(self);
         worker_pool_handle(self->pool, items + 1, rc > 0 ? n : 0);
@@ -612,6 +623,7 @@ cleanup:
         zmq_setsockopt(self->sock, ZMQ_LINGER, &linger, sizeof linger);
         zmq_close(self->sock);
     }
+    worker_handshake_close(&self->handshake);
     if (self->ctx)
         zmq_ctx_term(self->ctx);
     worker_pool_destroy(&self->pool);
