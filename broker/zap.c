@@ -13,6 +13,7 @@
 #include "common/allowlist.h"
 #include "common/clock.h"
 #include "common/log.h"
+#include "fdreserve.h"
 
 #define S_ZAP_ENDPOINT "inproc://zeromq.zap.01"
 #define S_ZAP_MAX_FRAMES 8
@@ -155,8 +156,9 @@ int broker_zap_secure(broker_zap_t *self, void *router, const char *role)
         LOG_ERROR("cannot make the %s endpoint a CURVE server: %s", role, zmq_strerror(errno));
         return -1;
     }
+    /* One monitor per socket: accept failures ride along (fdreserve.h). */
     int events = ZMQ_EVENT_HANDSHAKE_FAILED_NO_DETAIL | ZMQ_EVENT_HANDSHAKE_FAILED_PROTOCOL |
-                 ZMQ_EVENT_HANDSHAKE_FAILED_AUTH;
+                 ZMQ_EVENT_HANDSHAKE_FAILED_AUTH | ZMQ_EVENT_ACCEPT_FAILED;
     int zero = 0;
     if (zmq_socket_monitor(router, ep, events) != 0 ||
         !(self->monitors[r].pair = zmq_socket(self->ctx, ZMQ_PAIR)) ||
@@ -329,6 +331,12 @@ static void s_handle_monitor(broker_zap_t *self, int role)
         /* Refusals by the allow-lists are logged by the handler, with the key. */
         if (event == ZMQ_EVENT_HANDSHAKE_FAILED_AUTH)
             continue;
+        if (event == ZMQ_EVENT_ACCEPT_FAILED) {
+            broker_fdreserve_accept_failed(role == S_WORKERS ? BROKER_FDRESERVE_WORKERS
+                                                             : BROKER_FDRESERVE_CLIENTS,
+                                           (int)value);
+            continue;
+        }
         int64_t now = common_clock_ms();
         if (now - m->last_log_ms < 1000) {
             m->quiet++;
