@@ -208,9 +208,12 @@ static void s_default_signals(void)
 /* Kills what the evaluation left running: every child of ours except the
  * exec co-processes (they live across evaluations; their own helpers die
  * with them), and, through the subreaper, whatever those children had
- * started. Cheap when there is nothing: one read of our children list. */
+ * started. Cheap when there is nothing: one waitid() for a plugin that
+ * forked nothing; a listing of our children (/proc) for an exec plugin. */
 static void s_sweep(uint64_t job_id)
 {
+    if (!worker_reaper_any())
+        return; /* the common case, in one system call */
     pid_t keep[S_KEEP];
     size_t n_keep = 0;
 #ifdef FITFARM_HAVE_EXEC

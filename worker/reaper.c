@@ -22,6 +22,18 @@ int worker_reaper_become(void)
     return prctl(PR_SET_CHILD_SUBREAPER, 1, 0, 0, 0);
 }
 
+int worker_reaper_any(void)
+{
+    siginfo_t info;
+    memset(&info, 0, sizeof info);
+    /* WNOWAIT and WNOHANG: looks, reaps nothing, never blocks. ECHILD is
+     * the only way it says "no children". */
+    int rc;
+    while ((rc = waitid(P_ALL, 0, &info, WEXITED | WNOHANG | WNOWAIT)) != 0 && errno == EINTR)
+        ;
+    return rc == 0 || errno != ECHILD;
+}
+
 static int s_is_number(const char *s)
 {
     if (!*s)

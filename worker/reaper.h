@@ -27,6 +27,11 @@
  * on a kernel without it. Not inherited across fork. */
 int worker_reaper_become(void);
 
+/* 1 if the calling process has any child (running or a zombie, forked by
+ * any of its threads or reparented to it), else 0. One system call: the
+ * cheap test before a listing (which reads /proc, about 100 us). */
+int worker_reaper_any(void);
+
 /* Lists the children of process parent (any of its threads) into out, at
  * most max. Returns the count. A process that vanishes meanwhile is skipped. */
 size_t worker_reaper_children(pid_t parent, pid_t *out, size_t max);
