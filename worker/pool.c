@@ -320,6 +320,8 @@ static int s_spawn(worker_pool_t *self, unsigned i)
             _exit(4);
         if (op[1] > 2)
             close(op[1]);
+        else /* dup2 onto itself keeps close-on-exec: an exec program must inherit it */
+            (void)fcntl(op[1], F_SETFD, 0);
         worker_child_run(sv[1], self->config.registry, self->config.mem_limit_mb, parent, st);
     }
     /* The child does the same; whichever runs first, the group exists before

@@ -6,7 +6,9 @@
  * slow ones), reading their outcomes, noticing a child's death or overrun and
  * turning it into a CRASHED or TIMEOUT outcome for the one job it was running,
  * handing the jobs it held but had not finished to a live child, killing (by
- * PID) and respawning children. The worker never dies from a plugin: everything a
+ * process group: each child leads its own) and respawning children, killing
+ * what dead children's plugins left running (reaper.h), and reading each
+ * child's stdout and stderr into a bounded log per evaluation (output.h). The worker never dies from a plugin: everything a
  * plugin can do ends as an outcome here. Not owned: which job runs next, the
  * network, credits (loop.c); the evaluation itself (child.c).
  *
