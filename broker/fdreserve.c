@@ -13,7 +13,10 @@
 #include <string.h>
 #include <sys/socket.h>
 #include <linux/filter.h>
+#include <signal.h>
+#include <sys/prctl.h>
 #include <sys/un.h>
+#include <sys/wait.h>
 #include <unistd.h>
 
 #include "common/clock.h"
@@ -26,6 +29,8 @@ static struct {
     int reserve[BROKER_FDRESERVE_COUNT];
     int n_reserve;
     int listener[2];   /* -1: not found */
+    pid_t shedder;     /* the helper that sheds the workers listener; 0: none */
+    int shed_fd;       /* write end of its command pipe; -1: none */
     void *monitor[2];  /* PAIRs we own (--insecure) */
     int started;
     uint64_t failed[2], let_in, shed, closed; /* since the last line */
@@ -66,6 +71,8 @@ static void s_refill(void)
     }
 }
 
+static void s_shedder_start(int lfd);
+
 static int s_release_one(void)
 {
     if (s.n_reserve == 0)
@@ -78,6 +85,7 @@ void broker_fdreserve_start(void)
 {
     memset(&s, 0, sizeof s);
     s.listener[0] = s.listener[1] = -1;
+    s.shed_fd = -1;
     s.started = 1;
     s_refill();
 }
@@ -168,6 +176,8 @@ void broker_fdreserve_watch(void *ctx, void *router, int role, const char *bound
     if (!s.started || role < 0 || role > 1)
         return;
     s.listener[role] = s_find_listener(bound);
+    if (s.listener[role] >= 0 && role == BROKER_FDRESERVE_WORKERS && !s.shedder)
+        s_shedder_start(s.listener[role]);
     if (s.listener[role] < 0)
         LOG_DEBUG("no listening descriptor found for %s (%s): refused worker connections "
                   "there cannot be shed", s_role[role], bound);
@@ -202,25 +212,70 @@ int broker_fdreserve_pollitems(zmq_pollitem_t *items, int max)
     return n;
 }
 
-/* Accepts and closes what waits on role's listener, with one reserve
- * descriptor freed for it. */
+/* The shedder: a process forked once the workers listener exists, holding a
+ * copy of that descriptor and nothing else. Woken by a byte on its pipe, it
+ * accepts and closes at once whatever waits on the listener. It has
+ * descriptors to spare when the broker has none, so shedding never needs one
+ * of the broker's (freeing one would race libzmq's I/O thread for it). Only
+ * async-signal-safe calls after fork: the broker already runs threads. */
+static void s_shedder_run(int lfd, int cmd)
+{
+    char buf[64];
+    for (;;) {
+        ssize_t n = read(cmd, buf, sizeof buf);
+        if (n == 0 || (n < 0 && errno != EINTR))
+            _exit(0); /* the broker closed the pipe or is gone */
+        for (int i = 0; i < BROKER_FDRESERVE_SHED_MAX; i++) {
+            struct pollfd pfd = {.fd = lfd, .events = POLLIN};
+            if (poll(&pfd, 1, 0) != 1 || !(pfd.revents & POLLIN))
+                break;
+            int c = accept4(lfd, NULL, NULL, SOCK_NONBLOCK | SOCK_CLOEXEC);
+            if (c < 0)
+                break; /* EAGAIN: libzmq took it first */
+            close(c);
+            /* one byte back per connection shed, for the broker's count */
+        }
+    }
+}
+
+static void s_shedder_start(int lfd)
+{
+    int p[2];
+    if (pipe2(p, O_CLOEXEC) != 0)
+        return;
+    pid_t parent = getpid();
+    pid_t pid = fork();
+    if (pid < 0) {
+        close(p[0]);
+        close(p[1]);
+        return;
+    }
+    if (pid == 0) {
+        prctl(PR_SET_PDEATHSIG, SIGKILL);
+        if (getppid() != parent)
+            _exit(0);
+        /* Keep the listener and the pipe's read end, nothing else. */
+        for (int fd = 0; fd < 4096; fd++)
+            if (fd != lfd && fd != p[0])
+                close(fd);
+        s_shedder_run(lfd, p[0]);
+    }
+    close(p[0]);
+    int fl = fcntl(p[1], F_GETFL);
+    if (fl >= 0)
+        (void)fcntl(p[1], F_SETFL, fl | O_NONBLOCK);
+    s.shedder = pid;
+    s.shed_fd = p[1];
+}
+
+/* Wakes the shedder (a full pipe means it has been woken already). */
 static void s_shed(int role)
 {
-    int lfd = s.listener[role];
-    if (lfd < 0 || s_release_one() != 0)
+    if (role != BROKER_FDRESERVE_WORKERS || s.shed_fd < 0)
         return;
-    for (int i = 0; i < BROKER_FDRESERVE_SHED_MAX; i++) {
-        /* The listener may be a blocking socket: accept only what waits. */
-        struct pollfd pfd = {.fd = lfd, .events = POLLIN};
-        if (poll(&pfd, 1, 0) != 1 || !(pfd.revents & POLLIN))
-            break;
-        int c = accept4(lfd, NULL, NULL, SOCK_NONBLOCK | SOCK_CLOEXEC);
-        if (c < 0)
-            break; /* EAGAIN: none left; EMFILE: libzmq took the descriptor first */
-        close(c);
+    char one = 1;
+    if (write(s.shed_fd, &one, 1) == 1)
         s.shed++;
-    }
-    s_refill();
 }
 
 void broker_fdreserve_accept_failed(int role, int err)
@@ -236,11 +291,10 @@ void broker_fdreserve_accept_failed(int role, int err)
 static void s_act(int64_t now_ms)
 {
     if (s.pending[BROKER_FDRESERVE_CLIENTS]) {
-        /* A client is worth a descriptor: `status` must answer. */
+        /* A client is worth a descriptor: `status` must answer. The
+         * reserve serves clients only, so shedding workers cannot use it up. */
         if (s_release_one() == 0)
             s.let_in++;
-        else
-            s_shed(BROKER_FDRESERVE_CLIENTS);
     }
     if (s.pending[BROKER_FDRESERVE_WORKERS]) {
         int lfd = s.listener[BROKER_FDRESERVE_WORKERS];
@@ -312,8 +366,8 @@ void broker_fdreserve_handle(int64_t now_ms)
     if (failed && now_ms - s.last_log_ms >= BROKER_FDRESERVE_LOG_MS) {
         LOG_WARN("out of descriptors: %" PRIu64 " connections could not be accepted in the "
                  "last %d s (%" PRIu64 " clients, %" PRIu64 " workers); let %" PRIu64
-                 " clients in from the reserve (%d of %d left), shed %" PRIu64
-                 " waiting worker connections and closed the workers endpoint to new ones %"
+                 " clients in from the reserve (%d of %d left), shed waiting worker "
+                 "connections %" PRIu64 " times and closed the workers endpoint to new ones %"
                  PRIu64 " times (for %d ms now; they retry); connected peers are served. The "
                  "limit is %" PRIu64 " descriptors: raise the hard limit (ulimit -Hn, prlimit "
                  "--nofile, LimitNOFILE= in the systemd unit) and restart",
@@ -334,5 +388,12 @@ void broker_fdreserve_stop(void)
             zmq_close(s.monitor[r]);
     while (s.n_reserve > 0)
         close(s.reserve[--s.n_reserve]);
+    if (s.shed_fd >= 0)
+        close(s.shed_fd); /* the shedder reads end of file and exits */
+    if (s.shedder > 0) {
+        kill(s.shedder, SIGKILL);
+        while (waitpid(s.shedder, NULL, 0) < 0 && errno == EINTR)
+            ;
+    }
     memset(&s, 0, sizeof s);
 }

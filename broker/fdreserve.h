@@ -14,10 +14,14 @@
  *     connections for a back-off time (0.5 s, doubling to 8 s while it
  *     recurs): a one-instruction BPF filter on the listener drops incoming
  *     packets, so connecting workers' SYNs go unanswered and their kernels
- *     retry later; the connections that completed before are shed (with one
- *     reserve descriptor freed, the broker accepts them itself and closes
- *     them at once; the workers reconnect), then the descriptor is taken back;
- *   - freed reserves are taken back as descriptors come free;
+ *     retry later; the connections that completed before are shed by a
+ *     helper process forked at start with a copy of the listener and nothing
+ *     else: it accepts and closes them at once (the workers reconnect). It
+ *     has descriptors when the broker has none; freeing one of the broker's
+ *     for the purpose would race libzmq's I/O thread for it and lose the
+ *     reserve;
+ *   - the reserve serves clients only; freed ones are taken back as
+ *     descriptors come free;
  *   - one warning line per 10 s at most says how many accepts failed, what
  *     was done, the limit, and how to raise it.
  * Connected peers are served throughout. The listeners' descriptors are found
