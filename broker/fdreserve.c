@@ -176,7 +176,11 @@ void broker_fdreserve_watch(void *ctx, void *router, int role, const char *bound
     if (!s.started || role < 0 || role > 1)
         return;
     s.listener[role] = s_find_listener(bound);
-    if (s.listener[role] >= 0 && role == BROKER_FDRESERVE_WORKERS && !s.shedder)
+    /* TCP only: an ipc:// endpoint is the embedded local pool's, a handful of
+     * processes that cannot exhaust descriptors, and a second holder of its
+     * socket would make its folder look in use after the broker ended. */
+    if (s.listener[role] >= 0 && role == BROKER_FDRESERVE_WORKERS && !s.shedder &&
+        strncmp(bound, "tcp://", 6) == 0)
         s_shedder_start(s.listener[role]);
     if (s.listener[role] < 0)
         LOG_DEBUG("no listening descriptor found for %s (%s): refused worker connections "
@@ -254,6 +258,7 @@ static void s_shedder_start(int lfd)
         prctl(PR_SET_PDEATHSIG, SIGKILL);
         if (getppid() != parent)
             _exit(0);
+        prctl(PR_SET_NAME, "fitfarm-shed"); /* what ps and top show */
         /* Keep the listener and the pipe's read end, nothing else. */
         for (int fd = 0; fd < 4096; fd++)
             if (fd != lfd && fd != p[0])

@@ -15,8 +15,8 @@
  *     recurs): a one-instruction BPF filter on the listener drops incoming
  *     packets, so connecting workers' SYNs go unanswered and their kernels
  *     retry later; the connections that completed before are shed by a
- *     helper process forked at start with a copy of the listener and nothing
- *     else: it accepts and closes them at once (the workers reconnect). It
+ *     helper process ("fitfarm-shed", TCP endpoints only) forked at start
+ *     with a copy of the listener and nothing else: it accepts and closes them at once (the workers reconnect). It
  *     has descriptors when the broker has none; freeing one of the broker's
  *     for the purpose would race libzmq's I/O thread for it and lose the
  *     reserve;
