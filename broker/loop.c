@@ -16,6 +16,7 @@
 #include "broker.h"
 #include "cache.h"
 #include "client_io.h"
+#include "common/fdlimit.h"
 #include "common/clock.h"
 #include "common/lifeline.h"
 #include "common/replace_file.h"
@@ -23,6 +24,7 @@
 #include "core.h"
 #include "dispatch.h"
 #include "envelope.h"
+#include "fdreserve.h"
 #include "guard.h"
 #include "worker_io.h"
 
@@ -166,12 +168,16 @@ int broker_main_run(const broker_config_t *config)
     }
     if (broker_guard_start(&b, config) != 0)
         goto cleanup;
+    (void)common_fdlimit_raise("broker");
+    broker_fdreserve_start();
     b.clients = s_bind(&b, config->clients_endpoint, "clients", clients_ep, sizeof clients_ep);
     if (!b.clients)
         goto cleanup;
+    broker_fdreserve_watch(b.ctx, b.clients, BROKER_FDRESERVE_CLIENTS, clients_ep, !b.zap);
     b.workers = s_bind(&b, config->workers_endpoint, "workers", workers_ep, sizeof workers_ep);
     if (!b.workers)
         goto cleanup;
+    broker_fdreserve_watch(b.ctx, b.workers, BROKER_FDRESERVE_WORKERS, workers_ep, !b.zap);
     if (config->endpoints_file &&
         s_write_endpoints(config->endpoints_file, clients_ep, workers_ep) != 0)
         goto cleanup;
@@ -182,11 +188,12 @@ int broker_main_run(const broker_config_t *config)
              b.evals.cap_bytes >> 20, b.runs.max_per_run, b.runs.max_total);
 
     broker_worker_timers_start(&b);
-    zmq_pollitem_t items[6] = {
+    zmq_pollitem_t items[8] = {
         {.socket = b.clients, .events = ZMQ_POLLIN},
         {.socket = b.workers, .events = ZMQ_POLLIN},
     };
     int n_items = 2 + (b.zap ? broker_zap_pollitems(b.zap, items + 2, 3) : 0);
+    n_items += broker_fdreserve_pollitems(items + n_items, 2);
     int lifeline = -1; /* its index in items */
     if (config->lifeline_fd > 0) {
         lifeline = n_items++;
@@ -198,6 +205,9 @@ int broker_main_run(const broker_config_t *config)
         long retry = broker_store_retry_in_ms(b.store);
         if (retry >= 0 && (timeout < 0 || retry < timeout))
             timeout = retry; /* wake for the store's next retry */
+        int64_t reopen = broker_fdreserve_timeout_ms(b.now_ms);
+        if (reopen >= 0 && (timeout < 0 || reopen < timeout))
+            timeout = (long)reopen;
         if (s_reload) {
             s_reload = 0;
             broker_guard_reload(&b);
@@ -218,6 +228,7 @@ int broker_main_run(const broker_config_t *config)
         }
         if (b.zap)
             broker_zap_handle(b.zap); /* handshakes first: admitted peers then speak */
+        broker_fdreserve_handle(b.now_ms); /* accepts that failed for want of descriptors */
         if (items[0].revents & ZMQ_POLLIN)
             s_drain(&b, b.clients, 0);
         if (items[1].revents & ZMQ_POLLIN)
@@ -259,6 +270,7 @@ cleanup:
         }
     }
     broker_guard_stop(&b);
+    broker_fdreserve_stop();
     if (b.ctx)
         zmq_ctx_term(b.ctx);
     broker_core_fini(&b);

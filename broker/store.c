@@ -257,7 +257,7 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
         /* Two brokers on one store would each tell clients a different
          * story: the second one waits a little (a killed predecessor may
          * still be ending), then refuses to start (store_lock.h). */
-        self->lock_fd = broker_store_lock(dir, lock_wait_ms);
+        self->lock_fd = broker_store_lock(dir, STORE_FILE, lock_wait_ms);
         if (self->lock_fd < 0)
             goto fail;
         snprintf(self->path, sizeof self->path, "%s/%s", dir, STORE_FILE);
@@ -331,8 +331,9 @@ void broker_store_close(broker_store_t **self_p)
         sqlite3_finalize(self->stmt[i]);
     if (self->db)
         sqlite3_close(self->db);
-    if (self->lock_fd >= 0)
-        close(self->lock_fd); /* releases the flock */
+    /* After sqlite3_close: closing a descriptor of the database file would
+     * drop SQLite's own POSIX locks on it. */
+    broker_store_unlock(self->lock_fd); /* releases the flock and the file's lock */
     broker_store_log_fini(&self->log);
     free(self);
     *self_p = NULL;

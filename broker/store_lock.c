@@ -9,6 +9,7 @@
 #include <stdio.h>
 #include <string.h>
 #include <sys/file.h>
+#include <sys/stat.h>
 #include <time.h>
 #include <unistd.h>
 
@@ -17,6 +18,16 @@
 
 #define LOCK_RECORD_BYTES 512
 #define LOCK_RETRY_MS 20
+/* The byte of the database file we lock: SQLite's own locks live in the
+ * 512 bytes from 1 GiB (the "lock-byte page", sqlite.org/fileformat2.html),
+ * its WAL locks in the -shm file; 1.25 GiB is neither. */
+#define LOCK_DB_BYTE 0x50000000L
+#define LOCK_MAX_HELD 8 /* stores one process holds at once (tests open several) */
+
+static struct {
+    int lock_fd, db_fd;
+} s_held[LOCK_MAX_HELD];
+static int s_n_held;
 
 /* Reads the holder's record ("pid N\nhost H\n...") into pid and host;
  * bounded: at most LOCK_RECORD_BYTES are read, and anything unexpected
@@ -50,7 +61,99 @@ static void s_write_holder(int fd)
         (void)fsync(fd);
 }
 
-int broker_store_lock(const char *dir, int wait_ms)
+static int s_db_try(int fd)
+{
+    struct flock fl;
+    memset(&fl, 0, sizeof fl);
+    fl.l_type = F_WRLCK;
+    fl.l_whence = SEEK_SET;
+    fl.l_start = LOCK_DB_BYTE;
+    fl.l_len = 1;
+    return fcntl(fd, F_OFD_SETLK, &fl);
+}
+
+/* The database file's lock (see the top of store_lock.h). Returns its
+ * descriptor or -1 (logged). */
+static int s_lock_db(const char *dir, const char *db_file, int wait_ms)
+{
+    char path[4096];
+    snprintf(path, sizeof path, "%s/%s", dir, db_file);
+    int fd = open(path, O_RDWR | O_CREAT | O_CLOEXEC, 0600);
+    if (fd < 0) {
+        LOG_ERROR("cannot open the store's database %s: %s", path, strerror(errno));
+        return -1;
+    }
+    int64_t deadline = common_clock_ms() + (wait_ms > 0 ? wait_ms : 0);
+    int told = 0;
+    for (;;) {
+        if (s_db_try(fd) == 0) {
+            if (told)
+                LOG_INFO("database %s: the other broker is gone; lock taken", path);
+            return fd;
+        }
+        if (errno != EAGAIN && errno != EACCES && errno != EINTR) {
+            LOG_ERROR("cannot lock the database %s: %s", path, strerror(errno));
+            close(fd);
+            return -1;
+        }
+        struct stat st;
+        unsigned long links = fstat(fd, &st) == 0 ? (unsigned long)st.st_nlink : 0;
+        if (common_clock_ms() >= deadline) {
+            LOG_ERROR("the database %s is in use by another broker through another path (the "
+                      "file has %lu names: a hard link, or a bind mount of the folder); stop "
+                      "that broker, or give this one a store of its own",
+                      path, links);
+            close(fd);
+            return -1;
+        }
+        if (!told) {
+            LOG_WARN("database %s is locked by another process (%lu names for the file); "
+                     "waiting up to %d ms for it to end",
+                     path, links, wait_ms);
+            told = 1;
+        }
+        usleep(LOCK_RETRY_MS * 1000);
+    }
+}
+
+void broker_store_unlock(int fd)
+{
+    if (fd < 0)
+        return;
+    for (int i = 0; i < s_n_held; i++) {
+        if (s_held[i].lock_fd != fd)
+            continue;
+        close(s_held[i].db_fd); /* releases the OFD lock */
+        s_held[i] = s_held[--s_n_held];
+        break;
+    }
+    close(fd); /* releases the flock */
+}
+
+static int s_lock_dir(const char *dir, int wait_ms);
+
+int broker_store_lock(const char *dir, const char *db_file, int wait_ms)
+{
+    if (s_n_held >= LOCK_MAX_HELD) {
+        LOG_ERROR("cannot lock the store %s: this process holds %d stores already", dir,
+                  s_n_held);
+        return -1;
+    }
+    int fd = s_lock_dir(dir, wait_ms);
+    if (fd < 0)
+        return -1;
+    int db_fd = s_lock_db(dir, db_file, wait_ms);
+    if (db_fd < 0) {
+        close(fd);
+        return -1;
+    }
+    s_held[s_n_held].lock_fd = fd;
+    s_held[s_n_held].db_fd = db_fd;
+    s_n_held++;
+    return fd;
+}
+
+static int s_lock_dir(const char *dir, int wait_ms)
 {
     char path[4096];
     snprintf(path, sizeof path, "%s/fitfarm.lock", dir);

@@ -8,10 +8,12 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "common/allowlist.h"
 #include "common/clock.h"
 #include "common/log.h"
+#include "fdreserve.h"
 
 #define S_ZAP_ENDPOINT "inproc://zeromq.zap.01"
 #define S_ZAP_MAX_FRAMES 8
@@ -40,15 +42,43 @@ struct broker_zap {
     uint64_t refused_quiet;
 };
 
-static int s_load_list(broker_zap_t *self, int role, common_allowlist_t **out)
+/* Loads ROLE.allow into *out. A missing file is an empty list at start (a
+ * fresh folder) and sets *missing; the caller decides what that means. */
+static int s_load_list(broker_zap_t *self, int role, common_allowlist_t **out, int *missing)
 {
     char path[2200], err[768];
     snprintf(path, sizeof path, "%s/%s.allow", self->keys_dir, s_role[role]);
+    *missing = access(path, F_OK) != 0 && errno == ENOENT;
     if (common_allowlist_read(path, 1, out, err, sizeof err) != 0) {
         LOG_ERROR("cannot load the %s allow-list: %s", s_role_one[role], err);
         return -1;
     }
     return 0;
+}
+
+/* Warnings about lists that load but are likely a mistake: an empty one, and
+ * a key on both (one machine's key serving as client and worker means a
+ * worker's stolen key can submit work, and the reverse). */
+static void s_warn_lists(const broker_zap_t *self)
+{
+    for (int r = 0; r < 2; r++)
+        if (common_allowlist_size(self->lists[r]) == 0)
+            LOG_WARN("%s/%s.allow admits no key: no %s can connect (add one with 'fitfarm "
+                     "allow %s NAME.public --keys %s', then SIGHUP the broker)",
+                     self->keys_dir, s_role[r], s_role_one[r], s_role_one[r], self->keys_dir);
+    const common_allowlist_t *c = self->lists[S_CLIENTS];
+    for (size_t i = 0; i < common_allowlist_size(c); i++) {
+        const common_allow_entry_t *e = common_allowlist_at(c, i);
+        const common_allow_entry_t *w = common_allowlist_find(self->lists[S_WORKERS], e->key);
+        if (!w)
+            continue;
+        char fp[COMMON_KEY_FINGERPRINT];
+        common_key_fingerprint(e->key, fp);
+        LOG_WARN("key %s%s%s%s is on both clients.allow and workers.allow in %s: it can submit "
+                 "work and take jobs; give each machine one key per role (fitfarm keygen) and "
+                 "remove it from one list",
+                 fp, e->label[0] ? " (" : "", e->label, e->label[0] ? ")" : "", self->keys_dir);
+    }
 }
 
 broker_zap_t *broker_zap_new(void *ctx, const char *key_file, const char *keys_dir)
@@ -73,8 +103,9 @@ broker_zap_t *broker_zap_new(void *ctx, const char *key_file, const char *keys_d
         LOG_ERROR("%s", err);
         goto fail;
     }
-    if (s_load_list(self, S_CLIENTS, &self->lists[S_CLIENTS]) != 0 ||
-        s_load_list(self, S_WORKERS, &self->lists[S_WORKERS]) != 0)
+    int missing[2];
+    if (s_load_list(self, S_CLIENTS, &self->lists[S_CLIENTS], &missing[0]) != 0 ||
+        s_load_list(self, S_WORKERS, &self->lists[S_WORKERS], &missing[1]) != 0)
         goto fail;
     self->handler = zmq_socket(ctx, ZMQ_REP);
     int zero = 0;
@@ -88,13 +119,7 @@ broker_zap_t *broker_zap_new(void *ctx, const char *key_file, const char *keys_d
     LOG_INFO("CURVE on: broker key %s; %zu client keys, %zu worker keys admitted (from %s)", fp,
              common_allowlist_size(self->lists[S_CLIENTS]),
              common_allowlist_size(self->lists[S_WORKERS]), keys_dir);
-    if (common_allowlist_size(self->lists[S_CLIENTS]) +
-            common_allowlist_size(self->lists[S_WORKERS]) ==
-        0)
-        LOG_WARN("both allow-lists in %s are empty: nobody can connect until keys are added "
-                 "('fitfarm allow client|worker NAME.public --keys %s') and the broker gets "
-                 "SIGHUP",
-                 keys_dir, keys_dir);
+    s_warn_lists(self);
     return self;
 fail:
     broker_zap_destroy(&self);
@@ -131,8 +156,9 @@ int broker_zap_secure(broker_zap_t *self, void *router, const char *role)
         LOG_ERROR("cannot make the %s endpoint a CURVE server: %s", role, zmq_strerror(errno));
         return -1;
     }
+    /* One monitor per socket: accept failures ride along (fdreserve.h). */
     int events = ZMQ_EVENT_HANDSHAKE_FAILED_NO_DETAIL | ZMQ_EVENT_HANDSHAKE_FAILED_PROTOCOL |
-                 ZMQ_EVENT_HANDSHAKE_FAILED_AUTH;
+                 ZMQ_EVENT_HANDSHAKE_FAILED_AUTH | ZMQ_EVENT_ACCEPT_FAILED;
     int zero = 0;
     if (zmq_socket_monitor(router, ep, events) != 0 ||
         !(self->monitors[r].pair = zmq_socket(self->ctx, ZMQ_PAIR)) ||
@@ -305,6 +331,12 @@ static void s_handle_monitor(broker_zap_t *self, int role)
         /* Refusals by the allow-lists are logged by the handler, with the key. */
         if (event == ZMQ_EVENT_HANDSHAKE_FAILED_AUTH)
             continue;
+        if (event == ZMQ_EVENT_ACCEPT_FAILED) {
+            broker_fdreserve_accept_failed(role == S_WORKERS ? BROKER_FDRESERVE_WORKERS
+                                                             : BROKER_FDRESERVE_CLIENTS,
+                                           (int)value);
+            continue;
+        }
         int64_t now = common_clock_ms();
         if (now - m->last_log_ms < 1000) {
             m->quiet++;
@@ -345,17 +377,29 @@ void broker_zap_handle(broker_zap_t *self)
 int broker_zap_reload(broker_zap_t *self)
 {
     common_allowlist_t *fresh[2] = {NULL, NULL};
-    if (s_load_list(self, S_CLIENTS, &fresh[0]) != 0 ||
-        s_load_list(self, S_WORKERS, &fresh[1]) != 0) {
+    int missing[2];
+    if (s_load_list(self, S_CLIENTS, &fresh[0], &missing[0]) != 0 ||
+        s_load_list(self, S_WORKERS, &fresh[1], &missing[1]) != 0) {
         common_allowlist_destroy(&fresh[0]);
         common_allowlist_destroy(&fresh[1]);
         LOG_ERROR("allow-lists not reloaded: the broker keeps the previous ones");
         return -1;
     }
     for (int r = 0; r < 2; r++) {
+        if (missing[r] && common_allowlist_size(self->lists[r]) > 0) {
+            /* A deleted file is far more often a slip (a move, a half-done
+             * deploy) than a way to lock everybody out: an empty file says that. */
+            LOG_WARN("SIGHUP: %s/%s.allow is missing; keeping the %zu %s keys loaded before "
+                     "(to admit nobody, leave the file there empty)",
+                     self->keys_dir, s_role[r], common_allowlist_size(self->lists[r]),
+                     s_role_one[r]);
+            common_allowlist_destroy(&fresh[r]);
+            continue;
+        }
         common_allowlist_destroy(&self->lists[r]);
         self->lists[r] = fresh[r];
     }
+    s_warn_lists(self);
     LOG_INFO("allow-lists reloaded: %zu client keys, %zu worker keys",
              common_allowlist_size(self->lists[S_CLIENTS]),
              common_allowlist_size(self->lists[S_WORKERS]));

@@ -19,6 +19,13 @@
 #include "common/clock.h"
 #include "common/log.h"
 #include "frame.h"
+#include "reaper.h"
+#ifdef FITFARM_HAVE_EXEC
+#include "exec_plugin.h"
+#define S_KEEP WORKER_EXEC_MAX_PLUGINS /* co-processes one child can run */
+#else
+#define S_KEEP 1
+#endif
 
 typedef struct {
     const worker_plugin_t *plugin; /* NULL: free slot */
@@ -179,16 +186,67 @@ done:
     out->error = err;
 }
 
+/* The plugin, and whatever it starts, begins with every signal at its
+ * default action and none blocked: an ignored SIGTERM or a blocked SIGCHLD
+ * inherited from the worker would survive its fork and execve. (Writes to a
+ * dead exec co-process need no ignored SIGPIPE: exec_plugin.c blocks it
+ * around them.) */
+static void s_default_signals(void)
+{
+    struct sigaction dfl;
+    memset(&dfl, 0, sizeof dfl);
+    dfl.sa_handler = SIG_DFL;
+    sigemptyset(&dfl.sa_mask);
+    for (int sig = 1; sig < NSIG; sig++)
+        if (sig != SIGKILL && sig != SIGSTOP)
+            (void)sigaction(sig, &dfl, NULL); /* fails only for numbers that are no signal */
+    sigset_t none;
+    sigemptyset(&none);
+    sigprocmask(SIG_SETMASK, &none, NULL);
+}
+
+/* Kills what the evaluation left running: every child of ours except the
+ * exec co-processes (they live across evaluations; their own helpers die
+ * with them), and, through the subreaper, whatever those children had
+ * started. Cheap when there is nothing: one waitid() for a plugin that
+ * forked nothing; a listing of our children (/proc) for an exec plugin. */
+static void s_sweep(uint64_t job_id)
+{
+    if (!worker_reaper_any())
+        return; /* the common case, in one system call */
+    pid_t keep[S_KEEP];
+    size_t n_keep = 0;
+#ifdef FITFARM_HAVE_EXEC
+    n_keep = worker_exec_plugin_coprocesses(keep, S_KEEP);
+#endif
+    pid_t kids[S_KEEP + 1];
+    size_t n = worker_reaper_children(getpid(), kids, S_KEEP + 1);
+    if (n <= n_keep)
+        return; /* only co-processes (each of them is a child of ours) */
+    unsigned killed = worker_reaper_sweep(keep, n_keep, 1000);
+    if (killed)
+        LOG_WARN("job %llu: the plugin left %u processes running after the evaluation; "
+                 "killed them",
+                 (unsigned long long)job_id, killed);
+}
+
 void worker_child_run(int fd, const worker_registry_t *registry, size_t mem_limit_mb,
                       pid_t parent, worker_child_status_t *status)
 {
+    /* Own process group: a Ctrl-C at the worker's terminal reaches the
+     * foreground group only, so it cannot kill a running evaluation during a
+     * drain; and the worker can kill all this child's helpers at once. The
+     * parent makes the same call, whichever runs first. */
+    setpgid(0, 0);
     prctl(PR_SET_PDEATHSIG, SIGKILL);
     if (getppid() != parent) /* the parent died before prctl took effect */
         _exit(0);
-    signal(SIGINT, SIG_IGN);
-    signal(SIGTERM, SIG_IGN);
-    signal(SIGPIPE, SIG_IGN); /* an exec co-process that dies must be an error, not a death */
-    signal(SIGCHLD, SIG_DFL);
+    s_default_signals();
+    /* Orphans of the plugin's processes come to us, not to init: the sweep
+     * after each evaluation finds them (reaper.h). */
+    if (worker_reaper_become() != 0)
+        LOG_WARN("child %d: cannot become a child subreaper: %s", (int)getpid(),
+                 strerror(errno));
     if (mem_limit_mb > 0) {
         struct rlimit rl;
         rl.rlim_cur = rl.rlim_max = (rlim_t)mem_limit_mb * 1024u * 1024u;
@@ -237,6 +295,7 @@ void worker_child_run(int fd, const worker_registry_t *registry, size_t mem_limi
         double fitness[PROTO_MAX_OBJECTIVES];
         proto_outcome_t outcome;
         s_evaluate(registry, job, &outcome, fitness, err);
+        s_sweep(job->job_id);
         int64_t wall = common_clock_us() - t0;
         proto_msg_t reply = {.type = PROTO_DONE};
         reply.u.done.n_outcomes = 1;
@@ -274,5 +333,7 @@ void worker_child_run(int fd, const worker_registry_t *registry, size_t mem_limi
     worker_frame_buf_free(&out);
     for (size_t i = 0; i < WORKER_CHILD_CONTEXTS; i++)
         s_context_drop(&s_contexts[i]);
+    /* The co-processes are stopped: what they started and left is ours now. */
+    (void)worker_reaper_sweep(NULL, 0, 1000);
     _exit(0);
 }

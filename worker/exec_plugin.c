@@ -883,3 +883,14 @@ void worker_exec_close(const struct fitfarm_plugin **p)
 {
     worker_exec_plugin_destroy(p);
 }
+
+size_t worker_exec_plugin_coprocesses(pid_t *out, size_t max)
+{
+    size_t n = 0;
+    for (unsigned i = 0; i < WORKER_EXEC_MAX_PLUGINS && n < max; i++) {
+        const s_exec_t *x = s_table[i];
+        if (x && x->cp.pid && x->cp.owner == getpid())
+            out[n++] = x->cp.pid;
+    }
+    return n;
+}

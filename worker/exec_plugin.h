@@ -18,8 +18,10 @@
  * next character. No variables, globs, pipes or redirections: write a wrapper
  * script for those. The first word is found on PATH. The program runs in its
  * own process group, with the worker's environment and working directory,
- * stdin and stdout connected to the worker, stderr inherited (it lands in the
- * worker's log), and no other open descriptors. It dies with its worker child.
+ * stdin and stdout connected to the worker, stderr inherited (the worker
+ * child's output pipe: the worker logs at most 64 KiB of it per evaluation,
+ * output.h), and no other open descriptors. It dies with its worker child;
+ * its helpers die with it, even one that called setsid() (reaper.h).
  *
  * Every message is one JSON object (RFC 8259) on one line ending in "\n",
  * UTF-8, at most 1 MiB. Unknown keys are refused in both directions.
@@ -77,6 +79,7 @@
 
 #include <stddef.h>
 #include <stdint.h>
+#include <sys/types.h>
 
 #include "fitfarm_plugin.h"
 
@@ -119,5 +122,10 @@ void worker_exec_plugin_set_answer_timeout(const fitfarm_plugin_t *p, int timeou
 /* The process id of the calling process's co-process for p, or 0 when none
  * runs. For tests and diagnostics. */
 long worker_exec_plugin_coprocess_pid(const fitfarm_plugin_t *p);
+
+/* Writes the process ids of the calling process's running co-processes (all
+ * exec plugins) into out, at most max; returns the count. The child's sweep
+ * after each evaluation spares these (child.c). */
+size_t worker_exec_plugin_coprocesses(pid_t *out, size_t max);
 
 #endif

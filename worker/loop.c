@@ -23,12 +23,15 @@
 
 #include "common/alloc.h"
 #include "common/clock.h"
+#include "common/fdlimit.h"
 #include "common/lifeline.h"
 #include "common/replace_file.h"
 #include "common/log.h"
 #include "credits.h"
 #include "msg.h"
+#include "handshake.h"
 #include "pool.h"
+#include "reaper.h"
 #include "registry.h"
 #include "secure.h"
 #include "worker.h"
@@ -55,6 +58,7 @@ typedef struct {
     worker_registry_t *registry;
     worker_pool_t *pool;
     void *ctx;
+    worker_handshake_t handshake; /* refusals by the broker, for our own log */
     void *sock;
     worker_credits_t credits;
     /* Jobs in hand, not started: FIFO [head, count) of jobs we own. */
@@ -354,6 +358,9 @@ static int s_open_socket(s_worker_t *self)
     zmq_setsockopt(self->sock, ZMQ_MAXMSGSIZE, &maxmsg, sizeof maxmsg);
     if (worker_secure_socket(self->sock, &self->config) != 0)
         return -1;
+    if (!self->config.insecure)
+        (void)worker_handshake_open(&self->handshake, self->ctx, self->sock,
+                                    self->config.broker_endpoint);
     if (zmq_connect(self->sock, self->config.broker_endpoint) != 0) {
         LOG_ERROR("cannot connect to %s: %s", self->config.broker_endpoint,
                   zmq_strerror(zmq_errno()));
@@ -459,7 +466,7 @@ static int s_write_ready(const char *path)
 /* Runs the reactor until drained or forced. */
 static void s_run(s_worker_t *self)
 {
-    zmq_pollitem_t items[2 + WORKER_POOL_MAX_SLOTS];
+    zmq_pollitem_t items[3 + WORKER_POOL_ITEMS];
     int forced = 0;
     int64_t drain_stuck_ms = 0;
     int lifeline = self->config.lifeline_fd;
@@ -506,10 +513,14 @@ static void s_run(s_worker_t *self)
         items[0].fd = 0;
         items[0].events = ZMQ_POLLIN;
         items[0].revents = 0;
-        size_t n = worker_pool_pollitems(self->pool, items + 1, WORKER_POOL_MAX_SLOTS);
+        size_t n = worker_pool_pollitems(self->pool, items + 1, WORKER_POOL_ITEMS);
         size_t n_items = 1 + n;
         if (lifeline > 0)
             items[n_items++] = (zmq_pollitem_t){.fd = lifeline, .events = ZMQ_POLLIN};
+        size_t monitor_at = n_items;
+        if (self->handshake.pair)
+            items[n_items++] = (zmq_pollitem_t){.socket = self->handshake.pair,
+                                                .events = ZMQ_POLLIN};
         int rc = zmq_poll(items, (int)n_items, timeout);
         if (rc < 0 && zmq_errno() != EINTR) {
             LOG_ERROR("zmq_poll failed: %s; stopping", zmq_strerror(zmq_errno()));
@@ -527,6 +538,8 @@ static void s_run(s_worker_t *self)
             forced = 1;
             break;
         }
+        if (rc > 0 && monitor_at < n_items && (items[monitor_at].revents & ZMQ_POLLIN))
+            worker_handshake_handle(&self->handshake);
         if (rc > 0 && (items[0].revents & ZMQ_POLLIN))
             s_read_broker(self);
         worker_pool_handle(self->pool, items + 1, rc > 0 ? n : 0);
@@ -558,6 +571,14 @@ int worker_main_run(const worker_config_t *config)
     s_identity(self);
     worker_credits_init(&self->credits, self->config.slots);
     s_stop_signals = 0;
+    (void)common_fdlimit_raise("worker");
+    /* A plugin's process that leaves its group and loses its parent comes
+     * to us instead of init, so it cannot outlive the worker (reaper.h). */
+    int subreaper = worker_reaper_become() == 0;
+    if (!subreaper)
+        LOG_WARN("cannot become a child subreaper (%s): a plugin's process that calls setsid() "
+                 "and loses its parent may outlive its evaluation",
+                 strerror(errno));
 
     struct sigaction sa;
     memset(&sa, 0, sizeof sa);
@@ -571,10 +592,14 @@ int worker_main_run(const worker_config_t *config)
     self->registry = worker_registry_new();
     if (s_load_plugins(self) != 0)
         goto cleanup;
+    /* The exec plugins' probes ran and stopped: nothing they started stays. */
+    if (subreaper && worker_reaper_sweep(NULL, 0, 1000) > 0)
+        LOG_WARN("killed processes that exec programs started while introducing themselves");
     worker_pool_config_t pc = {
         .slots = self->config.slots,
         .registry = self->registry,
         .mem_limit_mb = self->config.mem_limit_mb,
+        .reap_orphans = subreaper,
         .default_timeout_ms = self->config.default_timeout_s > 4000000u
                                   ? 4000000000u
                                   : self->config.default_timeout_s * 1000u,
@@ -599,6 +624,7 @@ cleanup:
         zmq_setsockopt(self->sock, ZMQ_LINGER, &linger, sizeof linger);
         zmq_close(self->sock);
     }
+    worker_handshake_close(&self->handshake);
     if (self->ctx)
         zmq_ctx_term(self->ctx);
     worker_pool_destroy(&self->pool);

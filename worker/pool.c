@@ -46,6 +46,8 @@
 #include "common/log.h"
 #include "credits.h"
 #include "frame.h"
+#include "output.h"
+#include "reaper.h"
 
 #define S_RESPAWN_RETRY_MS 1000
 #define S_REAP_GRACE_MS 2000 /* a child whose socket closed gets this long to be reapable */
@@ -67,6 +69,8 @@ typedef struct {
 typedef struct {
     pid_t pid; /* 0: dead */
     int fd;    /* parent's end of the socketpair, non-blocking; -1 when dead */
+    int out_fd; /* read end of its stdout and stderr, non-blocking; -1: none or closed */
+    worker_output_t output; /* what it printed, not yet logged */
     s_job_t q[S_MAX_DEPTH]; /* ring: [qhead, qhead + qn) */
     unsigned qhead, qn;
     uint64_t next_seq;      /* sequence number of the last job handed over */
@@ -91,6 +95,65 @@ struct worker_pool {
 static s_job_t *s_at(s_child_t *c, unsigned k)
 {
     return &c->q[(c->qhead + k) % S_MAX_DEPTH];
+}
+
+/* SIGKILLs child c and its process group: a plugin's helpers that stayed in
+ * the group die with it; those that left it are orphans the sweep finds. */
+static void s_kill(const s_child_t *c)
+{
+    if (c->pid <= 0)
+        return;
+    kill(-c->pid, SIGKILL);
+    kill(c->pid, SIGKILL);
+}
+
+/* Kills and reaps every child of the worker that is not a live slot: what
+ * dead children's plugins left, reparented to us (reaper.h). */
+static void s_sweep(worker_pool_t *self, int budget_ms)
+{
+    if (!self->config.reap_orphans)
+        return;
+    pid_t keep[WORKER_POOL_MAX_SLOTS];
+    size_t n = 0;
+    for (unsigned i = 0; i < self->config.slots; i++)
+        if (self->children[i].pid > 0)
+            keep[n++] = self->children[i].pid;
+    unsigned killed = worker_reaper_sweep(keep, n, budget_ms);
+    if (killed)
+        LOG_WARN("killed %u processes that plugins of dead children had left running", killed);
+}
+
+/* Who new output of child i belongs to: the job it runs, else the oldest it
+ * holds, else nobody; what was kept for another job is logged first. */
+static int s_running(const worker_pool_t *self, unsigned i, int64_t *start_us);
+
+static void s_output_drain(worker_pool_t *self, unsigned i)
+{
+    s_child_t *c = &self->children[i];
+    if (c->out_fd < 0)
+        return;
+    int64_t start_us;
+    int k = s_running(self, i, &start_us);
+    uint64_t owner = k >= 0 ? s_at(c, (unsigned)k)->job_id : c->qn ? s_at(c, 0)->job_id : 0;
+    if ((c->output.len || c->output.cut) && owner && c->output.job_id != owner)
+        worker_output_flush(&c->output);
+    if (!c->output.len && !c->output.cut)
+        c->output.job_id = owner;
+    if (worker_output_read(&c->output, c->out_fd)) {
+        /* Every writer closed it: polling on would only see end of file. */
+        close(c->out_fd);
+        c->out_fd = -1;
+    }
+}
+
+/* Logs what child i printed (the job it ends, or its death). */
+static void s_output_end(worker_pool_t *self, unsigned i)
+{
+    s_child_t *c = &self->children[i];
+    s_output_drain(self, i);
+    if (c->output.len || c->output.cut)
+        worker_output_flush(&c->output);
+    c->output.job_id = 0;
 }
 
 /* A failed or crashed evaluation whose process came near the address-space
@@ -219,9 +282,15 @@ static int s_spawn(worker_pool_t *self, unsigned i)
     worker_child_status_t *st = &self->status[i];
     atomic_store(&st->running, 0);
     atomic_store(&st->start_us, 0);
-    int sv[2];
+    int sv[2], op[2];
     if (socketpair(AF_UNIX, SOCK_STREAM | SOCK_CLOEXEC, 0, sv) != 0) {
         LOG_ERROR("socketpair for child %u failed: %s", i, strerror(errno));
+        goto fail;
+    }
+    if (pipe2(op, O_CLOEXEC) != 0) {
+        LOG_ERROR("output pipe for child %u failed: %s", i, strerror(errno));
+        close(sv[0]);
+        close(sv[1]);
         goto fail;
     }
     pid_t parent = getpid();
@@ -230,18 +299,44 @@ static int s_spawn(worker_pool_t *self, unsigned i)
         LOG_ERROR("fork of child %u failed: %s", i, strerror(errno));
         close(sv[0]);
         close(sv[1]);
+        close(op[0]);
+        close(op[1]);
         goto fail;
     }
     if (pid == 0) {
         /* Other children's sockets must not stay open here, or their deaths
          * would not read as end of file in the parent. */
-        for (unsigned j = 0; j < self->config.slots; j++)
+        for (unsigned j = 0; j < self->config.slots; j++) {
             if (j != i && self->children[j].fd >= 0)
                 close(self->children[j].fd);
+            if (j != i && self->children[j].out_fd >= 0)
+                close(self->children[j].out_fd);
+        }
         close(sv[0]);
+        close(op[0]);
+        /* stdout and stderr, the plugin's and its programs', go to the
+         * worker, which keeps a bounded part (output.h). */
+        if (dup2(op[1], 1) < 0 || dup2(op[1], 2) < 0)
+            _exit(4);
+        if (op[1] > 2)
+            close(op[1]);
+        else /* dup2 onto itself keeps close-on-exec: an exec program must inherit it */
+            (void)fcntl(op[1], F_SETFD, 0);
         worker_child_run(sv[1], self->config.registry, self->config.mem_limit_mb, parent, st);
     }
+    /* The child does the same; whichever runs first, the group exists before
+     * anything is killed through it. */
+    (void)setpgid(pid, pid);
     close(sv[1]);
+    close(op[1]);
+    c->out_fd = op[0];
+    c->output.len = 0;
+    c->output.cut = 0;
+    c->output.job_id = 0;
+    c->output.child = (int)i;
+    int ofl = fcntl(op[0], F_GETFL);
+    if (ofl < 0 || fcntl(op[0], F_SETFL, ofl | O_NONBLOCK) != 0)
+        LOG_WARN("cannot make child %u's output pipe non-blocking: %s", i, strerror(errno));
     /* Non-blocking: a child busy with a long evaluation must never stall the
      * parent's write of the jobs queued behind it. */
     int fl = fcntl(sv[0], F_GETFL);
@@ -370,9 +465,13 @@ static void s_respawn(worker_pool_t *self, unsigned i)
     if (c->fd >= 0)
         close(c->fd);
     c->fd = -1;
+    if (c->out_fd >= 0)
+        close(c->out_fd);
+    c->out_fd = -1;
     c->pid = 0;
     c->in.pos = c->in.len = 0;
     c->out.pos = c->out.len = 0;
+    s_sweep(self, 1000);
     s_spawn(self, i);
 }
 
@@ -385,6 +484,10 @@ static void s_on_death(worker_pool_t *self, unsigned i, const char *why)
     int k = s_running(self, i, &start_us); /* read before the slot is reused */
     struct rusage ru = {0};
     int status = s_reap(c->pid, &ru);
+    /* Its helpers in its group must not outlive it (the group id stays
+     * taken while any member lives, so this cannot hit a stranger). */
+    kill(-c->pid, SIGKILL);
+    s_output_end(self, i);
     char text[PROTO_MAX_ERROR_BYTES];
     s_describe_status(status, text, sizeof text);
     if (why)
@@ -411,11 +514,13 @@ static void s_on_death(worker_pool_t *self, unsigned i, const char *why)
 static void s_on_overrun(worker_pool_t *self, unsigned i, int k, int64_t start_us)
 {
     s_child_t *c = &self->children[i];
-    kill(c->pid, SIGKILL);
+    s_output_drain(self, i); /* the overrunning job's output, before the kill */
+    s_kill(c);
     struct rusage ru = {0};
     int status = 0;
     while (wait4(c->pid, &status, 0, &ru) < 0 && errno == EINTR)
         ;
+    s_output_end(self, i);
     s_job_t *j = s_at(c, (unsigned)k);
     char text[128];
     snprintf(text, sizeof text, "evaluation exceeded %g s", j->timeout_ms / 1000.0);
@@ -433,9 +538,10 @@ static void s_on_overrun(worker_pool_t *self, unsigned i, int k, int64_t start_u
 static void s_retire(worker_pool_t *self, unsigned i)
 {
     s_child_t *c = &self->children[i];
-    kill(c->pid, SIGKILL);
+    s_kill(c);
     while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
         ;
+    s_output_end(self, i);
     s_requeue_all(self, i, -1, 0, "replaced");
     s_respawn(self, i);
 }
@@ -457,6 +563,8 @@ static void s_on_answer(worker_pool_t *self, unsigned i, proto_msg_t *msg, uint6
     int64_t most = now - j->handed_us;
     r.wall_us = side > (uint64_t)(most < 0 ? 0 : most) ? most : (int64_t)side;
     worker_credits_eval(&self->timing, r.wall_us);
+    if (c->output.job_id == j->job_id)
+        worker_output_flush(&c->output);
     free(j->frame);
     c->qhead = (c->qhead + 1) % S_MAX_DEPTH;
     c->qn--;
@@ -482,6 +590,8 @@ static void s_update_depth(worker_pool_t *self)
 static void s_on_readable(worker_pool_t *self, unsigned i)
 {
     s_child_t *c = &self->children[i];
+    /* What a job printed is in the pipe before its answer is in the socket. */
+    s_output_drain(self, i);
     ssize_t got = worker_frame_fill(&c->in, c->fd, MSG_DONTWAIT);
     if (got < 0 && (errno == EAGAIN || errno == EWOULDBLOCK))
         return;
@@ -506,7 +616,7 @@ static void s_on_readable(worker_pool_t *self, unsigned i)
         }
         if (rc < 0) {
             proto_msg_destroy(&msg);
-            kill(c->pid, SIGKILL);
+            s_kill(c);
             char why[300];
             snprintf(why, sizeof why, "bad answer from the child: %s", err);
             s_on_death(self, i, why);
@@ -540,7 +650,7 @@ worker_pool_t *worker_pool_new(const worker_pool_config_t *config)
     s_update_depth(self);
     self->children = common_xcalloc(config->slots, sizeof *self->children);
     for (unsigned i = 0; i < config->slots; i++)
-        self->children[i].fd = -1;
+        self->children[i].fd = self->children[i].out_fd = -1;
     /* Shared with the children: mapped once, before any fork. */
     self->status_bytes = config->slots * sizeof *self->status;
     void *map = mmap(NULL, self->status_bytes, PROT_READ | PROT_WRITE,
@@ -578,16 +688,22 @@ void worker_pool_destroy(worker_pool_t **self_p)
     for (unsigned i = 0; i < self->config.slots; i++) {
         s_child_t *c = &self->children[i];
         if (c->pid > 0) {
-            kill(c->pid, SIGKILL);
+            s_kill(c);
             while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
                 ;
+            s_output_end(self, i);
+            c->pid = 0;
         }
         if (c->fd >= 0)
             close(c->fd);
+        if (c->out_fd >= 0)
+            close(c->out_fd);
         s_drop_jobs(c);
         worker_frame_buf_free(&c->in);
         worker_frame_buf_free(&c->out);
     }
+    /* No child is kept now: whatever plugins left running goes too. */
+    s_sweep(self, 2000);
     for (size_t i = self->bhead; i < self->bcount; i++)
         free(self->backlog[i].frame);
     free(self->backlog);
@@ -668,6 +784,8 @@ size_t worker_pool_pollitems(worker_pool_t *self, zmq_pollitem_t *items, size_t 
             items[n].events |= ZMQ_POLLOUT;
         items[n].revents = 0;
         n++;
+        if (c->out_fd >= 0 && n < max)
+            items[n++] = (zmq_pollitem_t){.fd = c->out_fd, .events = ZMQ_POLLIN};
     }
     return n;
 }
@@ -697,6 +815,10 @@ void worker_pool_handle(worker_pool_t *self, const zmq_pollitem_t *items, size_t
             continue;
         for (unsigned i = 0; i < self->config.slots; i++) {
             s_child_t *c = &self->children[i];
+            if (c->pid > 0 && c->out_fd >= 0 && c->out_fd == items[m].fd) {
+                s_output_drain(self, i);
+                break;
+            }
             if (c->pid <= 0 || c->fd != items[m].fd)
                 continue;
             if ((items[m].revents & ZMQ_POLLOUT) && worker_frame_buf_pending(&c->out))
@@ -715,7 +837,7 @@ void worker_pool_handle(worker_pool_t *self, const zmq_pollitem_t *items, size_t
         if (k >= 0) {
             s_on_overrun(self, i, k, start_us);
         } else {
-            kill(self->children[i].pid, SIGKILL);
+            s_kill(&self->children[i]);
             s_on_death(self, i, "stuck between evaluations");
         }
     }
@@ -775,7 +897,7 @@ void worker_pool_result_clear(worker_pool_result_t *r)
 
 size_t worker_pool_wait(worker_pool_t *self, int timeout_ms)
 {
-    zmq_pollitem_t items[WORKER_POOL_MAX_SLOTS];
+    zmq_pollitem_t items[WORKER_POOL_ITEMS];
     int64_t until = common_clock_ms() + timeout_ms;
     while (self->count == self->head) {
         int64_t left = until - common_clock_ms();
@@ -784,7 +906,7 @@ size_t worker_pool_wait(worker_pool_t *self, int timeout_ms)
         long pt = worker_pool_timeout_ms(self);
         if (pt < 0 || pt > left)
             pt = (long)left;
-        size_t n = worker_pool_pollitems(self, items, WORKER_POOL_MAX_SLOTS);
+        size_t n = worker_pool_pollitems(self, items, WORKER_POOL_ITEMS);
         int rc = zmq_poll(items, (int)n, pt);
         worker_pool_handle(self, items, rc > 0 ? n : 0);
         if (left == 0)
@@ -798,11 +920,15 @@ void worker_pool_kill_busy(worker_pool_t *self)
     for (unsigned i = 0; i < self->config.slots; i++) {
         s_child_t *c = &self->children[i];
         if (c->pid > 0 && c->qn > 0) {
-            kill(c->pid, SIGKILL);
+            s_kill(c);
             while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
                 ;
+            s_output_end(self, i);
             close(c->fd);
             c->fd = -1;
+            if (c->out_fd >= 0)
+                close(c->out_fd);
+            c->out_fd = -1;
             c->pid = 0;
             s_drop_jobs(c);
             c->in.pos = c->in.len = 0;
@@ -812,4 +938,5 @@ void worker_pool_kill_busy(worker_pool_t *self)
     for (size_t i = self->bhead; i < self->bcount; i++)
         free(self->backlog[i].frame);
     self->bhead = self->bcount = 0;
+    s_sweep(self, 2000);
 }

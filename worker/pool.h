@@ -6,7 +6,9 @@
  * slow ones), reading their outcomes, noticing a child's death or overrun and
  * turning it into a CRASHED or TIMEOUT outcome for the one job it was running,
  * handing the jobs it held but had not finished to a live child, killing (by
- * PID) and respawning children. The worker never dies from a plugin: everything a
+ * process group: each child leads its own) and respawning children, killing
+ * what dead children's plugins left running (reaper.h), and reading each
+ * child's stdout and stderr into a bounded log per evaluation (output.h). The worker never dies from a plugin: everything a
  * plugin can do ends as an outcome here. Not owned: which job runs next, the
  * network, credits (loop.c); the evaluation itself (child.c).
  *
@@ -23,6 +25,7 @@
 #include "registry.h"
 
 #define WORKER_POOL_MAX_SLOTS 1024u
+#define WORKER_POOL_ITEMS (2u * WORKER_POOL_MAX_SLOTS) /* poll items: socket and output pipe */
 
 typedef struct {
     unsigned slots;                /* children, 1..WORKER_POOL_MAX_SLOTS */
@@ -30,6 +33,10 @@ typedef struct {
     size_t mem_limit_mb;           /* address-space limit per child; 0 = none */
     uint32_t default_timeout_ms;   /* for jobs with timeout_ms 0; 0 = 3600 s */
     unsigned queue_depth;          /* jobs per child; 0 = adaptive (credits.h) */
+    int reap_orphans;              /* the calling process is a child subreaper and starts
+                                      no children of its own besides the pool's: kill
+                                      and reap every other child after a child's death
+                                      and at destroy (what plugins left, reaper.h) */
 } worker_pool_config_t;
 
 /* A finished job. outcome.fitness and outcome.error are malloc'd (error is
@@ -65,9 +72,10 @@ unsigned worker_pool_depth(const worker_pool_t *self);
 int worker_pool_start(worker_pool_t *self, const proto_job_t *job);
 
 /* Writes the jobs handed over since the last call (one write per child, as
- * far as the sockets take them without blocking), then fills items with one
- * entry per live child (ZMQ_POLLIN, plus ZMQ_POLLOUT while jobs wait to be
- * written), at most max. Returns the count. */
+ * far as the sockets take them without blocking), then fills items with up
+ * to two entries per live child: its socket (ZMQ_POLLIN, plus ZMQ_POLLOUT
+ * while jobs wait to be written) and its output pipe (ZMQ_POLLIN), at most
+ * max (WORKER_POOL_ITEMS holds them all). Returns the count. */
 size_t worker_pool_pollitems(worker_pool_t *self, zmq_pollitem_t *items, size_t max);
 
 /* After zmq_poll on items from worker_pool_pollitems: reads answers, writes

@@ -16,6 +16,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "cli_keys.h"
@@ -878,6 +879,19 @@ int cli_cmd_eval(int argc, char **argv)
         if (e.in_fd < 0) {
             fprintf(stderr, "fitfarm eval: cannot read %s: %s (see fitfarm eval --help)\n",
                     e.in_path, strerror(errno));
+            return 2;
+        }
+    }
+    /* open() takes a folder for reading, and read() then fails with EISDIR
+     * after the pool has started: refuse it here, like a missing file. */
+    {
+        struct stat st;
+        if (fstat(e.in_fd, &st) == 0 && S_ISDIR(st.st_mode)) {
+            fprintf(stderr, "fitfarm eval: cannot read %s: it is a folder, not a file of JSON "
+                    "Lines (see fitfarm eval --help)\n",
+                    e.in_fd == STDIN_FILENO ? "standard input" : e.in_path);
+            if (e.in_fd != STDIN_FILENO)
+                close(e.in_fd);
             return 2;
         }
     }

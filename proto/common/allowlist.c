@@ -188,6 +188,11 @@ size_t common_allowlist_size(const common_allowlist_t *self)
     return self ? self->n : 0;
 }
 
+const common_allow_entry_t *common_allowlist_at(const common_allowlist_t *self, size_t i)
+{
+    return self && i < self->n ? &self->entries[i] : NULL;
+}
+
 const common_allow_entry_t *common_allowlist_find(const common_allowlist_t *self,
                                                   const uint8_t key[COMMON_KEY_BYTES])
 {

@@ -38,6 +38,9 @@ int common_allowlist_read(const char *path, int missing_ok, common_allowlist_t *
 void common_allowlist_destroy(common_allowlist_t **self_p);
 
 size_t common_allowlist_size(const common_allowlist_t *self);
+/* Entry i (0..size-1) in key order, or NULL past the end. Borrowed, valid
+ * until destroy. */
+const common_allow_entry_t *common_allowlist_at(const common_allowlist_t *self, size_t i);
 /* The entry for key, or NULL (O(log n)). Borrowed, valid until destroy. */
 const common_allow_entry_t *common_allowlist_find(const common_allowlist_t *self,
                                                   const uint8_t key[COMMON_KEY_BYTES]);

@@ -73,5 +73,76 @@ if cc.returncode == 0:
             bad += 1
             print(f"genome {i}: {f1} {f2}, ZDT1 gives {want}")
     check.ok(bad == 0 and lines, f"{bad} of {len(lines)} lines differ from the ZDT1 formula")
+
+# The plugin SDK alone: a tiny plugin compiled with only the installed include
+# folder on the path (no source tree), loaded by the installed worker through
+# `fitfarm eval --plugin-dir` (the embedded pool). Reference: the sum of
+# squares of each genome, added in the same order by Python's IEEE 754 doubles
+# (no fused multiply-add: -ffp-contract=off), so the bits must match.
+PLUGIN_SRC = r"""
+#include <fitfarm_plugin.h>
+
+static int s_create(const char *params, void **ctx, fitfarm_plugin_info_t *info, char *err,
+                    size_t errlen)
+{
+    (void)params; (void)err; (void)errlen;
+    *ctx = NULL;
+    info->objectives = 1;
+    return FITFARM_PLUGIN_OK;
+}
+
+static int s_evaluate(void *ctx, const uint8_t *genome, size_t len, uint64_t seed, double *fitness,
+                      char *err, size_t errlen)
+{
+    (void)ctx; (void)seed; (void)err; (void)errlen;
+    double s = 0.0;
+    for (size_t i = 0; i < len / 8; i++) {
+        double x = fitfarm_genome_f64(genome, i);
+        s += x * x;
+    }
+    fitness[0] = s;
+    return FITFARM_PLUGIN_OK;
+}
+
+static void s_destroy(void *ctx) { (void)ctx; }
+
+static const fitfarm_plugin_t s_plugin = {
+    .abi_version = FITFARM_PLUGIN_ABI, .name = "tinysum", .version = "1", .objectives = 1,
+    .flags = FITFARM_PLUGIN_DETERMINISTIC,
+    .create = s_create, .evaluate = s_evaluate, .destroy = s_destroy,
+};
+
+FITFARM_PLUGIN_EXPORT const fitfarm_plugin_t *fitfarm_plugin(void) { return &s_plugin; }
+"""
+sdk = os.path.join(tmp, "sdk")
+os.makedirs(sdk)
+with open(os.path.join(sdk, "tinysum.c"), "w") as f:
+    f.write(PLUGIN_SRC)
+inc = os.path.join(prefix, "include")
+check.ok(os.path.isfile(os.path.join(inc, "fitfarm_plugin.h")), "fitfarm_plugin.h is installed")
+so = os.path.join(sdk, "tinysum.so")
+cc = subprocess.run(["cc", "-std=c11", "-Wall", "-Wextra", "-Werror", "-ffp-contract=off", "-fPIC",
+                     "-shared", "-I" + inc, "tinysum.c", "-o", so],
+                    capture_output=True, text=True, cwd=sdk, timeout=120)
+check.ok(cc.returncode == 0, f"a plugin compiles with only {inc}: {cc.stderr[-2000:]}")
+if cc.returncode == 0:
+    gs = fflib.genomes(20, 5, seed=3)
+    run_env = {"LD_LIBRARY_PATH": libdir, "PATH": "/usr/bin:/bin", "HOME": tmp}
+    r = subprocess.run([os.path.join(prefix, "bin", "fitfarm"), "eval", "--plugin", "tinysum",
+                        "--plugin-dir", sdk, "--slots", "1", "--run", "sdk"],
+                       input=fflib.jsonl(gs), capture_output=True, text=True, env=run_env,
+                       cwd=sdk, timeout=120)
+    import json
+    out = [json.loads(l) for l in r.stdout.splitlines() if l.strip()]
+    want = []
+    for g in gs:
+        s = 0.0
+        for x in g:
+            s += x * x
+        want.append(s)
+    got = [o["fitness"][0] if o.get("status") == "ok" else None for o in out]
+    check.ok(r.returncode == 0 and got == want,
+             f"the SDK-only plugin runs in the installed pool, sums bit-identical: exit {r.returncode}, "
+             f"{got[:3]} vs {want[:3]}, {r.stderr[-1000:]}")
 shutil.rmtree(tmp, ignore_errors=True)
 check.done()

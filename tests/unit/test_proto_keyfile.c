@@ -117,6 +117,16 @@ static void test_allowlist(void **state)
     assert_string_equal(e->label, "lab pc 1");
     key[0] ^= 1;
     assert_null(common_allowlist_find(l, key));
+    /* Every entry once through common_allowlist_at, each found by its key,
+     * then NULL past the end. */
+    for (size_t i = 0; i < 2; i++) {
+        const common_allow_entry_t *at = common_allowlist_at(l, i);
+        assert_non_null(at);
+        assert_ptr_equal(common_allowlist_find(l, at->key), at);
+    }
+    assert_ptr_not_equal(common_allowlist_at(l, 0), common_allowlist_at(l, 1));
+    assert_null(common_allowlist_at(l, 2));
+    assert_null(common_allowlist_at(NULL, 0));
     common_allowlist_destroy(&l);
     const char *dup = "HelloWorldHelloWorldHelloWorldHelloWorld\nHelloWorldHelloWorldHelloWorldHelloWorld x\n";
     assert_int_equal(common_allowlist_parse(dup, strlen(dup), &l, err, sizeof err), -1);
