@@ -68,8 +68,10 @@ typedef struct broker {
     proto_result_t *results;
     /* counters */
     uint64_t jobs_sent, results_sent, dropped_msgs;
-    /* security and limits (zap.h, quota.h); zap NULL in plaintext mode */
+    /* security and limits (zap.h, access.h, quota.h); zap NULL in plaintext mode */
     struct broker_zap *zap;
+    struct common_sharelist *shares; /* runs shared with other keys; NULL = none */
+    char *shares_path;
     proto_limits_t limits;
     uint64_t max_queued_per_run, max_queued_per_client;
     /* prepared statements of cache.c and backlog.c on the store's connection */

@@ -106,7 +106,8 @@ static void s_drain(broker_t *b, void *sock, int workers)
             broker_worker_on_message(b, rid, rid_len, data, len);
             broker_guard_note_worker(b, rid, rid_len, &body);
         } else {
-            broker_client_on_message(b, rid, rid_len, data, len);
+            broker_client_on_message(b, rid, rid_len,
+                                     b->zap ? zmq_msg_gets(&body, "User-Id") : NULL, data, len);
         }
         zmq_msg_close(&body);
     }

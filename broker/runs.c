@@ -7,6 +7,7 @@
 
 #include <assert.h>
 #include <inttypes.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -71,23 +72,26 @@ broker_run_t *broker_runs_get(const broker_runs_t *self, const char *id)
 }
 
 broker_run_t *broker_runs_new(broker_runs_t *self, const char *id, uint64_t seed,
-                              uint32_t seed_mode)
+                              uint32_t seed_mode, const char *owner)
 {
     assert(!broker_runs_get(self, id));
     broker_run_t *run = common_xcalloc(1, sizeof *run);
     run->id = common_xstrdup(id);
     run->seed = seed;
     run->seed_mode = seed_mode;
+    snprintf(run->owner, sizeof run->owner, "%s", owner ? owner : "");
     run->unacked = broker_table_new();
     broker_table_put(self->by_id, run->id, strlen(run->id), run);
     return run;
 }
 
-void broker_run_set_client(broker_run_t *run, const uint8_t *rid, size_t rid_len)
+void broker_run_set_client(broker_run_t *run, const uint8_t *rid, size_t rid_len,
+                           const char *key)
 {
     assert(rid_len <= BROKER_RID_MAX);
     memcpy(run->client, rid, rid_len);
     run->client_len = (uint8_t)rid_len;
+    snprintf(run->client_key, sizeof run->client_key, "%s", key ? key : "");
 }
 
 /* ---- the ring of runs with queued work ---------------------------------- */
@@ -144,9 +148,25 @@ static broker_queue_t *s_queue(broker_run_t *run, broker_plugin_t *plugin, int c
     return q;
 }
 
+/* A run other than run, not parked, that waits for e; NULL if none. */
+static broker_run_t *s_unparked_waiter(broker_eval_t *e, const broker_run_t *run)
+{
+    for (uint32_t i = 0; i < e->n_waiters; i++) {
+        broker_run_t *r = broker_eval_waiter(e, i)->run;
+        if (r != run && !r->parked)
+            return r;
+    }
+    return NULL;
+}
+
 void broker_runs_enqueue(broker_runs_t *self, broker_run_t *run, broker_eval_t *e, int front)
 {
     assert(e->state == BROKER_EVAL_QUEUED && e->prev == NULL && e->next == NULL);
+    if (run->parked) {
+        broker_run_t *to = s_unparked_waiter(e, run);
+        if (to)
+            run = to;
+    }
     broker_queue_t *q = s_queue(run, e->plugin, 1);
     e->home = run;
     if (front) {
@@ -168,7 +188,47 @@ void broker_runs_enqueue(broker_runs_t *self, broker_run_t *run, broker_eval_t *
     }
     run->n_queued++;
     self->total_queued++;
-    s_ring_insert(self, run);
+    if (!run->parked)
+        s_ring_insert(self, run);
+}
+
+uint64_t broker_runs_park(broker_runs_t *self, broker_run_t *run)
+{
+    if (run->parked)
+        return 0;
+    run->parked = 1;
+    for (uint32_t i = 0; i < run->n_queues; i++) {
+        broker_eval_t *e = run->queues[i].head;
+        while (e) {
+            broker_eval_t *next = e->next;
+            broker_run_t *to = s_unparked_waiter(e, run);
+            if (to) {
+                broker_runs_unqueue(self, e);
+                broker_runs_enqueue(self, to, e, 0);
+            }
+            e = next;
+        }
+    }
+    s_ring_remove(self, run);
+    return run->n_queued;
+}
+
+uint64_t broker_runs_unpark(broker_runs_t *self, broker_run_t *run)
+{
+    if (!run->parked)
+        return 0;
+    run->parked = 0;
+    if (run->n_queued)
+        s_ring_insert(self, run);
+    return run->n_queued;
+}
+
+void broker_runs_adopt(broker_runs_t *self, broker_run_t *run, broker_eval_t *e)
+{
+    if (e->state != BROKER_EVAL_QUEUED || !e->home || !e->home->parked || run->parked)
+        return;
+    broker_runs_unqueue(self, e);
+    broker_runs_enqueue(self, run, e, 0);
 }
 
 void broker_runs_unqueue(broker_runs_t *self, broker_eval_t *e)
@@ -477,7 +537,8 @@ int broker_runs_check(const broker_runs_t *self)
                     return 0;
                 in_queues++;
             }
-        if (in_queues != run->n_queued || (run->n_queued > 0) != (run->in_rr != 0))
+        if (in_queues != run->n_queued ||
+            (run->n_queued > 0 && !run->parked) != (run->in_rr != 0))
             return 0;
         queued += in_queues;
     }

@@ -1,5 +1,6 @@
-/* runs.h: runs by id, each with its seed and seed mode, the client routing id
- * that last spoke for it, one FIFO of queued evaluations per plugin, its
+/* runs.h: runs by id, each with its seed and seed mode, its owner (the
+ * client key that created it, access.h), the client routing id and key of
+ * the one connection that speaks for it, one FIFO of queued evaluations per plugin, its
  * counters, the results waiting to be sent this turn (outbox) and the results
  * sent but not yet acknowledged (unacked, re-sent when the client comes back).
  *
@@ -13,7 +14,13 @@
  * Fair share: the runs that have queued work form a ring; broker_runs_pick
  * serves them round-robin, one job per run per step, so one large run cannot
  * starve a small one. Dispatch is O(1) per job (O(plugins in the run) to pick
- * the oldest job the worker can take). Not here: sending, evaluation states
+ * the oldest job the worker can take).
+ *
+ * Parking: a parked run (its owner's key was removed from clients.allow,
+ * access.h) keeps its queued evaluations but is left out of the ring, so no
+ * worker gets them until it is unparked; a queued evaluation that another,
+ * unparked run also waits for moves to that run's queue (single flight never
+ * lets one run's revocation starve another). Not here: sending, evaluation states
  * (evals.h), workers (registry.h). */
 #ifndef BROKER_RUNS_H
 #define BROKER_RUNS_H
@@ -45,12 +52,21 @@ typedef struct broker_delivery {
     struct broker_delivery *free_next;
 } broker_delivery_t;
 
+#define BROKER_KEY_TEXT 41 /* a Z85 public key (40 characters) and NUL */
+
 typedef struct broker_run {
     char *id;
     uint64_t seed;
     uint32_t seed_mode;
+    /* The client key that created the run (Z85, or access.h's plaintext
+     * identity); "" = not recorded (a store from before ownership). */
+    char owner[BROKER_KEY_TEXT];
+    /* The one connection that speaks for the run (client_len 0: none) and the
+     * key it authenticated with (the owner's, or a key the run is shared with). */
     uint8_t client[BROKER_RID_MAX];
     uint8_t client_len;
+    char client_key[BROKER_KEY_TEXT];
+    int parked;
     broker_queue_t *queues;
     uint32_t n_queues;
     uint64_t n_queued, n_running, n_answered;
@@ -94,13 +110,25 @@ void broker_runs_fini(broker_runs_t *self);
 
 /* Borrowed, valid until fini; NULL if unknown. */
 broker_run_t *broker_runs_get(const broker_runs_t *self, const char *id);
-/* New run (id must be unknown). Borrowed, valid until fini. */
+/* New run (id must be unknown) owned by owner (NULL or "": not recorded).
+ * Borrowed, valid until fini. */
 broker_run_t *broker_runs_new(broker_runs_t *self, const char *id, uint64_t seed,
-                              uint32_t seed_mode);
-void broker_run_set_client(broker_run_t *run, const uint8_t *rid, size_t rid_len);
+                              uint32_t seed_mode, const char *owner);
+/* The connection rid (authenticated as key, NULL = none) speaks for run now. */
+void broker_run_set_client(broker_run_t *run, const uint8_t *rid, size_t rid_len,
+                           const char *key);
+/* Parks run (see the top); returns how many queued evaluations stay parked
+ * with it. 0 and no change when it is parked already. */
+uint64_t broker_runs_park(broker_runs_t *self, broker_run_t *run);
+/* Unparks run; returns how many queued evaluations it brings back. */
+uint64_t broker_runs_unpark(broker_runs_t *self, broker_run_t *run);
+/* run now waits for QUEUED e too: if e's home is parked and run is not, e
+ * moves to run's queue. */
+void broker_runs_adopt(broker_runs_t *self, broker_run_t *run, broker_eval_t *e);
 
 /* Puts QUEUED e in run's queue for e->plugin, at the back (new work) or the
- * front (re-queued work keeps its place ahead of newer jobs). Sets e->home. */
+ * front (re-queued work keeps its place ahead of newer jobs). Sets e->home.
+ * A parked run hands e to an unparked run that waits for it, if any. */
 void broker_runs_enqueue(broker_runs_t *self, broker_run_t *run, broker_eval_t *e, int front);
 /* Takes QUEUED e out of its home run's queue. */
 void broker_runs_unqueue(broker_runs_t *self, broker_eval_t *e);

@@ -41,7 +41,7 @@ static const char s_schema[] =
     "CREATE TABLE IF NOT EXISTS meta(name TEXT PRIMARY KEY, value TEXT NOT NULL);"
     "CREATE TABLE IF NOT EXISTS runs("
     " run_id TEXT PRIMARY KEY, seed INTEGER NOT NULL, seed_mode INTEGER NOT NULL,"
-    " created REAL NOT NULL, last_activity REAL NOT NULL);"
+    " created REAL NOT NULL, last_activity REAL NOT NULL, owner TEXT);"
     "CREATE TABLE IF NOT EXISTS evaluations("
     " key BLOB PRIMARY KEY, plugin TEXT NOT NULL, version TEXT NOT NULL,"
     " params TEXT NOT NULL, genome BLOB NOT NULL, seed INTEGER NOT NULL,"
@@ -86,9 +86,9 @@ enum {
 static const char *const s_sql[S_COUNT_] = {
     [S_BEGIN] = "BEGIN",
     [S_COMMIT] = "COMMIT",
-    [S_RUN] = "INSERT INTO runs(run_id, seed, seed_mode, created, last_activity)"
-              " VALUES(?1, ?2, ?3, ?4, ?4)"
-              " ON CONFLICT(run_id) DO UPDATE SET last_activity = ?4",
+    [S_RUN] = "INSERT INTO runs(run_id, seed, seed_mode, created, last_activity, owner)"
+              " VALUES(?1, ?2, ?3, ?4, ?4, ?5)"
+              " ON CONFLICT(run_id) DO UPDATE SET last_activity = ?4, owner = ?5",
     [S_EVAL] = "INSERT OR IGNORE INTO evaluations(key, plugin, version, params, genome, seed,"
                " timeout_ms, max_attempts, created) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
     [S_HISTORY] = "INSERT INTO results(key, run_id, fresh, status, status_name, fitness,"
@@ -198,6 +198,12 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
             SQLITE_OK &&
         s_exec(self, "ALTER TABLE plugins ADD COLUMN seed_params TEXT") != 0)
         goto fail;
+    /* Stores made before runs had owners lack runs.owner (NULL there means
+     * "not recorded": access.h says who may claim such a run). */
+    if (sqlite3_exec(self->db, "SELECT owner FROM runs LIMIT 0", NULL, NULL, NULL) !=
+            SQLITE_OK &&
+        s_exec(self, "ALTER TABLE runs ADD COLUMN owner TEXT") != 0)
+        goto fail;
     for (int i = 0; i < S_COUNT_; i++) {
         if (sqlite3_prepare_v3(self->db, s_sql[i], -1, SQLITE_PREPARE_PERSISTENT, &self->stmt[i],
                                NULL) != SQLITE_OK) {
@@ -268,6 +274,10 @@ void broker_store_note_run(broker_store_t *self, const broker_run_t *run)
     s_bind_u64(st, 2, run->seed);
     sqlite3_bind_int(st, 3, (int)run->seed_mode);
     sqlite3_bind_double(st, 4, s_now());
+    if (run->owner[0])
+        sqlite3_bind_text(st, 5, run->owner, -1, SQLITE_STATIC);
+    else
+        sqlite3_bind_null(st, 5);
     s_step(self, S_RUN);
 }
 

@@ -94,14 +94,21 @@ static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
 static int s_load_runs(broker_t *b, sqlite3 *db, uint32_t *n)
 {
     sqlite3_stmt *st = NULL;
-    if (sqlite3_prepare_v2(db, "SELECT run_id, seed, seed_mode FROM runs", -1, &st, NULL) !=
-        SQLITE_OK)
+    if (sqlite3_prepare_v2(db, "SELECT run_id, seed, seed_mode, owner FROM runs", -1, &st,
+                           NULL) != SQLITE_OK)
         return s_fail(db, "runs");
     while (sqlite3_step(st) == SQLITE_ROW) {
         const char *id = (const char *)sqlite3_column_text(st, 0);
+        const char *owner = (const char *)sqlite3_column_text(st, 3);
         if (!id || broker_runs_get(&b->runs, id))
             continue;
-        broker_runs_new(&b->runs, id, s_u64(st, 1), (uint32_t)sqlite3_column_int(st, 2));
+        if (owner && (!*owner || strlen(owner) >= BROKER_KEY_TEXT)) {
+            /* Not an identity the broker writes: nobody may claim it. */
+            LOG_WARN("store: run %s has an unreadable owner %.48s; no key may use it until "
+                     "it is shared (runs.share)", id, owner);
+            owner = "?";
+        }
+        broker_runs_new(&b->runs, id, s_u64(st, 1), (uint32_t)sqlite3_column_int(st, 2), owner);
         (*n)++;
     }
     sqlite3_finalize(st);

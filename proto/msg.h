@@ -77,6 +77,7 @@ typedef enum {
     PROTO_REFUSE_NOT_RECORDED = 5,  /* replay: the run never saw this request */
     PROTO_REFUSE_SHUTTING_DOWN = 6,
     PROTO_REFUSE_RUN_MISMATCH = 7,  /* run exists with another seed or seed mode */
+    PROTO_REFUSE_NOT_PERMITTED = 8, /* the run belongs to another client key */
 } proto_refuse_t;
 
 /* ---- client -> broker -------------------------------------------------- */

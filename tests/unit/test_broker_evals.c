@@ -73,7 +73,7 @@ static int s_submit(broker_t *b, const char *client, const char *run_id, uint64_
                         .params = (char *)"{}",
                         .n_items = n,
                         .items = items};
-    int rc = broker_client_submit(b, (const uint8_t *)client, strlen(client), &s);
+    int rc = broker_client_submit(b, (const uint8_t *)client, strlen(client), "local", &s);
     free(items);
     return rc;
 }
