@@ -145,10 +145,14 @@ void broker_access_sweep(broker_t *b)
             back_jobs += n;
         }
     }
-    if (cut || parked_runs || back_runs)
+    if (cut || parked_runs)
         LOG_WARN("revocation: %" PRIu64 " client connections cut off (%" PRIu64
                  " unacknowledged results withheld), %" PRIu64 " runs parked (%" PRIu64
                  " queued jobs), %" PRIu64 " runs unparked (%" PRIu64 " queued jobs)%s",
                  cut, withheld, parked_runs, parked_jobs, back_runs, back_jobs,
+                 lines > S_LOG_RUNS ? "; per-run lines past the first 20 not logged" : "");
+    else if (back_runs)
+        LOG_INFO("revocation lifted: %" PRIu64 " runs unparked (%" PRIu64 " queued jobs)%s",
+                 back_runs, back_jobs,
                  lines > S_LOG_RUNS ? "; per-run lines past the first 20 not logged" : "");
 }

@@ -18,10 +18,11 @@
  *   runs=N,PREFIX,PLUGIN,PARAMS   N SUBMITs, each a new run PREFIX-i of one genome
  *   big=N,BYTES,RUN,PLUGIN,PARAMS N SUBMITs of run RUN, each one genome of
  *       BYTES bytes (distinct contents)
- *   listen=MS            reads replies for MS ms, printing one line each:
- *       "got RESULTS run=R n=N", "got REFUSED code=C text=T", "got ACCEPTED
+ *   listen=MS[,D]        reads replies for MS ms (or until D distinct result
+ *       tags have come), printing one line each:
+ *       "got RESULTS run=R n=N at=EPOCH_MS", "got REFUSED code=C text=T", "got ACCEPTED
  *       run=R n=N", "got STATUS runs=R1,R2,", then "listened results=N
- *       refused=N accepted=N". Replies to the runs= and big= floods are read
+ *       refused=N accepted=N distinct=N" (distinct: result tags, counted once). Replies to the runs= and big= floods are read
  *       while sending and counted the same way. */
 #include <stdio.h>
 #include <stdlib.h>
@@ -89,7 +90,8 @@ static proto_msg_t s_submit(proto_item_t *item, double *g)
     return m;
 }
 
-static uint64_t s_got_results, s_got_refused, s_got_accepted;
+static uint64_t s_got_results, s_got_refused, s_got_accepted, s_distinct;
+static uint8_t s_seen[1u << 17]; /* a bit per result tag below 2^20 */
 
 /* Reads and prints every waiting reply (waits up to ms for the first). */
 static void s_read_replies(int ms, int quiet)
@@ -108,9 +110,20 @@ static void s_read_replies(int ms, int quiet)
         if (proto_msg_decode(zmq_msg_data(&m), zmq_msg_size(&m), &lim, &msg, &err) == PROTO_OK) {
             if (msg->type == PROTO_RESULTS) {
                 s_got_results += msg->u.results.n_results;
-                if (!quiet)
-                    printf("got RESULTS run=%s n=%u\n", msg->u.results.run_id,
-                           msg->u.results.n_results);
+                for (uint32_t i = 0; i < msg->u.results.n_results; i++) {
+                    uint64_t t = msg->u.results.results[i].tag;
+                    if (t < (1u << 20) && !(s_seen[t >> 3] & (1u << (t & 7)))) {
+                        s_seen[t >> 3] |= (uint8_t)(1u << (t & 7));
+                        s_distinct++;
+                    }
+                }
+                if (!quiet) {
+                    struct timespec now;
+                    clock_gettime(CLOCK_REALTIME, &now);
+                    printf("got RESULTS run=%s n=%u at=%lld\n", msg->u.results.run_id,
+                           msg->u.results.n_results,
+                           (long long)now.tv_sec * 1000 + now.tv_nsec / 1000000);
+                }
             } else if (msg->type == PROTO_REFUSED) {
                 s_got_refused++;
                 if (!quiet || s_got_refused == 1)
@@ -256,18 +269,20 @@ static int s_attack_args(const char *a)
         free(g);
     } else if (nlen == 6 && strncmp(a, "listen", 6) == 0) {
         int ms = atoi(buf);
+        const char *comma = strchr(buf, ',');
+        uint64_t target = comma ? strtoull(comma + 1, NULL, 10) : 0;
         struct timespec t0, t;
         clock_gettime(CLOCK_MONOTONIC, &t0);
         for (;;) {
             clock_gettime(CLOCK_MONOTONIC, &t);
             long left = ms - ((t.tv_sec - t0.tv_sec) * 1000 + (t.tv_nsec - t0.tv_nsec) / 1000000);
-            if (left <= 0)
+            if (left <= 0 || (target && s_distinct >= target))
                 break;
             s_read_replies((int)left, 0);
         }
-        printf("listened results=%llu refused=%llu accepted=%llu\n",
+        printf("listened results=%llu refused=%llu accepted=%llu distinct=%llu\n",
                (unsigned long long)s_got_results, (unsigned long long)s_got_refused,
-               (unsigned long long)s_got_accepted);
+               (unsigned long long)s_got_accepted, (unsigned long long)s_distinct);
     } else {
         return 0;
     }
