@@ -181,7 +181,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
         goto cleanup;
     }
-    broker_run_t *run = broker_runs_get(&b->runs, s->run_id);
+    broker_run_t *run = broker_quota_find_run(b, s->run_id); /* RAM, else the store */
     broker_access_t access = run ? broker_access_may_use(b, run, who) : BROKER_ACCESS_OWNER;
     if (!who || access == BROKER_ACCESS_NO) {
         /* First, before anything that reads the run: the refusal is the same
@@ -222,7 +222,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         }
     }
 
-    if (broker_quota_check(b, rid, rid_len, run, s->n_items, text, sizeof text) != 0) {
+    if (broker_quota_check(b, who, run, s, text, sizeof text) != 0) {
         rc = PROTO_REFUSE_QUEUE_FULL;
         s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
         goto cleanup;
@@ -283,12 +283,15 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     char name[COMMON_KEY_FINGERPRINT + 8];
     if (!run) {
         run = broker_runs_new(&b->runs, s->run_id, s->run_seed, s->seed_mode, who);
+        broker_quota_attach(b, run);
         LOG_INFO("run %s started by client %s (%s): seed %" PRIu64 ", plugin %s", run->id,
                  broker_rid_hex(rid, rid_len, hex), broker_access_name(who, name), run->seed,
                  plugin->name);
     } else {
         if (access == BROKER_ACCESS_CLAIM) {
+            broker_quota_detach(b, run);
             snprintf(run->owner, sizeof run->owner, "%s", who);
+            broker_quota_attach(b, run);
             LOG_WARN("run %s had no owner recorded (a store from before run ownership): now "
                      "owned by %s, the first key to use it",
                      run->id, broker_access_name(who, name));
@@ -312,6 +315,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         }
     }
     broker_run_set_client(run, rid, rid_len, who);
+    run->last_used_ms = b->now_ms;
     broker_store_note_run(b->store, run);
 
     const char *params = broker_intern(&b->intern, canon);
@@ -327,13 +331,13 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             } else if (e->state == BROKER_EVAL_DONE) {
                 s_redeliver(b, run, it->tag, seeds[i], e, recorded[i] == 2);
             } else if (!s_waits(e, run, it->tag)) {
-                run->outstanding++;
+                broker_run_count_request(run);
                 broker_eval_add_waiter(e, run, it->tag, seeds[i]);
                 broker_runs_adopt(&b->runs, run, e);
             }
             continue;
         }
-        run->outstanding++;
+        broker_run_count_request(run);
         /* A crash or a time-out says more about that night's machine than
          * about the genome: it answered the run that got it (and that run's
          * resume and replay read it again, above), but a new request for
@@ -349,6 +353,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         if (!e) {
             e = broker_evals_new(&b->evals, keys[i], plugin, params, seeds[i], it->genome,
                                  it->genome_len);
+            broker_quota_charge(b, run, e);
             e->timeout_ms = s->timeout_ms;
             e->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
             broker_eval_add_waiter(e, run, it->tag, seeds[i]);
@@ -359,6 +364,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
              * "Re-evaluations"); no-cache requests for the key share one. */
             if (!e->again) {
                 broker_eval_t *f = broker_evals_new_fresh(&b->evals, e);
+                broker_quota_charge(b, run, f);
                 f->timeout_ms = s->timeout_ms;
                 f->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
                 broker_eval_add_waiter(f, run, it->tag, seeds[i]);
@@ -407,6 +413,7 @@ static void s_on_ack(broker_t *b, const uint8_t *rid, size_t rid_len, const char
                  broker_access_name(who, name));
         return;
     }
+    run->last_used_ms = b->now_ms;
     for (uint32_t i = 0; i < a->n_tags; i++)
         if (broker_runs_ack(&b->runs, run, a->tags[i]))
             broker_store_note_ack(b->store, run, a->tags[i]);
@@ -560,4 +567,6 @@ void broker_client_flush(broker_t *b)
     b->backlog_more = broker_backlog_turn(b);
     while ((run = broker_runs_take_dirty(&b->runs)))
         s_flush_run(b, run);
+    /* Nothing holds a run pointer between turns: idle runs may leave RAM. */
+    broker_quota_sweep(b, BROKER_RUN_IDLE_MS, 0);
 }

@@ -74,6 +74,12 @@ typedef struct broker {
     char *shares_path;
     proto_limits_t limits;
     uint64_t max_queued_per_run, max_queued_per_client;
+    uint64_t max_queued_bytes, max_queued_bytes_per_key, max_queued_bytes_per_run;
+    uint64_t max_runs, max_runs_per_key;
+    uint64_t queued_bytes;         /* charged over all runs (quota.h) */
+    struct broker_table *key_use;  /* owner text -> broker_keyuse_t */
+    int64_t next_sweep_ms;         /* idle runs leave RAM (quota.h) */
+    uint64_t runs_dropped, runs_reloaded;
     /* prepared statements of cache.c and backlog.c on the store's connection */
     struct sqlite3_stmt *cache_lookup, *backlog_page;
     int backlog_more; /* the backlog could page more at once: do not sleep */

@@ -1,6 +1,7 @@
 /* dispatch.c: job lifecycle transitions that involve workers (see dispatch.h
  * and the state table in evals.h). Owns no state of its own. */
 #include "dispatch.h"
+#include "quota.h"
 
 #include <assert.h>
 #include <inttypes.h>
@@ -73,6 +74,7 @@ static void s_detach(broker_t *b, broker_eval_t *e)
 void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker_t *w,
                               const proto_outcome_t *o)
 {
+    broker_quota_release(b, e); /* its genome no longer waits (quota.h) */
     broker_eval_set_result(&b->evals, e, o->status, o->fitness, o->n_fitness, o->error);
     broker_store_note_result(b->store, e, o, w ? w->name : NULL, w ? w->host : NULL,
                              w ? w->arch : NULL);

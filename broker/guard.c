@@ -40,6 +40,16 @@ int broker_guard_start(broker_t *b, const broker_config_t *config)
         b->max_queued_per_run = config->max_queued_per_run;
     if (config->max_queued_per_client)
         b->max_queued_per_client = config->max_queued_per_client;
+    if (config->max_queued_bytes)
+        b->max_queued_bytes = config->max_queued_bytes;
+    if (config->max_queued_bytes_per_key)
+        b->max_queued_bytes_per_key = config->max_queued_bytes_per_key;
+    if (config->max_queued_bytes_per_run)
+        b->max_queued_bytes_per_run = config->max_queued_bytes_per_run;
+    if (config->max_runs)
+        b->max_runs = config->max_runs;
+    if (config->max_runs_per_key)
+        b->max_runs_per_key = config->max_runs_per_key;
 
     if (config->insecure) {
         const char *eps[2] = {config->clients_endpoint, config->workers_endpoint};

@@ -38,24 +38,46 @@ static void s_delivery_free(broker_delivery_t *d)
     d->error = NULL;
 }
 
+static void s_run_free(broker_run_t *run)
+{
+    size_t c2 = 0;
+    broker_delivery_t *d;
+    while ((d = broker_table_next(run->unacked, &c2))) {
+        s_delivery_free(d);
+        free(d);
+    }
+    broker_table_destroy(&run->unacked);
+    for (uint32_t i = 0; i < run->n_outbox; i++)
+        s_delivery_free(&run->outbox[i]);
+    free(run->outbox);
+    free(run->queues);
+    free(run->id);
+    free(run);
+}
+
+int broker_runs_idle(const broker_run_t *run)
+{
+    return run->outstanding == 0 && run->n_queued == 0 && run->n_running == 0 &&
+           run->n_outbox == 0 && broker_table_size(run->unacked) == 0 && !run->in_spill &&
+           !run->spill_linked && !run->dirty && !run->parked && !run->in_rr &&
+           run->genome_bytes == 0;
+}
+
+void broker_runs_drop(broker_runs_t *self, broker_run_t *run)
+{
+    assert(broker_runs_idle(run));
+    broker_run_t *gone = broker_table_delete(self->by_id, run->id, strlen(run->id));
+    assert(gone == run);
+    (void)gone;
+    s_run_free(run);
+}
+
 void broker_runs_fini(broker_runs_t *self)
 {
     size_t cur = 0;
     broker_run_t *run;
     while ((run = broker_table_next(self->by_id, &cur))) {
-        size_t c2 = 0;
-        broker_delivery_t *d;
-        while ((d = broker_table_next(run->unacked, &c2))) {
-            s_delivery_free(d);
-            free(d);
-        }
-        broker_table_destroy(&run->unacked);
-        for (uint32_t i = 0; i < run->n_outbox; i++)
-            s_delivery_free(&run->outbox[i]);
-        free(run->outbox);
-        free(run->queues);
-        free(run->id);
-        free(run);
+        s_run_free(run);
     }
     broker_table_destroy(&self->by_id);
     while (self->free_nodes) {
@@ -354,7 +376,7 @@ static int s_outbox_push(broker_runs_t *self, broker_run_t *run, const broker_de
         return 0;
     }
     if (run->n_outbox == run->cap_outbox) {
-        run->cap_outbox = run->cap_outbox ? run->cap_outbox * 2 : 64;
+        run->cap_outbox = run->cap_outbox ? run->cap_outbox * 2 : 8;
         run->outbox = common_xrealloc(run->outbox, run->cap_outbox, sizeof *run->outbox);
     }
     broker_delivery_t *d = &run->outbox[run->n_outbox++];
@@ -412,6 +434,10 @@ void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, ui
     }
     assert(run->outstanding > 0);
     run->outstanding--;
+    if (run->use) {
+        assert(run->use->outstanding > 0);
+        run->use->outstanding--;
+    }
     if (run->outstanding == 0) {
         LOG_INFO("run %s idle: %" PRIu64 " requests answered (%" PRIu64 " evaluated, %" PRIu64
                  " cached, %" PRIu64 " failed)",
@@ -497,6 +523,11 @@ void broker_runs_sent(broker_runs_t *self, broker_run_t *run)
         broker_table_put(run->unacked, &d->tag, sizeof d->tag, d);
     }
     run->n_outbox = 0;
+    /* The array goes too: kept, it cost every run that ever got a result
+     * about 5 KB for good (64 entries), most of a run's RAM. */
+    free(run->outbox);
+    run->outbox = NULL;
+    run->cap_outbox = 0;
 }
 
 int broker_runs_ack(broker_runs_t *self, broker_run_t *run, uint64_t tag)

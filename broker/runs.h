@@ -54,6 +54,14 @@ typedef struct broker_delivery {
 
 #define BROKER_KEY_TEXT 41 /* a Z85 public key (40 characters) and NUL */
 
+/* What one owner's runs hold in RAM, for the caps per key (quota.h). */
+typedef struct broker_keyuse {
+    char owner[BROKER_KEY_TEXT];
+    uint64_t runs;         /* its runs held in RAM */
+    uint64_t outstanding;  /* their accepted requests not yet answered */
+    uint64_t genome_bytes; /* genome bytes of their QUEUED and RUNNING evaluations */
+} broker_keyuse_t;
+
 typedef struct broker_run {
     char *id;
     uint64_t seed;
@@ -67,6 +75,9 @@ typedef struct broker_run {
     uint8_t client_len;
     char client_key[BROKER_KEY_TEXT];
     int parked;
+    broker_keyuse_t *use;  /* its owner's totals (quota.h); NULL until attached */
+    uint64_t genome_bytes; /* genomes it holds queued (quota.h) */
+    int64_t last_used_ms;  /* last SUBMIT or ACK: idle runs leave RAM after a while */
     broker_queue_t *queues;
     uint32_t n_queues;
     uint64_t n_queued, n_running, n_answered;
@@ -117,6 +128,21 @@ broker_run_t *broker_runs_new(broker_runs_t *self, const char *id, uint64_t seed
 /* The connection rid (authenticated as key, NULL = none) speaks for run now. */
 void broker_run_set_client(broker_run_t *run, const uint8_t *rid, size_t rid_len,
                            const char *key);
+/* One more accepted request waits in run (and in its owner's total). */
+static inline void broker_run_count_request(broker_run_t *run)
+{
+    run->outstanding++;
+    if (run->use)
+        run->use->outstanding++;
+}
+/* 1 when run holds nothing that needs it in RAM: no request waiting, no
+ * result to send or acknowledge, none owed from the store, not parked. Such
+ * a run can be dropped (broker_runs_drop) and rebuilt from the store on its
+ * next use. */
+int broker_runs_idle(const broker_run_t *run);
+/* Removes idle run from RAM and frees it (the store keeps it). */
+void broker_runs_drop(broker_runs_t *self, broker_run_t *run);
+
 /* Parks run (see the top); returns how many queued evaluations stay parked
  * with it. 0 and no change when it is parked already. */
 uint64_t broker_runs_park(broker_runs_t *self, broker_run_t *run);

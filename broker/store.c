@@ -80,6 +80,7 @@ enum {
     S_ACK,
     S_UNACK,
     S_PLUGIN,
+    S_FIND_RUN,
     S_COUNT_
 };
 
@@ -110,6 +111,7 @@ static const char *const s_sql[S_COUNT_] = {
                  " seed_params) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7) ON CONFLICT(name) DO UPDATE"
                  " SET version = ?2, objectives = ?3, flags = ?4, digests = ?5, last_seen = ?6,"
                  " seed_params = ?7",
+    [S_FIND_RUN] = "SELECT seed, seed_mode, owner FROM runs WHERE run_id = ?1",
 };
 
 struct broker_store {
@@ -310,6 +312,25 @@ void broker_store_note_request(broker_store_t *self, const broker_run_t *run, ui
     sqlite3_bind_double(st, 7, s_now());
     sqlite3_bind_int(st, 8, e->fresh != 0);
     s_step(self, S_REQUEST);
+}
+
+int broker_store_find_run(broker_store_t *self, const char *run_id, uint64_t *seed,
+                          uint32_t *seed_mode, char *owner, size_t owner_len)
+{
+    sqlite3_stmt *st = self->stmt[S_FIND_RUN];
+    sqlite3_bind_text(st, 1, run_id, -1, SQLITE_STATIC);
+    int found = 0;
+    if (sqlite3_step(st) == SQLITE_ROW) {
+        const char *o = (const char *)sqlite3_column_text(st, 2);
+        *seed = (uint64_t)sqlite3_column_int64(st, 0);
+        *seed_mode = (uint32_t)sqlite3_column_int(st, 1);
+        /* An owner the broker did not write (too long, empty) matches no key. */
+        snprintf(owner, owner_len, "%s", !o ? "" : (!*o || strlen(o) >= owner_len) ? "?" : o);
+        found = 1;
+    }
+    sqlite3_reset(st);
+    sqlite3_clear_bindings(st);
+    return found;
 }
 
 int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t tag,

@@ -16,6 +16,7 @@
 #include "cache.h"
 #include "common/log.h"
 #include "core.h"
+#include "quota.h"
 
 static int s_fail(sqlite3 *db, const char *what)
 {
@@ -94,8 +95,12 @@ static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
 static int s_load_runs(broker_t *b, sqlite3 *db, uint32_t *n)
 {
     sqlite3_stmt *st = NULL;
-    if (sqlite3_prepare_v2(db, "SELECT run_id, seed, seed_mode, owner FROM runs", -1, &st,
-                           NULL) != SQLITE_OK)
+    /* Only runs with a request not acknowledged (waiting, or answered and
+     * owed): the others come back from the store on their next SUBMIT (quota.h). */
+    if (sqlite3_prepare_v2(db,
+                           "SELECT run_id, seed, seed_mode, owner FROM runs WHERE run_id IN"
+                           " (SELECT DISTINCT run_id FROM requests WHERE acked = 0)",
+                           -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "runs");
     while (sqlite3_step(st) == SQLITE_ROW) {
         const char *id = (const char *)sqlite3_column_text(st, 0);
@@ -108,7 +113,10 @@ static int s_load_runs(broker_t *b, sqlite3 *db, uint32_t *n)
                      "it is shared (runs.share)", id, owner);
             owner = "?";
         }
-        broker_runs_new(&b->runs, id, s_u64(st, 1), (uint32_t)sqlite3_column_int(st, 2), owner);
+        broker_run_t *run = broker_runs_new(&b->runs, id, s_u64(st, 1),
+                                            (uint32_t)sqlite3_column_int(st, 2), owner);
+        run->last_used_ms = b->now_ms;
+        broker_quota_attach(b, run);
         (*n)++;
     }
     sqlite3_finalize(st);
@@ -179,9 +187,10 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
         uint32_t replicate = (uint32_t)sqlite3_column_int64(st, 11);
         broker_eval_add_waiter(e, run, tag,
                                broker_run_request_seed(run, e->genome, e->genome_len, replicate));
-        run->outstanding++;
+        broker_run_count_request(run);
         if (!e->home) {
             broker_runs_enqueue(&b->runs, run, e, 0);
+            broker_quota_charge(b, run, e);
             (*pending)++;
         }
     }
@@ -228,9 +237,10 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
         uint32_t replicate = (uint32_t)sqlite3_column_int64(st, 8);
         broker_eval_add_waiter(f, run, tag,
                                broker_run_request_seed(run, f->genome, f->genome_len, replicate));
-        run->outstanding++;
+        broker_run_count_request(run);
         if (!f->home) {
             broker_runs_enqueue(&b->runs, run, f, 0);
+            broker_quota_charge(b, run, f);
             (*pending)++;
         }
     }
