@@ -25,6 +25,13 @@ struct sqlite3_stmt;
 #define BROKER_RESULTS_PER_MSG 4096  /* results in one RESULTS message */
 #define BROKER_MSG_SOFT_BYTES (16u * 1024u * 1024u) /* stop filling a message past this */
 #define BROKER_HWM 100000
+/* Messages queued from one client connection before ZeroMQ stops reading
+ * it (TCP then holds the sender back). ZeroMQ counts messages, not bytes:
+ * with BROKER_HWM, a client sending large SUBMITs faster than the loop
+ * handled them (a long commit) had the broker buffer them all, 1 GiB and
+ * more; 64 bounds that to 64 messages per connection, while a turn drains
+ * up to BROKER_MSGS_PER_TURN, so small messages never wait on it. */
+#define BROKER_CLIENT_RCVHWM 64
 
 static_assert(BROKER_MSG_SOFT_BYTES + PROTO_MAX_GENOME_BYTES + PROTO_MAX_PARAMS_BYTES <
                   PROTO_MAX_MESSAGE_BYTES,

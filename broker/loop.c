@@ -50,7 +50,8 @@ static void *s_bind(broker_t *b, const char *endpoint, const char *role, char *b
     zmq_setsockopt(sock, ZMQ_LINGER, &zero, sizeof zero);
     zmq_setsockopt(sock, ZMQ_MAXMSGSIZE, &maxmsg, sizeof maxmsg);
     zmq_setsockopt(sock, ZMQ_SNDHWM, &hwm, sizeof hwm);
-    zmq_setsockopt(sock, ZMQ_RCVHWM, &hwm, sizeof hwm);
+    int rcvhwm = strcmp(role, "clients") == 0 ? BROKER_CLIENT_RCVHWM : hwm;
+    zmq_setsockopt(sock, ZMQ_RCVHWM, &rcvhwm, sizeof rcvhwm);
     if (broker_guard_socket(b, sock, role) != 0) {
         zmq_close(sock);
         return NULL;

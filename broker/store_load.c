@@ -258,9 +258,9 @@ int broker_store_load(broker_t *b)
         broker_backlog_load(b) != 0)
         return -1;
     if (n_runs || n_plugins)
-        LOG_INFO("store loaded: %u plugins, %u runs, %" PRIu64
-                 " pending evaluations queued again (finished results stay in the store and "
-                 "are read when asked for)",
+        LOG_INFO("store loaded: %u plugins, %u runs with unacknowledged requests, %" PRIu64
+                 " pending evaluations queued again (finished results and other runs stay in "
+                 "the store and are read when asked for)",
                  n_plugins, n_runs, n_pending);
     return 0;
 }

@@ -23,7 +23,8 @@
  *       "got RESULTS run=R n=N at=EPOCH_MS", "got REFUSED code=C text=T", "got ACCEPTED
  *       run=R n=N", "got STATUS runs=R1,R2,", then "listened results=N
  *       refused=N accepted=N distinct=N" (distinct: result tags, counted once). Replies to the runs= and big= floods are read
- *       while sending and counted the same way. */
+ *       while sending and counted the same way; a flood waits until every
+ *       SUBMIT of it is answered. */
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -148,6 +149,14 @@ static void s_read_replies(int ms, int quiet)
     fflush(stdout);
 }
 
+/* Reads replies until n SUBMITs have been answered (ACCEPTED or REFUSED),
+ * for at most 10 minutes: a flood is over when the broker has judged it all. */
+static void s_await_replies(uint64_t n)
+{
+    for (int i = 0; i < 600 && s_got_accepted + s_got_refused < n; i++)
+        s_read_replies(1000, 1);
+}
+
 /* Splits a copy of arg at commas into at most max fields; the last field
  * keeps the rest (params may hold commas). Returns the field count. */
 static int s_fields(char *arg, char **f, int max)
@@ -251,7 +260,7 @@ static int s_attack_args(const char *a)
                 s_read_replies(0, 1);
         }
         free(canon);
-        s_read_replies(0, 1);
+        s_await_replies(n);
     } else if (nlen == 3 && strncmp(a, "big", 3) == 0) {
         if (s_fields(buf, f, 5) != 5)
             return -1;
@@ -267,6 +276,7 @@ static int s_attack_args(const char *a)
         }
         free(canon);
         free(g);
+        s_await_replies(n);
     } else if (nlen == 6 && strncmp(a, "listen", 6) == 0) {
         int ms = atoi(buf);
         const char *comma = strchr(buf, ',');
