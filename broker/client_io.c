@@ -19,6 +19,56 @@
 #include "params.h"
 #include "quota.h"
 
+#define S_REFUSAL_QUIET_MS 10000
+
+/* One log line per refusal, except that the same kind of refusal (code) to
+ * the same connection again within S_REFUSAL_QUIET_MS is counted, not
+ * logged: a flood of refused SUBMITs (100,000 in the memory tests) must not
+ * fill the disk with the log. The count is logged with the next line. */
+static struct {
+    uint8_t rid[BROKER_RID_MAX];
+    size_t rid_len;
+    uint32_t code;
+    int64_t since_ms;
+    uint64_t quiet;
+} s_last_refusal;
+
+/* 1 if this refusal is to be logged; logs the count of quiet ones first. */
+static int s_refusal_logged(const broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t code)
+{
+    int same = s_last_refusal.rid_len == rid_len && memcmp(s_last_refusal.rid, rid, rid_len) == 0 &&
+               s_last_refusal.code == code;
+    if (same && b->now_ms - s_last_refusal.since_ms < S_REFUSAL_QUIET_MS) {
+        s_last_refusal.quiet++;
+        return 0;
+    }
+    if (s_last_refusal.quiet) {
+        char hex[BROKER_RID_HEX];
+        LOG_INFO("(%" PRIu64 " more refusals with code %u to client %s not logged)",
+                 s_last_refusal.quiet, s_last_refusal.code,
+                 broker_rid_hex(s_last_refusal.rid, s_last_refusal.rid_len, hex));
+    }
+    memcpy(s_last_refusal.rid, rid, rid_len);
+    s_last_refusal.rid_len = rid_len;
+    s_last_refusal.code = code;
+    s_last_refusal.since_ms = b->now_ms;
+    s_last_refusal.quiet = 0;
+    return 1;
+}
+
+/* Once the quiet window is over, the count of refusals not logged goes out
+ * even if no other refusal follows. */
+static void s_refusal_flush(const broker_t *b)
+{
+    if (s_last_refusal.quiet && b->now_ms - s_last_refusal.since_ms >= S_REFUSAL_QUIET_MS) {
+        char hex[BROKER_RID_HEX];
+        LOG_INFO("(%" PRIu64 " more refusals with code %u to client %s not logged)",
+                 s_last_refusal.quiet, s_last_refusal.code,
+                 broker_rid_hex(s_last_refusal.rid, s_last_refusal.rid_len, hex));
+        s_last_refusal.quiet = 0;
+    }
+}
+
 /* Refuses a SUBMIT; item names the one request it is about (NULL: the
  * whole batch), so the client needs no text parsing to name the genome. */
 static void s_refuse_item(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t code,
@@ -26,8 +76,9 @@ static void s_refuse_item(broker_t *b, const uint8_t *rid, size_t rid_len, uint3
                           const char *text)
 {
     char hex[BROKER_RID_HEX];
-    LOG_INFO("refused batch %" PRIu64 " of run %s from client %s: %s", batch_tag,
-             run_id ? run_id : "", broker_rid_hex(rid, rid_len, hex), text);
+    if (s_refusal_logged(b, rid, rid_len, code))
+        LOG_INFO("refused batch %" PRIu64 " of run %s from client %s: %s", batch_tag,
+                 run_id ? run_id : "", broker_rid_hex(rid, rid_len, hex), text);
     if (!b->clients)
         return;
     proto_msg_t msg = {.type = PROTO_REFUSED};
@@ -187,10 +238,11 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         /* First, before anything that reads the run: the refusal is the same
          * sentence for every run this key may not use (access.h). */
         char name[COMMON_KEY_FINGERPRINT + 8];
-        LOG_WARN("refused batch %" PRIu64 " of run %s from client %s (%s): %s", s->batch_tag,
-                 s->run_id, broker_rid_hex(rid, rid_len, hex), broker_access_name(who, name),
-                 who ? "the run belongs to another key and is not shared with this one"
-                     : "the message carries no client key");
+        if (s_refusal_logged(b, rid, rid_len, PROTO_REFUSE_NOT_PERMITTED))
+            LOG_WARN("refused batch %" PRIu64 " of run %s from client %s (%s): %s", s->batch_tag,
+                     s->run_id, broker_rid_hex(rid, rid_len, hex), broker_access_name(who, name),
+                     who ? "the run belongs to another key and is not shared with this one"
+                         : "the message carries no client key");
         snprintf(text, sizeof text, BROKER_ACCESS_REFUSAL, s->run_id);
         rc = PROTO_REFUSE_NOT_PERMITTED;
         if (b->clients) {
@@ -569,4 +621,5 @@ void broker_client_flush(broker_t *b)
         s_flush_run(b, run);
     /* Nothing holds a run pointer between turns: idle runs may leave RAM. */
     broker_quota_sweep(b, BROKER_RUN_IDLE_MS, 0);
+    s_refusal_flush(b);
 }
