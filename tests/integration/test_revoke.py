@@ -16,6 +16,7 @@ workers with their own keys, a raw owner connection from hostile_peer).
    owner's new connection (the same 600 requests again) gets all 600
    results, every evaluation with the seed the published derivation gives
    (refs.seed, Python's hashlib, RFC 7693).
+4. A broker started after the key was removed again parks its runs at start.
 """
 import datetime
 import os
@@ -156,4 +157,11 @@ with fflib.Pool(secure=True) as pool:
     db.close()
     bad = [g for g, sd in rows if (sd % (1 << 64)) != refs.seed(99, list(struct.unpack("<d", g)), 0)]
     check.ok(len(rows) == N and not bad, f"every evaluation of rv has the published seed derivation: {len(bad)} differ")
+
+    # 4. A key removed while the broker is down: its runs are parked at start.
+    remove_line(allow_path, " client")
+    pool.kill(pool.broker, sig=signal.SIGTERM)
+    pool.start_broker()
+    check.ok(wait_log(pool, "revocation: 0 client connections cut off (0 unacknowledged results withheld), 1 runs parked"),
+             "a broker started after the key was removed parks its runs")
     check.done(pool)
