@@ -115,6 +115,12 @@ with fflib.Pool(secure=True) as pool:
            or r["fitness"][0] != gs[r["id"]][0]]
     check.ok(not bad, f"every result is the owner's own (seed from hashlib, RFC 7693; sum of the genome): {bad[:3]}")
     check.ok(wait_log(pool, "refused batch 77 of run victim from client"), "the broker logs the refused SUBMITs")
+    # The same through the CLI with the intruder's key: an error, no results, no seed.
+    rc, out, err = fflib.run_eval([pool.client_args()[0], pool.client_args()[1], "--key", pool.key("intruder.secret"),
+                                   "--broker-key", pool.key("broker.public"), "--run", "victim", "--seed", "12345",
+                                   "--plugin", "spin", "--params", SPIN], fflib.jsonl(gs[:3]), timeout=60)
+    check.ok(rc != 0 and not out and "is not available to this client key" in err and "12345" not in err.replace("--seed 12345", ""),
+             f"fitfarm eval with another key's run id fails without a result or the seed: {rc} {len(out)} {err[-300:]}")
     check.ok(wait_log(pool, "ignored ACK of 1001 results of run victim"), "the broker logs the ignored ACK")
 
     # 2. The intruder's ACKs have no effect on requests the owner has not acknowledged.
