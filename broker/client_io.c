@@ -24,7 +24,8 @@
 /* One log line per refusal, except that the same kind of refusal (code) to
  * the same connection again within S_REFUSAL_QUIET_MS is counted, not
  * logged: a flood of refused SUBMITs (100,000 in the memory tests) must not
- * fill the disk with the log. The count is logged with the next line. */
+ * fill the disk with the log. The count is logged with the next line, or
+ * by s_refusal_flush once the window is over. */
 static struct {
     uint8_t rid[BROKER_RID_MAX];
     size_t rid_len;
