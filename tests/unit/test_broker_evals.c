@@ -16,6 +16,7 @@
 #include "broker/client_io.h"
 #include "broker/core.h"
 #include "broker/dispatch.h"
+#include "broker/quota.h"
 #include "broker/worker_io.h"
 
 static broker_t *s_broker(unsigned attempts)
@@ -332,6 +333,52 @@ static void test_owner_and_parking(void **state)
     s_broker_destroy(&b);
 }
 
+/* The caps on runs per key and in all, on queued bytes per run, and an idle
+ * run leaving RAM and coming back from the store with its seed and owner. */
+static void test_caps_and_idle_runs(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker(3);
+    s_worker(b, "w", "spin", 0, 0);
+    double g[3] = {1.0, 2.0, 3.0};
+    b->max_runs_per_key = 2;
+    b->max_runs = 3;
+    s_who = "k1";
+    assert_int_equal(s_submit(b, "c1", "r1", 1, "spin", g, 1, 1, 0), 0);
+    assert_int_equal(s_submit(b, "c1", "r2", 1, "spin", g, 1, 1, 0), 0);
+    assert_int_equal(s_submit(b, "c1", "r3", 1, "spin", g, 1, 1, 0), PROTO_REFUSE_QUEUE_FULL);
+    s_who = "k2";
+    assert_int_equal(s_submit(b, "c2", "r4", 4, "spin", g, 1, 1, 0), 0);
+    assert_int_equal(s_submit(b, "c2", "r5", 1, "spin", g, 1, 1, 0), PROTO_REFUSE_QUEUE_FULL);
+    /* An existing run takes more work; its queued bytes are capped (its own
+     * seed: r1's evaluation of 1.0 under seed 1 would be shared, not charged). */
+    b->max_queued_bytes_per_run = 2 * (sizeof(broker_eval_t) + sizeof(double));
+    assert_int_equal(s_submit(b, "c2", "r4", 4, "spin", &g[1], 1, 2, 0), 0);
+    assert_int_equal(s_submit(b, "c2", "r4", 4, "spin", &g[2], 1, 3, 0), PROTO_REFUSE_QUEUE_FULL);
+    broker_run_t *r4 = broker_runs_get(&b->runs, "r4");
+    assert_int_equal(r4->genome_bytes, 2 * (sizeof(broker_eval_t) + sizeof(double)));
+    assert_int_equal(r4->use->runs, 1);
+    assert_int_equal(r4->use->outstanding, 2);
+    /* A run with nothing in flight leaves RAM and comes back on use. */
+    b->max_runs = 10;
+    assert_int_equal(s_submit(b, "c2", "idle", 77, "spin", g, 0, 1, 0), 0);
+    broker_client_flush(b);
+    b->now_ms = 1000000;
+    broker_quota_sweep(b, 0, 1);
+    assert_null(broker_runs_get(&b->runs, "idle"));
+    assert_non_null(broker_runs_get(&b->runs, "r4")); /* work waiting: stays */
+    broker_run_t *back = broker_quota_find_run(b, "idle");
+    assert_non_null(back);
+    assert_int_equal(back->seed, 77);
+    assert_string_equal(back->owner, "k2");
+    assert_int_equal(back->use->runs, 2);
+    s_who = "k1"; /* still not k1's */
+    assert_int_equal(s_submit(b, "c1", "idle", 77, "spin", g, 0, 1, 0), PROTO_REFUSE_NOT_PERMITTED);
+    assert_true(broker_runs_check(&b->runs));
+    s_who = "local";
+    s_broker_destroy(&b);
+}
+
 static void test_resend_after_reconnect(void **state)
 {
     (void)state;
@@ -370,6 +417,7 @@ int main(void)
         cmocka_unit_test(test_refusals),
         cmocka_unit_test(test_resend_after_reconnect),
         cmocka_unit_test(test_owner_and_parking),
+        cmocka_unit_test(test_caps_and_idle_runs),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
