@@ -72,7 +72,7 @@ with fflib.Pool(secure=True) as pool:
     pool.wait_workers(1)
     base = vm(pool.broker.pid, "VmRSS")
     t0 = time.time()
-    r = peer(pool, "flood.secret", 'runs=100000,atk,spin,{"ms":0}', "listen=20000")
+    r = peer(pool, "flood.secret", 'runs=100000,atk,spin,{"ms":0}', "listen=1000")
     took = time.time() - t0
     _, refused, accepted, _ = listened(r.stdout)
     first = re.search(r"^got REFUSED code=(\d+) text=(.*)$", r.stdout, re.M)

@@ -89,7 +89,7 @@ with fflib.Pool(secure=True) as pool:
 
     # 1. Revoke the owner's key mid-run.
     owner = subprocess.Popen([PEER, "client", pool.clients_ep, pool.key("client.secret"), pool.key("broker.public"),
-                              f"submit=rv,99,0,{N},spin,{SPIN}", "listen=14000"],
+                              f"submit=rv,99,0,{N},spin,{SPIN}", "listen=30000"],
                              stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     deadline = time.time() + 60
     while run_done(pool, "rv") < 60 and time.time() < deadline:

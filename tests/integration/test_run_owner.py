@@ -124,12 +124,12 @@ with fflib.Pool(secure=True) as pool:
     check.ok(wait_log(pool, "ignored ACK of 1001 results of run victim"), "the broker logs the ignored ACK")
 
     # 2. The intruder's ACKs have no effect on requests the owner has not acknowledged.
-    rc, out, _ = peer(pool, "client.secret", f"submit=held,7,0,40,spin,{SPIN}", "listen=4000")
+    rc, out, _ = peer(pool, "client.secret", f"submit=held,7,0,40,spin,{SPIN}", "listen=60000,40")
     check.ok(listened(out)[0] == 40, f"a raw owner gets its 40 results: {out[-300:]}")
     rc, out, _ = peer(pool, "intruder.secret", "ack=held,1,40", "listen=300")
     time.sleep(0.5)
     check.ok(acked(pool, "held") == 0, f"after the intruder's ACK, acknowledged requests of 'held': {acked(pool, 'held')}")
-    rc, out, _ = peer(pool, "client.secret", f"submit=held,7,0,0,spin,{SPIN}", "listen=3000")
+    rc, out, _ = peer(pool, "client.secret", f"submit=held,7,0,0,spin,{SPIN}", "listen=60000,40")
     check.ok(listened(out)[0] == 40, f"the owner's new connection (reconnect) gets all 40 again: {out[-300:]}")
     check.ok(wait_log(pool, "run held taken over by client"), "the reconnect is logged as a takeover")
 
@@ -139,14 +139,10 @@ with fflib.Pool(secure=True) as pool:
     check.ok(r.returncode == 0 and "shared run held" in r.stdout, f"fitfarm share: {r.returncode} {r.stdout} {r.stderr}")
     pool.broker.send_signal(signal.SIGHUP)
     check.ok(wait_log(pool, "runs.share: 1 shares"), "SIGHUP loads the share list")
-    sharer = subprocess.Popen([PEER, "client", pool.clients_ep, pool.key("intruder.secret"), pool.key("broker.public"),
-                               f"submit=held,7,0,0,spin,{SPIN}", "status", "listen=3000", "listen=3000"],
-                              stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
-    time.sleep(2.0)
+    rc, out, err = peer(pool, "intruder.secret", f"submit=held,7,0,0,spin,{SPIN}", "status", "listen=60000,40")
     lines = [l for l in open(os.path.join(pool.keys, "runs.share")).read().splitlines() if l.startswith("#")]
     open(os.path.join(pool.keys, "runs.share"), "w").write("\n".join(lines) + "\n")
     pool.broker.send_signal(signal.SIGHUP)
-    out, err = sharer.communicate(timeout=60)
     check.ok(listened(out)[0] == 40 and not refusals(out), f"the shared key attaches and gets the 40 results: {out[-400:]}")
     st = re.search(r"^got STATUS runs=(.*)$", out, re.M)
     check.ok(st is not None and "held," in st.group(1), f"status lists the shared run: {st and st.group(0)}")
@@ -173,7 +169,7 @@ with fflib.Pool(secure=True) as pool:
     cols = [r[1] for r in db.execute("PRAGMA table_info(runs)")]
     db.close()
     check.ok("owner" in cols, f"the migration adds runs.owner: {cols}")
-    rc, out, _ = peer(pool, "client.secret", f"submit=old,5,0,1,spin,{SPIN}", "listen=3000")
+    rc, out, _ = peer(pool, "client.secret", f"submit=old,5,0,1,spin,{SPIN}", "listen=60000,1")
     check.ok(listened(out)[0] == 1, f"the first key to use an old run gets its result: {out[-300:]}")
     check.ok(wait_log(pool, "run old had no owner recorded"), "the claim is logged")
     rc, out, _ = peer(pool, "intruder.secret", f"submit=old,5,0,0,spin,{SPIN}", "listen=1000")
