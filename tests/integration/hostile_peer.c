@@ -153,8 +153,14 @@ static void s_read_replies(int ms, int quiet)
  * for at most 10 minutes: a flood is over when the broker has judged it all. */
 static void s_await_replies(uint64_t n)
 {
-    for (int i = 0; i < 600 && s_got_accepted + s_got_refused < n; i++)
+    struct timespec t0, t;
+    clock_gettime(CLOCK_MONOTONIC, &t0);
+    while (s_got_accepted + s_got_refused < n) {
+        clock_gettime(CLOCK_MONOTONIC, &t);
+        if (t.tv_sec - t0.tv_sec >= 600)
+            break;
         s_read_replies(1000, 1);
+    }
 }
 
 /* Splits a copy of arg at commas into at most max fields; the last field
