@@ -31,14 +31,20 @@ typedef struct {
     const char *keys_dir; /* folder holding clients.allow and workers.allow */
     int insecure;
     /* Limits against exhaustion; 0 = the default (the proto ceiling, or for
-     * the queue caps BROKER_DEFAULT_QUEUED_PER_RUN / _PER_CLIENT). */
+     * the queue caps BROKER_DEFAULT_QUEUED_* and BROKER_DEFAULT_RUNS*;
+     * quota.h says what each counts). */
     uint32_t max_message_bytes; /* every message on both sockets (ZMQ_MAXMSGSIZE) */
     uint32_t max_genome_bytes;
     uint32_t max_batch;      /* items in one SUBMIT */
     uint32_t max_objectives; /* fitness values in one result */
     uint32_t max_string_bytes; /* run ids, plugin, worker and host names */
     uint64_t max_queued_per_run;    /* accepted, not yet answered, per run */
-    uint64_t max_queued_per_client; /* the same summed over a client connection's runs */
+    uint64_t max_queued_per_client; /* the same summed over a client key's runs */
+    uint64_t max_queued_bytes;          /* queued evaluations' bytes, in all */
+    uint64_t max_queued_bytes_per_key;  /* the same for one client key's runs */
+    uint64_t max_queued_bytes_per_run;  /* the same for one run */
+    uint64_t max_runs;                  /* runs held in RAM, in all */
+    uint64_t max_runs_per_key;          /* the same for one client key */
     /* Memory bounds; 0 = the default below. Results owed to a client past
      * the unacked caps stay in the store and are paged back when it can take
      * them; finished results past the cache caps are dropped from RAM and
@@ -55,6 +61,14 @@ typedef struct {
 #define BROKER_DEFAULT_LOCK_WAIT_MS 10000 /* a killed predecessor ends well within this */
 #define BROKER_DEFAULT_QUEUED_PER_RUN 1000000u
 #define BROKER_DEFAULT_QUEUED_PER_CLIENT 4000000u
+/* Tied to memory (README, "Memory bounds"): a queued evaluation costs its
+ * genome plus its record (sizeof(broker_eval_t), about 250 bytes); a run
+ * held in RAM about 1 KB with nothing in flight. */
+#define BROKER_DEFAULT_QUEUED_BYTES (1024ull * 1024u * 1024u)
+#define BROKER_DEFAULT_QUEUED_BYTES_PER_KEY (512ull * 1024u * 1024u)
+#define BROKER_DEFAULT_QUEUED_BYTES_PER_RUN (256ull * 1024u * 1024u)
+#define BROKER_DEFAULT_RUNS 100000u
+#define BROKER_DEFAULT_RUNS_PER_KEY 20000u
 #define BROKER_DEFAULT_UNACKED_PER_RUN 100000u
 #define BROKER_DEFAULT_UNACKED 1000000u
 #define BROKER_DEFAULT_CACHE_ENTRIES 1000000u

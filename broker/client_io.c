@@ -9,6 +9,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "access.h"
 #include "backlog.h"
 #include "cache.h"
 #include "common/alloc.h"
@@ -17,6 +18,57 @@
 #include "key.h"
 #include "params.h"
 #include "quota.h"
+
+#define S_REFUSAL_QUIET_MS 10000
+
+/* One log line per refusal, except that the same kind of refusal (code) to
+ * the same connection again within S_REFUSAL_QUIET_MS is counted, not
+ * logged: a flood of refused SUBMITs (100,000 in the memory tests) must not
+ * fill the disk with the log. The count is logged with the next line, or
+ * by s_refusal_flush once the window is over. */
+static struct {
+    uint8_t rid[BROKER_RID_MAX];
+    size_t rid_len;
+    uint32_t code;
+    int64_t since_ms;
+    uint64_t quiet;
+} s_last_refusal;
+
+/* 1 if this refusal is to be logged; logs the count of quiet ones first. */
+static int s_refusal_logged(const broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t code)
+{
+    int same = s_last_refusal.rid_len == rid_len && memcmp(s_last_refusal.rid, rid, rid_len) == 0 &&
+               s_last_refusal.code == code;
+    if (same && b->now_ms - s_last_refusal.since_ms < S_REFUSAL_QUIET_MS) {
+        s_last_refusal.quiet++;
+        return 0;
+    }
+    if (s_last_refusal.quiet) {
+        char hex[BROKER_RID_HEX];
+        LOG_INFO("(%" PRIu64 " more refusals with code %u to client %s not logged)",
+                 s_last_refusal.quiet, s_last_refusal.code,
+                 broker_rid_hex(s_last_refusal.rid, s_last_refusal.rid_len, hex));
+    }
+    memcpy(s_last_refusal.rid, rid, rid_len);
+    s_last_refusal.rid_len = rid_len;
+    s_last_refusal.code = code;
+    s_last_refusal.since_ms = b->now_ms;
+    s_last_refusal.quiet = 0;
+    return 1;
+}
+
+/* Once the quiet window is over, the count of refusals not logged goes out
+ * even if no other refusal follows. */
+static void s_refusal_flush(const broker_t *b)
+{
+    if (s_last_refusal.quiet && b->now_ms - s_last_refusal.since_ms >= S_REFUSAL_QUIET_MS) {
+        char hex[BROKER_RID_HEX];
+        LOG_INFO("(%" PRIu64 " more refusals with code %u to client %s not logged)",
+                 s_last_refusal.quiet, s_last_refusal.code,
+                 broker_rid_hex(s_last_refusal.rid, s_last_refusal.rid_len, hex));
+        s_last_refusal.quiet = 0;
+    }
+}
 
 /* Refuses a SUBMIT; item names the one request it is about (NULL: the
  * whole batch), so the client needs no text parsing to name the genome. */
@@ -29,8 +81,9 @@ static void s_refuse_item(broker_t *b, const uint8_t *rid, size_t rid_len, uint3
                           const char *text)
 {
     char hex[BROKER_RID_HEX];
-    LOG_INFO("refused batch %" PRIu64 " of run %s from client %s: %s", batch_tag,
-             run_id ? run_id : "", broker_rid_hex(rid, rid_len, hex), text);
+    if (s_refusal_logged(b, rid, rid_len, code))
+        LOG_INFO("refused batch %" PRIu64 " of run %s from client %s: %s", batch_tag,
+                 run_id ? run_id : "", broker_rid_hex(rid, rid_len, hex), text);
     s_send_refused(b, rid, rid_len, code, batch_tag, run_id, item, text);
 }
 
@@ -169,7 +222,8 @@ static void s_redeliver_fresh(broker_t *b, broker_run_t *run, uint64_t tag, uint
         broker_store_note_unack(b->store, run, tag);
 }
 
-int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const proto_submit_t *s)
+int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const char *who,
+                         const proto_submit_t *s)
 {
     int rc = 0;
     char *canon = NULL, *given = NULL; /* given: as sent, when defaults completed canon */
@@ -240,7 +294,29 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         given = canon; /* kept for requests recorded before defaults were known */
         canon = full;
     }
-    broker_run_t *run = broker_runs_get(&b->runs, s->run_id);
+    broker_run_t *run = broker_quota_find_run(b, s->run_id); /* RAM, else the store */
+    broker_access_t access = run ? broker_access_may_use(b, run, who) : BROKER_ACCESS_OWNER;
+    if (!who || access == BROKER_ACCESS_NO) {
+        /* First, before anything that reads the run: the refusal is the same
+         * sentence for every run this key may not use (access.h). */
+        char name[COMMON_KEY_FINGERPRINT + 8];
+        if (s_refusal_logged(b, rid, rid_len, PROTO_REFUSE_NOT_PERMITTED))
+            LOG_WARN("refused batch %" PRIu64 " of run %s from client %s (%s): %s", s->batch_tag,
+                     s->run_id, broker_rid_hex(rid, rid_len, hex), broker_access_name(who, name),
+                     who ? "the run belongs to another key and is not shared with this one"
+                         : "the message carries no client key");
+        snprintf(text, sizeof text, BROKER_ACCESS_REFUSAL, s->run_id);
+        rc = PROTO_REFUSE_NOT_PERMITTED;
+        if (b->clients) {
+            proto_msg_t msg = {.type = PROTO_REFUSED};
+            msg.u.refused.code = (uint32_t)rc;
+            msg.u.refused.batch_tag = s->batch_tag;
+            msg.u.refused.run_id = s->run_id;
+            msg.u.refused.text = text;
+            broker_envelope_send(b->clients, rid, rid_len, &msg);
+        }
+        goto cleanup;
+    }
     if (run && (run->seed != s->run_seed || run->seed_mode != s->seed_mode)) {
         snprintf(text, sizeof text,
                  "run %s exists with seed %" PRIu64 " and seed mode %u, not seed %" PRIu64
@@ -260,7 +336,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         }
     }
 
-    if (broker_quota_check(b, rid, rid_len, run, s->n_items, text, sizeof text) != 0) {
+    if (broker_quota_check(b, who, run, s, text, sizeof text) != 0) {
         rc = PROTO_REFUSE_QUEUE_FULL;
         s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
         goto cleanup;
@@ -328,20 +404,42 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         }
     }
 
+    char name[COMMON_KEY_FINGERPRINT + 8];
     if (!run) {
-        run = broker_runs_new(&b->runs, s->run_id, s->run_seed, s->seed_mode);
-        LOG_INFO("run %s started by client %s: seed %" PRIu64 ", plugin %s", run->id,
-                 broker_rid_hex(rid, rid_len, hex), run->seed, plugin->name);
-    } else if (run->client_len != rid_len || memcmp(run->client, rid, rid_len) != 0 ||
-               s->n_items == 0) {
-        /* The client came back (new connection) or asks to resume: what it
-         * has not acknowledged goes out again; it drops duplicates by tag. */
-        size_t n = broker_runs_resend(&b->runs, run);
-        if (n)
-            LOG_INFO("run %s resumed by client %s: re-sending %zu unacknowledged results",
-                     run->id, broker_rid_hex(rid, rid_len, hex), n);
+        run = broker_runs_new(&b->runs, s->run_id, s->run_seed, s->seed_mode, who);
+        broker_quota_attach(b, run);
+        LOG_INFO("run %s started by client %s (%s): seed %" PRIu64 ", plugin %s", run->id,
+                 broker_rid_hex(rid, rid_len, hex), broker_access_name(who, name), run->seed,
+                 plugin->name);
+    } else {
+        if (access == BROKER_ACCESS_CLAIM) {
+            broker_quota_detach(b, run);
+            snprintf(run->owner, sizeof run->owner, "%s", who);
+            broker_quota_attach(b, run);
+            LOG_WARN("run %s had no owner recorded (a store from before run ownership): now "
+                     "owned by %s, the first key to use it",
+                     run->id, broker_access_name(who, name));
+        }
+        int other = run->client_len != rid_len || memcmp(run->client, rid, rid_len) != 0;
+        if (other && run->client_len) {
+            char old_hex[BROKER_RID_HEX];
+            LOG_INFO("run %s taken over by client %s (%s%s): a reconnect; the previous "
+                     "connection %s gets nothing more",
+                     run->id, broker_rid_hex(rid, rid_len, hex), broker_access_name(who, name),
+                     access == BROKER_ACCESS_SHARED ? ", shared" : ", its owner",
+                     broker_rid_hex(run->client, run->client_len, old_hex));
+        }
+        if (other || s->n_items == 0) {
+            /* The client came back (new connection) or asks to resume: what
+             * it has not acknowledged goes out again; it drops duplicates by tag. */
+            size_t n = broker_runs_resend(&b->runs, run);
+            if (n)
+                LOG_INFO("run %s resumed by client %s: re-sending %zu unacknowledged results",
+                         run->id, broker_rid_hex(rid, rid_len, hex), n);
+        }
     }
-    broker_run_set_client(run, rid, rid_len);
+    broker_run_set_client(run, rid, rid_len, who);
+    run->last_used_ms = b->now_ms;
     broker_store_note_run(b->store, run);
 
     const char *params = broker_intern(&b->intern, canon);
@@ -357,12 +455,13 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             } else if (e->state == BROKER_EVAL_DONE) {
                 s_redeliver(b, run, it->tag, seeds[i], e, recorded[i] == 2);
             } else if (!s_waits(e, run, it->tag)) {
-                run->outstanding++;
+                broker_run_count_request(run);
                 broker_eval_add_waiter(e, run, it->tag, seeds[i]);
+                broker_runs_adopt(&b->runs, run, e);
             }
             continue;
         }
-        run->outstanding++;
+        broker_run_count_request(run);
         /* A crash or a time-out says more about that night's machine than
          * about the genome: it answered the run that got it (and that run's
          * resume and replay read it again, above), but a new request for
@@ -378,6 +477,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         if (!e) {
             e = broker_evals_new(&b->evals, keys[i], plugin, params, seeds[i], it->genome,
                                  it->genome_len);
+            broker_quota_charge(b, run, e);
             e->timeout_ms = s->timeout_ms;
             e->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
             broker_eval_add_waiter(e, run, it->tag, seeds[i]);
@@ -388,16 +488,19 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
              * "Re-evaluations"); no-cache requests for the key share one. */
             if (!e->again) {
                 broker_eval_t *f = broker_evals_new_fresh(&b->evals, e);
+                broker_quota_charge(b, run, f);
                 f->timeout_ms = s->timeout_ms;
                 f->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
                 broker_eval_add_waiter(f, run, it->tag, seeds[i]);
                 broker_runs_enqueue(&b->runs, run, f, 0);
             } else {
                 broker_eval_add_waiter(e->again, run, it->tag, seeds[i]);
+                broker_runs_adopt(&b->runs, run, e->again);
             }
             e = e->again;
         } else {
             broker_eval_add_waiter(e, run, it->tag, seeds[i]); /* single flight */
+            broker_runs_adopt(&b->runs, run, e);
         }
         broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, 0);
         assert(broker_eval_check(&b->evals, e));
@@ -413,22 +516,36 @@ cleanup:
     return rc;
 }
 
-static void s_on_ack(broker_t *b, const uint8_t *rid, size_t rid_len, const proto_ack_t *a)
+/* An ACK counts only from a key that may use the run; it never moves the
+ * run's stream to this connection (only a SUBMIT does, access.h). */
+static void s_on_ack(broker_t *b, const uint8_t *rid, size_t rid_len, const char *who,
+                     const proto_ack_t *a)
 {
     broker_run_t *run = broker_runs_get(&b->runs, a->run_id);
+    char hex[BROKER_RID_HEX];
     if (!run) {
-        char hex[BROKER_RID_HEX];
         LOG_WARN("ignored ACK for unknown run %s from client %s", a->run_id,
                   broker_rid_hex(rid, rid_len, hex));
         return;
     }
-    broker_run_set_client(run, rid, rid_len);
+    broker_access_t access = broker_access_may_use(b, run, who);
+    if (access == BROKER_ACCESS_NO || access == BROKER_ACCESS_CLAIM) {
+        char name[COMMON_KEY_FINGERPRINT + 8];
+        b->dropped_msgs++;
+        LOG_WARN("ignored ACK of %u results of run %s from client %s (%s): not a run this key "
+                 "may use",
+                 a->n_tags, a->run_id, broker_rid_hex(rid, rid_len, hex),
+                 broker_access_name(who, name));
+        return;
+    }
+    run->last_used_ms = b->now_ms;
     for (uint32_t i = 0; i < a->n_tags; i++)
         if (broker_runs_ack(&b->runs, run, a->tags[i]))
             broker_store_note_ack(b->store, run, a->tags[i]);
 }
 
-static void s_on_status(broker_t *b, const uint8_t *rid, size_t rid_len)
+/* Lists the pool and the runs who may use (no other key's run, access.h). */
+static void s_on_status(broker_t *b, const uint8_t *rid, size_t rid_len, const char *who)
 {
     proto_msg_t msg = {.type = PROTO_STATUS};
     proto_status_t *st = &msg.u.status;
@@ -459,6 +576,9 @@ static void s_on_status(broker_t *b, const uint8_t *rid, size_t rid_len)
     size_t cur = 0;
     broker_run_t *run;
     while (st->n_runs < n_runs && (run = broker_table_next(b->runs.by_id, &cur))) {
+        broker_access_t access = broker_access_may_use(b, run, who);
+        if (access == BROKER_ACCESS_NO || access == BROKER_ACCESS_CLAIM)
+            continue;
         proto_run_info_t *ri = &st->runs[st->n_runs++];
         ri->run_id = run->id;
         ri->queued = run->n_queued;
@@ -490,9 +610,10 @@ static void s_on_status(broker_t *b, const uint8_t *rid, size_t rid_len)
     free(st->warnings);
 }
 
-void broker_client_on_message(broker_t *b, const uint8_t *rid, size_t rid_len, const uint8_t *body,
-                              size_t len)
+void broker_client_on_message(broker_t *b, const uint8_t *rid, size_t rid_len,
+                              const char *user_id, const uint8_t *body, size_t len)
 {
+    const char *who = broker_access_who(b, user_id);
     proto_msg_t *msg = NULL;
     proto_err_t err = {0};
     char hex[BROKER_RID_HEX];
@@ -504,13 +625,13 @@ void broker_client_on_message(broker_t *b, const uint8_t *rid, size_t rid_len, c
     }
     switch (msg->type) {
     case PROTO_SUBMIT:
-        broker_client_submit(b, rid, rid_len, &msg->u.submit);
+        broker_client_submit(b, rid, rid_len, who, &msg->u.submit);
         break;
     case PROTO_ACK:
-        s_on_ack(b, rid, rid_len, &msg->u.ack);
+        s_on_ack(b, rid, rid_len, who, &msg->u.ack);
         break;
     case PROTO_STATUS_REQ:
-        s_on_status(b, rid, rid_len);
+        s_on_status(b, rid, rid_len, who);
         break;
     case PROTO_HEARTBEAT: {
         proto_msg_t hb = {.type = PROTO_HEARTBEAT};
@@ -585,4 +706,7 @@ void broker_client_flush(broker_t *b)
     b->backlog_more = broker_backlog_turn(b);
     while ((run = broker_runs_take_dirty(&b->runs)))
         s_flush_run(b, run);
+    /* Nothing holds a run pointer between turns: idle runs may leave RAM. */
+    broker_quota_sweep(b, BROKER_RUN_IDLE_MS, 0);
+    s_refusal_flush(b);
 }

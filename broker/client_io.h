@@ -11,13 +11,16 @@
 
 #include "core.h"
 
-/* One body from routing id rid on the clients socket. Never fails: bad input
- * is logged and dropped, refusals are answered. */
-void broker_client_on_message(broker_t *b, const uint8_t *rid, size_t rid_len, const uint8_t *body,
-                              size_t len);
-/* Handles a decoded SUBMIT (exposed for unit tests; with b->clients NULL
- * nothing is sent). Returns 0 if accepted, else the proto_refuse_t code. */
-int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len,
+/* One body from routing id rid on the clients socket; user_id is the ZAP
+ * user id ZeroMQ attached to it (the sender's Z85 key; NULL in plaintext).
+ * Never fails: bad input is logged and dropped, refusals are answered. Which
+ * runs the sender may use is access.h's. */
+void broker_client_on_message(broker_t *b, const uint8_t *rid, size_t rid_len,
+                              const char *user_id, const uint8_t *body, size_t len);
+/* Handles a decoded SUBMIT from identity who (broker_access_who; exposed for
+ * unit tests; with b->clients NULL nothing is sent). Returns 0 if accepted,
+ * else the proto_refuse_t code. */
+int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const char *who,
                          const proto_submit_t *s);
 /* Before-sleep, after the store commit: ACCEPTED replies, then RESULTS per
  * run in messages of many results. */

@@ -9,6 +9,7 @@
 #include "backlog.h"
 #include "cache.h"
 #include "common/alloc.h"
+#include "quota.h"
 
 void broker_core_init(broker_t *b, int liveness_ms, int heartbeat_ms, unsigned attempts,
                       const char *store_dir)
@@ -29,6 +30,12 @@ void broker_core_init_config(broker_t *b, const broker_config_t *config)
     b->limits = proto_limits_default();
     b->max_queued_per_run = BROKER_DEFAULT_QUEUED_PER_RUN;
     b->max_queued_per_client = BROKER_DEFAULT_QUEUED_PER_CLIENT;
+    b->max_queued_bytes = BROKER_DEFAULT_QUEUED_BYTES;
+    b->max_queued_bytes_per_key = BROKER_DEFAULT_QUEUED_BYTES_PER_KEY;
+    b->max_queued_bytes_per_run = BROKER_DEFAULT_QUEUED_BYTES_PER_RUN;
+    b->max_runs = BROKER_DEFAULT_RUNS;
+    b->max_runs_per_key = BROKER_DEFAULT_RUNS_PER_KEY;
+    b->key_use = broker_table_new();
     broker_catalog_init(&b->catalog);
     broker_registry_init(&b->registry);
     broker_evals_init(&b->evals);
@@ -57,6 +64,7 @@ void broker_core_fini(broker_t *b)
     /* Registry first: freeing workers decrements catalog carrier counts. */
     broker_registry_fini(&b->registry);
     broker_runs_fini(&b->runs);
+    broker_quota_fini(b);
     broker_evals_fini(&b->evals);
     broker_catalog_fini(&b->catalog);
     broker_intern_fini(&b->intern);

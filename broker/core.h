@@ -25,6 +25,13 @@ struct sqlite3_stmt;
 #define BROKER_RESULTS_PER_MSG 4096  /* results in one RESULTS message */
 #define BROKER_MSG_SOFT_BYTES (16u * 1024u * 1024u) /* stop filling a message past this */
 #define BROKER_HWM 100000
+/* Messages queued from one client connection before ZeroMQ stops reading
+ * it (TCP then holds the sender back). ZeroMQ counts messages, not bytes:
+ * with BROKER_HWM, a client sending large SUBMITs faster than the loop
+ * handled them (a long commit) had the broker buffer them all, 1 GiB and
+ * more; 64 bounds that to 64 messages per connection, while a turn drains
+ * up to BROKER_MSGS_PER_TURN, so small messages never wait on it. */
+#define BROKER_CLIENT_RCVHWM 64
 
 static_assert(BROKER_MSG_SOFT_BYTES + PROTO_MAX_GENOME_BYTES + PROTO_MAX_PARAMS_BYTES <
                   PROTO_MAX_MESSAGE_BYTES,
@@ -68,10 +75,18 @@ typedef struct broker {
     proto_result_t *results;
     /* counters */
     uint64_t jobs_sent, results_sent, dropped_msgs;
-    /* security and limits (zap.h, quota.h); zap NULL in plaintext mode */
+    /* security and limits (zap.h, access.h, quota.h); zap NULL in plaintext mode */
     struct broker_zap *zap;
+    struct common_sharelist *shares; /* runs shared with other keys; NULL = none */
+    char *shares_path;
     proto_limits_t limits;
     uint64_t max_queued_per_run, max_queued_per_client;
+    uint64_t max_queued_bytes, max_queued_bytes_per_key, max_queued_bytes_per_run;
+    uint64_t max_runs, max_runs_per_key;
+    uint64_t queued_bytes;         /* charged over all runs (quota.h) */
+    struct broker_table *key_use;  /* owner text -> broker_keyuse_t */
+    int64_t next_sweep_ms;         /* idle runs leave RAM (quota.h) */
+    uint64_t runs_dropped, runs_reloaded;
     /* prepared statements of cache.c and backlog.c on the store's connection */
     struct sqlite3_stmt *cache_lookup, *backlog_page;
     int backlog_more; /* the backlog could page more at once: do not sleep */

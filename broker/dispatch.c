@@ -1,6 +1,7 @@
 /* dispatch.c: job lifecycle transitions that involve workers (see dispatch.h
  * and the state table in evals.h). Owns no state of its own. */
 #include "dispatch.h"
+#include "quota.h"
 
 #include <assert.h>
 #include <inttypes.h>
@@ -74,6 +75,7 @@ static void s_detach(broker_t *b, broker_eval_t *e)
 void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker_t *w,
                               const proto_outcome_t *o)
 {
+    broker_quota_release(b, e); /* its genome no longer waits (quota.h) */
     broker_provenance_t prov = {.worker = broker_intern(&b->intern, w ? w->name : ""),
                                 .host = broker_intern(&b->intern, w ? w->host : ""),
                                 .cpu_seconds = o->cpu_seconds,

@@ -92,6 +92,9 @@ typedef struct broker_eval {
     broker_plugin_t *plugin; /* borrowed from the catalog */
     const char *params;      /* borrowed, interned (broker_intern) */
     struct broker_run *home; /* run whose queue it is charged to */
+    /* run whose queued-genome budget holds this genome until DONE (quota.h);
+     * a waiter, so it outlives the charge */
+    struct broker_run *charged;
     struct broker_worker *worker;
     struct broker_eval *prev, *next; /* run queue when QUEUED, worker list when RUNNING */
     struct broker_eval *again;  /* cached evaluation: its fresh one in flight, or NULL */

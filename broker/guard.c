@@ -8,6 +8,7 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "access.h"
 #include "common/clock.h"
 #include "common/endpoint.h"
 #include "common/log.h"
@@ -39,6 +40,16 @@ int broker_guard_start(broker_t *b, const broker_config_t *config)
         b->max_queued_per_run = config->max_queued_per_run;
     if (config->max_queued_per_client)
         b->max_queued_per_client = config->max_queued_per_client;
+    if (config->max_queued_bytes)
+        b->max_queued_bytes = config->max_queued_bytes;
+    if (config->max_queued_bytes_per_key)
+        b->max_queued_bytes_per_key = config->max_queued_bytes_per_key;
+    if (config->max_queued_bytes_per_run)
+        b->max_queued_bytes_per_run = config->max_queued_bytes_per_run;
+    if (config->max_runs)
+        b->max_runs = config->max_runs;
+    if (config->max_runs_per_key)
+        b->max_runs_per_key = config->max_runs_per_key;
 
     if (config->insecure) {
         const char *eps[2] = {config->clients_endpoint, config->workers_endpoint};
@@ -65,7 +76,10 @@ int broker_guard_start(broker_t *b, const broker_config_t *config)
         return 0;
     }
     b->zap = broker_zap_new(b->ctx, config->key_file, config->keys_dir);
-    return b->zap ? 0 : -1;
+    if (!b->zap || broker_access_load_shares(b, config->keys_dir, 0) != 0)
+        return -1;
+    broker_access_sweep(b); /* runs of keys removed while the broker was down */
+    return 0;
 }
 
 int broker_guard_socket(broker_t *b, void *router, const char *role)
@@ -132,6 +146,8 @@ void broker_guard_reload(broker_t *b)
     }
     if (broker_zap_reload(b->zap) != 0)
         return;
+    (void)broker_access_load_shares(b, NULL, 1);
+    broker_access_sweep(b); /* before this turn sends anything */
     broker_worker_t *w = b->registry.seen_head;
     while (w) {
         broker_worker_t *next = w->seen_next;
@@ -154,4 +170,5 @@ void broker_guard_reload(broker_t *b)
 void broker_guard_stop(broker_t *b)
 {
     broker_zap_destroy(&b->zap);
+    broker_access_fini(b);
 }

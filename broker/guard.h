@@ -1,8 +1,9 @@
 /* guard.h: the broker's admission policy around its loop: at start, plaintext
  * only by asking and only on local endpoints, else CURVE with keys and
  * allow-lists (zap.h); per message, the sender's key must still be on its
- * role's list; on SIGHUP, the lists reload and registered workers whose key
- * was removed are dropped (their jobs re-queued). Also applies the
+ * role's list; on SIGHUP, the lists and the run share list reload, registered
+ * workers whose key was removed are dropped (their jobs re-queued), and
+ * clients whose key was removed are cut off from their runs (access.h). Also applies the
  * configured limits. Not here: the ZAP protocol itself (zap.c). */
 #ifndef BROKER_GUARD_H
 #define BROKER_GUARD_H

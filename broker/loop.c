@@ -52,7 +52,8 @@ static void *s_bind(broker_t *b, const char *endpoint, const char *role, char *b
     zmq_setsockopt(sock, ZMQ_LINGER, &zero, sizeof zero);
     zmq_setsockopt(sock, ZMQ_MAXMSGSIZE, &maxmsg, sizeof maxmsg);
     zmq_setsockopt(sock, ZMQ_SNDHWM, &hwm, sizeof hwm);
-    zmq_setsockopt(sock, ZMQ_RCVHWM, &hwm, sizeof hwm);
+    int rcvhwm = strcmp(role, "clients") == 0 ? BROKER_CLIENT_RCVHWM : hwm;
+    zmq_setsockopt(sock, ZMQ_RCVHWM, &rcvhwm, sizeof rcvhwm);
     if (broker_guard_socket(b, sock, role) != 0) {
         zmq_close(sock);
         return NULL;
@@ -108,7 +109,8 @@ static void s_drain(broker_t *b, void *sock, int workers)
             broker_worker_on_message(b, rid, rid_len, data, len);
             broker_guard_note_worker(b, rid, rid_len, &body);
         } else {
-            broker_client_on_message(b, rid, rid_len, data, len);
+            broker_client_on_message(b, rid, rid_len,
+                                     b->zap ? zmq_msg_gets(&body, "User-Id") : NULL, data, len);
         }
         zmq_msg_close(&body);
     }

@@ -55,8 +55,17 @@ static void s_usage(FILE *out)
             "  --max-objectives N    cap on fitness values in one result (default 64)\n"
             "  --max-string-bytes N  cap on run ids and names (default 128)\n"
             "  --max-queued-per-run N     requests waiting per run (default 1000000)\n"
-            "  --max-queued-per-client N  requests waiting per client (default 4000000)\n"
+            "  --max-queued-per-key N     requests waiting per client key, over its runs\n"
+            "                        (default 4000000; --max-queued-per-client is the same)\n"
+            "  --max-queued-bytes-per-run N  bytes of queued evaluations (genomes plus\n"
+            "                        about 250 bytes each) per run (default 268435456)\n"
+            "  --max-queued-bytes-per-key N  the same per client key (default 536870912)\n"
+            "  --max-queued-bytes N  the same in all (default 1073741824)\n"
             "                        past a cap a batch is refused with \"queue full\"\n"
+            "  --max-runs-per-key N  runs held in RAM per client key (default 20000); an\n"
+            "                        idle run leaves RAM 60 s after its last use\n"
+            "  --max-runs N          the same in all (default 100000); past either a new run\n"
+            "                        is refused with \"too many runs\"\n"
             "  --max-unacked-per-run N    results held in RAM for a run's client until it\n"
             "                        acknowledges (default 100000); past it they wait in\n"
             "                        the store and are read back as the client catches up\n"
@@ -105,8 +114,22 @@ static int s_limit(const char *a, const char *v, broker_config_t *cfg)
         cfg->max_string_bytes = (uint32_t)n;
     else if (strcmp(a, "--max-queued-per-run") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
         cfg->max_queued_per_run = (uint64_t)n;
-    else if (strcmp(a, "--max-queued-per-client") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
+    else if ((strcmp(a, "--max-queued-per-client") == 0 ||
+              strcmp(a, "--max-queued-per-key") == 0) &&
+             s_parse_int(v, 1, LONG_MAX, &n) == 0)
         cfg->max_queued_per_client = (uint64_t)n;
+    else if (strcmp(a, "--max-queued-bytes-per-run") == 0 &&
+             s_parse_int(v, 1, LONG_MAX, &n) == 0)
+        cfg->max_queued_bytes_per_run = (uint64_t)n;
+    else if (strcmp(a, "--max-queued-bytes-per-key") == 0 &&
+             s_parse_int(v, 1, LONG_MAX, &n) == 0)
+        cfg->max_queued_bytes_per_key = (uint64_t)n;
+    else if (strcmp(a, "--max-queued-bytes") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
+        cfg->max_queued_bytes = (uint64_t)n;
+    else if (strcmp(a, "--max-runs-per-key") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
+        cfg->max_runs_per_key = (uint64_t)n;
+    else if (strcmp(a, "--max-runs") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
+        cfg->max_runs = (uint64_t)n;
     else if (strcmp(a, "--max-unacked-per-run") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
         cfg->max_unacked_per_run = (uint64_t)n;
     else if (strcmp(a, "--max-unacked") == 0 && s_parse_int(v, 1, LONG_MAX, &n) == 0)
@@ -146,6 +169,8 @@ int main(int argc, char **argv)
             "--max-batch",        "--max-objectives",   "--max-string-bytes",
             "--max-queued-per-run", "--max-queued-per-client", "--max-unacked-per-run",
             "--max-unacked",      "--cache-entries",    "--cache-mb",
+            "--max-queued-per-key", "--max-queued-bytes-per-run", "--max-queued-bytes-per-key",
+            "--max-queued-bytes", "--max-runs-per-key", "--max-runs",
             "--lock-wait",        "--lifeline-fd"};
         int known = 0;
         for (size_t k = 0; k < sizeof with_value / sizeof *with_value; k++)

@@ -7,6 +7,7 @@
 
 #include <assert.h>
 #include <inttypes.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -37,24 +38,46 @@ static void s_delivery_free(broker_delivery_t *d)
     d->error = NULL;
 }
 
+static void s_run_free(broker_run_t *run)
+{
+    size_t c2 = 0;
+    broker_delivery_t *d;
+    while ((d = broker_table_next(run->unacked, &c2))) {
+        s_delivery_free(d);
+        free(d);
+    }
+    broker_table_destroy(&run->unacked);
+    for (uint32_t i = 0; i < run->n_outbox; i++)
+        s_delivery_free(&run->outbox[i]);
+    free(run->outbox);
+    free(run->queues);
+    free(run->id);
+    free(run);
+}
+
+int broker_runs_idle(const broker_run_t *run)
+{
+    return run->outstanding == 0 && run->n_queued == 0 && run->n_running == 0 &&
+           run->n_outbox == 0 && broker_table_size(run->unacked) == 0 && !run->in_spill &&
+           !run->spill_linked && !run->dirty && !run->parked && !run->in_rr &&
+           run->genome_bytes == 0;
+}
+
+void broker_runs_drop(broker_runs_t *self, broker_run_t *run)
+{
+    assert(broker_runs_idle(run));
+    broker_run_t *gone = broker_table_delete(self->by_id, run->id, strlen(run->id));
+    assert(gone == run);
+    (void)gone;
+    s_run_free(run);
+}
+
 void broker_runs_fini(broker_runs_t *self)
 {
     size_t cur = 0;
     broker_run_t *run;
     while ((run = broker_table_next(self->by_id, &cur))) {
-        size_t c2 = 0;
-        broker_delivery_t *d;
-        while ((d = broker_table_next(run->unacked, &c2))) {
-            s_delivery_free(d);
-            free(d);
-        }
-        broker_table_destroy(&run->unacked);
-        for (uint32_t i = 0; i < run->n_outbox; i++)
-            s_delivery_free(&run->outbox[i]);
-        free(run->outbox);
-        free(run->queues);
-        free(run->id);
-        free(run);
+        s_run_free(run);
     }
     broker_table_destroy(&self->by_id);
     while (self->free_nodes) {
@@ -71,23 +94,26 @@ broker_run_t *broker_runs_get(const broker_runs_t *self, const char *id)
 }
 
 broker_run_t *broker_runs_new(broker_runs_t *self, const char *id, uint64_t seed,
-                              uint32_t seed_mode)
+                              uint32_t seed_mode, const char *owner)
 {
     assert(!broker_runs_get(self, id));
     broker_run_t *run = common_xcalloc(1, sizeof *run);
     run->id = common_xstrdup(id);
     run->seed = seed;
     run->seed_mode = seed_mode;
+    snprintf(run->owner, sizeof run->owner, "%s", owner ? owner : "");
     run->unacked = broker_table_new();
     broker_table_put(self->by_id, run->id, strlen(run->id), run);
     return run;
 }
 
-void broker_run_set_client(broker_run_t *run, const uint8_t *rid, size_t rid_len)
+void broker_run_set_client(broker_run_t *run, const uint8_t *rid, size_t rid_len,
+                           const char *key)
 {
     assert(rid_len <= BROKER_RID_MAX);
     memcpy(run->client, rid, rid_len);
     run->client_len = (uint8_t)rid_len;
+    snprintf(run->client_key, sizeof run->client_key, "%s", key ? key : "");
 }
 
 /* ---- the ring of runs with queued work ---------------------------------- */
@@ -144,9 +170,25 @@ static broker_queue_t *s_queue(broker_run_t *run, broker_plugin_t *plugin, int c
     return q;
 }
 
+/* A run other than run, not parked, that waits for e; NULL if none. */
+static broker_run_t *s_unparked_waiter(broker_eval_t *e, const broker_run_t *run)
+{
+    for (uint32_t i = 0; i < e->n_waiters; i++) {
+        broker_run_t *r = broker_eval_waiter(e, i)->run;
+        if (r != run && !r->parked)
+            return r;
+    }
+    return NULL;
+}
+
 void broker_runs_enqueue(broker_runs_t *self, broker_run_t *run, broker_eval_t *e, int front)
 {
     assert(e->state == BROKER_EVAL_QUEUED && e->prev == NULL && e->next == NULL);
+    if (run->parked) {
+        broker_run_t *to = s_unparked_waiter(e, run);
+        if (to)
+            run = to;
+    }
     broker_queue_t *q = s_queue(run, e->plugin, 1);
     e->home = run;
     if (front) {
@@ -168,7 +210,47 @@ void broker_runs_enqueue(broker_runs_t *self, broker_run_t *run, broker_eval_t *
     }
     run->n_queued++;
     self->total_queued++;
-    s_ring_insert(self, run);
+    if (!run->parked)
+        s_ring_insert(self, run);
+}
+
+uint64_t broker_runs_park(broker_runs_t *self, broker_run_t *run)
+{
+    if (run->parked)
+        return 0;
+    run->parked = 1;
+    for (uint32_t i = 0; i < run->n_queues; i++) {
+        broker_eval_t *e = run->queues[i].head;
+        while (e) {
+            broker_eval_t *next = e->next;
+            broker_run_t *to = s_unparked_waiter(e, run);
+            if (to) {
+                broker_runs_unqueue(self, e);
+                broker_runs_enqueue(self, to, e, 0);
+            }
+            e = next;
+        }
+    }
+    s_ring_remove(self, run);
+    return run->n_queued;
+}
+
+uint64_t broker_runs_unpark(broker_runs_t *self, broker_run_t *run)
+{
+    if (!run->parked)
+        return 0;
+    run->parked = 0;
+    if (run->n_queued)
+        s_ring_insert(self, run);
+    return run->n_queued;
+}
+
+void broker_runs_adopt(broker_runs_t *self, broker_run_t *run, broker_eval_t *e)
+{
+    if (e->state != BROKER_EVAL_QUEUED || !e->home || !e->home->parked || run->parked)
+        return;
+    broker_runs_unqueue(self, e);
+    broker_runs_enqueue(self, run, e, 0);
 }
 
 void broker_runs_unqueue(broker_runs_t *self, broker_eval_t *e)
@@ -294,7 +376,7 @@ static int s_outbox_push(broker_runs_t *self, broker_run_t *run, const broker_de
         return 0;
     }
     if (run->n_outbox == run->cap_outbox) {
-        run->cap_outbox = run->cap_outbox ? run->cap_outbox * 2 : 64;
+        run->cap_outbox = run->cap_outbox ? run->cap_outbox * 2 : 8;
         run->outbox = common_xrealloc(run->outbox, run->cap_outbox, sizeof *run->outbox);
     }
     broker_delivery_t *d = &run->outbox[run->n_outbox++];
@@ -358,6 +440,10 @@ void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, ui
     }
     assert(run->outstanding > 0);
     run->outstanding--;
+    if (run->use) {
+        assert(run->use->outstanding > 0);
+        run->use->outstanding--;
+    }
     if (run->outstanding == 0) {
         LOG_INFO("run %s idle: %" PRIu64 " requests answered (%" PRIu64 " evaluated, %" PRIu64
                  " cached, %" PRIu64 " failed)",
@@ -443,6 +529,11 @@ void broker_runs_sent(broker_runs_t *self, broker_run_t *run)
         broker_table_put(run->unacked, &d->tag, sizeof d->tag, d);
     }
     run->n_outbox = 0;
+    /* The array goes too: kept, it cost every run that ever got a result
+     * about 5 KB for good (64 entries), most of a run's RAM. */
+    free(run->outbox);
+    run->outbox = NULL;
+    run->cap_outbox = 0;
 }
 
 int broker_runs_ack(broker_runs_t *self, broker_run_t *run, uint64_t tag)
@@ -488,7 +579,8 @@ int broker_runs_check(const broker_runs_t *self)
                     return 0;
                 in_queues++;
             }
-        if (in_queues != run->n_queued || (run->n_queued > 0) != (run->in_rr != 0))
+        if (in_queues != run->n_queued ||
+            (run->n_queued > 0 && !run->parked) != (run->in_rr != 0))
             return 0;
         queued += in_queues;
     }

@@ -1,5 +1,6 @@
-/* runs.h: runs by id, each with its seed and seed mode, the client routing id
- * that last spoke for it, one FIFO of queued evaluations per plugin, its
+/* runs.h: runs by id, each with its seed and seed mode, its owner (the
+ * client key that created it, access.h), the client routing id and key of
+ * the one connection that speaks for it, one FIFO of queued evaluations per plugin, its
  * counters, the results waiting to be sent this turn (outbox) and the results
  * sent but not yet acknowledged (unacked, re-sent when the client comes back).
  *
@@ -13,7 +14,13 @@
  * Fair share: the runs that have queued work form a ring; broker_runs_pick
  * serves them round-robin, one job per run per step, so one large run cannot
  * starve a small one. Dispatch is O(1) per job (O(plugins in the run) to pick
- * the oldest job the worker can take). Not here: sending, evaluation states
+ * the oldest job the worker can take).
+ *
+ * Parking: a parked run (its owner's key was removed from clients.allow,
+ * access.h) keeps its queued evaluations but is left out of the ring, so no
+ * worker gets them until it is unparked; a queued evaluation that another,
+ * unparked run also waits for moves to that run's queue (single flight never
+ * lets one run's revocation starve another). Not here: sending, evaluation states
  * (evals.h), workers (registry.h). */
 #ifndef BROKER_RUNS_H
 #define BROKER_RUNS_H
@@ -46,12 +53,32 @@ typedef struct broker_delivery {
     struct broker_delivery *free_next;
 } broker_delivery_t;
 
+#define BROKER_KEY_TEXT 41 /* a Z85 public key (40 characters) and NUL */
+
+/* What one owner's runs hold in RAM, for the caps per key (quota.h). */
+typedef struct broker_keyuse {
+    char owner[BROKER_KEY_TEXT];
+    uint64_t runs;         /* its runs held in RAM */
+    uint64_t outstanding;  /* their accepted requests not yet answered */
+    uint64_t genome_bytes; /* genome bytes of their QUEUED and RUNNING evaluations */
+} broker_keyuse_t;
+
 typedef struct broker_run {
     char *id;
     uint64_t seed;
     uint32_t seed_mode;
+    /* The client key that created the run (Z85, or access.h's plaintext
+     * identity); "" = not recorded (a store from before ownership). */
+    char owner[BROKER_KEY_TEXT];
+    /* The one connection that speaks for the run (client_len 0: none) and the
+     * key it authenticated with (the owner's, or a key the run is shared with). */
     uint8_t client[BROKER_RID_MAX];
     uint8_t client_len;
+    char client_key[BROKER_KEY_TEXT];
+    int parked;
+    broker_keyuse_t *use;  /* its owner's totals (quota.h); NULL until attached */
+    uint64_t genome_bytes; /* genomes it holds queued (quota.h) */
+    int64_t last_used_ms;  /* last SUBMIT or ACK: idle runs leave RAM after a while */
     broker_queue_t *queues;
     uint32_t n_queues;
     uint64_t n_queued, n_running, n_answered;
@@ -100,13 +127,40 @@ void broker_runs_fini(broker_runs_t *self);
 
 /* Borrowed, valid until fini; NULL if unknown. */
 broker_run_t *broker_runs_get(const broker_runs_t *self, const char *id);
-/* New run (id must be unknown). Borrowed, valid until fini. */
+/* New run (id must be unknown) owned by owner (NULL or "": not recorded).
+ * Borrowed, valid until fini. */
 broker_run_t *broker_runs_new(broker_runs_t *self, const char *id, uint64_t seed,
-                              uint32_t seed_mode);
-void broker_run_set_client(broker_run_t *run, const uint8_t *rid, size_t rid_len);
+                              uint32_t seed_mode, const char *owner);
+/* The connection rid (authenticated as key, NULL = none) speaks for run now. */
+void broker_run_set_client(broker_run_t *run, const uint8_t *rid, size_t rid_len,
+                           const char *key);
+/* One more accepted request waits in run (and in its owner's total). */
+static inline void broker_run_count_request(broker_run_t *run)
+{
+    run->outstanding++;
+    if (run->use)
+        run->use->outstanding++;
+}
+/* 1 when run holds nothing that needs it in RAM: no request waiting, no
+ * result to send or acknowledge, none owed from the store, not parked. Such
+ * a run can be dropped (broker_runs_drop) and rebuilt from the store on its
+ * next use. */
+int broker_runs_idle(const broker_run_t *run);
+/* Removes idle run from RAM and frees it (the store keeps it). */
+void broker_runs_drop(broker_runs_t *self, broker_run_t *run);
+
+/* Parks run (see the top); returns how many queued evaluations stay parked
+ * with it. 0 and no change when it is parked already. */
+uint64_t broker_runs_park(broker_runs_t *self, broker_run_t *run);
+/* Unparks run; returns how many queued evaluations it brings back. */
+uint64_t broker_runs_unpark(broker_runs_t *self, broker_run_t *run);
+/* run now waits for QUEUED e too: if e's home is parked and run is not, e
+ * moves to run's queue. */
+void broker_runs_adopt(broker_runs_t *self, broker_run_t *run, broker_eval_t *e);
 
 /* Puts QUEUED e in run's queue for e->plugin, at the back (new work) or the
- * front (re-queued work keeps its place ahead of newer jobs). Sets e->home. */
+ * front (re-queued work keeps its place ahead of newer jobs). Sets e->home.
+ * A parked run hands e to an unparked run that waits for it, if any. */
 void broker_runs_enqueue(broker_runs_t *self, broker_run_t *run, broker_eval_t *e, int front);
 /* Takes QUEUED e out of its home run's queue. */
 void broker_runs_unqueue(broker_runs_t *self, broker_eval_t *e);

@@ -55,7 +55,7 @@ static const char s_schema[] =
     "CREATE TABLE IF NOT EXISTS meta(name TEXT PRIMARY KEY, value TEXT NOT NULL);"
     "CREATE TABLE IF NOT EXISTS runs("
     " run_id TEXT PRIMARY KEY, seed INTEGER NOT NULL, seed_mode INTEGER NOT NULL,"
-    " created REAL NOT NULL, last_activity REAL NOT NULL);"
+    " created REAL NOT NULL, last_activity REAL NOT NULL, owner TEXT);"
     "CREATE TABLE IF NOT EXISTS evaluations("
     " key BLOB PRIMARY KEY, plugin TEXT NOT NULL, version TEXT NOT NULL,"
     " params TEXT NOT NULL, genome BLOB NOT NULL, seed INTEGER NOT NULL,"
@@ -94,15 +94,16 @@ enum {
     S_ACK,
     S_UNACK,
     S_PLUGIN,
+    S_FIND_RUN,
     S_COUNT_
 };
 
 static const char *const s_sql[S_COUNT_] = {
     [S_BEGIN] = "BEGIN",
     [S_COMMIT] = "COMMIT",
-    [S_RUN] = "INSERT INTO runs(run_id, seed, seed_mode, created, last_activity)"
-              " VALUES(?1, ?2, ?3, ?4, ?4)"
-              " ON CONFLICT(run_id) DO UPDATE SET last_activity = ?4",
+    [S_RUN] = "INSERT INTO runs(run_id, seed, seed_mode, created, last_activity, owner)"
+              " VALUES(?1, ?2, ?3, ?4, ?4, ?5)"
+              " ON CONFLICT(run_id) DO UPDATE SET last_activity = ?4, owner = ?5",
     [S_EVAL] = "INSERT OR IGNORE INTO evaluations(key, plugin, version, params, genome, seed,"
                " timeout_ms, max_attempts, created) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
     [S_HISTORY] = "INSERT INTO results(key, run_id, fresh, status, status_name, fitness,"
@@ -125,6 +126,7 @@ static const char *const s_sql[S_COUNT_] = {
                  " ON CONFLICT(name) DO UPDATE"
                  " SET version = ?2, objectives = ?3, flags = ?4, digests = ?5, last_seen = ?6,"
                  " seed_params = ?7, param_defaults = ?8",
+    [S_FIND_RUN] = "SELECT seed, seed_mode, owner FROM runs WHERE run_id = ?1",
 };
 
 /* Retry pacing while the store cannot write: the first retry soon (a
@@ -297,6 +299,12 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
     if (sqlite3_exec(self->db, "SELECT param_defaults FROM plugins LIMIT 0", NULL, NULL, NULL) !=
             SQLITE_OK &&
         s_exec(self, "ALTER TABLE plugins ADD COLUMN param_defaults TEXT") != 0)
+        goto fail;
+    /* Stores made before runs had owners lack runs.owner (NULL there means
+     * "not recorded": access.h says who may claim such a run). */
+    if (sqlite3_exec(self->db, "SELECT owner FROM runs LIMIT 0", NULL, NULL, NULL) !=
+            SQLITE_OK &&
+        s_exec(self, "ALTER TABLE runs ADD COLUMN owner TEXT") != 0)
         goto fail;
     for (int i = 0; i < S_COUNT_; i++) {
         if (sqlite3_prepare_v3(self->db, s_sql[i], -1, SQLITE_PREPARE_PERSISTENT, &self->stmt[i],
@@ -474,6 +482,7 @@ void broker_store_note_run(broker_store_t *self, const broker_run_t *run)
     s_u64(self, i, 2, run->seed);
     s_int(self, i, 3, run->seed_mode);
     s_real(self, i, 4, s_now());
+    s_text(self, i, 5, run->owner[0] ? run->owner : NULL);
     s_write(self, i);
 }
 
@@ -506,6 +515,25 @@ void broker_store_note_request(broker_store_t *self, const broker_run_t *run, ui
     s_real(self, i, 7, s_now());
     s_int(self, i, 8, e->fresh != 0);
     s_write(self, i);
+}
+
+int broker_store_find_run(broker_store_t *self, const char *run_id, uint64_t *seed,
+                          uint32_t *seed_mode, char *owner, size_t owner_len)
+{
+    sqlite3_stmt *st = self->stmt[S_FIND_RUN];
+    sqlite3_bind_text(st, 1, run_id, -1, SQLITE_STATIC);
+    int found = 0;
+    if (sqlite3_step(st) == SQLITE_ROW) {
+        const char *o = (const char *)sqlite3_column_text(st, 2);
+        *seed = (uint64_t)sqlite3_column_int64(st, 0);
+        *seed_mode = (uint32_t)sqlite3_column_int(st, 1);
+        /* An owner the broker did not write (too long, empty) matches no key. */
+        snprintf(owner, owner_len, "%s", !o ? "" : (!*o || strlen(o) >= owner_len) ? "?" : o);
+        found = 1;
+    }
+    sqlite3_reset(st);
+    sqlite3_clear_bindings(st);
+    return found;
 }
 
 int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t tag,

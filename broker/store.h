@@ -22,6 +22,7 @@
 #ifndef BROKER_STORE_H
 #define BROKER_STORE_H
 
+#include <stddef.h>
 #include <stdint.h>
 
 #include "evals.h"
@@ -56,6 +57,10 @@ void broker_store_note_eval(broker_store_t *self, const broker_eval_t *e);
 void broker_store_note_request(broker_store_t *self, const broker_run_t *run, uint64_t tag,
                                uint64_t batch_tag, uint32_t replicate, const broker_eval_t *e,
                                int cached);
+/* Looks up run_id (a run that left RAM, quota.h). Returns 1 and fills
+ * *seed, *seed_mode and owner ("" = not recorded) when the store has it, else 0. */
+int broker_store_find_run(broker_store_t *self, const char *run_id, uint64_t *seed,
+                          uint32_t *seed_mode, char *owner, size_t owner_len);
 /* Looks up request (run_id, tag). Returns 1 and fills key, *cached and *fresh
  * (1: a no-cache request) when it is recorded, 0 when not. */
 int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t tag,

@@ -17,6 +17,7 @@
 #include "common/log.h"
 #include "params.h"
 #include "core.h"
+#include "quota.h"
 
 static const char *s_path;
 
@@ -134,15 +135,29 @@ static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
 static int s_load_runs(broker_t *b, sqlite3 *db, uint32_t *n)
 {
     sqlite3_stmt *st = NULL;
-    if (sqlite3_prepare_v2(db, "SELECT run_id, seed, seed_mode FROM runs", -1, &st, NULL) !=
-        SQLITE_OK)
+    /* Only runs with a request not acknowledged (waiting, or answered and
+     * owed): the others come back from the store on their next SUBMIT (quota.h). */
+    if (sqlite3_prepare_v2(db,
+                           "SELECT run_id, seed, seed_mode, owner FROM runs WHERE run_id IN"
+                           " (SELECT DISTINCT run_id FROM requests WHERE acked = 0)",
+                           -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "runs");
     int rc;
     while ((rc = sqlite3_step(st)) == SQLITE_ROW) {
         const char *id = (const char *)sqlite3_column_text(st, 0);
+        const char *owner = (const char *)sqlite3_column_text(st, 3);
         if (!id || broker_runs_get(&b->runs, id))
             continue;
-        broker_runs_new(&b->runs, id, s_u64(st, 1), (uint32_t)sqlite3_column_int(st, 2));
+        if (owner && (!*owner || strlen(owner) >= BROKER_KEY_TEXT)) {
+            /* Not an identity the broker writes: nobody may claim it. */
+            LOG_WARN("store: run %s has an unreadable owner %.48s; no key may use it until "
+                     "it is shared (runs.share)", id, owner);
+            owner = "?";
+        }
+        broker_run_t *run = broker_runs_new(&b->runs, id, s_u64(st, 1),
+                                            (uint32_t)sqlite3_column_int(st, 2), owner);
+        run->last_used_ms = b->now_ms;
+        broker_quota_attach(b, run);
         (*n)++;
     }
     return s_end(db, st, rc, "runs");
@@ -213,9 +228,10 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
         uint32_t replicate = (uint32_t)sqlite3_column_int64(st, 11);
         broker_eval_add_waiter(e, run, tag,
                                broker_run_request_seed(run, e->genome, e->genome_len, replicate));
-        run->outstanding++;
+        broker_run_count_request(run);
         if (!e->home) {
             broker_runs_enqueue(&b->runs, run, e, 0);
+            broker_quota_charge(b, run, e);
             (*pending)++;
         }
     }
@@ -262,9 +278,10 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
         uint32_t replicate = (uint32_t)sqlite3_column_int64(st, 8);
         broker_eval_add_waiter(f, run, tag,
                                broker_run_request_seed(run, f->genome, f->genome_len, replicate));
-        run->outstanding++;
+        broker_run_count_request(run);
         if (!f->home) {
             broker_runs_enqueue(&b->runs, run, f, 0);
+            broker_quota_charge(b, run, f);
             (*pending)++;
         }
     }
@@ -282,9 +299,9 @@ int broker_store_load(broker_t *b)
         broker_backlog_load(b) != 0)
         return -1;
     if (n_runs || n_plugins)
-        LOG_INFO("store loaded: %u plugins, %u runs, %" PRIu64
-                 " pending evaluations queued again (finished results stay in the store and "
-                 "are read when asked for)",
+        LOG_INFO("store loaded: %u plugins, %u runs with unacknowledged requests, %" PRIu64
+                 " pending evaluations queued again (finished results and other runs stay in "
+                 "the store and are read when asked for)",
                  n_plugins, n_runs, n_pending);
     return 0;
 }

@@ -78,6 +78,7 @@ typedef enum {
     PROTO_REFUSE_SHUTTING_DOWN = 6,
     PROTO_REFUSE_RUN_MISMATCH = 7,  /* run exists with another seed or seed mode */
     PROTO_REFUSE_STORE = 8,         /* the broker's store cannot write (text says why) */
+    PROTO_REFUSE_NOT_PERMITTED = 9, /* the run belongs to another client key */
 } proto_refuse_t;
 
 /* ---- client -> broker -------------------------------------------------- */

@@ -9,6 +9,7 @@ int cli_cmd_eval(int argc, char **argv);   /* cmd_eval.c */
 int cli_cmd_status(int argc, char **argv); /* cmd_status.c */
 int cli_cmd_keygen(int argc, char **argv); /* cmd_keygen.c: a CURVE key pair in two files */
 int cli_cmd_allow(int argc, char **argv);  /* cmd_allow.c: admit a key to a broker allow-list */
+int cli_cmd_share(int argc, char **argv);  /* cmd_share.c: let another key use a run */
 int cli_cmd_sim(int argc, char **argv);    /* cmd_sim.c: one evaluation in-process, optional trace */
 int cli_cmd_runs(int argc, char **argv);   /* cmd_runs.c: the runs a store holds */
 int cli_cmd_export(int argc, char **argv); /* cmd_runs.c: one run's requests and results */

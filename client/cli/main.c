@@ -18,6 +18,7 @@ static const char s_usage[] =
     "  verify    re-simulate a stored run on a pool and report every bit that differs\n"
     "  keygen    make a CURVE key pair (NAME.public, NAME.secret)\n"
     "  allow     admit a public key to a broker's clients or workers allow-list\n"
+    "  share     let another client key use a run (the broker's runs.share)\n"
 #ifdef FITFARM_HAVE_SIM
     "  sim       run one evaluation in this process, optionally with a trace\n"
 #endif
@@ -58,6 +59,8 @@ int main(int argc, char **argv)
         return cli_cmd_keygen(argc - 1, argv + 1);
     if (strcmp(cmd, "allow") == 0)
         return cli_cmd_allow(argc - 1, argv + 1);
+    if (strcmp(cmd, "share") == 0)
+        return cli_cmd_share(argc - 1, argv + 1);
 #ifdef FITFARM_HAVE_SIM
     if (strcmp(cmd, "sim") == 0)
         return cli_cmd_sim(argc - 1, argv + 1);

@@ -604,6 +604,10 @@ static int s_refusal(fitfarm_run_t *run, const fitfarm_batch_t *b, const client_
         code = FITFARM_EREFUSED;
         snprintf(buf, len, "the broker refused the params of plugin \"%s\": %s", b->plugin, text);
         break;
+    case PROTO_REFUSE_NOT_PERMITTED:
+        code = FITFARM_EREFUSED;
+        snprintf(buf, len, "%s", text);
+        break;
     case PROTO_REFUSE_RUN_MISMATCH:
         code = FITFARM_EREFUSED;
         snprintf(buf, len, "run \"%s\" does not match what the broker recorded for it: %s%s",

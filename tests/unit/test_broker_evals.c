@@ -16,6 +16,7 @@
 #include "broker/client_io.h"
 #include "broker/core.h"
 #include "broker/dispatch.h"
+#include "broker/quota.h"
 #include "broker/worker_io.h"
 
 static broker_t *s_broker(unsigned attempts)
@@ -51,6 +52,8 @@ static broker_worker_t *s_worker(broker_t *b, const char *rid, const char *plugi
     return w;
 }
 
+static const char *s_who = "local"; /* the sender's identity (access.h) */
+
 /* Submits n items; item i carries genome value genomes[i] (one f64) and tag
  * tag0 + i. Returns the refusal code or 0. */
 static int s_submit(broker_t *b, const char *client, const char *run_id, uint64_t seed,
@@ -73,7 +76,7 @@ static int s_submit(broker_t *b, const char *client, const char *run_id, uint64_
                         .params = (char *)"{}",
                         .n_items = n,
                         .items = items};
-    int rc = broker_client_submit(b, (const uint8_t *)client, strlen(client), &s);
+    int rc = broker_client_submit(b, (const uint8_t *)client, strlen(client), s_who, &s);
     free(items);
     return rc;
 }
@@ -291,6 +294,91 @@ static void test_refusals(void **state)
     s_broker_destroy(&b);
 }
 
+/* A run is its owner's: another identity is refused whatever it sends (the
+ * right seed, a wrong one, 0 items), and the owner's stream stays where it
+ * was. A parked run's job moves to an unparked run that waits for it too. */
+static void test_owner_and_parking(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker(3);
+    broker_worker_t *w = s_worker(b, "w", "spin", 1, 0);
+    double g[2] = {1.0, 2.0};
+    s_who = "owner-a";
+    assert_int_equal(s_submit(b, "ca", "r", 1, "spin", g, 2, 1, 0), 0);
+    s_who = "owner-b";
+    assert_int_equal(s_submit(b, "cb", "r", 1, "spin", g, 1, 1, 0), PROTO_REFUSE_NOT_PERMITTED);
+    assert_int_equal(s_submit(b, "cb", "r", 2, "spin", g, 1, 1, 0), PROTO_REFUSE_NOT_PERMITTED);
+    assert_int_equal(s_submit(b, "cb", "r", 1, "spin", g, 0, 1, 0), PROTO_REFUSE_NOT_PERMITTED);
+    broker_run_t *r = broker_runs_get(&b->runs, "r");
+    assert_int_equal(r->client_len, 2);
+    assert_memory_equal(r->client, "ca", 2);
+    assert_string_equal(r->owner, "owner-a");
+    assert_int_equal(r->outstanding, 2);
+    /* Parked: no worker gets its jobs. */
+    assert_int_equal(broker_runs_park(&b->runs, r), 2);
+    assert_true(broker_runs_check(&b->runs));
+    broker_registry_add_credits(&b->registry, w, 4);
+    assert_null(broker_runs_pick(&b->runs, w));
+    /* owner-b's own run asks for genome 2.0 too: that job leaves the parked run. */
+    assert_int_equal(s_submit(b, "cb", "rb", 1, "spin", &g[1], 1, 1, 0), 0);
+    assert_true(broker_runs_check(&b->runs));
+    broker_eval_t *e = broker_runs_pick(&b->runs, w);
+    assert_non_null(e);
+    assert_ptr_equal(e->home, broker_runs_get(&b->runs, "rb"));
+    assert_null(broker_runs_pick(&b->runs, w));
+    broker_runs_enqueue(&b->runs, e->home, e, 1); /* back, for the unpark count below */
+    assert_int_equal(broker_runs_unpark(&b->runs, r), 1);
+    assert_true(broker_runs_check(&b->runs));
+    s_who = "local";
+    s_broker_destroy(&b);
+}
+
+/* The caps on runs per key and in all, on queued bytes per run, and an idle
+ * run leaving RAM and coming back from the store with its seed and owner. */
+static void test_caps_and_idle_runs(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker(3);
+    s_worker(b, "w", "spin", 0, 0);
+    double g[3] = {1.0, 2.0, 3.0};
+    b->max_runs_per_key = 2;
+    b->max_runs = 3;
+    s_who = "k1";
+    assert_int_equal(s_submit(b, "c1", "r1", 1, "spin", g, 1, 1, 0), 0);
+    assert_int_equal(s_submit(b, "c1", "r2", 1, "spin", g, 1, 1, 0), 0);
+    assert_int_equal(s_submit(b, "c1", "r3", 1, "spin", g, 1, 1, 0), PROTO_REFUSE_QUEUE_FULL);
+    s_who = "k2";
+    assert_int_equal(s_submit(b, "c2", "r4", 4, "spin", g, 1, 1, 0), 0);
+    assert_int_equal(s_submit(b, "c2", "r5", 1, "spin", g, 1, 1, 0), PROTO_REFUSE_QUEUE_FULL);
+    /* An existing run takes more work; its queued bytes are capped (its own
+     * seed: r1's evaluation of 1.0 under seed 1 would be shared, not charged). */
+    b->max_queued_bytes_per_run = 2 * (sizeof(broker_eval_t) + sizeof(double));
+    assert_int_equal(s_submit(b, "c2", "r4", 4, "spin", &g[1], 1, 2, 0), 0);
+    assert_int_equal(s_submit(b, "c2", "r4", 4, "spin", &g[2], 1, 3, 0), PROTO_REFUSE_QUEUE_FULL);
+    broker_run_t *r4 = broker_runs_get(&b->runs, "r4");
+    assert_int_equal(r4->genome_bytes, 2 * (sizeof(broker_eval_t) + sizeof(double)));
+    assert_int_equal(r4->use->runs, 1);
+    assert_int_equal(r4->use->outstanding, 2);
+    /* A run with nothing in flight leaves RAM and comes back on use. */
+    b->max_runs = 10;
+    assert_int_equal(s_submit(b, "c2", "idle", 77, "spin", g, 0, 1, 0), 0);
+    broker_client_flush(b);
+    b->now_ms = 1000000;
+    broker_quota_sweep(b, 0, 1);
+    assert_null(broker_runs_get(&b->runs, "idle"));
+    assert_non_null(broker_runs_get(&b->runs, "r4")); /* work waiting: stays */
+    broker_run_t *back = broker_quota_find_run(b, "idle");
+    assert_non_null(back);
+    assert_int_equal(back->seed, 77);
+    assert_string_equal(back->owner, "k2");
+    assert_int_equal(back->use->runs, 2);
+    s_who = "k1"; /* still not k1's */
+    assert_int_equal(s_submit(b, "c1", "idle", 77, "spin", g, 0, 1, 0), PROTO_REFUSE_NOT_PERMITTED);
+    assert_true(broker_runs_check(&b->runs));
+    s_who = "local";
+    s_broker_destroy(&b);
+}
+
 static void test_resend_after_reconnect(void **state)
 {
     (void)state;
@@ -328,6 +416,8 @@ int main(void)
         cmocka_unit_test(test_round_robin_fairness),
         cmocka_unit_test(test_refusals),
         cmocka_unit_test(test_resend_after_reconnect),
+        cmocka_unit_test(test_owner_and_parking),
+        cmocka_unit_test(test_caps_and_idle_runs),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

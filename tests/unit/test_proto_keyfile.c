@@ -14,6 +14,7 @@
 #include <sodium.h>
 
 #include "proto/common/allowlist.h"
+#include "proto/common/sharelist.h"
 #include "proto/common/config.h"
 #include "proto/common/endpoint.h"
 #include "proto/common/keyfile.h"
@@ -136,6 +137,43 @@ static void test_allowlist(void **state)
     assert_non_null(strstr(err, "line 1"));
 }
 
+/* The run share list: key, then the run id as the rest of the line. */
+static void test_sharelist(void **state)
+{
+    (void)state;
+    const char *text = "# shares\nHelloWorldHelloWorldHelloWorldHelloWorld  gen run 7 \r\n"
+                       "0000000000000000000000000000000000000000\tgen run 7\n"
+                       "HelloWorldHelloWorldHelloWorldHelloWorld other\n";
+    common_sharelist_t *l = NULL;
+    char err[512];
+    assert_int_equal(common_sharelist_parse(text, strlen(text), &l, err, sizeof err), 0);
+    assert_int_equal(common_sharelist_size(l), 3);
+    uint8_t key[32];
+    common_z85_decode("HelloWorldHelloWorldHelloWorldHelloWorld", 40, key);
+    assert_int_equal(common_sharelist_has(l, "gen run 7", key), 1);
+    assert_int_equal(common_sharelist_has(l, "other", key), 1);
+    assert_int_equal(common_sharelist_has(l, "gen run", key), 0);
+    key[0] ^= 1;
+    assert_int_equal(common_sharelist_has(l, "gen run 7", key), 0);
+    assert_int_equal(common_sharelist_has(NULL, "gen run 7", key), 0);
+    common_sharelist_destroy(&l);
+    const char *nokey = "HelloWorldHelloWorldHelloWorldHelloWorld\n";
+    assert_int_equal(common_sharelist_parse(nokey, strlen(nokey), &l, err, sizeof err), -1);
+    assert_non_null(strstr(err, "line 1"));
+    const char *dup = "HelloWorldHelloWorldHelloWorldHelloWorld r\nHelloWorldHelloWorldHelloWorldHelloWorld r\n";
+    assert_int_equal(common_sharelist_parse(dup, strlen(dup), &l, err, sizeof err), -1);
+    assert_non_null(strstr(err, "twice"));
+    const char *ctl = "HelloWorldHelloWorldHelloWorldHelloWorld r\x01x\n";
+    assert_int_equal(common_sharelist_parse(ctl, strlen(ctl), &l, err, sizeof err), -1);
+    assert_non_null(strstr(err, "control"));
+    char longid[200];
+    memset(longid, 'a', sizeof longid - 1);
+    longid[sizeof longid - 1] = '\0';
+    assert_int_equal(common_sharelist_run_ok(longid), -1);
+    assert_int_equal(common_sharelist_run_ok(" lead"), -1);
+    assert_int_equal(common_sharelist_run_ok("ok id"), 0);
+}
+
 static void test_config_and_precedence(void **state)
 {
     (void)state;
@@ -188,7 +226,7 @@ int main(void)
         cmocka_unit_test(test_usage_example),   cmocka_unit_test(test_z85_rfc32),
         cmocka_unit_test(test_fingerprint),     cmocka_unit_test(test_key_file_errors),
         cmocka_unit_test(test_allowlist),       cmocka_unit_test(test_config_and_precedence),
-        cmocka_unit_test(test_local_endpoints),
+        cmocka_unit_test(test_local_endpoints), cmocka_unit_test(test_sharelist),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
