@@ -16,6 +16,7 @@ static const char s_usage[] =
     "  runs      list the runs a store holds (--store DIR)\n"
     "  export    write one run's requests and results with provenance (jsonl, csv)\n"
     "  verify    re-simulate a stored run on a pool and report every bit that differs\n"
+    "  front     the Pareto front of a results file and its hypervolume\n"
     "  keygen    make a CURVE key pair (NAME.public, NAME.secret)\n"
     "  allow     admit a public key to a broker's clients or workers allow-list\n"
 #ifdef FITFARM_HAVE_SIM
@@ -54,6 +55,8 @@ int main(int argc, char **argv)
         return cli_cmd_export(argc - 1, argv + 1);
     if (strcmp(cmd, "verify") == 0)
         return cli_cmd_verify(argc - 1, argv + 1);
+    if (strcmp(cmd, "front") == 0)
+        return cli_cmd_front(argc - 1, argv + 1);
     if (strcmp(cmd, "keygen") == 0)
         return cli_cmd_keygen(argc - 1, argv + 1);
     if (strcmp(cmd, "allow") == 0)

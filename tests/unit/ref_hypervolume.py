@@ -9,7 +9,8 @@ dominated cells' volumes. Exact for any number of objectives and shares no
 code or method with the sweeps under test (definition: Zitzler & Thiele,
 1998, the measure of the dominated region bounded by the reference point).
 
-Usage: ref_hypervolume.py SEED. Prints, per set:
+Usage: ref_hypervolume.py SEED (tests/integration/test_front.py imports
+hv_cells from here).  Prints, per set:
   set M N
   p X1 ... XM        (N lines, 17 significant digits)
   ref R1 ... RM
@@ -58,4 +59,5 @@ def main():
     print("\n".join(out))
 
 
-main()
+if __name__ == "__main__":
+    main()
