@@ -21,15 +21,19 @@
 #include "cli_util.h"
 #include "commands.h"
 #include "hypervolume.h"
+#include "knee.h"
+#include "plot.h"
 #include "sort.h"
 
 #define FRONT_MAX_BYTES (1024u * 1024u * 1024u) /* the whole input is read into memory */
 #define FRONT_MAX_OBJECTIVES 64u
 #define FRONT_MAX_POINTS 20000000u
 #define FRONT_MAX_COLUMNS 4096u
+#define FRONT_CURVE_SAMPLES 20000u /* Monte Carlo samples per generation of the curve */
 
 static const char s_help[] =
     "usage: fitfarm front FILE [--ref R1,R2,...] [--json] [--samples N]\n"
+    "                     [--png OUT | --svg OUT] [--labels NAME1,NAME2,...]\n"
     "\n"
     "Prints the Pareto front of the ok results in FILE ('-' for stdin) and its\n"
     "hypervolume. Every objective is minimised, as fitfarm plugins report them.\n"
@@ -52,6 +56,19 @@ static const char s_help[] =
     "  --json           one JSON object instead of text\n"
     "  --samples N      Monte Carlo samples for 4 or more objectives (default\n"
     "                   1000000)\n"
+    "  --png OUT        draw the front into a PNG: objective against objective\n"
+    "                   (every pair of the first four), every ok result as a dot\n"
+    "                   (later generations darker when the input has them), the\n"
+    "                   front highlighted, the knee ringed; with generations, a\n"
+    "                   panel of each generation's hypervolume against the same\n"
+    "                   reference point (e.g. fitfarm-nsga2's population.jsonl)\n"
+    "  --svg OUT        the same picture as SVG\n"
+    "  --labels L1,...  axis labels, one per objective (default: the CSV column\n"
+    "                   names, else f1, f2, ...)\n"
+    "\n"
+    "knee: after scaling each objective to the front's range, the front point\n"
+    "with the smallest sum (in two objectives, the point farthest from the line\n"
+    "joining the front's two ends); it is printed and drawn.\n"
     "\n"
     "hypervolume: exact in 2 objectives (sort and sweep) and in 3 (a dimension\n"
     "sweep over the third objective); from 4 objectives a Monte Carlo estimate\n"
@@ -68,6 +85,7 @@ typedef struct {
     size_t n, cap, m;
     size_t read, skipped; /* results seen; of those, not ok */
     int has_generation;
+    char *labels[FRONT_MAX_OBJECTIVES]; /* CSV objective column names, malloc'd */
 } front_points_t;
 
 static int s_usage(const char *fmt, const char *arg)
@@ -387,6 +405,11 @@ static int s_load_csv(char *text, size_t len, front_points_t *p)
     if (fitness_col < 0 && named == 0)
         for (long c = 0; c < nh; c++)
             role[c] = c != status_col && c != gen_col && strcmp(fields[c], "id") != 0;
+    for (long c = 0, j = 0; fitness_col < 0 && c < nh && j < (long)FRONT_MAX_OBJECTIVES; c++)
+        if (role[c] && !(p->labels[j++] = strdup(header[c]))) {
+            fprintf(stderr, "fitfarm front: out of memory\n");
+            return -1;
+        }
     p->has_generation = gen_col >= 0;
     long cols = nh;
     while (at < len) {
@@ -474,9 +497,144 @@ static void s_print_number(FILE *f, double v)
     fputs(num, f);
 }
 
+static int s_cmp_long(const void *a, const void *b)
+{
+    long x = *(const long *)a, y = *(const long *)b;
+    return (x > y) - (x < y);
+}
+
+/* Each generation's hypervolume against ref: the non-dominated points of
+ * that generation's results. Fills *gens and *hvs (caller frees); returns
+ * the number of generations or -1 when out of memory. */
+static long s_curve(const front_points_t *p, const double *ref, double **gens, double **hvs)
+{
+    long *g = malloc(p->n * sizeof *g);
+    double *sub = malloc(p->n * p->m * sizeof *sub);
+    size_t *keep = malloc(p->n * sizeof *keep);
+    double *fr = malloc(p->n * p->m * sizeof *fr);
+    long count = -1;
+    *gens = *hvs = NULL;
+    if (!g || !sub || !keep || !fr)
+        goto done;
+    memcpy(g, p->generation, p->n * sizeof *g);
+    qsort(g, p->n, sizeof *g, s_cmp_long);
+    size_t distinct = 0;
+    for (size_t i = 0; i < p->n; i++)
+        if (i == 0 || g[i] != g[i - 1])
+            g[distinct++] = g[i];
+    *gens = malloc(distinct * sizeof **gens);
+    *hvs = malloc(distinct * sizeof **hvs);
+    if (!*gens || !*hvs)
+        goto done;
+    for (size_t d = 0; d < distinct; d++) {
+        size_t k = 0;
+        for (size_t i = 0; i < p->n; i++)
+            if (p->generation[i] == g[d])
+                memcpy(sub + (k++) * p->m, p->f + i * p->m, p->m * sizeof *sub);
+        long h = nsga2_sort_nondominated(sub, k, p->m, keep);
+        if (h < 0)
+            goto done;
+        for (long i = 0; i < h; i++)
+            memcpy(fr + i * p->m, sub + keep[i] * p->m, p->m * sizeof *fr);
+        nsga2_hv_t hv;
+        if (nsga2_hypervolume(fr, (size_t)h, p->m, ref, FRONT_CURVE_SAMPLES, &hv) != 0)
+            goto done;
+        (*gens)[d] = (double)g[d];
+        (*hvs)[d] = hv.value;
+    }
+    count = (long)distinct;
+done:
+    if (count < 0) {
+        free(*gens);
+        free(*hvs);
+        *gens = *hvs = NULL;
+    }
+    free(g);
+    free(sub);
+    free(keep);
+    free(fr);
+    return count;
+}
+
+/* The --png/--svg picture. Returns the exit status. */
+static int s_picture(const front_points_t *p, const size_t *front, size_t h, size_t knee,
+                     const double *ref, const nsga2_hv_t *hv, const char *labels_text,
+                     const char *out, int svg, const char *input)
+{
+    const size_t m = p->m;
+    if (m < 2) {
+        fprintf(stderr, "fitfarm front: a picture needs at least two objectives; %s has one\n",
+                input);
+        return 1;
+    }
+    static char copy[8192];
+    static char fallback[FRONT_MAX_OBJECTIVES][16];
+    const char *labels[FRONT_MAX_OBJECTIVES];
+    for (size_t j = 0; j < m; j++) {
+        snprintf(fallback[j], sizeof fallback[j], "f%zu", j + 1);
+        labels[j] = p->labels[j] ? p->labels[j] : fallback[j];
+    }
+    if (labels_text) {
+        if (strlen(labels_text) >= sizeof copy) {
+            fprintf(stderr, "fitfarm front: --labels is longer than %zu bytes\n", sizeof copy - 1);
+            return 2;
+        }
+        strcpy(copy, labels_text);
+        size_t k = 0;
+        for (char *save = NULL, *t = strtok_r(copy, ",", &save); t; t = strtok_r(NULL, ",", &save))
+            if (k < m)
+                labels[k++] = t;
+            else
+                k++;
+        if (k != m) {
+            fprintf(stderr, "fitfarm front: --labels names %zu objectives; the results have "
+                            "%zu (see fitfarm front --help)\n", k, m);
+            return 2;
+        }
+    }
+    double *gens = NULL, *hvs = NULL;
+    long n_hv = 0;
+    if (p->has_generation) {
+        n_hv = s_curve(p, ref, &gens, &hvs);
+        if (n_hv < 0) {
+            fprintf(stderr, "fitfarm front: out of memory\n");
+            return 1;
+        }
+    }
+    const char *base = strrchr(input, '/') ? strrchr(input, '/') + 1 : input;
+    char title[512], sub[512], note[512], refs[400];
+    snprintf(title, sizeof title, "%.200s: %zu of %zu ok results on the front", base, h, p->n);
+    int used = 0;
+    for (size_t j = 0; j < m && used >= 0 && (size_t)used < sizeof refs; j++)
+        used += snprintf(refs + used, sizeof refs - (size_t)used, "%s%.4g", j ? ", " : "", ref[j]);
+    if (hv->method == NSGA2_HV_MONTE_CARLO)
+        snprintf(sub, sizeof sub, "hypervolume %.6g +- %.2g (Monte Carlo) against (%s); knee ringed",
+                 hv->value, hv->std_error, refs);
+    else
+        snprintf(sub, sizeof sub, "hypervolume %.6g against (%s); knee ringed", hv->value, refs);
+    snprintf(note, sizeof note, "hypervolume over generations, reference point (%s)", refs);
+    long *gen = p->has_generation ? p->generation : NULL;
+    nsga2_plot_t plot = {
+        .f = p->f, .n = p->n, .m = m, .generation = gen, .front = front, .n_front = h,
+        .knee = (long)knee, .labels = labels, .hv_gen = gens, .hv = hvs,
+        .n_hv = (size_t)(n_hv > 1 ? n_hv : 0), .title = title, .subtitle = sub,
+        .hv_note = note,
+    };
+    char err[512];
+    int rc = nsga2_plot_write(&plot, out, svg, err, sizeof err);
+    free(gens);
+    free(hvs);
+    if (rc != 0) {
+        fprintf(stderr, "fitfarm front: %s\n", err);
+        return 1;
+    }
+    fprintf(stderr, "fitfarm front: drew %s\n", out);
+    return 0;
+}
+
 int cli_cmd_front(int argc, char **argv)
 {
-    const char *path = NULL, *ref_text = NULL, *v;
+    const char *path = NULL, *ref_text = NULL, *png = NULL, *svg = NULL, *labels_text = NULL, *v;
     int json = 0;
     uint64_t samples = 0;
     for (int i = 1; i < argc; i++) {
@@ -493,6 +651,18 @@ int cli_cmd_front(int argc, char **argv)
             if (!v || cli_parse_u64(v, 1000, 1000000000ull, &samples) != 0)
                 return s_usage("--samples is a whole number from 1000 to 1000000000, not '%s'",
                                v);
+        } else if (cli_match_value(argc, argv, &i, "--png", &v)) {
+            if (!v || !*v)
+                return s_usage("--png needs a file name", NULL);
+            png = v;
+        } else if (cli_match_value(argc, argv, &i, "--svg", &v)) {
+            if (!v || !*v)
+                return s_usage("--svg needs a file name", NULL);
+            svg = v;
+        } else if (cli_match_value(argc, argv, &i, "--labels", &v)) {
+            if (!v)
+                return s_usage("--labels needs NAME1,NAME2,...", NULL);
+            labels_text = v;
         } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
             return s_usage("unknown option '%s'", argv[i]);
         } else if (path) {
@@ -503,6 +673,8 @@ int cli_cmd_front(int argc, char **argv)
     }
     if (!path)
         return s_usage("FILE is required ('-' for stdin)", NULL);
+    if (png && svg)
+        return s_usage("one picture at a time: --png or --svg", NULL);
     double ref[FRONT_MAX_OBJECTIVES];
     size_t n_ref = 0;
     if (ref_text) {
@@ -564,6 +736,11 @@ int cli_cmd_front(int argc, char **argv)
         fprintf(stderr, "fitfarm front: out of memory\n");
         goto done;
     }
+    long knee = nsga2_knee(fr, (size_t)h, m); /* position in the front */
+    if (knee < 0) {
+        fprintf(stderr, "fitfarm front: out of memory\n");
+        goto done;
+    }
     const char *method = m <= 2   ? "exact, sort and sweep"
                          : m == 3 ? "exact, dimension sweep over the third objective"
                                   : "Monte Carlo estimate";
@@ -582,7 +759,14 @@ int cli_cmd_front(int argc, char **argv)
         printf(", \"method\": \"%s\", \"std_error\": ", hv.method == NSGA2_HV_EXACT ? "exact"
                                                                                 : "monte_carlo");
         s_print_number(stdout, hv.std_error);
-        printf(", \"samples\": %llu, \"front\": [", (unsigned long long)hv.samples);
+        printf(", \"samples\": %llu, \"knee\": {\"line\": %zu, \"fitness\": [",
+               (unsigned long long)hv.samples, p.line[keep[knee]]);
+        for (size_t j = 0; j < m; j++) {
+            if (j)
+                fputs(", ", stdout);
+            s_print_number(stdout, fr[(size_t)knee * m + j]);
+        }
+        fputs("]}, \"front\": [", stdout);
         for (long i = 0; i < h; i++) {
             printf("%s{\"line\": %zu, ", i ? ", " : "", p.line[keep[i]]);
             if (p.has_generation)
@@ -611,6 +795,12 @@ int cli_cmd_front(int argc, char **argv)
             printf(" +- %.3g (standard error, %llu samples)", hv.std_error,
                    (unsigned long long)hv.samples);
         printf(" (%s)\n", method);
+        printf("knee: line %zu:", p.line[keep[knee]]);
+        for (size_t j = 0; j < m; j++) {
+            fputc(' ', stdout);
+            s_print_number(stdout, fr[(size_t)knee * m + j]);
+        }
+        printf("\n");
         printf("front (line%s: objectives):\n", p.has_generation ? ", generation" : "");
         for (long i = 0; i < h; i++) {
             printf("  %zu", p.line[keep[i]]);
@@ -625,11 +815,16 @@ int cli_cmd_front(int argc, char **argv)
         }
     }
     exit_code = fflush(stdout) == 0 ? 0 : 1;
+    if (exit_code == 0 && (png || svg))
+        exit_code = s_picture(&p, keep, (size_t)h, keep[knee], ref, &hv, labels_text,
+                              png ? png : svg, svg != NULL, path);
 done:
     free(keep);
     free(fr);
     free(p.f);
     free(p.line);
     free(p.generation);
+    for (size_t j = 0; j < FRONT_MAX_OBJECTIVES; j++)
+        free(p.labels[j]);
     return exit_code;
 }

@@ -9,12 +9,19 @@ with numpy (tests/unit/ref_hypervolume.py, hv_cells: exact in any
 dimension). Exact methods must agree to 1e-12 relative; the 4-objective
 Monte Carlo estimate must lie within 4 of its stated standard errors. The
 default reference point must follow the documented rule: the front's worst
-value plus 10% of its range, per objective."""
+value plus 10% of its range, per objective.
+
+Pictures (--png, --svg): the PNG is decoded here with zlib by the PNG
+specification (W3C/ISO 15948: chunks, IHDR, IDAT, the five row filters) and
+must have the documented layout's size and carry the front's, the knee's and
+the hypervolume curve's colours; the SVG must be an SVG of the same size."""
 import json
 import os
+import struct
 import subprocess
 import sys
 import tempfile
+import zlib
 
 import fflib
 
@@ -143,6 +150,76 @@ if r.returncode == 0:
                   [o["fitness"] for o in pop], ref=[1.5, 10.0])
     if got:
         check.ok(all("generation" in p for p in got["front"]), "front points carry their generation")
+
+def png_pixels(path):
+    """(width, height, rows of pixel tuples) of an 8-bit RGB or RGBA PNG."""
+    data = open(path, "rb").read()
+    assert data[:8] == b"\x89PNG\r\n\x1a\n", "not a PNG signature"
+    pos, idat, w = 8, b"", None
+    while pos < len(data):
+        n, kind = struct.unpack(">I4s", data[pos:pos + 8])
+        body = data[pos + 8:pos + 8 + n]
+        if kind == b"IHDR":
+            w, h, depth, ctype = struct.unpack(">IIBB", body[:10])
+            assert depth == 8 and ctype in (2, 6), f"depth {depth} colour type {ctype}"
+            bpp = 3 if ctype == 2 else 4
+        elif kind == b"IDAT":
+            idat += body
+        pos += 12 + n
+    raw, stride = zlib.decompress(idat), bpp * w
+    rows, prev = [], bytearray(stride)
+    for y in range(h):
+        f, line = raw[y * (stride + 1)], bytearray(raw[y * (stride + 1) + 1:(y + 1) * (stride + 1)])
+        for i in range(stride):
+            a = line[i - bpp] if i >= bpp else 0
+            b, c = prev[i], prev[i - bpp] if i >= bpp else 0
+            if f == 1:
+                line[i] = (line[i] + a) & 255
+            elif f == 2:
+                line[i] = (line[i] + b) & 255
+            elif f == 3:
+                line[i] = (line[i] + (a + b) // 2) & 255
+            elif f == 4:
+                pa, pb, pc = abs(b - c), abs(a - c), abs(a + b - 2 * c)
+                pr = a if pa <= pb and pa <= pc else b if pb <= pc else c
+                line[i] = (line[i] + pr) & 255
+        rows.append([tuple(line[i:i + bpp]) for i in range(0, stride, bpp)])
+        prev = line
+    return w, h, rows
+
+
+def count_near(rows, rgb, tol=12):
+    return sum(1 for row in rows for p in row if all(abs(p[k] - rgb[k]) <= tol for k in range(3)))
+
+
+if r.returncode == 0:
+    pop_path = os.path.join(out_dir, "population.jsonl")
+    png = os.path.join(tmp, "pop.png")
+    r = front_cmd([pop_path, "--ref", "1.5,10", "--png", png, "--labels", "cost (EUR),mass (kg)"])
+    check.ok(r.returncode == 0 and os.path.exists(png), f"--png: {r.returncode} {r.stderr}")
+    if os.path.exists(png):
+        w, h, rows = png_pixels(png)
+        # Two panels (the pair and the curve) of 470 x 440 under a 50-pixel title.
+        check.ok((w, h) == (940, 490), f"picture size {w}x{h}, not 940x490")
+        left = [row[:470] for row in rows]
+        right = [row[470:] for row in rows]
+        check.ok(count_near(left, (230, 97, 13)) > 50, "no front-coloured pixels in the front panel")
+        check.ok(count_near(left, (0, 0, 0), 8) > 30, "no knee ring in the front panel")
+        check.ok(count_near(right, (15, 41, 107), 20) > 100, "no hypervolume curve in the right panel")
+        check.ok(count_near(right, (230, 97, 13)) == 0, "front colour in the curve panel")
+        print(f"picture {w}x{h}: {count_near(left, (230, 97, 13))} front pixels, "
+              f"{count_near(right, (15, 41, 107), 20)} curve pixels")
+    svg = os.path.join(tmp, "front.svg")
+    r = front_cmd([os.path.join(out_dir, "front.csv"), "--svg", svg])
+    check.ok(r.returncode == 0, f"--svg: {r.stderr}")
+    text = open(svg).read() if os.path.exists(svg) else ""
+    check.ok("<svg" in text and 'width="470' in text and 'height="490' in text,
+             f"--svg: not a 470 x 490 SVG: {text[:300]}")
+    r = front_cmd([pop_path, "--png", png, "--labels", "a,b,c"])
+    check.ok(r.returncode == 2 and "--labels names 3" in r.stderr, f"labels arity: {r.stderr}")
+    r = front_cmd([pop_path, "--png", os.path.join(tmp, "no", "such", "dir.png")])
+    check.ok(r.returncode == 1 and "cannot write" in r.stderr, f"unwritable picture: {r.stderr}")
+
 
 # A plain CSV table, quoted fields and a status column.
 p = write("plain.csv", 'id,cost,mass,status\n1,0.5,2,ok\n2,"0.25",3,ok\n3,0.01,0.01,failed\n4,0.1,5,ok\r\n')
