@@ -17,6 +17,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include "cli_util.h"
 #include "commands.h"
@@ -35,7 +36,8 @@ static const char s_help[] =
     "usage: fitfarm front FILE [--ref R1,R2,...] [--json] [--samples N]\n"
     "                     [--png OUT | --svg OUT] [--labels NAME1,NAME2,...]\n"
     "\n"
-    "Prints the Pareto front of the ok results in FILE ('-' for stdin) and its\n"
+    "Prints the Pareto front of the ok results in FILE ('-' for stdin; a\n"
+    "fitfarm-nsga2 output folder means its population.jsonl) and its\n"
     "hypervolume. Every objective is minimised, as fitfarm plugins report them.\n"
     "\n"
     "input (the format is told by the first character: '{' JSON Lines, else CSV):\n"
@@ -694,6 +696,16 @@ int cli_cmd_front(int argc, char **argv)
         }
     }
 
+    /* A fitfarm-nsga2 output folder stands for its population.jsonl: every
+     * generation, so the picture gets its hypervolume curve. */
+    static char folder_file[4096];
+    struct stat st;
+    if (strcmp(path, "-") != 0 && stat(path, &st) == 0 && S_ISDIR(st.st_mode)) {
+        int w = snprintf(folder_file, sizeof folder_file, "%s/population.jsonl", path);
+        if (w < 0 || (size_t)w >= sizeof folder_file)
+            return s_usage("the folder name '%s' is too long", path);
+        path = folder_file;
+    }
     size_t len = 0;
     char *text = s_read_all(path, &len);
     if (!text)

@@ -97,6 +97,7 @@ static int s_evaluate(s_search_t *s, size_t count, uint64_t *evaluations, uint64
     *cached = o->replay ? after.delivered - before.delivered : after.cached - before.cached;
     *evaluations = (after.delivered - before.delivered) - *cached;
     *failed = 0;
+    char first_error[512] = "";
     for (size_t i = 0; i < count; i++) {
         double *fit = s->fitness + i * (s->m ? s->m : 1);
         unsigned n_ok = 0;
@@ -126,6 +127,9 @@ static int s_evaluate(s_search_t *s, size_t count, uint64_t *evaluations, uint64
                 n_ok++;
             }
         s->ok[i] = n_ok > 0;
+        if (!n_ok && !first_error[0] && fitfarm_batch_result(batch, i, 0, &r) == 0)
+            snprintf(first_error, sizeof first_error, "%s: %s", fitfarm_status_name(r.status),
+                     r.error[0] ? r.error : "no message");
         if (s->m == 0)
             continue; /* nothing ok yet: fitness is filled once m is known */
         for (size_t j = 0; j < s->m; j++) {
@@ -151,7 +155,7 @@ static int s_evaluate(s_search_t *s, size_t count, uint64_t *evaluations, uint64
     fitfarm_batch_destroy(&batch);
     if (s->m == 0) {
         fprintf(stderr, "fitfarm-nsga2: no genome of the first generation got an ok result from "
-                        "plugin %s; see `fitfarm eval` for the errors\n", o->plugin);
+                        "plugin %s; the first said: %s\n", o->plugin, first_error);
         return 1;
     }
     /* Rows evaluated before m was known are all failed: infinity. */

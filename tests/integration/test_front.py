@@ -209,6 +209,10 @@ if r.returncode == 0:
         check.ok(count_near(right, (230, 97, 13)) == 0, "front colour in the curve panel")
         print(f"picture {w}x{h}: {count_near(left, (230, 97, 13))} front pixels, "
               f"{count_near(right, (15, 41, 107), 20)} curve pixels")
+    # The output folder itself stands for its population.jsonl.
+    a = front_cmd([pop_path, "--ref", "1.5,10", "--json"])
+    b = front_cmd([out_dir, "--ref", "1.5,10", "--json"])
+    check.ok(b.returncode == 0 and a.stdout == b.stdout, f"folder argument: {b.stderr}")
     svg = os.path.join(tmp, "front.svg")
     r = front_cmd([os.path.join(out_dir, "front.csv"), "--svg", svg])
     check.ok(r.returncode == 0, f"--svg: {r.stderr}")

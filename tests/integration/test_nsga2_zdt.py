@@ -128,4 +128,8 @@ check.ok(r.returncode == 2 and "--store" in r.stderr, f"replay without store: {r
 r, _ = nsga2(["--plugin", "zdt1", "--genes", "30", "--ref", "1,1,1", "--generations", "1",
               "--population", "4", "--slots", "1", "--out", os.path.join(tmp, "badref")])
 check.ok(r.returncode == 1 and "--ref has 3 values" in r.stderr, f"ref size: {r.returncode} {r.stderr}")
+r, _ = nsga2(["--plugin", "zdt1", "--genes", "10", "--params", '{"n": 30}', "--generations", "1",
+              "--population", "4", "--slots", "1", "--out", os.path.join(tmp, "badgenes")])
+check.ok(r.returncode == 1 and "invalid:" in r.stderr and "no genome" in r.stderr,
+         f"wrong genome length: {r.returncode} {r.stderr}")
 check.done()
