@@ -570,7 +570,7 @@ static int s_picture(const front_points_t *p, const size_t *front, size_t h, siz
         return 1;
     }
     static char copy[8192];
-    static char fallback[FRONT_MAX_OBJECTIVES][16];
+    static char fallback[FRONT_MAX_OBJECTIVES][24];
     const char *labels[FRONT_MAX_OBJECTIVES];
     for (size_t j = 0; j < m; j++) {
         snprintf(fallback[j], sizeof fallback[j], "f%zu", j + 1);

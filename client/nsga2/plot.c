@@ -3,6 +3,7 @@
 
 #include <cairo-svg.h>
 #include <cairo.h>
+#include <fontconfig/fontconfig.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -392,5 +393,9 @@ int nsga2_plot_write(const nsga2_plot_t *p, const char *path, int svg, char *err
         rc = -1;
     }
     cairo_surface_destroy(surf);
+    /* cairo and fontconfig keep font caches for the life of the process; the
+     * CLI draws once, so release them (what cairo offers leak checkers). */
+    cairo_debug_reset_static_data();
+    FcFini();
     return rc;
 }
