@@ -11,6 +11,7 @@ static const char s_usage[] =
     "usage: fitfarm COMMAND [options]\n"
     "\n"
     "commands:\n"
+    "  demo      search the granular pad with NSGA-II on this machine and draw the front\n"
     "  eval      evaluate genomes from JSON Lines (a local pool, or --broker)\n"
     "  status    show a pool's workers, runs and warnings\n"
     "  runs      list the runs a store holds (--store DIR)\n"
@@ -55,6 +56,8 @@ int main(int argc, char **argv)
         return cli_cmd_export(argc - 1, argv + 1);
     if (strcmp(cmd, "verify") == 0)
         return cli_cmd_verify(argc - 1, argv + 1);
+    if (strcmp(cmd, "demo") == 0)
+        return cli_cmd_demo(argc - 1, argv + 1);
     if (strcmp(cmd, "front") == 0)
         return cli_cmd_front(argc - 1, argv + 1);
     if (strcmp(cmd, "keygen") == 0)
