@@ -11,11 +11,13 @@ static const char s_usage[] =
     "usage: fitfarm COMMAND [options]\n"
     "\n"
     "commands:\n"
+    "  demo      search the granular pad with NSGA-II on this machine and draw the front\n"
     "  eval      evaluate genomes from JSON Lines (a local pool, or --broker)\n"
     "  status    show a pool's workers, runs and warnings\n"
     "  runs      list the runs a store holds (--store DIR)\n"
     "  export    write one run's requests and results with provenance (jsonl, csv)\n"
     "  verify    re-simulate a stored run on a pool and report every bit that differs\n"
+    "  front     the Pareto front of a results file and its hypervolume\n"
     "  keygen    make a CURVE key pair (NAME.public, NAME.secret)\n"
     "  allow     admit a public key to a broker's clients or workers allow-list\n"
     "  share     let another client key use a run (the broker's runs.share)\n"
@@ -55,6 +57,10 @@ int main(int argc, char **argv)
         return cli_cmd_export(argc - 1, argv + 1);
     if (strcmp(cmd, "verify") == 0)
         return cli_cmd_verify(argc - 1, argv + 1);
+    if (strcmp(cmd, "demo") == 0)
+        return cli_cmd_demo(argc - 1, argv + 1);
+    if (strcmp(cmd, "front") == 0)
+        return cli_cmd_front(argc - 1, argv + 1);
     if (strcmp(cmd, "keygen") == 0)
         return cli_cmd_keygen(argc - 1, argv + 1);
     if (strcmp(cmd, "allow") == 0)
