@@ -66,7 +66,7 @@ static int s_submit(broker_t *b, const char *run_id, double x0, uint32_t n, uint
     proto_submit_t s = {.run_id = (char *)run_id, .run_seed = 7, .batch_tag = 1,
                         .plugin = (char *)"spin", .params = (char *)"{}", .n_items = n,
                         .items = items};
-    int rc = broker_client_submit(b, (const uint8_t *)"c1", 2, &s);
+    int rc = broker_client_submit(b, (const uint8_t *)"c1", 2, "local", &s);
     free(items);
     free(g);
     return rc;
