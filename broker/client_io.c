@@ -137,6 +137,23 @@ static void s_refuse(broker_t *b, const uint8_t *rid, size_t rid_len, uint32_t c
     s_refuse_item(b, rid, rid_len, code, batch_tag, run_id, NULL, text);
 }
 
+/* 1 when a recorded answer e (done) is to be evaluated again for a resumed
+ * request of SUBMIT s: a crash or time-out, never in a replay, and either
+ * the client asked (PROTO_SUBMIT_RETRY_FAILED) or, for a time-out, it now
+ * allows more time than the recorded evaluation had (0 there meant the
+ * worker's default, so any explicit limit counts as more). */
+static int s_retry_recorded(const proto_submit_t *s, const broker_eval_t *e)
+{
+    if (s->flags & PROTO_SUBMIT_REPLAY)
+        return 0;
+    if (e->status != PROTO_STATUS_CRASHED && e->status != PROTO_STATUS_TIMEOUT)
+        return 0;
+    if (s->flags & PROTO_SUBMIT_RETRY_FAILED)
+        return 1;
+    return e->status == PROTO_STATUS_TIMEOUT && s->timeout_ms > 0 &&
+           (e->timeout_ms == 0 || s->timeout_ms > e->timeout_ms);
+}
+
 /* 1 when request (run, tag) already waits on e. */
 static int s_waits(broker_eval_t *e, const broker_run_t *run, uint64_t tag)
 {
@@ -452,6 +469,25 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                 continue; /* a no-cache request still waiting on its re-evaluation */
             } else if (recorded[i] == 3 && e->state == BROKER_EVAL_DONE) {
                 s_redeliver_fresh(b, run, it->tag, seeds[i], e);
+            } else if (e->state == BROKER_EVAL_DONE && s_retry_recorded(s, e)) {
+                /* A crash or time-out this run recorded, retried on resume
+                 * (--retry-failed, or a larger time limit for a time-out):
+                 * evaluated again as a no-cache request is, and from now on
+                 * the request (and the run's replay) reads that result. */
+                broker_store_note_request_fresh(b->store, run, it->tag);
+                broker_run_count_request(run);
+                if (!e->again) {
+                    broker_eval_t *f = broker_evals_new_fresh(&b->evals, e);
+                    broker_quota_charge(b, run, f);
+                    f->timeout_ms = s->timeout_ms;
+                    f->max_attempts =
+                        (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
+                    broker_eval_add_waiter(f, run, it->tag, seeds[i]);
+                    broker_runs_enqueue(&b->runs, run, f, 0);
+                } else {
+                    broker_eval_add_waiter(e->again, run, it->tag, seeds[i]);
+                    broker_runs_adopt(&b->runs, run, e->again);
+                }
             } else if (e->state == BROKER_EVAL_DONE) {
                 s_redeliver(b, run, it->tag, seeds[i], e, recorded[i] == 2);
             } else if (!s_waits(e, run, it->tag)) {

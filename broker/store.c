@@ -95,6 +95,7 @@ enum {
     S_UNACK,
     S_PLUGIN,
     S_FIND_RUN,
+    S_REFRESH,
     S_COUNT_
 };
 
@@ -127,6 +128,7 @@ static const char *const s_sql[S_COUNT_] = {
                  " SET version = ?2, objectives = ?3, flags = ?4, digests = ?5, last_seen = ?6,"
                  " seed_params = ?7, param_defaults = ?8",
     [S_FIND_RUN] = "SELECT seed, seed_mode, owner FROM runs WHERE run_id = ?1",
+    [S_REFRESH] = "UPDATE requests SET fresh = 1, acked = 0 WHERE run_id = ?1 AND tag = ?2",
 };
 
 /* Retry pacing while the store cannot write: the first retry soon (a
@@ -669,6 +671,14 @@ static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *
 void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64_t tag)
 {
     size_t i = s_op(self, S_ACK);
+    s_text(self, i, 1, run->id);
+    s_u64(self, i, 2, tag);
+    s_write(self, i);
+}
+
+void broker_store_note_request_fresh(broker_store_t *self, const broker_run_t *run, uint64_t tag)
+{
+    size_t i = s_op(self, S_REFRESH);
     s_text(self, i, 1, run->id);
     s_u64(self, i, 2, tag);
     s_write(self, i);

@@ -77,6 +77,10 @@ void broker_store_note_result(broker_store_t *self, const broker_eval_t *e,
                               const proto_outcome_t *o, const char *worker, const char *host,
                               const char *arch);
 void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64_t tag);
+/* A recorded request is answered again by a re-evaluation of its own (a
+ * crash or time-out retried on resume): it now reads its run's latest
+ * re-evaluation, as a no-cache request does, and is owed again. */
+void broker_store_note_request_fresh(broker_store_t *self, const broker_run_t *run, uint64_t tag);
 /* Request tag of run is owed to its client again (a re-sent request answered
  * past the delivery cap, runs.h): acked back to 0 so the backlog reads it. */
 void broker_store_note_unack(broker_store_t *self, const broker_run_t *run, uint64_t tag);

@@ -67,6 +67,7 @@ typedef enum {
 /* Submit flags. */
 #define PROTO_SUBMIT_NO_CACHE 0x1u /* evaluate again even if the key is stored */
 #define PROTO_SUBMIT_REPLAY 0x2u   /* answer only from the store, never simulate */
+#define PROTO_SUBMIT_RETRY_FAILED 0x4u /* a recorded crashed or timed-out answer is evaluated again */
 
 /* Refusal codes carried by PROTO_REFUSED. */
 typedef enum {

@@ -68,6 +68,9 @@ static const char s_help[] =
     "                     results are kept; the cached one keeps answering others)\n"
     "  --replay           answer only from the store what run --run recorded, never\n"
     "                     simulate; stops at the first line the run never saw\n"
+    "  --retry-failed     resuming --run: lines the run recorded as crashed or timed\n"
+    "                     out are evaluated again (a larger --timeout alone retries\n"
+    "                     recorded time-outs); ok and invalid results stay\n"
     "  --timeout SECONDS  per-evaluation time limit (default: the worker's)\n"
     "  --attempts N       tries of an evaluation that crashes or times out, each on\n"
     "                     another worker where possible (default 3)\n"
@@ -125,7 +128,7 @@ typedef struct {
     /* options */
     const char *plugin, *params, *run_id, *in_path, *out_path, *broker, *plugin_dir, *store;
     const char *seed_mode_name, *aggregate_name;
-    int stats, no_cache, replay, seed_mode, local;
+    int stats, no_cache, replay, seed_mode, local, retry_failed;
     int aggregate; /* 0 none, 1 mean, 2 median */
     uint64_t seed, replicates, slots, timeout_s, attempts;
     const char *exec[EVAL_MAX_EXEC + 1]; /* --exec NAME=CMD, NULL-terminated */
@@ -232,6 +235,10 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
             e->no_cache = 1;
             continue;
         }
+        if (strcmp(arg, "--retry-failed") == 0) {
+            e->retry_failed = 1;
+            continue;
+        }
         if (strcmp(arg, "--replay") == 0) {
             e->replay = 1;
             continue;
@@ -293,6 +300,10 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
     }
     if (e->replay && !e->run_id) {
         *exit_code = s_usage("--replay needs --run ID (the run to replay)%s", NULL);
+        return -1;
+    }
+    if (e->replay && e->retry_failed) {
+        *exit_code = s_usage("--replay never simulates; --retry-failed would%s", NULL);
         return -1;
     }
     if (e->replay && e->no_cache) {
@@ -972,6 +983,7 @@ int cli_cmd_eval(int argc, char **argv)
     ropts.seed_mode = e.seed_mode;
     ropts.no_cache = e.no_cache;
     ropts.replay = e.replay;
+    ropts.retry_failed = e.retry_failed;
     ropts.timeout_s = (unsigned)e.timeout_s;
     ropts.attempts = (unsigned)e.attempts;
     if (fitfarm_run_open(e.client, &ropts, &e.run) != 0) {

@@ -140,6 +140,10 @@ typedef struct {
     int replay;         /* answer only from the store; never simulate */
     unsigned timeout_s; /* per-evaluation time limit; 0 = the worker's default */
     unsigned attempts;  /* tries of an evaluation that crashes or times out; 0 = the broker's default (3) */
+    /* Resuming: a request this run recorded as crashed or timed out is
+     * evaluated again (its new result is recorded for the run's replay).
+     * Without it only a larger timeout_s retries a recorded time-out. */
+    int retry_failed;
 } fitfarm_run_options_t;
 #define FITFARM_RUN_OPTIONS_INIT {.size = sizeof(fitfarm_run_options_t)}
 

@@ -85,7 +85,8 @@ int client_run_new(client_core_t *core, fitfarm_client_t *client,
     run->seed = options->seed;
     run->seed_mode = (uint32_t)options->seed_mode;
     run->flags = (options->no_cache ? PROTO_SUBMIT_NO_CACHE : 0) |
-                 (options->replay ? PROTO_SUBMIT_REPLAY : 0);
+                 (options->replay ? PROTO_SUBMIT_REPLAY : 0) |
+                 (options->retry_failed ? PROTO_SUBMIT_RETRY_FAILED : 0);
     run->timeout_s = options->timeout_s;
     run->attempts = options->attempts;
     run->next_tag = 0; /* deterministic tags: see the top of this file */

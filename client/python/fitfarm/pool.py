@@ -137,7 +137,7 @@ class Run:
     A context manager; close() ends it (the Pool's shutdown closes it too)."""
 
     def __init__(self, pool, run_id=None, seed=0, replay=False, seed_mode="genome",
-                 no_cache=False, timeout=None, attempts=None):
+                 no_cache=False, timeout=None, attempts=None, retry_failed=False):
         if seed_mode not in _SEED_MODES:
             raise ValueError(f"seed_mode must be 'genome' or 'common', not {seed_mode!r}")
         if not 0 <= int(seed) < 2 ** 64:
@@ -155,6 +155,7 @@ class Run:
         opts.replay = 1 if replay else 0
         opts.timeout_s = 0 if timeout is None else max(1, int(math.ceil(timeout)))
         opts.attempts = 0 if attempts is None else int(attempts)
+        opts.retry_failed = 1 if retry_failed else 0
         self.seed = int(seed)
         self.replay = bool(replay)
         h = ctypes.c_void_p()
@@ -721,12 +722,15 @@ class Pool(concurrent.futures.Executor):
 
     # ---- public ------------------------------------------------------------
     def run(self, run_id=None, seed=0, replay=False, seed_mode="genome", no_cache=False,
-            timeout=None, attempts=None):
+            timeout=None, attempts=None, retry_failed=False):
         """Opens (or resumes, when run_id exists in the store) a run. replay:
         answer only from what the run recorded, never simulate (a request it
         never saw raises NotRecordedError). timeout: per-evaluation limit in
-        seconds; attempts: tries of an evaluation that crashes or times out."""
-        return Run(self, run_id, seed, replay, seed_mode, no_cache, timeout, attempts)
+        seconds; attempts: tries of an evaluation that crashes or times out;
+        retry_failed: a resumed request the run recorded as crashed or timed out
+        is evaluated again."""
+        return Run(self, run_id, seed, replay, seed_mode, no_cache, timeout, attempts,
+                   retry_failed)
 
     def function(self, plugin, params=None, objective=None, run=None, seed=0, replicates=1,
                  seed_mode="genome", aggregate=None, on_failure="raise"):
