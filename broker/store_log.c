@@ -9,7 +9,7 @@
 
 #include "common/alloc.h"
 
-#define LOG_KEEP_OPS 4096              /* capacity kept across commits */
+#define LOG_KEEP_OPS 4096 /* capacity kept across commits */
 #define LOG_KEEP_BYTES (1u << 20)
 
 void broker_store_log_init(broker_store_log_t *self)

@@ -32,7 +32,7 @@ typedef struct {
 } broker_store_val_t;
 
 typedef struct {
-    int which; /* the statement, store.c's index */
+    int which;                                     /* the statement, store.c's index */
     broker_store_val_t v[BROKER_STORE_MAX_PARAMS]; /* v[k] is parameter ?k+1 */
 } broker_store_op_t;
 

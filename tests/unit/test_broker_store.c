@@ -63,8 +63,12 @@ static int s_submit(broker_t *b, const char *run_id, double x0, uint32_t n, uint
         items[i].genome_len = sizeof(double);
         items[i].genome = (uint8_t *)&g[i];
     }
-    proto_submit_t s = {.run_id = (char *)run_id, .run_seed = 7, .batch_tag = 1,
-                        .plugin = (char *)"spin", .params = (char *)"{}", .n_items = n,
+    proto_submit_t s = {.run_id = (char *)run_id,
+                        .run_seed = 7,
+                        .batch_tag = 1,
+                        .plugin = (char *)"spin",
+                        .params = (char *)"{}",
+                        .n_items = n,
                         .items = items};
     int rc = broker_client_submit(b, (const uint8_t *)"c1", 2, "local", &s);
     free(items);
@@ -79,8 +83,8 @@ static void s_complete(broker_t *b, broker_worker_t *w, uint32_t n)
     static char err[3000];
     memset(err, 'e', sizeof err - 1);
     for (uint32_t i = 0; i < n && w->jobs_head; i++) {
-        proto_outcome_t o = {.job_id = w->jobs_head->job_id, .status = PROTO_STATUS_FAILED,
-                             .error = err};
+        proto_outcome_t o = {
+            .job_id = w->jobs_head->job_id, .status = PROTO_STATUS_FAILED, .error = err};
         broker_dispatch_outcome(b, w, &o);
     }
 }
