@@ -1,9 +1,12 @@
-/* cli_pool.c: a plugin the pool offers only with builds or versions the
- * broker gives no jobs to (cli_pool.h), read from the broker's warnings. */
+/* cli_pool.c: what the pool's status says about plugins (cli_pool.h): the
+ * names it carries, and a plugin it offers only with builds or versions the
+ * broker gives no jobs to (read from the broker's warnings). */
 #include "cli_pool.h"
 
 #include <stdio.h>
 #include <string.h>
+
+#include "limits.h" /* proto's: PROTO_MAX_NAME_BYTES */
 
 int cli_pool_plugin_blocked(fitfarm_client_t *client, const char *plugin, int timeout_ms,
                             char *out, size_t len)
@@ -23,4 +26,42 @@ int cli_pool_plugin_blocked(fitfarm_client_t *client, const char *plugin, int ti
     }
     fitfarm_status_destroy(&st);
     return found;
+}
+
+/* "zdt1, zdt2, ..." from a STATUS: the plugin names the pool carries. */
+void cli_pool_plugins(fitfarm_client_t *client, char *buf, size_t len, int *has,
+                           const char *want, int *n_workers)
+{
+    buf[0] = '\0';
+    *has = 0;
+    *n_workers = -1;
+    fitfarm_status_t *st = NULL;
+    if (fitfarm_status_get(client, 5000, &st) != 0)
+        return;
+    *n_workers = (int)fitfarm_status_n_workers(st);
+    size_t used = 0;
+    for (size_t w = 0; w < fitfarm_status_n_workers(st); w++) {
+        fitfarm_worker_info_t wi = FITFARM_WORKER_INFO_INIT;
+        fitfarm_status_worker(st, w, &wi);
+        for (size_t p = 0; p < wi.n_plugins; p++) {
+            const char *full = wi.plugins[p];
+            size_t nl = strcspn(full, "@");
+            if (strlen(want) == nl && strncmp(full, want, nl) == 0)
+                *has = 1;
+            char name[PROTO_MAX_NAME_BYTES + 1];
+            snprintf(name, sizeof name, "%.*s", (int)nl, full);
+            /* Skip names already listed (several workers carry the same plugin). */
+            char probe[PROTO_MAX_NAME_BYTES + 4];
+            snprintf(probe, sizeof probe, ", %s,", name);
+            char hay[4096 + 4];
+            snprintf(hay, sizeof hay, ", %s,", buf);
+            if (strstr(hay, probe))
+                continue;
+            int n = snprintf(buf + used, len - used, "%s%s", used ? ", " : "", name);
+            if (n < 0 || (size_t)n >= len - used)
+                break;
+            used += (size_t)n;
+        }
+    }
+    fitfarm_status_destroy(&st);
 }

@@ -15,4 +15,10 @@
 int cli_pool_plugin_blocked(fitfarm_client_t *client, const char *plugin, int timeout_ms,
                             char *out, size_t len);
 
+/* The plugin names the pool carries ("zdt1, zdt2, ...", each once) into
+ * buf; *has is 1 when want is among them; *n_workers the workers connected
+ * (-1 when the status could not be read within 5 s). */
+void cli_pool_plugins(fitfarm_client_t *client, char *buf, size_t len, int *has,
+                      const char *want, int *n_workers);
+
 #endif

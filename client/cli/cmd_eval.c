@@ -21,6 +21,7 @@
 
 #include "cli_keys.h"
 #include "cli_pool.h"
+#include "eval_lines.h"
 #include "cli_util.h"
 #include "client/include/fitfarm.h"
 #include "commands.h"
@@ -115,14 +116,6 @@ static const char s_help[] =
     "exit status: 0 every line ok, 1 some line not ok (or the pool failed),\n"
     "2 usage error (bad option, unreadable file, unknown plugin).\n";
 
-/* One input line that produced output: a genome in a batch, or a rejection. */
-typedef struct {
-    size_t line;
-    char *id_json;
-    fitfarm_batch_t *batch; /* NULL: invalid input */
-    size_t index;
-    char *error; /* invalid input: why */
-} eval_record_t;
 
 typedef struct {
     /* options */
@@ -329,49 +322,11 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
     return 0;
 }
 
-/* "zdt1, zdt2, ..." from a STATUS: the plugin names the pool carries. */
-static void s_pool_plugins(fitfarm_client_t *client, char *buf, size_t len, int *has,
-                           const char *want, int *n_workers)
-{
-    buf[0] = '\0';
-    *has = 0;
-    *n_workers = -1;
-    fitfarm_status_t *st = NULL;
-    if (fitfarm_status_get(client, 5000, &st) != 0)
-        return;
-    *n_workers = (int)fitfarm_status_n_workers(st);
-    size_t used = 0;
-    for (size_t w = 0; w < fitfarm_status_n_workers(st); w++) {
-        fitfarm_worker_info_t wi = FITFARM_WORKER_INFO_INIT;
-        fitfarm_status_worker(st, w, &wi);
-        for (size_t p = 0; p < wi.n_plugins; p++) {
-            const char *full = wi.plugins[p];
-            size_t nl = strcspn(full, "@");
-            if (strlen(want) == nl && strncmp(full, want, nl) == 0)
-                *has = 1;
-            char name[PROTO_MAX_NAME_BYTES + 1];
-            snprintf(name, sizeof name, "%.*s", (int)nl, full);
-            /* Skip names already listed (several workers carry the same plugin). */
-            char probe[PROTO_MAX_NAME_BYTES + 4];
-            snprintf(probe, sizeof probe, ", %s,", name);
-            char hay[4096 + 4];
-            snprintf(hay, sizeof hay, ", %s,", buf);
-            if (strstr(hay, probe))
-                continue;
-            int n = snprintf(buf + used, len - used, "%s%s", used ? ", " : "", name);
-            if (n < 0 || (size_t)n >= len - used)
-                break;
-            used += (size_t)n;
-        }
-    }
-    fitfarm_status_destroy(&st);
-}
-
 static int s_unknown_plugin(eval_t *e, const char *detail)
 {
     char list[4096];
     int has, n_workers;
-    s_pool_plugins(e->client, list, sizeof list, &has, e->plugin, &n_workers);
+    cli_pool_plugins(e->client, list, sizeof list, &has, e->plugin, &n_workers);
     if (detail)
         fprintf(stderr, "fitfarm eval: %s\n", detail);
     else
@@ -571,108 +526,6 @@ static int s_send_batch(eval_t *e, fitfarm_batch_t *b)
     return 0;
 }
 
-static void s_print_head(eval_t *e, const eval_record_t *rec, unsigned r, const char *status)
-{
-    fprintf(e->out, "{\"id\": %s, \"line\": %zu, \"replicate\": %u, \"status\": \"%s\"",
-            rec->id_json, rec->line, r, status);
-}
-
-static void s_print_result(eval_t *e, const eval_record_t *rec, const fitfarm_result_t *res)
-{
-    s_print_head(e, rec, res->replicate, fitfarm_status_name(res->status));
-    int ok = res->status == FITFARM_STATUS_OK;
-    if (ok) {
-        fputs(", \"fitness\": [", e->out);
-        for (size_t k = 0; k < res->n_fitness; k++) {
-            char num[32];
-            proto_format_double(res->fitness[k], num);
-            fprintf(e->out, "%s%s", k ? ", " : "", num);
-        }
-        fputs("]", e->out);
-    } else {
-        fputs(", \"fitness\": null", e->out);
-        e->any_not_ok = 1;
-    }
-    char hex[2 * PROTO_KEY_BYTES + 1];
-    proto_hex(res->key, PROTO_KEY_BYTES, hex);
-    fprintf(e->out, ", \"cached\": %s, \"seed\": \"%llu\", \"key\": \"%s\"",
-            res->cached ? "true" : "false", (unsigned long long)res->seed, hex);
-    if (!ok) {
-        fputs(", \"error\": ", e->out);
-        cli_json_string(e->out, res->error[0] ? res->error : fitfarm_status_name(res->status));
-    }
-    fputs("}\n", e->out);
-}
-
-static int s_cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
-}
-
-/* The --aggregate line of a record whose replicates are all in. */
-static void s_print_aggregate(eval_t *e, const eval_record_t *rec)
-{
-    unsigned k = (unsigned)e->replicates;
-    fitfarm_result_t res = FITFARM_RESULT_INIT;
-    size_t n_obj = 0;
-    unsigned n_ok = 0;
-    for (unsigned r = 0; r < k; r++)
-        if (fitfarm_batch_result(rec->batch, rec->index, r, &res) == 0 &&
-            res.status == FITFARM_STATUS_OK) {
-            if (n_ok == 0)
-                n_obj = res.n_fitness;
-            if (res.n_fitness == n_obj)
-                n_ok++;
-        }
-    fprintf(e->out, "{\"id\": %s, \"line\": %zu, \"aggregate\": \"%s\", \"replicates\": %u, "
-            "\"ok\": %u", rec->id_json, rec->line, e->aggregate == 1 ? "mean" : "median", k, n_ok);
-    double *v = n_ok ? malloc(n_ok * sizeof *v) : NULL;
-    if (n_ok == 0 || !v) {
-        fputs(", \"fitness\": null, \"std\": null}\n", e->out);
-        free(v);
-        return;
-    }
-    char num[32];
-    for (int pass = 0; pass < 2; pass++) {
-        fputs(pass == 0 ? ", \"fitness\": [" : ", \"std\": ", e->out);
-        if (pass == 1 && n_ok < 2) {
-            fputs("null", e->out);
-            break;
-        }
-        if (pass == 1)
-            fputs("[", e->out);
-        for (size_t j = 0; j < n_obj; j++) {
-            unsigned n = 0;
-            for (unsigned r = 0; r < k; r++)
-                if (fitfarm_batch_result(rec->batch, rec->index, r, &res) == 0 &&
-                    res.status == FITFARM_STATUS_OK && res.n_fitness == n_obj)
-                    v[n++] = res.fitness[j];
-            /* Sums in replicate order, so the bits depend on the results only. */
-            double sum = 0.0;
-            for (unsigned i = 0; i < n; i++)
-                sum += v[i];
-            double mean = sum / n, out;
-            if (pass == 0 && e->aggregate == 2) {
-                qsort(v, n, sizeof *v, s_cmp_double);
-                out = n % 2 ? v[n / 2] : (v[n / 2 - 1] + v[n / 2]) / 2.0;
-            } else if (pass == 0) {
-                out = mean;
-            } else {
-                double ss = 0.0; /* sample standard deviation (n - 1) */
-                for (unsigned i = 0; i < n; i++)
-                    ss += (v[i] - mean) * (v[i] - mean);
-                out = sqrt(ss / (n - 1));
-            }
-            proto_format_double(out, num);
-            fprintf(e->out, "%s%s", j ? ", " : "", num);
-        }
-        fputs("]", e->out);
-    }
-    fputs("}\n", e->out);
-    free(v);
-}
-
 /* Prints every record whose turn has come; frees batches fully printed. */
 static void s_flush_prefix(eval_t *e)
 {
@@ -681,7 +534,7 @@ static void s_flush_prefix(eval_t *e)
         eval_record_t *rec = &e->records[e->cursor];
         if (!rec->batch) {
             for (; e->cursor_r < e->replicates; e->cursor_r++) {
-                s_print_head(e, rec, e->cursor_r, "invalid");
+                eval_print_head(e->out, rec, e->cursor_r, "invalid");
                 fputs(", \"error\": ", e->out);
                 cli_json_string(e->out, rec->error);
                 fputs("}\n", e->out);
@@ -692,13 +545,13 @@ static void s_flush_prefix(eval_t *e)
                 fitfarm_result_t res = FITFARM_RESULT_INIT;
                 if (fitfarm_batch_result(rec->batch, rec->index, e->cursor_r, &res) != 0)
                     break;
-                s_print_result(e, rec, &res);
+                e->any_not_ok |= eval_print_result(e->out, rec, &res);
                 e->printed_slots++;
             }
             if (e->cursor_r < e->replicates)
                 break;
             if (e->aggregate)
-                s_print_aggregate(e, rec);
+                eval_print_aggregate(e->out, rec, (unsigned)e->replicates, e->aggregate);
         }
         wrote = 1;
         free(rec->id_json);
@@ -962,7 +815,7 @@ int cli_cmd_eval(int argc, char **argv)
     {
         char list[4096];
         int has, n_workers;
-        s_pool_plugins(e.client, list, sizeof list, &has, e.plugin, &n_workers);
+        cli_pool_plugins(e.client, list, sizeof list, &has, e.plugin, &n_workers);
         char why[1024];
         if (n_workers > 0 && !has &&
             cli_pool_plugin_blocked(e.client, e.plugin, 5000, why, sizeof why)) {

@@ -456,34 +456,56 @@ static int s_chunk_send(fitfarm_run_t *run, const client_chunk_t *c)
     return rc;
 }
 
+/* A new empty chunk of b with room for cap slots, at the end of the run's
+ * chunks (not yet counted in n_chunks: s_chunk_go does that), or NULL on
+ * out of memory (error set). */
+static client_chunk_t *s_chunk_new(fitfarm_run_t *run, fitfarm_batch_t *b, uint32_t cap)
+{
+    if (run->n_chunks == run->cap_chunks) {
+        size_t n = run->cap_chunks ? run->cap_chunks * 2 : 16;
+        client_chunk_t *v = realloc(run->chunks, n * sizeof *v);
+        if (!v) {
+            client_core_fail(run->core, FITFARM_ENOMEM, "out of memory building chunks");
+            return NULL;
+        }
+        run->chunks = v;
+        run->cap_chunks = n;
+    }
+    client_chunk_t *c = &run->chunks[run->n_chunks];
+    memset(c, 0, sizeof *c);
+    c->slots = malloc((cap ? cap : 1) * sizeof *c->slots);
+    if (!c->slots) {
+        client_core_fail(run->core, FITFARM_ENOMEM, "out of memory building chunks");
+        return NULL;
+    }
+    c->batch = b;
+    return c;
+}
+
+/* Registers the chunk s_chunk_new made and filled, marks its UNSENT slots
+ * SENT and sends it. */
+static int s_chunk_go(fitfarm_run_t *run, client_chunk_t *c)
+{
+    c->batch_tag = run->core->next_batch_tag++;
+    run->n_chunks++;
+    for (uint32_t k = 0; k < c->n_slots; k++)
+        if (c->batch->slots[c->slots[k]].state == CLIENT_SLOT_UNSENT)
+            c->batch->slots[c->slots[k]].state = CLIENT_SLOT_SENT;
+    return s_chunk_send(run, c);
+}
+
 /* Sends the listed slots of b (at most one chunk's worth, in order) as a new
  * chunk; detached: nobody waits for its answer. */
 static int s_send_listed(fitfarm_run_t *run, fitfarm_batch_t *b, const uint32_t *slots,
                          uint32_t n, int detached)
 {
-    if (run->n_chunks == run->cap_chunks) {
-        size_t cap = run->cap_chunks ? run->cap_chunks * 2 : 16;
-        client_chunk_t *c = realloc(run->chunks, cap * sizeof *c);
-        if (!c)
-            return client_core_fail(run->core, FITFARM_ENOMEM, "out of memory building chunks");
-        run->chunks = c;
-        run->cap_chunks = cap;
-    }
-    client_chunk_t *c = &run->chunks[run->n_chunks];
-    memset(c, 0, sizeof *c);
-    c->slots = malloc(n * sizeof *c->slots);
-    if (!c->slots)
-        return client_core_fail(run->core, FITFARM_ENOMEM, "out of memory building chunks");
+    client_chunk_t *c = s_chunk_new(run, b, n);
+    if (!c)
+        return FITFARM_ENOMEM;
     memcpy(c->slots, slots, n * sizeof *slots);
     c->n_slots = n;
-    c->batch = b;
     c->detached = detached;
-    c->batch_tag = run->core->next_batch_tag++;
-    run->n_chunks++;
-    for (uint32_t k = 0; k < n; k++)
-        if (b->slots[slots[k]].state == CLIENT_SLOT_UNSENT)
-            b->slots[slots[k]].state = CLIENT_SLOT_SENT;
-    return s_chunk_send(run, c);
+    return s_chunk_go(run, c);
 }
 
 /* Cuts the slots of batch in state from (UNSENT or ACCEPTED) into chunks of
@@ -500,19 +522,9 @@ static int s_send_slots(fitfarm_run_t *run, fitfarm_batch_t *b, int from, int ba
             s++;
         if (s == n_slots)
             break;
-        if (run->n_chunks == run->cap_chunks) {
-            size_t cap = run->cap_chunks ? run->cap_chunks * 2 : 16;
-            client_chunk_t *c = realloc(run->chunks, cap * sizeof *c);
-            if (!c)
-                return client_core_fail(run->core, FITFARM_ENOMEM, "out of memory building chunks");
-            run->chunks = c;
-            run->cap_chunks = cap;
-        }
-        client_chunk_t *c = &run->chunks[run->n_chunks];
-        memset(c, 0, sizeof *c);
-        c->slots = malloc(CLIENT_CHUNK_ITEMS * sizeof *c->slots);
-        if (!c->slots)
-            return client_core_fail(run->core, FITFARM_ENOMEM, "out of memory building chunks");
+        client_chunk_t *c = s_chunk_new(run, b, CLIENT_CHUNK_ITEMS);
+        if (!c)
+            return FITFARM_ENOMEM;
         size_t bytes = 0;
         for (; s < n_slots && c->n_slots < CLIENT_CHUNK_ITEMS; s++) {
             if (b->slots[s].state != from)
@@ -523,16 +535,10 @@ static int s_send_slots(fitfarm_run_t *run, fitfarm_batch_t *b, int from, int ba
             bytes += len;
             c->slots[c->n_slots++] = (uint32_t)s;
         }
-        c->batch = b;
         c->background = background;
-        c->batch_tag = run->core->next_batch_tag++;
-        run->n_chunks++;
         if (background)
             run->n_resent += c->n_slots;
-        for (uint32_t k = 0; k < c->n_slots; k++)
-            if (b->slots[c->slots[k]].state == CLIENT_SLOT_UNSENT)
-                b->slots[c->slots[k]].state = CLIENT_SLOT_SENT;
-        int rc = s_chunk_send(run, c);
+        int rc = s_chunk_go(run, c);
         if (rc != FITFARM_OK)
             return rc;
         (*n_chunks_sent)++;

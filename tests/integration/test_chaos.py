@@ -10,8 +10,6 @@ Size: 5,000 evaluations; a sanitizer build (slower by several times) runs
 import os
 import random
 import signal
-import sqlite3
-import subprocess
 import threading
 import time
 
@@ -33,17 +31,6 @@ common = ["--plugin", "spin", "--params", '{"ms": 2}', "--seed", "77"]
 rnd = random.Random(5)
 
 
-def done_in_store(path):
-    """Finished evaluations, read from the store while the broker writes it."""
-    try:
-        db = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=1)
-        n = db.execute("SELECT count(*) FROM evaluations WHERE status IS NOT NULL").fetchone()[0]
-        db.close()
-        return n
-    except sqlite3.Error:
-        return 0
-
-
 with fflib.Pool(broker_args=["--liveness", "1500"]) as pool:
     pool.start_broker()
     live = [pool.start_worker(slots=1, name=f"c{i}") for i in range(3)]
@@ -63,7 +50,7 @@ with fflib.Pool(broker_args=["--liveness", "1500"]) as pool:
                 stats["worker kills"] += 1
                 live[i] = pool.start_worker(slots=1, name=f"c{serial}")
                 serial += 1
-                if broker_marks and done_in_store(db_path) >= broker_marks[0]:
+                if broker_marks and fflib.done_in_store(db_path) >= broker_marks[0]:
                     broker_marks.pop(0)
                     pool.kill(pool.broker, signal.SIGKILL)
                     stats["broker kills"] += 1

@@ -17,7 +17,6 @@ import json
 import os
 import random
 import signal
-import sqlite3
 import subprocess
 import threading
 import time
@@ -40,16 +39,6 @@ gs = fflib.genomes(N, 3, seed=2026)
 text = fflib.jsonl(gs)
 common = ["--plugin", "spin", "--params", '{"ms": 2}', "--seed", "78", "--replicates", str(REPS)]
 rnd = random.Random(11)
-
-
-def done_in_store(path):
-    try:
-        db = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=1)
-        n = db.execute("SELECT count(*) FROM evaluations WHERE status IS NOT NULL").fetchone()[0]
-        db.close()
-        return n
-    except sqlite3.Error:
-        return 0
 
 
 def client(pool, extra=()):
@@ -79,7 +68,7 @@ with fflib.Pool(broker_args=["--liveness", "1500"]) as pool:
                 stats["worker kills"] += 1
                 live[i] = pool.start_worker(slots=1, name=f"r{serial}")
                 serial += 1
-                if marks and done_in_store(db_path) >= marks[0] // REPS:
+                if marks and fflib.done_in_store(db_path) >= marks[0] // REPS:
                     marks.pop(0)
                     # At once, not waiting for the old process to be gone:
                     # it may still hold its store lock and ports while dying.
