@@ -356,45 +356,6 @@ fail:
     return -1;
 }
 
-/* Waits for a child that is exiting (its socket closed) and returns its
- * status; SIGKILLs it if it lingers past the grace period. */
-static int s_reap(pid_t pid, struct rusage *ru)
-{
-    int status = 0;
-    int64_t until = common_clock_ms() + S_REAP_GRACE_MS;
-    for (;;) {
-        pid_t r = wait4(pid, &status, WNOHANG, ru);
-        if (r == pid)
-            return status;
-        if (r < 0 && errno != EINTR)
-            return 0;
-        if (common_clock_ms() >= until)
-            break;
-        struct timespec ts = {0, 2 * 1000 * 1000};
-        nanosleep(&ts, NULL);
-    }
-    kill(pid, SIGKILL);
-    while (wait4(pid, &status, 0, ru) < 0 && errno == EINTR)
-        ;
-    return status;
-}
-
-static void s_describe_status(int status, char *out, size_t outlen)
-{
-    if (WIFSIGNALED(status)) {
-        int sig = WTERMSIG(status);
-        const char *abbrev = sigabbrev_np(sig);
-        snprintf(out, outlen, "evaluation killed by signal %d (SIG%s)", sig,
-                 abbrev ? abbrev : "?");
-    } else if (WIFEXITED(status)) {
-        snprintf(out, outlen, "evaluation ended its process with exit status %d",
-                 WEXITSTATUS(status));
-    } else {
-        snprintf(out, outlen, "evaluation process ended (wait status %#x)", (unsigned)status);
-    }
-}
-
-
 /* Which of child i's jobs is running (index into its FIFO), and since when;
  * -1 if the status block says none. See the top of the file for trust. */
 static int s_running(const worker_pool_t *self, unsigned i, int64_t *start_us)
@@ -483,13 +444,13 @@ static void s_on_death(worker_pool_t *self, unsigned i, const char *why)
     int64_t start_us = 0;
     int k = s_running(self, i, &start_us); /* read before the slot is reused */
     struct rusage ru = {0};
-    int status = s_reap(c->pid, &ru);
+    int status = worker_reaper_wait(c->pid, S_REAP_GRACE_MS, &ru);
     /* Its helpers in its group must not outlive it (the group id stays
      * taken while any member lives, so this cannot hit a stranger). */
     kill(-c->pid, SIGKILL);
     s_output_end(self, i);
     char text[PROTO_MAX_ERROR_BYTES];
-    s_describe_status(status, text, sizeof text);
+    worker_reaper_describe(status, text, sizeof text);
     if (why)
         snprintf(text + strlen(text), sizeof text - strlen(text), " (%s)", why);
     if (k >= 0) {

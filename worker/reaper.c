@@ -10,7 +10,9 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/prctl.h>
+#include <sys/resource.h>
 #include <sys/wait.h>
+#include <time.h>
 #include <unistd.h>
 
 #include "common/clock.h"
@@ -153,4 +155,40 @@ unsigned worker_reaper_sweep(const pid_t *keep, size_t n_keep, int budget_ms)
             break;
     }
     return killed;
+}
+
+int worker_reaper_wait(pid_t pid, int grace_ms, struct rusage *ru)
+{
+    int status = 0;
+    int64_t until = common_clock_ms() + grace_ms;
+    for (;;) {
+        pid_t r = wait4(pid, &status, WNOHANG, ru);
+        if (r == pid)
+            return status;
+        if (r < 0 && errno != EINTR)
+            return 0;
+        if (common_clock_ms() >= until)
+            break;
+        struct timespec ts = {0, 2 * 1000 * 1000};
+        nanosleep(&ts, NULL);
+    }
+    kill(pid, SIGKILL);
+    while (wait4(pid, &status, 0, ru) < 0 && errno == EINTR)
+        ;
+    return status;
+}
+
+void worker_reaper_describe(int status, char *out, size_t outlen)
+{
+    if (WIFSIGNALED(status)) {
+        int sig = WTERMSIG(status);
+        const char *abbrev = sigabbrev_np(sig);
+        snprintf(out, outlen, "evaluation killed by signal %d (SIG%s)", sig,
+                 abbrev ? abbrev : "?");
+    } else if (WIFEXITED(status)) {
+        snprintf(out, outlen, "evaluation ended its process with exit status %d",
+                 WEXITSTATUS(status));
+    } else {
+        snprintf(out, outlen, "evaluation process ended (wait status %#x)", (unsigned)status);
+    }
 }

@@ -42,4 +42,12 @@ size_t worker_reaper_children(pid_t parent, pid_t *out, size_t max);
  * not race with another waitpid of the same children. */
 unsigned worker_reaper_sweep(const pid_t *keep, size_t n_keep, int budget_ms);
 
+struct rusage;
+/* Waits for child pid, which is exiting (its socket closed), and returns its
+ * wait status with its resource use in *ru; SIGKILLs it if it lingers past
+ * grace_ms. */
+int worker_reaper_wait(pid_t pid, int grace_ms, struct rusage *ru);
+/* "evaluation killed by signal 11 (SIGSEGV)" and the like, for a wait status. */
+void worker_reaper_describe(int status, char *out, size_t outlen);
+
 #endif
