@@ -178,6 +178,7 @@ static void s_queue_accept(broker_t *b, const uint8_t *rid, size_t rid_len, brok
     a->run = run;
     a->batch_tag = batch_tag;
     a->n_accepted = n;
+    a->told_store = 0;
 }
 
 /* Seed and key of one item, recomputed here: the client's word is not taken.
@@ -720,6 +721,24 @@ static void s_flush_run(broker_t *b, broker_run_t *run)
     }
     b->results_sent += run->n_outbox;
     broker_runs_sent(&b->runs, run);
+}
+
+void broker_client_tell_store_failing(broker_t *b)
+{
+    char text[1200];
+    int described = 0;
+    for (size_t i = 0; i < b->n_accepts; i++) {
+        broker_accept_t *a = &b->accepts[i];
+        if (a->told_store)
+            continue;
+        if (!described) {
+            broker_store_describe(b->store, text, sizeof text);
+            described = 1;
+        }
+        a->told_store = 1;
+        s_send_refused(b, a->rid, a->rid_len, PROTO_REFUSE_STORE, a->batch_tag, a->run->id,
+                       NULL, text);
+    }
 }
 
 void broker_client_flush(broker_t *b)

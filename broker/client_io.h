@@ -25,5 +25,11 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
 /* Before-sleep, after the store commit: ACCEPTED replies, then RESULTS per
  * run in messages of many results. */
 void broker_client_flush(broker_t *b);
+/* The turn's commit failed: each client whose batch was taken in this turn
+ * (and waits for ACCEPTED, held until a commit succeeds) is told the store's
+ * reason once, as a refusal, instead of waiting out its time-out. The
+ * batch's requests stay in the store's write log: they are written and
+ * evaluated when the store recovers, so resuming the run answers them. */
+void broker_client_tell_store_failing(broker_t *b);
 
 #endif

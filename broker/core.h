@@ -44,6 +44,7 @@ typedef struct {
     broker_run_t *run;
     uint64_t batch_tag;
     uint32_t n_accepted;
+    uint8_t told_store; /* its turn's commit failed and the client was told why */
 } broker_accept_t;
 
 typedef struct broker {

@@ -123,8 +123,12 @@ static int s_before_sleep(broker_t *b)
      * the running ones finish and wait in memory, nothing more is sent. */
     if (!b->stopping && !broker_store_failing(b->store))
         broker_dispatch_turn(b);
-    if (broker_store_commit(b->store) != 0)
-        return -1; /* nothing that depends on it may go out (store.c logs, rate-limited) */
+    if (broker_store_commit(b->store) != 0) {
+        /* Nothing that depends on it may go out (store.c logs, rate-limited),
+         * but a client waiting for this turn's ACCEPTED hears why. */
+        broker_client_tell_store_failing(b);
+        return -1;
+    }
     b->runs.epoch++; /* every answer so far is durable (runs.h) */
     broker_client_flush(b);
     if (b->runs.went_idle) {

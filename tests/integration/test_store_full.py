@@ -183,6 +183,27 @@ with fflib.Pool(tmp=tmp, broker_exe="fitfarm-broker-faults",
     st = pool.status()
     check.ok(st and not [w for w in st.get("warnings", []) if "store" in w], "status: no store warning")
 
+    # ---- 1b. A batch taken in the very turn the store fails -------------
+    # Its ACCEPTED waits for a commit that does not come; the client is told
+    # the cause at once instead of waiting out its own time-out, and once
+    # space is back the run's requests (kept in the write log) are answered
+    # when it is resumed.
+    caught = fflib.jsonl(fflib.genomes(5, 4, seed=123))
+    open(pages, "w").write("+0")  # full from the next write on
+    t0 = time.time()
+    rc3, lines3, err3 = fflib.run_eval(["--broker", pool.clients_ep, "--run", "caught"] + PARAMS,
+                                       caught, timeout=120)
+    took3 = time.time() - t0
+    check.ok(rc3 != 0 and not lines3 and "store cannot write" in err3 and took3 < 20,
+             f"a batch caught in the failing turn is told why in {took3:.1f} s: {err3[-300:]}")
+    open(pages, "w").write("off")
+    check.ok(wait_for(lambda: log_text(pool).count("writable again") >= 2, 20),
+             "writable again after the caught batch")
+    rc4, lines4, err4 = fflib.run_eval(["--broker", pool.clients_ep, "--run", "caught"] + PARAMS,
+                                       caught, timeout=120)
+    check.ok(rc4 == 0 and len(lines4) == 5 and all(x["status"] == "ok" for x in lines4),
+             f"... and resuming the run answers it: exit {rc4} {err4[-300:]}")
+
     # ---- 2. SIGTERM while the store cannot write -------------------------
     inp2 = os.path.join(tmp, "term.jsonl")
     out2 = os.path.join(tmp, "term.out")
@@ -190,7 +211,7 @@ with fflib.Pool(tmp=tmp, broker_exe="fitfarm-broker-faults",
     cli2 = start_client(pool, "term", inp2, out2)
     wait_for(lambda: answered_in_store(db_path, "term") >= 100, 60)
     open(pages, "w").write("+1")
-    check.ok(wait_for(lambda: failures(log_text(pool)) == 2, 30), "failing again")
+    check.ok(wait_for(lambda: failures(log_text(pool)) == 3, 30), "failing again")
     time.sleep(1)
     old = pool.broker
     pool.kill(old, signal.SIGTERM)
