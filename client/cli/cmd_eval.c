@@ -88,6 +88,8 @@ static const char s_help[] =
     "                     stdout) as plugin NAME; repeatable, up to 16\n"
     "  --store DIR        embedded pool: keep its durable store in DIR (default: a\n"
     "                     private temporary one), so --run ID can resume later\n"
+    "  --quiet            no progress line (shown on stderr when it is a terminal:\n"
+    "                     results, cached, failed, rate, time left)\n"
     "  --stats            at the end, print on stderr one line of counts: results,\n"
     "                     duplicates dropped, requests re-sent after a reconnect\n"
     "\n"
@@ -141,6 +143,9 @@ typedef struct {
     size_t *batch_last;        /* last record index of each submitted batch */
     size_t n_batches, cap_batches;
     size_t submitted, printed_slots; /* progress: results expected / printed */
+    size_t printed_cached, printed_failed;
+    int64_t started_ms, last_result_ms; /* progress: rate and silence */
+    int quiet;
     int any_not_ok;
     int progress_tty;
     int64_t progress_at;
@@ -222,6 +227,10 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         STR_OPT("--aggregate", aggregate_name)
         if (strcmp(arg, "--stats") == 0) {
             e->stats = 1;
+            continue;
+        }
+        if (strcmp(arg, "--quiet") == 0) {
+            e->quiet = 1;
             continue;
         }
         if (strcmp(arg, "--no-cache") == 0) {
@@ -547,6 +556,9 @@ static void s_flush_prefix(eval_t *e)
                     break;
                 e->any_not_ok |= eval_print_result(e->out, rec, &res);
                 e->printed_slots++;
+                e->printed_cached += res.cached != 0;
+                e->printed_failed += res.status != FITFARM_STATUS_OK;
+                e->last_result_ms = common_clock_ms();
             }
             if (e->cursor_r < e->replicates)
                 break;
@@ -597,15 +609,34 @@ static int s_room(const eval_t *e)
            e->submitted + building - e->printed_slots < EVAL_AHEAD_SLOTS;
 }
 
+/* On a terminal, one line redrawn in place: answered of sent, cached,
+ * failed, the answer rate and the time left at that rate, and how long the
+ * pool has been silent when it is (a broker out of reach, or a long
+ * evaluation). Nothing when stderr is not a terminal, or with --quiet. */
 static void s_progress(eval_t *e, int final)
 {
-    if (!e->progress_tty)
+    if (!e->progress_tty || e->quiet)
         return;
     int64_t now = common_clock_ms();
     if (!final && now - e->progress_at < 200)
         return;
     e->progress_at = now;
-    fprintf(stderr, "\rfitfarm eval: %zu of %zu results%s", e->printed_slots, e->submitted,
+    if (!e->started_ms)
+        e->started_ms = e->last_result_ms = now;
+    double secs = (double)(now - e->started_ms) / 1000.0;
+    double rate = secs > 0.5 ? (double)e->printed_slots / secs : 0;
+    char tail[96] = "";
+    size_t left = e->submitted > e->printed_slots ? e->submitted - e->printed_slots : 0;
+    double silent = (double)(now - e->last_result_ms) / 1000.0;
+    if (!final && left > 0 && silent >= 5)
+        snprintf(tail, sizeof tail, ", no result for %.0f s (waiting for the pool)", silent);
+    else if (!final && left > 0 && rate > 0)
+        snprintf(tail, sizeof tail, ", %.1f/s, about %.0f s left", rate, (double)left / rate);
+    else if (rate > 0)
+        snprintf(tail, sizeof tail, ", %.1f/s", rate);
+    /* \033[K clears what a longer previous line left on the right. */
+    fprintf(stderr, "\rfitfarm eval: %zu of %zu results, %zu cached, %zu failed%s\033[K%s",
+            e->printed_slots, e->submitted, e->printed_cached, e->printed_failed, tail,
             final ? "\n" : "");
     fflush(stderr);
 }
