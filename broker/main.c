@@ -27,7 +27,8 @@ static void s_usage(FILE *out)
             "  --store DIR           durable store folder (SQLite, DIR/fitfarm.db; default\n"
             "                        ./fitfarm-store). Runs, accepted requests and results\n"
             "                        survive a restart; one broker per store\n"
-            "  --liveness MS         drop a worker silent this long (default 5000)\n"
+            "  --lost-after MS       a worker silent this long is lost: dropped, its jobs\n"
+            "                        re-queued (default 5000; formerly --liveness)\n"
             "  --heartbeat MS        heartbeat interval to workers (default 1000)\n"
             "  --attempts N          tries of a job that crashes or times out (default 3)\n"
             "  --endpoints-file FILE write the bound endpoints there as\n"
@@ -163,7 +164,7 @@ int main(int argc, char **argv)
         }
         static const char *const with_value[] = {
             "--clients",          "--workers",          "--store",
-            "--liveness",         "--heartbeat",        "--attempts",
+            "--liveness",         "--lost-after",       "--heartbeat",        "--attempts",
             "--endpoints-file",   "--key",              "--keys",
             "--config",           "--max-message-bytes", "--max-genome-bytes",
             "--max-batch",        "--max-objectives",   "--max-string-bytes",
@@ -219,10 +220,13 @@ int main(int argc, char **argv)
             if (s_parse_int(v, 1, 1L << 30, &n) != 0)
                 return s_bad("--cache-mb wants MiB between 1 and 1073741824, not '%s'", v);
             cfg.cache_bytes = (uint64_t)n << 20;
-        } else if (strcmp(a, "--liveness") == 0) {
+        } else if (strcmp(a, "--lost-after") == 0 || strcmp(a, "--liveness") == 0) {
             if (s_parse_int(v, 10, 86400000, &n) != 0)
-                return s_bad("--liveness wants milliseconds between 10 and 86400000, not '%s'",
+                return s_bad("--lost-after wants milliseconds between 10 and 86400000, not '%s'",
                              v);
+            if (strcmp(a, "--liveness") == 0)
+                fprintf(stderr, "fitfarm-broker: --liveness is now --lost-after (the old "
+                        "spelling works for this release only)\n");
             cfg.liveness_ms = (int)n;
         } else if (strcmp(a, "--heartbeat") == 0) {
             if (s_parse_int(v, 10, 3600000, &n) != 0)

@@ -24,7 +24,7 @@ def wait_done(path, n, proc):
     return fflib.done_in_store(path)
 
 
-with fflib.Pool(broker_args=["--liveness", "2000"]) as pool:
+with fflib.Pool(broker_args=["--lost-after", "2000"]) as pool:
     pool.start_broker()
     pool.start_worker(slots=1, name="b0")
     pool.start_worker(slots=1, name="b1")

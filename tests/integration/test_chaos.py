@@ -31,7 +31,7 @@ common = ["--plugin", "spin", "--params", '{"ms": 2}', "--seed", "77"]
 rnd = random.Random(5)
 
 
-with fflib.Pool(broker_args=["--liveness", "1500"]) as pool:
+with fflib.Pool(broker_args=["--lost-after", "1500"]) as pool:
     pool.start_broker()
     live = [pool.start_worker(slots=1, name=f"c{i}") for i in range(3)]
     pool.wait_workers(3)

@@ -48,7 +48,7 @@ def client(pool, extra=()):
                             stderr=subprocess.PIPE, text=True)
 
 
-with fflib.Pool(broker_args=["--liveness", "1500"]) as pool:
+with fflib.Pool(broker_args=["--lost-after", "1500"]) as pool:
     pool.start_broker()
     live = [pool.start_worker(slots=1, name=f"r{i}") for i in range(3)]
     pool.wait_workers(3)

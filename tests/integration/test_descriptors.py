@@ -37,12 +37,12 @@ def limit():
     resource.setrlimit(resource.RLIMIT_NOFILE, (HARD, HARD))
 
 
-with fflib.Pool(broker_args=["--liveness", "5000"]) as pool:
+with fflib.Pool(broker_args=["--lost-after", "5000"]) as pool:
     epfile = os.path.join(pool.tmp, "endpoints")
     log_path = os.path.join(pool.tmp, "broker.log")
     broker = subprocess.Popen([fflib.exe("fitfarm-broker"), "--clients", "tcp://127.0.0.1:*",
                                "--workers", "tcp://127.0.0.1:*", "--endpoints-file", epfile,
-                               "--store", pool.store, "--insecure", "--liveness", "5000"],
+                               "--store", pool.store, "--insecure", "--lost-after", "5000"],
                               stdout=subprocess.DEVNULL, stderr=open(log_path, "ab"),
                               preexec_fn=limit)
     pool.procs.append(broker)

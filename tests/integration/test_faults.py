@@ -34,7 +34,7 @@ if SANITIZED:
     cases = [c for c in cases if c[0] != 4]
     print("skipped under sanitizers: behaviour 4 (memory past --mem-limit)")
 plugin_dir = os.path.join(fflib.BUILD, "test-plugins")
-with fflib.Pool(broker_args=["--liveness", "3000"]) as pool:
+with fflib.Pool(broker_args=["--lost-after", "3000"]) as pool:
     pool.start_broker()
     workers = [pool.start_worker(slots=1, name=f"f{i}",
                                  extra=["--plugin-dir", plugin_dir] + ([] if SANITIZED else ["--mem-limit", "256"]))

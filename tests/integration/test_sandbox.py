@@ -69,7 +69,7 @@ def cleanup(ps):
 tmp = tempfile.mkdtemp(prefix="fitfarm-sandbox-")
 leftovers = []
 try:
-    with fflib.Pool(tmp=tmp, broker_args=["--liveness", "3000"]) as pool:
+    with fflib.Pool(tmp=tmp, broker_args=["--lost-after", "3000"]) as pool:
         pool.start_broker()
         so = pool.start_worker(slots=1, name="so", extra=["--plugin-dir", PLUGINS])
         pool.wait_workers(1)

@@ -63,7 +63,7 @@ gs = fflib.genomes(1500, 3, seed=77)
 rc0, ref, err0 = fflib.run_eval(["--slots", "2", "--run", "stall-ref"] + common, fflib.jsonl(gs))
 check.ok(rc0 == 0 and len(ref) == len(gs), f"fault-free reference: {err0[-300:]}")
 
-with fflib.Pool(broker_args=["--liveness", "1500"]) as pool:
+with fflib.Pool(broker_args=["--lost-after", "1500"]) as pool:
     pool.start_broker()
     pool.start_worker(slots=2, name="a")
     pool.start_worker(slots=2, name="b")

@@ -5,6 +5,7 @@ store tells the truth about it: `fitfarm export` counts the lost dispatch in
 `attempts` of each re-queued job (computed then by the survivor), and a later
 run answered from the cache is not shown as finished before it was asked."""
 import json
+import os
 import signal
 import subprocess
 import threading
@@ -64,4 +65,7 @@ with fflib.Pool(broker_args=["--liveness", "1500"]) as pool:
              all(x["computed_at"] <= x["requested_at"] for x in cached_rows),
              "cached rows: finished (answered) when requested, computed before: "
              f"{[(x['requested_at'], x['finished_at'], x['computed_at']) for x in cached_rows[:1]]}")
+    log = open(os.path.join(pool.tmp, "broker.log"), errors="replace").read()
+    check.ok("--liveness is now --lost-after" in log,
+             "the old spelling --liveness still works, with a warning naming --lost-after")
 check.done(pool)
