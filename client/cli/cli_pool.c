@@ -65,3 +65,17 @@ void cli_pool_plugins(fitfarm_client_t *client, char *buf, size_t len, int *has,
     }
     fitfarm_status_destroy(&st);
 }
+
+int cli_pool_say_unknown(fitfarm_client_t *client, const char *prog, const char *plugin,
+                         const char *detail)
+{
+    char list[4096];
+    int has, n_workers;
+    cli_pool_plugins(client, list, sizeof list, &has, plugin, &n_workers);
+    if (detail)
+        fprintf(stderr, "%s: %s\n", prog, detail);
+    else
+        fprintf(stderr, "%s: the pool has no plugin \"%s\"\n", prog, plugin);
+    fprintf(stderr, "%s: plugins the pool has: %s\n", prog, list[0] ? list : "(none)");
+    return 2;
+}

@@ -21,4 +21,10 @@ int cli_pool_plugin_blocked(fitfarm_client_t *client, const char *plugin, int ti
 void cli_pool_plugins(fitfarm_client_t *client, char *buf, size_t len, int *has,
                       const char *want, int *n_workers);
 
+/* Says on stderr, as prog, that the pool has no plugin (detail: the
+ * library's sentence, or NULL) and which plugins it has. Returns 2, the
+ * usage exit status. */
+int cli_pool_say_unknown(fitfarm_client_t *client, const char *prog, const char *plugin,
+                         const char *detail);
+
 #endif

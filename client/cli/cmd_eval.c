@@ -331,19 +331,6 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
     return 0;
 }
 
-static int s_unknown_plugin(eval_t *e, const char *detail)
-{
-    char list[4096];
-    int has, n_workers;
-    cli_pool_plugins(e->client, list, sizeof list, &has, e->plugin, &n_workers);
-    if (detail)
-        fprintf(stderr, "fitfarm eval: %s\n", detail);
-    else
-        fprintf(stderr, "fitfarm eval: the pool has no plugin \"%s\"\n", e->plugin);
-    fprintf(stderr, "fitfarm eval: plugins the pool has: %s\n", list[0] ? list : "(none)");
-    return 2;
-}
-
 static int s_reserve_records(eval_t *e)
 {
     if (e->n_records < e->cap_records)
@@ -524,7 +511,8 @@ static int s_send_batch(eval_t *e, fitfarm_batch_t *b)
         e->retry_noted_at = 0;
     }
     if (rc == FITFARM_EPLUGIN)
-        return s_unknown_plugin(e, fitfarm_client_error(e->client));
+        return cli_pool_say_unknown(e->client, "fitfarm eval", e->plugin,
+                                    fitfarm_client_error(e->client));
     if (rc == FITFARM_ENOTRECORDED)
         return s_not_recorded(e, b);
     if (rc != 0) {
@@ -609,10 +597,8 @@ static int s_room(const eval_t *e)
            e->submitted + building - e->printed_slots < EVAL_AHEAD_SLOTS;
 }
 
-/* On a terminal, one line redrawn in place: answered of sent, cached,
- * failed, the answer rate and the time left at that rate, and how long the
- * pool has been silent when it is (a broker out of reach, or a long
- * evaluation). Nothing when stderr is not a terminal, or with --quiet. */
+/* The progress line (eval_lines.h), at most every 200 ms, on a terminal
+ * only and not with --quiet. */
 static void s_progress(eval_t *e, int final)
 {
     if (!e->progress_tty || e->quiet)
@@ -623,22 +609,14 @@ static void s_progress(eval_t *e, int final)
     e->progress_at = now;
     if (!e->started_ms)
         e->started_ms = e->last_result_ms = now;
-    double secs = (double)(now - e->started_ms) / 1000.0;
-    double rate = secs > 0.5 ? (double)e->printed_slots / secs : 0;
-    char tail[96] = "";
-    size_t left = e->submitted > e->printed_slots ? e->submitted - e->printed_slots : 0;
-    double silent = (double)(now - e->last_result_ms) / 1000.0;
-    if (!final && left > 0 && silent >= 5)
-        snprintf(tail, sizeof tail, ", no result for %.0f s (waiting for the pool)", silent);
-    else if (!final && left > 0 && rate > 0)
-        snprintf(tail, sizeof tail, ", %.1f/s, about %.0f s left", rate, (double)left / rate);
-    else if (rate > 0)
-        snprintf(tail, sizeof tail, ", %.1f/s", rate);
-    /* \033[K clears what a longer previous line left on the right. */
-    fprintf(stderr, "\rfitfarm eval: %zu of %zu results, %zu cached, %zu failed%s\033[K%s",
-            e->printed_slots, e->submitted, e->printed_cached, e->printed_failed, tail,
-            final ? "\n" : "");
-    fflush(stderr);
+    eval_print_progress(stderr,
+                        &(eval_progress_t){.answered = e->printed_slots,
+                                           .sent = e->submitted,
+                                           .cached = e->printed_cached,
+                                           .failed = e->printed_failed,
+                                           .seconds = (double)(now - e->started_ms) / 1000.0,
+                                           .silent = (double)(now - e->last_result_ms) / 1000.0},
+                        final);
 }
 
 /* The reading and waiting loop. Returns the exit status. */

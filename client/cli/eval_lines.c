@@ -1,5 +1,6 @@
-/* eval_lines.c: the JSON Lines that `fitfarm eval` prints (eval_lines.h):
- * one per request (genome x replicate) and, with --aggregate, one per genome.
+/* eval_lines.c: the lines that `fitfarm eval` prints (eval_lines.h): JSON
+ * Lines on stdout, one per request (genome x replicate) and, with
+ * --aggregate, one per genome; and the progress line on the terminal.
  * 64-bit seeds are strings (a JSON reader with doubles would round them);
  * numbers round-trip (proto_format_double). Not here: reading input and
  * ordering the output (cmd_eval.c). */
@@ -113,3 +114,19 @@ void eval_print_aggregate(FILE *out, const eval_record_t *rec, unsigned replicat
     free(v);
 }
 
+void eval_print_progress(FILE *out, const eval_progress_t *p, int final)
+{
+    double rate = p->seconds > 0.5 ? (double)p->answered / p->seconds : 0;
+    size_t left = p->sent > p->answered ? p->sent - p->answered : 0;
+    char tail[96] = "";
+    if (!final && left > 0 && p->silent >= 5)
+        snprintf(tail, sizeof tail, ", no result for %.0f s (waiting for the pool)", p->silent);
+    else if (!final && left > 0 && rate > 0)
+        snprintf(tail, sizeof tail, ", %.1f/s, about %.0f s left", rate, (double)left / rate);
+    else if (rate > 0)
+        snprintf(tail, sizeof tail, ", %.1f/s", rate);
+    /* \033[K clears what a longer previous line left on the right. */
+    fprintf(out, "\rfitfarm eval: %zu of %zu results, %zu cached, %zu failed%s\033[K%s",
+            p->answered, p->sent, p->cached, p->failed, tail, final ? "\n" : "");
+    fflush(out);
+}

@@ -1,5 +1,6 @@
-/* eval_lines.h: the output lines of `fitfarm eval` (eval_lines.c), and the
- * input record each answers. Not the input parser (jsonl.h). */
+/* eval_lines.h: the lines `fitfarm eval` writes (eval_lines.c): results on
+ * stdout, with the input record each answers, and the progress line on the
+ * terminal. Not the input parser (jsonl.h). */
 #ifndef CLIENT_CLI_EVAL_LINES_H
 #define CLIENT_CLI_EVAL_LINES_H
 
@@ -25,5 +26,17 @@ int eval_print_result(FILE *out, const eval_record_t *rec, const fitfarm_result_
  * are all in: per objective over its ok replicates, with the sample standard
  * deviation. */
 void eval_print_aggregate(FILE *out, const eval_record_t *rec, unsigned replicates, int how);
+
+/* The progress of a run so far, for the line on the user's terminal. */
+typedef struct {
+    size_t answered, sent, cached, failed;
+    double seconds; /* since the first request was sent */
+    double silent;  /* since the last result */
+} eval_progress_t;
+/* One line redrawn in place (carriage return, clear to end of line):
+ * answered of sent, cached, failed, the rate and the time left at that
+ * rate, or how long the pool has been silent (a broker out of reach, or a
+ * long evaluation); final ends it with a newline. */
+void eval_print_progress(FILE *out, const eval_progress_t *p, int final);
 
 #endif
