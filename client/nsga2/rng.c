@@ -1,44 +1,25 @@
-/* rng.c: xoshiro256** and splitmix64 as published (see rng.h), plus the two
- * conversions the optimizer needs (a double in [0, 1), an unbiased index). */
+/* rng.c: the optimizer's generator (rng.h) over fitfarm_rng.h, plus an
+ * unbiased index in [0, n). */
 #include "rng.h"
 
 uint64_t nsga2_rng_splitmix64(uint64_t *state)
 {
-    uint64_t z = (*state += 0x9e3779b97f4a7c15ULL);
-    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
-    z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
-    return z ^ (z >> 31);
+    return fitfarm_splitmix64_next(state);
 }
 
 void nsga2_rng_seed(nsga2_rng_t *self, uint64_t seed)
 {
-    uint64_t sm = seed;
-    for (int i = 0; i < 4; i++)
-        self->s[i] = nsga2_rng_splitmix64(&sm);
-}
-
-static inline uint64_t s_rotl(uint64_t x, int k)
-{
-    return (x << k) | (x >> (64 - k));
+    fitfarm_rng_seed(self, seed);
 }
 
 uint64_t nsga2_rng_next(nsga2_rng_t *self)
 {
-    uint64_t *s = self->s;
-    const uint64_t result = s_rotl(s[1] * 5, 7) * 9;
-    const uint64_t t = s[1] << 17;
-    s[2] ^= s[0];
-    s[3] ^= s[1];
-    s[1] ^= s[2];
-    s[0] ^= s[3];
-    s[2] ^= t;
-    s[3] = s_rotl(s[3], 45);
-    return result;
+    return fitfarm_rng_next(self);
 }
 
 double nsga2_rng_uniform(nsga2_rng_t *self)
 {
-    return (double)(nsga2_rng_next(self) >> 11) * 0x1.0p-53;
+    return fitfarm_rng_uniform(self);
 }
 
 uint64_t nsga2_rng_below(nsga2_rng_t *self, uint64_t n)
@@ -47,7 +28,7 @@ uint64_t nsga2_rng_below(nsga2_rng_t *self, uint64_t n)
     const uint64_t limit = UINT64_MAX - UINT64_MAX % n;
     uint64_t x;
     do
-        x = nsga2_rng_next(self);
+        x = fitfarm_rng_next(self);
     while (x >= limit);
     return x % n;
 }

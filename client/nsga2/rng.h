@@ -1,16 +1,18 @@
-/* rng.h: the optimizer's own random numbers. xoshiro256** seeded through
+/* rng.h: the optimizer's own random numbers: xoshiro256** seeded through
  * splitmix64 (Blackman & Vigna, "Scrambled linear pseudorandom number
- * generators", 2018/2021, and the authors' reference C code), so a search
- * draws the same numbers from the same --seed on every machine and build.
- * Not the plugins' generator: this one belongs to the optimizer alone. */
+ * generators", 2018/2021), the same header-only generator the plugins draw
+ * from (fitfarm_rng.h), so a search draws the same numbers from the same
+ * --seed on every machine and build. Its own state: the optimizer's draws
+ * never mix with any evaluation's. Adds the unbiased index the optimizer
+ * needs. */
 #ifndef CLIENT_NSGA2_RNG_H
 #define CLIENT_NSGA2_RNG_H
 
 #include <stdint.h>
 
-typedef struct {
-    uint64_t s[4];
-} nsga2_rng_t;
+#include "fitfarm_rng.h"
+
+typedef fitfarm_rng_t nsga2_rng_t;
 
 /* splitmix64: advances *state and returns the next output. */
 uint64_t nsga2_rng_splitmix64(uint64_t *state);
