@@ -462,6 +462,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
 
     const char *params = broker_intern(&b->intern, canon);
     int no_cache = (s->flags & PROTO_SUBMIT_NO_CACHE) != 0;
+    broker_runs_take_begin(&b->runs, run);
     for (uint32_t i = 0; i < s->n_items; i++) {
         const proto_item_t *it = &s->items[i];
         broker_eval_t *e = broker_cache_lookup(b, keys[i]); /* RAM, else the store */
@@ -542,6 +543,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, 0);
         assert(broker_eval_check(&b->evals, e));
     }
+    broker_runs_take_end(&b->runs, run);
     s_queue_accept(b, rid, rid_len, run, s->batch_tag, s->n_items);
 
 cleanup:

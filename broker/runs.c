@@ -418,6 +418,16 @@ uint64_t broker_run_request_seed(const broker_run_t *run, const uint8_t *genome,
     return proto_seed_derive(run->seed, (int)run->seed_mode, genome, genome_len, replicate);
 }
 
+/* One line per stretch of work: a run that went idle says what it did. */
+static void s_log_idle(broker_runs_t *self, broker_run_t *run)
+{
+    LOG_INFO("run %s idle: %" PRIu64 " requests answered (%" PRIu64 " evaluated, %" PRIu64
+             " cached, %" PRIu64 " failed)",
+             run->id, run->p_answered, run->p_evaluated, run->p_cached, run->p_failed);
+    run->p_answered = run->p_evaluated = run->p_cached = run->p_failed = 0;
+    self->went_idle = 1;
+}
+
 void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, uint64_t seed,
                         broker_eval_t *e, int cached)
 {
@@ -445,12 +455,25 @@ void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, ui
         run->use->outstanding--;
     }
     if (run->outstanding == 0) {
-        LOG_INFO("run %s idle: %" PRIu64 " requests answered (%" PRIu64 " evaluated, %" PRIu64
-                 " cached, %" PRIu64 " failed)",
-                 run->id, run->p_answered, run->p_evaluated, run->p_cached, run->p_failed);
-        run->p_answered = run->p_evaluated = run->p_cached = run->p_failed = 0;
-        self->went_idle = 1;
+        if (self->taking == run)
+            run->idle_deferred = 1; /* said once, when the SUBMIT is taken */
+        else
+            s_log_idle(self, run);
     }
+}
+
+void broker_runs_take_begin(broker_runs_t *self, broker_run_t *run)
+{
+    self->taking = run;
+    run->idle_deferred = 0;
+}
+
+void broker_runs_take_end(broker_runs_t *self, broker_run_t *run)
+{
+    self->taking = NULL;
+    if (run->idle_deferred && run->outstanding == 0)
+        s_log_idle(self, run);
+    run->idle_deferred = 0;
 }
 
 int broker_runs_redeliver(broker_runs_t *self, broker_run_t *run, uint64_t tag, uint64_t seed,
