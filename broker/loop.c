@@ -258,9 +258,12 @@ int broker_main_run(const broker_config_t *config)
     } else {
         rc = 0;
     }
+    uint64_t commits = broker_store_commits(b.store);
     LOG_INFO("broker stopping: %" PRIu64 " jobs sent, %" PRIu64 " results sent, %" PRIu64
-             " messages dropped",
-             b.jobs_sent, b.results_sent, b.dropped_msgs);
+             " messages dropped; %" PRIu64 " store commits taking %.1f s (%.0f us each)",
+             b.jobs_sent, b.results_sent, b.dropped_msgs, commits,
+             broker_store_commit_seconds(b.store),
+             commits ? broker_store_commit_seconds(b.store) * 1e6 / (double)commits : 0.0);
     broker_cache_log(&b);
 
 cleanup:

@@ -116,6 +116,8 @@ const char *broker_store_path(const broker_store_t *self);
 void broker_store_report_damage(const char *path, const char *what, const char *msg);
 /* Counters for the log: commits made, statements written. */
 uint64_t broker_store_commits(const broker_store_t *self);
+/* The summed wall time of those commits, in seconds (each pays an fsync). */
+double broker_store_commit_seconds(const broker_store_t *self);
 
 /* The raw handle for store_load.c. Borrowed. */
 struct sqlite3 *broker_store_db(broker_store_t *self);
