@@ -41,7 +41,8 @@ static int s_cmp_double(const void *a, const void *b)
 /* Evaluates count distinct sphere genomes of dimension 8 in one batch; returns
  * evaluations per second, or -1. genome_base keeps genomes distinct across
  * calls so the broker's cache never answers. */
-static double s_batch_rate(fitfarm_client_t *client, long count, double genome_base)
+static double s_batch_rate_of(fitfarm_client_t *client, const char *plugin, const char *params,
+                              long count, double genome_base)
 {
     fitfarm_run_options_t ro = FITFARM_RUN_OPTIONS_INIT;
     ro.seed = 1;
@@ -50,7 +51,7 @@ static double s_batch_rate(fitfarm_client_t *client, long count, double genome_b
     double rate = -1;
     if (fitfarm_run_open(client, &ro, &run) != 0)
         goto cleanup;
-    if (fitfarm_batch_new("sphere", NULL, 1, &batch) != 0)
+    if (fitfarm_batch_new(plugin, params, 1, &batch) != 0)
         goto cleanup;
     double g[8];
     for (long i = 0; i < count; i++) {
@@ -75,6 +76,11 @@ cleanup:
     fitfarm_batch_destroy(&batch);
     fitfarm_run_destroy(&run);
     return rate;
+}
+
+static double s_batch_rate(fitfarm_client_t *client, long count, double genome_base)
+{
+    return s_batch_rate_of(client, "sphere", NULL, count, genome_base);
 }
 
 /* Median wall time of one single-genome batch, in microseconds. */
@@ -173,6 +179,8 @@ static void s_print_generations(fitfarm_client_t *client, const char *name, doub
     }
 }
 
+static const char *s_store_dir; /* --store DIR: the broker's durable store, as shipped */
+
 static pid_t s_fork_broker(const char *epfile)
 {
     pid_t pid = fork();
@@ -183,6 +191,7 @@ static pid_t s_fork_broker(const char *epfile)
         bc.workers_endpoint = "tcp://127.0.0.1:*";
         bc.endpoints_file = epfile;
         bc.insecure = 1; /* loopback */
+        bc.store_dir = s_store_dir;
         _exit(broker_main_run(&bc));
     }
     return pid;
@@ -238,45 +247,69 @@ static void s_stop(pid_t pid)
     waitpid(pid, NULL, 0);
 }
 
+static void s_usage(void)
+{
+    fprintf(stderr, "usage: bench_throughput [--count N] [--rtt-samples N] [--store DIR]\n"
+                    "                        [--no-embedded] [--no-generations] [--busy N]\n");
+}
+
 int main(int argc, char **argv)
 {
     long count = 100000;
-    int samples = 200;
-    for (int i = 1; i + 1 < argc; i += 2) {
-        if (strcmp(argv[i], "--count") == 0)
-            count = atol(argv[i + 1]);
-        else if (strcmp(argv[i], "--rtt-samples") == 0)
-            samples = atoi(argv[i + 1]);
+    int samples = 200, embedded = 1, generations = 1;
+    long busy = 0;
+    for (int i = 1; i < argc; i++) {
+        const char *v = i + 1 < argc ? argv[i + 1] : NULL;
+        if (strcmp(argv[i], "--no-embedded") == 0)
+            embedded = 0;
+        else if (strcmp(argv[i], "--no-generations") == 0)
+            generations = 0;
+        else if (v && strcmp(argv[i], "--count") == 0)
+            count = atol(v), i++;
+        else if (v && strcmp(argv[i], "--rtt-samples") == 0)
+            samples = atoi(v), i++;
+        else if (v && strcmp(argv[i], "--store") == 0)
+            s_store_dir = v, i++;
+        else if (v && strcmp(argv[i], "--busy") == 0)
+            busy = atol(v), i++;
+        else {
+            s_usage();
+            return 2;
+        }
     }
-    if (count < 1 || samples < 1) {
-        fprintf(stderr, "usage: bench_throughput [--count N] [--rtt-samples N]\n");
+    if (count < 1 || samples < 1 || busy < 0) {
+        s_usage();
         return 2;
     }
     long ncpu = sysconf(_SC_NPROCESSORS_ONLN);
     printf("cpus: %ld count\n", ncpu);
     printf("batch: %ld genomes\n", count);
+    printf("store: %s\n", s_store_dir ? "durable (synchronous=FULL)" : "in memory");
 
-    /* (a) embedded pool, one slot per CPU: start time (median of 5), then
-     * throughput, round trip and generations on the last one started. */
     fitfarm_options_t o = FITFARM_OPTIONS_INIT;
     fitfarm_client_t *client = NULL;
     char err[512];
-    double starts[5];
-    for (int i = 0; i < 5; i++) {
-        fitfarm_client_destroy(&client);
-        double t0 = s_now();
-        if (fitfarm_client_new(&o, &client, err, sizeof err) != 0) {
-            fprintf(stderr, "bench: embedded pool: %s\n", err);
-            return 1;
+    if (embedded) {
+        /* (a) embedded pool, one slot per CPU: start time (median of 5), then
+         * throughput, round trip and generations on the last one started. */
+        double starts[5];
+        for (int i = 0; i < 5; i++) {
+            fitfarm_client_destroy(&client);
+            double t0 = s_now();
+            if (fitfarm_client_new(&o, &client, err, sizeof err) != 0) {
+                fprintf(stderr, "bench: embedded pool: %s\n", err);
+                return 1;
+            }
+            starts[i] = (s_now() - t0) * 1e3;
         }
-        starts[i] = (s_now() - t0) * 1e3;
+        qsort(starts, 5, sizeof *starts, s_cmp_double);
+        printf("embedded_start_median: %.1f ms\n", starts[2]);
+        if (generations)
+            s_print_generations(client, "embedded", 5e7);
+        printf("embedded_throughput: %.0f evals/s\n", s_batch_rate(client, count, 0.0));
+        printf("embedded_rtt_median: %.0f us\n", s_rtt_us(client, samples, 1e6));
+        fitfarm_client_destroy(&client);
     }
-    qsort(starts, 5, sizeof *starts, s_cmp_double);
-    printf("embedded_start_median: %.1f ms\n", starts[2]);
-    s_print_generations(client, "embedded", 5e7);
-    printf("embedded_throughput: %.0f evals/s\n", s_batch_rate(client, count, 0.0));
-    printf("embedded_rtt_median: %.0f us\n", s_rtt_us(client, samples, 1e6));
-    fitfarm_client_destroy(&client);
 
     /* (b) broker + 1 and + 2 workers (one slot each) over TCP loopback. */
     char dir[] = "/tmp/fitfarm-bench-XXXXXX";
@@ -301,10 +334,19 @@ int main(int argc, char **argv)
     sleep(1); /* let the worker register before timing */
     printf("tcp_1worker_throughput: %.0f evals/s\n", s_batch_rate(client, count, 2e6));
     printf("tcp_1worker_rtt_median: %.0f us\n", s_rtt_us(client, samples, 3e6));
-    s_print_generations(client, "tcp_1worker", 7e7);
+    if (generations)
+        s_print_generations(client, "tcp_1worker", 7e7);
     pid_t w2 = s_fork_worker(workers, 1);
     sleep(1);
     printf("tcp_2workers_throughput: %.0f evals/s\n", s_batch_rate(client, count, 4e6));
+    /* The same genomes again in a new run: every answer from the cache. */
+    printf("tcp_cached_throughput: %.0f results/s\n", s_batch_rate(client, count, 4e6));
+    if (busy > 0) {
+        /* 2 slots of 5 ms CPU-burning evaluations: the share of the 2-slot
+         * ceiling (busy * 5 ms / 2 slots) that the pool achieved. */
+        double rate = s_batch_rate_of(client, "spin", "{\"ms\":5}", busy, 9e6);
+        printf("tcp_2slots_5ms_busy: %.1f %%\n", rate > 0 ? 100.0 * rate * 0.005 / 2.0 : -1.0);
+    }
     fitfarm_client_destroy(&client);
     s_stop(w2);
     s_stop(w1);
