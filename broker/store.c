@@ -49,7 +49,9 @@
 #include "store_log.h"
 
 #define STORE_FILE "fitfarm.db"
-#define STORE_SCHEMA_VERSION 1
+/* 2: the results history holds re-evaluations only; a first evaluation's
+ * run is evaluations.run_id (s_migrate_history moves schema 1 stores). */
+#define STORE_SCHEMA_VERSION 2
 /* SQLite's page cache, in KiB (negative cache_size means KiB). Its default,
  * 2 MiB, holds a few thousand pages: past it every lookup of a cached
  * result and every update of a random-keyed b-tree page read the page back
@@ -70,7 +72,7 @@ static const char s_schema[] =
     " timeout_ms INTEGER NOT NULL, max_attempts INTEGER NOT NULL, created REAL NOT NULL,"
     " status INTEGER, status_name TEXT, fitness BLOB, fitness_json TEXT, error TEXT,"
     " attempts INTEGER, worker TEXT, host TEXT, arch TEXT, digest BLOB,"
-    " cpu_seconds REAL, peak_rss_kb INTEGER, finished_at REAL);"
+    " cpu_seconds REAL, peak_rss_kb INTEGER, finished_at REAL, run_id TEXT);"
     "CREATE TABLE IF NOT EXISTS requests("
     " run_id TEXT NOT NULL, tag INTEGER NOT NULL, batch_tag INTEGER NOT NULL,"
     " replicate INTEGER NOT NULL, key BLOB NOT NULL, cached INTEGER NOT NULL,"
@@ -88,6 +90,19 @@ static const char s_schema[] =
     " name TEXT PRIMARY KEY, version TEXT NOT NULL, objectives INTEGER NOT NULL,"
     " flags INTEGER NOT NULL, digests BLOB NOT NULL, last_seen REAL NOT NULL,"
     " seed_params TEXT, param_defaults TEXT);";
+
+/* Every simulation that finished: the first evaluation of each key (in
+ * evaluations, with the run that paid for it) and every re-evaluation (in
+ * results). Made after s_migrate_history, which adds evaluations.run_id to
+ * older stores. */
+static const char s_simulations_view[] =
+    "CREATE VIEW IF NOT EXISTS simulations AS"
+    " SELECT key, run_id, 0 AS fresh, status, status_name, fitness, fitness_json, error,"
+    " attempts, worker, host, arch, digest, cpu_seconds, peak_rss_kb, finished_at"
+    " FROM evaluations WHERE status IS NOT NULL"
+    " UNION ALL SELECT key, run_id, 1 AS fresh, status, status_name, fitness, fitness_json,"
+    " error, attempts, worker, host, arch, digest, cpu_seconds, peak_rss_kb, finished_at"
+    " FROM results";
 
 enum {
     S_BEGIN,
@@ -127,7 +142,7 @@ static const char *const s_sql[S_COUNT_] = {
     [S_RESULT] = "UPDATE evaluations SET status = ?2, status_name = ?3, fitness = ?4,"
                  " fitness_json = ?5, error = ?6, attempts = ?7, worker = ?8, host = ?9,"
                  " arch = ?10, digest = ?11, cpu_seconds = ?12, peak_rss_kb = ?13,"
-                 " finished_at = ?14 WHERE key = ?1",
+                 " finished_at = ?14, run_id = ?15 WHERE key = ?1",
     [S_ACK] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag = ?2",
     [S_UNACK] = "UPDATE requests SET acked = 0 WHERE run_id = ?1 AND tag = ?2 AND acked = 1",
     [S_PLUGIN] = "INSERT INTO plugins(name, version, objectives, flags, digests, last_seen,"
@@ -262,6 +277,37 @@ static int s_quick_check(broker_store_t *self)
     return 0;
 }
 
+/* Schema 1 stores kept a copy of every first evaluation in the results
+ * history and had no evaluations.run_id. Moves the paying run into
+ * evaluations and drops the copies, in one transaction, once per store; a
+ * store of a million evaluations takes seconds, logged. */
+static int s_migrate_history(broker_store_t *self)
+{
+    if (sqlite3_exec(self->db, "SELECT run_id FROM evaluations LIMIT 0", NULL, NULL, NULL) ==
+        SQLITE_OK)
+        return 0;
+    int64_t t0 = common_clock_ms();
+    if (s_exec(self, "BEGIN IMMEDIATE") != 0 ||
+        s_exec(self, "ALTER TABLE evaluations ADD COLUMN run_id TEXT") != 0 ||
+        s_exec(self, "UPDATE evaluations SET run_id = (SELECT y.run_id FROM results y"
+                     " WHERE y.key = evaluations.key AND y.fresh = 0 ORDER BY y.rowid LIMIT 1)"
+                     " WHERE status IS NOT NULL") != 0 ||
+        s_exec(self, "DELETE FROM results WHERE fresh = 0") != 0 ||
+        s_exec(self, "UPDATE meta SET value = '2' WHERE name = 'schema_version'") != 0 ||
+        s_exec(self, "COMMIT") != 0) {
+        if (!sqlite3_get_autocommit(self->db))
+            sqlite3_exec(self->db, "ROLLBACK", NULL, NULL, NULL);
+        LOG_ERROR("store %s: cannot move it to schema 2 (nothing changed: the transaction "
+                  "rolled back)",
+                  self->path);
+        return -1;
+    }
+    LOG_INFO("store %s moved to schema 2 in %.1f s: the results history keeps re-evaluations "
+             "only; first evaluations name their run in evaluations.run_id",
+             self->path, (double)(common_clock_ms() - t0) / 1000.0);
+    return 0;
+}
+
 broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms)
 {
     broker_store_t *self = common_xcalloc(1, sizeof *self);
@@ -322,6 +368,8 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
     if (sqlite3_exec(self->db, "SELECT owner FROM runs LIMIT 0", NULL, NULL, NULL) !=
             SQLITE_OK &&
         s_exec(self, "ALTER TABLE runs ADD COLUMN owner TEXT") != 0)
+        goto fail;
+    if (s_migrate_history(self) != 0 || s_exec(self, s_simulations_view) != 0)
         goto fail;
     for (int i = 0; i < S_COUNT_; i++) {
         if (sqlite3_prepare_v3(self->db, s_sql[i], -1, SQLITE_PREPARE_PERSISTENT, &self->stmt[i],
@@ -443,7 +491,7 @@ static int s_begin(broker_store_t *self, const char *sql_begin, sqlite3_stmt *st
 /* Starts op `which` in the log; the caller fills its values and calls s_write. */
 static size_t s_op(broker_store_t *self, int which)
 {
-    if (which == S_HISTORY)
+    if (which == S_HISTORY || which == S_RESULT)
         self->log_results++;
     else if (which == S_REQUEST)
         self->log_requests++;
@@ -626,12 +674,12 @@ void broker_store_note_result(broker_store_t *self, const broker_eval_t *e,
                               const proto_outcome_t *o, const char *worker, const char *host,
                               const char *arch)
 {
-    /* The cache row changes only for a first evaluation; a no-cache
-     * re-evaluation leaves it as it was. Every result, either kind, is
-     * appended to the results history with the run that paid for it. */
-    if (!e->fresh)
-        s_bind_result(self, S_RESULT, e, o, worker, host, arch);
-    s_bind_result(self, S_HISTORY, e, o, worker, host, arch);
+    /* A first evaluation is the cache row, with the run that paid for it; a
+     * re-evaluation (no-cache, or a retried crash or time-out) leaves that
+     * row as it was and is appended to the results history. Writing the
+     * first one to the history too (schema 1) cost two b-tree inserts and
+     * about 250 bytes per evaluation for a copy of the cache row. */
+    s_bind_result(self, e->fresh ? S_HISTORY : S_RESULT, e, o, worker, host, arch);
 }
 
 static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *e,
@@ -676,10 +724,9 @@ static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *
         s_u64(self, i, 13, o->peak_rss_kb);
     }
     s_real(self, i, 14, e->prov.finished_at > 0 ? e->prov.finished_at : s_now());
-    if (which == S_HISTORY) {
-        s_text(self, i, 15, e->home ? e->home->id : "");
+    s_text(self, i, 15, e->home ? e->home->id : "");
+    if (which == S_HISTORY)
         s_int(self, i, 16, e->fresh != 0);
-    }
     s_write(self, i);
 }
 

@@ -87,13 +87,15 @@ int cli_cmd_runs(int argc, char **argv)
         db,
         "SELECT r.run_id, r.seed, r.seed_mode, r.created, r.last_activity,"
         " (SELECT count(*) FROM requests q WHERE q.run_id = r.run_id),"
-        " (SELECT count(*) FROM results x WHERE x.run_id = r.run_id),"
+        " coalesce(s.n, 0),"
         " (SELECT coalesce(sum(q.cached), 0) FROM requests q WHERE q.run_id = r.run_id),"
         " (SELECT count(*) FROM requests q JOIN evaluations e ON e.key = q.key"
         "   WHERE q.run_id = r.run_id AND e.status IS NOT NULL AND e.status <> 0),"
         " (SELECT group_concat(p, ',') FROM (SELECT DISTINCT e.plugin AS p FROM requests q"
         "   JOIN evaluations e ON e.key = q.key WHERE q.run_id = r.run_id))"
-        " FROM runs r ORDER BY r.created, r.run_id",
+        /* one pass over the simulations (evaluations has no run_id index) */
+        " FROM runs r LEFT JOIN (SELECT run_id, count(*) AS n FROM simulations GROUP BY run_id) s"
+        " ON s.run_id = r.run_id ORDER BY r.created, r.run_id",
         "fitfarm runs");
     if (!st) {
         sqlite3_close(db);

@@ -316,9 +316,10 @@ int cli_cmd_verify(int argc, char **argv)
     /* The new side's provenance, from the store that recorded the verify run. */
     pdb = cli_store_open(broker ? (pool_store ? pool_store : store) : tmp, "fitfarm verify");
     sqlite3_stmt *pst = pdb ? cli_store_prepare(pdb,
-                                                "SELECT worker, host, arch, digest FROM results"
+                                                "SELECT worker, host, arch, digest FROM simulations"
                                                 " WHERE run_id = ?1 AND key = ?2"
-                                                " ORDER BY rowid DESC LIMIT 1",
+                                                " ORDER BY fresh DESC, finished_at DESC"
+                                                " LIMIT 1",
                                                 "fitfarm verify")
                             : NULL;
     for (size_t k = 0; k < n_pick; k++) {

@@ -200,7 +200,7 @@ with fflib.Pool(log_prefix="cache") as pool:
     check.ok(rc == 0 and not any(r["cached"] for r in nc) and bits(nc) == bits(a[:10]),
              "--no-cache: evaluated again, same bits")
     db = sqlite3.connect(f"file:{os.path.join(pool.store, 'fitfarm.db')}?mode=ro", uri=True)
-    kept = db.execute("SELECT count(*) FROM results WHERE key IN (SELECT key FROM requests"
+    kept = db.execute("SELECT count(*) FROM simulations WHERE key IN (SELECT key FROM requests"
                       " WHERE run_id = 'again')").fetchone()[0]
     check.ok(kept == 20, f"both results of each of 10 keys kept: {kept} rows")
     db.close()

@@ -55,7 +55,7 @@ def generations(out):
 
 def results_in_store(store):
     db = sqlite3.connect(f"file:{store}/fitfarm.db?mode=ro", uri=True)
-    n = db.execute("SELECT count(*) FROM results").fetchone()[0]
+    n = db.execute("SELECT count(*) FROM simulations").fetchone()[0]
     db.close()
     return n
 

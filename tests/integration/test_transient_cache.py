@@ -78,11 +78,11 @@ with fflib.Pool() as pool:
     check.ok([x["status"] for x in c1] == ["crashed", "ok"] and c2 == c1,
              f"a resume answers the recorded crash: {[x['status'] for x in c2]}")
     db = sqlite3.connect(f"file:{os.path.join(pool.store, 'fitfarm.db')}?mode=ro", uri=True)
-    before = db.execute("SELECT count(*) FROM results WHERE run_id = 'crash'").fetchone()[0]
+    before = db.execute("SELECT count(*) FROM simulations WHERE run_id = 'crash'").fetchone()[0]
     db.close()
     rc, c3, err = fflib.run_eval(cargs + ["--retry-failed"], crash, timeout=120)
     db = sqlite3.connect(f"file:{os.path.join(pool.store, 'fitfarm.db')}?mode=ro", uri=True)
-    after = db.execute("SELECT count(*) FROM results WHERE run_id = 'crash'").fetchone()[0]
+    after = db.execute("SELECT count(*) FROM simulations WHERE run_id = 'crash'").fetchone()[0]
     db.close()
     check.ok([x["status"] for x in c3] == ["crashed", "ok"] and after == before + 1,
              f"--retry-failed evaluates the crash again (one more simulation: {before} -> {after}) "

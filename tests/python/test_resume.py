@@ -113,10 +113,10 @@ def test_killed_search_resumes_without_re_evaluating(tmp_path):
     assert res["nfev"] == ref.nfev
     assert done_before < ref.nfev  # the kill was mid-way
     # Nothing was simulated twice, and what was done before the kill was not redone.
-    assert q(db, "SELECT count(*) FROM results") == q(db, "SELECT count(DISTINCT key) FROM results")
+    assert q(db, "SELECT count(*) FROM simulations") == q(db, "SELECT count(DISTINCT key) FROM simulations")
     assert q(db, "SELECT count(*) FROM evaluations WHERE status IS NULL") == 0
     # Every distinct genome of the search was simulated exactly once over both
     # processes (DE may propose a genome twice: those are counted once).
     assert q(db, "SELECT count(*) FROM evaluations") == len(seen)
-    assert q(db, "SELECT count(*) FROM results") == len(seen)
+    assert q(db, "SELECT count(*) FROM simulations") == len(seen)
     assert res["stats"]["delivered"] == ref.nfev

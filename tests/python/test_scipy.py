@@ -80,7 +80,7 @@ def test_replay_of_finished_search_evaluates_nothing(tmp_path):
     with fitfarm.Pool(slots=2, store=store) as p:
         f = p.function("rastrigin", objective=0, run=p.run("de-replay", seed=5))
         first = differential_evolution(f, BOUNDS, workers=p.map, **DE)
-    simulated = count(db, "SELECT count(*) FROM results")
+    simulated = count(db, "SELECT count(*) FROM simulations")
     evaluations = count(db, "SELECT count(*) FROM evaluations")
     assert simulated >= 1 and evaluations == simulated
     with fitfarm.Pool(slots=2, store=store) as p:
@@ -93,7 +93,7 @@ def test_replay_of_finished_search_evaluates_nothing(tmp_path):
             run.evaluate("rastrigin", [[0.125, 0.25, 0.375]])
         assert e.value.message
     assert same_bits(first, second)
-    assert count(db, "SELECT count(*) FROM results") == simulated
+    assert count(db, "SELECT count(*) FROM simulations") == simulated
     assert count(db, "SELECT count(*) FROM evaluations") == evaluations
 
 

@@ -140,7 +140,7 @@ static void test_full_store_fails_the_turn_and_recovers(void **state)
     /* Nothing of the failed turn is in the file, not even the writes before
      * the one that failed. */
     assert_int_equal(s_count(b, "SELECT count(*) FROM evaluations WHERE status IS NOT NULL"), 0);
-    assert_int_equal(s_count(b, "SELECT count(*) FROM results"), 0);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM simulations"), 0);
     assert_int_equal(broker_store_unwritten(b->store), 50);
     assert_true(broker_store_retry_in_ms(b->store) >= 0);
 
@@ -158,7 +158,7 @@ static void test_full_store_fails_the_turn_and_recovers(void **state)
     broker_store_retry_now(b->store);
     assert_int_equal(broker_store_commit(b->store), -1); /* still full */
     assert_true(broker_store_failing(b->store));
-    assert_int_equal(s_count(b, "SELECT count(*) FROM results"), 0);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM simulations"), 0);
 
     /* Space comes back: one commit writes everything kept. */
     s_pages(b, "PRAGMA max_page_count = 1000000");
@@ -167,8 +167,8 @@ static void test_full_store_fails_the_turn_and_recovers(void **state)
     assert_false(broker_store_failing(b->store));
     assert_int_equal(broker_store_unwritten(b->store), 0);
     assert_int_equal(s_count(b, "SELECT count(*) FROM evaluations WHERE status IS NOT NULL"), 100);
-    assert_int_equal(s_count(b, "SELECT count(*) FROM results"), 100);
-    assert_int_equal(s_count(b, "SELECT count(*) FROM results WHERE length(error) = 2999"), 100);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM simulations"), 100);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM simulations WHERE length(error) = 2999"), 100);
     /* and the store takes new work again */
     assert_int_equal(s_submit(b, "r2", 1000.0, 5, 1), 0);
     assert_int_equal(broker_store_commit(b->store), 0);
@@ -193,14 +193,14 @@ static void test_nothing_partial_after_many_turns(void **state)
         s_complete(b, w, 30);
         broker_store_retry_now(b->store);
         assert_int_equal(broker_store_commit(b->store), -1);
-        assert_int_equal(s_count(b, "SELECT count(*) FROM results"), 0);
+        assert_int_equal(s_count(b, "SELECT count(*) FROM simulations"), 0);
     }
     assert_int_equal(broker_store_unwritten(b->store), 300);
     s_pages(b, "PRAGMA max_page_count = 1000000");
     broker_store_retry_now(b->store);
     assert_int_equal(broker_store_commit(b->store), 0);
-    assert_int_equal(s_count(b, "SELECT count(*) FROM results"), 300);
-    assert_int_equal(s_count(b, "SELECT count(DISTINCT key) FROM results"), 300);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM simulations"), 300);
+    assert_int_equal(s_count(b, "SELECT count(DISTINCT key) FROM simulations"), 300);
     s_broker_destroy(&b);
 }
 

@@ -140,7 +140,7 @@ static long s_evaluations(const char *store)
     long n = -1;
     if (sqlite3_open_v2(path, &db, SQLITE_OPEN_READONLY, NULL) == SQLITE_OK) {
         sqlite3_stmt *st = NULL;
-        if (sqlite3_prepare_v2(db, "SELECT count(*) FROM results WHERE run_id = 'es-path'", -1,
+        if (sqlite3_prepare_v2(db, "SELECT count(*) FROM simulations WHERE run_id = 'es-path'", -1,
                                &st, NULL) == SQLITE_OK &&
             sqlite3_step(st) == SQLITE_ROW)
             n = sqlite3_column_int64(st, 0);

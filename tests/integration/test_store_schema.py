@@ -1,0 +1,83 @@
+"""The store's schema 2 and the move from schema 1.
+
+Schema 2 writes a first evaluation once (its row in `evaluations`, with the
+run that paid for it in evaluations.run_id); the `results` history holds
+re-evaluations only; the `simulations` view lists both. A store written by
+schema 1 (every first evaluation copied into `results`, no
+evaluations.run_id) is made here from a schema 2 one with the sqlite3
+module: the copies are put back and the column dropped, as schema 1 had
+it. A broker started on it must move it once (log line, schema_version 2),
+keep every result, and answer the run's resume from the store with the same
+bits and no simulation.
+Run with /usr/bin/python3 (Debian's)."""
+import os
+import signal
+import sqlite3
+import sys
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import fflib  # noqa: E402
+
+N = 60
+check = fflib.Check("test_store_schema")
+with fflib.Pool() as pool:
+    pool.start_broker()
+    pool.start_worker(slots=2)
+    pool.wait_workers(1)
+    text = fflib.jsonl(fflib.genomes(N, 3, seed=11))
+    args = ["--broker", pool.clients_ep, "--plugin", "sphere", "--run", "old", "--seed", "4"]
+    rc, first, err = fflib.run_eval(args, text)
+    check.ok(rc == 0 and len(first) == N, f"first run: {rc} {len(first)} lines {err[-300:]}")
+    rc, again, err = fflib.run_eval(args[:-4] + ["--run", "again", "--no-cache"], text)
+    check.ok(rc == 0 and len(again) == N, f"no-cache run: {rc} {err[-300:]}")
+
+    db_path = os.path.join(pool.store, "fitfarm.db")
+    db = sqlite3.connect(db_path)
+    q = lambda sql: db.execute(sql).fetchone()[0]  # noqa: E731
+    check.ok(q("SELECT value FROM meta WHERE name = 'schema_version'") == "2", "schema 2")
+    check.ok(q("SELECT count(*) FROM evaluations WHERE run_id = 'old'") == N,
+             "first evaluations name their run in evaluations.run_id")
+    check.ok(q("SELECT count(*) FROM results") == N and
+             q("SELECT count(*) FROM results WHERE fresh = 1 AND run_id = 'again'") == N,
+             "the results history holds the re-evaluations only")
+    check.ok(q("SELECT count(*) FROM simulations") == 2 * N, "simulations lists both")
+    db.close()
+
+    pool.kill(pool.broker, signal.SIGTERM)
+    check.ok(pool.broker.returncode == 0, "clean stop")
+
+    # Back to schema 1's layout.
+    db = sqlite3.connect(db_path)
+    db.executescript(
+        "BEGIN;"
+        "INSERT INTO results(key, run_id, fresh, status, status_name, fitness, fitness_json,"
+        " error, attempts, worker, host, arch, digest, cpu_seconds, peak_rss_kb, finished_at)"
+        " SELECT key, run_id, 0, status, status_name, fitness, fitness_json, error, attempts,"
+        " worker, host, arch, digest, cpu_seconds, peak_rss_kb, finished_at FROM evaluations;"
+        "DROP VIEW simulations;"
+        "ALTER TABLE evaluations DROP COLUMN run_id;"
+        "UPDATE meta SET value = '1' WHERE name = 'schema_version';"
+        "COMMIT;")
+    db.close()
+
+    pool.start_broker()
+    log = open(os.path.join(pool.tmp, "broker.log"), errors="replace").read()
+    check.ok("moved to schema 2" in log, "the broker says it moved the store")
+    db = sqlite3.connect(f"file:{db_path}?mode=ro", uri=True)
+    q = lambda sql: db.execute(sql).fetchone()[0]  # noqa: E731
+    check.ok(q("SELECT value FROM meta WHERE name = 'schema_version'") == "2", "schema 2 again")
+    check.ok(q("SELECT count(*) FROM evaluations WHERE run_id = 'old'") == N,
+             "the paying run came back from the history into evaluations.run_id")
+    check.ok(q("SELECT count(*) FROM results WHERE fresh = 0") == 0, "copies dropped")
+    check.ok(q("SELECT count(*) FROM results") == N, "re-evaluations kept")
+    db.close()
+
+    rc, resumed, err = fflib.run_eval(args, text)
+    same = [(r["fitness"], r["status"]) for r in resumed] == [(r["fitness"], r["status"]) for r in first]
+    check.ok(rc == 0 and same, f"the resume answers from the store with the same bits: {err[-300:]}")
+    db = sqlite3.connect(f"file:{db_path}?mode=ro", uri=True)
+    check.ok(db.execute("SELECT count(*) FROM simulations").fetchone()[0] == 2 * N,
+             "nothing simulated again")
+    db.close()
+    pool.stop_all()
+    check.done(pool)
