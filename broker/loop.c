@@ -116,13 +116,26 @@ static void s_drain(broker_t *b, void *sock, int workers)
     }
 }
 
-/* Returns 0, or -1 when the store could not commit (nothing went out). */
-static int s_before_sleep(broker_t *b)
+/* Returns 0, or -1 when the store could not commit (nothing went out), or 1
+ * when it held this turn's writes for the next turn (may_hold only).
+ *
+ * The hold: a turn that sent jobs to workers and holds no results yet (a
+ * new batch, say) leaves its commit to the next turn, at most
+ * BROKER_COMMIT_HOLD_MS later. A quick evaluation's result then arrives
+ * within the hold and one commit covers the request and its result, so a
+ * single evaluation's round trip pays one fsync instead of two (its
+ * ACCEPTED and RESULTS go out together). Nothing that depends on the held
+ * writes goes out before they commit, so no guarantee changes; ACCEPTED is
+ * at most BROKER_COMMIT_HOLD_MS later. */
+static int s_before_sleep(broker_t *b, int may_hold)
 {
+    uint64_t sent = b->jobs_sent;
     /* A store that cannot write could not keep the results of new jobs:
      * the running ones finish and wait in memory, nothing more is sent. */
     if (!b->stopping && !broker_store_failing(b->store))
         broker_dispatch_turn(b);
+    if (may_hold && !b->stopping && b->jobs_sent > sent && broker_store_unwritten(b->store) == 0)
+        return 1;
     if (broker_store_commit(b->store) != 0) {
         /* Nothing that depends on it may go out (store.c logs, rate-limited),
          * but a client waiting for this turn's ACCEPTED hears why. */
@@ -205,9 +218,12 @@ int broker_main_run(const broker_config_t *config)
         lifeline = n_items++;
         items[lifeline] = (zmq_pollitem_t){.fd = config->lifeline_fd, .events = ZMQ_POLLIN};
     }
+    int holding = 0; /* this turn's commit was left to the next (s_before_sleep) */
     while (!s_stop) {
         b.now_ms = common_clock_ms();
         long timeout = b.backlog_more ? 0 : broker_timers_timeout(&b.timers, b.now_ms);
+        if (holding && (timeout < 0 || timeout > BROKER_COMMIT_HOLD_MS))
+            timeout = BROKER_COMMIT_HOLD_MS; /* the held commit is made next turn */
         long retry = broker_store_retry_in_ms(b.store);
         if (retry >= 0 && (timeout < 0 || retry < timeout))
             timeout = retry; /* wake for the store's next retry */
@@ -240,12 +256,12 @@ int broker_main_run(const broker_config_t *config)
         if (items[1].revents & ZMQ_POLLIN)
             s_drain(&b, b.workers, 1);
         broker_timers_run(&b.timers, b.now_ms);
-        (void)s_before_sleep(&b);
+        holding = s_before_sleep(&b, !holding) == 1;
     }
     /* Stop accepting; what this process owes goes out before the sockets close. */
     b.stopping = 1;
     broker_store_retry_now(b.store); /* a failing store gets its last try now */
-    if (s_before_sleep(&b) != 0) {
+    if (s_before_sleep(&b, 0) != 0) {
         /* Their requests are durable (accepted only after commit), so a
          * restarted broker queues them again: nothing accepted is lost, but
          * the stop was not clean and the exit status says so. */
