@@ -21,6 +21,7 @@
 struct sqlite3_stmt;
 
 #define BROKER_MSGS_PER_TURN 512     /* per socket per loop turn */
+#define BROKER_TURN_BUDGET_MS 50     /* a socket's messages per turn stop after this (loop.c) */
 #define BROKER_COMMIT_HOLD_MS 1      /* longest a new batch's commit waits for results (loop.c) */
 #define BROKER_JOBS_PER_MSG 4096     /* jobs in one JOBS message */
 #define BROKER_RESULTS_PER_MSG 4096  /* results in one RESULTS message */

@@ -85,10 +85,18 @@ static int s_write_endpoints(const char *path, const char *clients, const char *
     return 0;
 }
 
-/* Handles up to BROKER_MSGS_PER_TURN waiting messages on one socket. */
+/* Handles up to BROKER_MSGS_PER_TURN waiting messages on one socket, and
+ * stops early once the turn has taken BROKER_TURN_BUDGET_MS: a client
+ * sending a batch of a million genomes filled one turn with 512 SUBMITs of
+ * thousands of items each, and the turn took long enough (over 5 s) that
+ * workers, hearing nothing, registered again. What is left waits in the
+ * socket for the next turn, after this one's dispatch and commit. */
 static void s_drain(broker_t *b, void *sock, int workers)
 {
+    int64_t until = common_clock_ms() + BROKER_TURN_BUDGET_MS;
     for (int i = 0; i < BROKER_MSGS_PER_TURN; i++) {
+        if (i > 0 && common_clock_ms() >= until)
+            break;
         uint8_t rid[BROKER_RID_MAX];
         size_t rid_len = 0;
         zmq_msg_t body;
