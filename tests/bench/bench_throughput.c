@@ -17,6 +17,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/prctl.h>
+#include <sys/stat.h>
 #include <sys/wait.h>
 #include <time.h>
 #include <unistd.h>
@@ -38,9 +39,15 @@ static int s_cmp_double(const void *a, const void *b)
     return (x > y) - (x < y);
 }
 
-/* Evaluates count distinct sphere genomes of dimension 8 in one batch; returns
- * evaluations per second, or -1. genome_base keeps genomes distinct across
- * calls so the broker's cache never answers. */
+/* Largest batch handed to fitfarm_evaluate at once: the broker's default cap
+ * on queued bytes per run (256 MiB at genome + 288 bytes each) holds about
+ * 760,000 of these genomes, so larger counts go as consecutive batches of
+ * one run, as an optimizer would send them. */
+#define BENCH_MAX_BATCH 200000L
+
+/* Evaluates count distinct genomes of dimension 8 in batches of at most
+ * BENCH_MAX_BATCH; returns evaluations per second, or -1. genome_base
+ * keeps genomes distinct across calls so the broker's cache never answers. */
 static double s_batch_rate_of(fitfarm_client_t *client, const char *plugin, const char *params,
                               long count, double genome_base)
 {
@@ -48,30 +55,35 @@ static double s_batch_rate_of(fitfarm_client_t *client, const char *plugin, cons
     ro.seed = 1;
     fitfarm_run_t *run = NULL;
     fitfarm_batch_t *batch = NULL;
-    double rate = -1;
+    double rate = -1, busy = 0;
     if (fitfarm_run_open(client, &ro, &run) != 0)
         goto cleanup;
-    if (fitfarm_batch_new(plugin, params, 1, &batch) != 0)
-        goto cleanup;
-    double g[8];
-    for (long i = 0; i < count; i++) {
-        for (int d = 0; d < 8; d++)
-            g[d] = genome_base + (double)i * 1e-3 + d;
-        if (fitfarm_batch_add_f64(batch, g, 8) < 0)
+    for (long start = 0; start < count; start += BENCH_MAX_BATCH) {
+        long n = count - start < BENCH_MAX_BATCH ? count - start : BENCH_MAX_BATCH;
+        if (fitfarm_batch_new(plugin, params, 1, &batch) != 0)
             goto cleanup;
-    }
-    double t0 = s_now();
-    int rc = fitfarm_evaluate(run, batch, NULL, NULL, 600000);
-    double t1 = s_now();
-    if (rc != 0) {
-        fprintf(stderr, "bench: evaluate: %s\n", fitfarm_client_error(client));
-        goto cleanup;
-    }
-    fitfarm_result_t r = FITFARM_RESULT_INIT;
-    for (long i = 0; i < count; i += count / 10 + 1)
-        if (fitfarm_batch_result(batch, (size_t)i, 0, &r) != 0 || r.status != FITFARM_STATUS_OK)
+        double g[8];
+        for (long i = start; i < start + n; i++) {
+            for (int d = 0; d < 8; d++)
+                g[d] = genome_base + (double)i * 1e-3 + d;
+            if (fitfarm_batch_add_f64(batch, g, 8) < 0)
+                goto cleanup;
+        }
+        double t0 = s_now();
+        int rc = fitfarm_evaluate(run, batch, NULL, NULL, 600000);
+        busy += s_now() - t0;
+        if (rc != 0) {
+            fprintf(stderr, "bench: evaluate: %s\n", fitfarm_client_error(client));
             goto cleanup;
-    rate = (double)count / (t1 - t0);
+        }
+        fitfarm_result_t r = FITFARM_RESULT_INIT;
+        for (long i = 0; i < n; i += n / 10 + 1)
+            if (fitfarm_batch_result(batch, (size_t)i, 0, &r) != 0 ||
+                r.status != FITFARM_STATUS_OK)
+                goto cleanup;
+        fitfarm_batch_destroy(&batch);
+    }
+    rate = (double)count / busy;
 cleanup:
     fitfarm_batch_destroy(&batch);
     fitfarm_run_destroy(&run);
@@ -247,16 +259,47 @@ static void s_stop(pid_t pid)
     waitpid(pid, NULL, 0);
 }
 
+/* A process's peak resident set (VmHWM), in KiB; -1 if unreadable. */
+static long s_peak_rss_kib(pid_t pid)
+{
+    char path[64], line[256];
+    snprintf(path, sizeof path, "/proc/%d/status", (int)pid);
+    FILE *f = fopen(path, "r");
+    long kib = -1;
+    while (f && fgets(line, sizeof line, f))
+        if (sscanf(line, "VmHWM: %ld kB", &kib) == 1)
+            break;
+    if (f)
+        fclose(f);
+    return kib;
+}
+
+/* Bytes of the store's database file and its WAL. */
+static long long s_store_bytes(const char *dir)
+{
+    static const char *const names[] = {"fitfarm.db", "fitfarm.db-wal"};
+    long long total = 0;
+    for (int i = 0; i < 2; i++) {
+        char path[4200];
+        struct stat st;
+        snprintf(path, sizeof path, "%s/%s", dir, names[i]);
+        if (stat(path, &st) == 0)
+            total += (long long)st.st_size;
+    }
+    return total;
+}
+
 static void s_usage(void)
 {
     fprintf(stderr, "usage: bench_throughput [--count N] [--rtt-samples N] [--store DIR]\n"
-                    "                        [--no-embedded] [--no-generations] [--busy N]\n");
+                    "                        [--no-embedded] [--no-generations] [--no-1worker]\n"
+                    "                        [--busy N]\n");
 }
 
 int main(int argc, char **argv)
 {
     long count = 100000;
-    int samples = 200, embedded = 1, generations = 1;
+    int samples = 200, embedded = 1, generations = 1, one_worker = 1;
     long busy = 0;
     for (int i = 1; i < argc; i++) {
         const char *v = i + 1 < argc ? argv[i + 1] : NULL;
@@ -264,6 +307,8 @@ int main(int argc, char **argv)
             embedded = 0;
         else if (strcmp(argv[i], "--no-generations") == 0)
             generations = 0;
+        else if (strcmp(argv[i], "--no-1worker") == 0)
+            one_worker = 0;
         else if (v && strcmp(argv[i], "--count") == 0)
             count = atol(v), i++;
         else if (v && strcmp(argv[i], "--rtt-samples") == 0)
@@ -332,10 +377,12 @@ int main(int argc, char **argv)
         return 1;
     }
     sleep(1); /* let the worker register before timing */
-    printf("tcp_1worker_throughput: %.0f evals/s\n", s_batch_rate(client, count, 2e6));
-    printf("tcp_1worker_rtt_median: %.0f us\n", s_rtt_us(client, samples, 3e6));
-    if (generations)
-        s_print_generations(client, "tcp_1worker", 7e7);
+    if (one_worker) {
+        printf("tcp_1worker_throughput: %.0f evals/s\n", s_batch_rate(client, count, 2e6));
+        printf("tcp_1worker_rtt_median: %.0f us\n", s_rtt_us(client, samples, 3e6));
+        if (generations)
+            s_print_generations(client, "tcp_1worker", 7e7);
+    }
     pid_t w2 = s_fork_worker(workers, 1);
     sleep(1);
     printf("tcp_2workers_throughput: %.0f evals/s\n", s_batch_rate(client, count, 4e6));
@@ -348,6 +395,9 @@ int main(int argc, char **argv)
         printf("tcp_2slots_5ms_busy: %.1f %%\n", rate > 0 ? 100.0 * rate * 0.005 / 2.0 : -1.0);
     }
     fitfarm_client_destroy(&client);
+    printf("broker_peak_rss: %ld KiB\n", s_peak_rss_kib(broker));
+    if (s_store_dir)
+        printf("store_size: %lld bytes\n", s_store_bytes(s_store_dir));
     s_stop(w2);
     s_stop(w1);
     s_stop(broker);
