@@ -80,6 +80,11 @@ static const char s_schema[] =
     " fresh INTEGER NOT NULL DEFAULT 0,"
     " PRIMARY KEY(run_id, tag)) WITHOUT ROWID;"
     "CREATE INDEX IF NOT EXISTS requests_by_key ON requests(key);"
+    /* Pending evaluations only (a partial index stays as small as the
+     * work in flight): the start reads them through it instead of every
+     * request ever made (store_load.c). Made in one pass at the first open
+     * of an older store. */
+    "CREATE INDEX IF NOT EXISTS evaluations_pending ON evaluations(key) WHERE status IS NULL;"
     "CREATE TABLE IF NOT EXISTS results("
     " key BLOB NOT NULL, run_id TEXT NOT NULL, fresh INTEGER NOT NULL,"
     " status INTEGER NOT NULL, status_name TEXT NOT NULL, fitness BLOB, fitness_json TEXT,"
