@@ -1,8 +1,8 @@
 /* backlog.c: paging results owed to clients back from the store (see
- * backlog.h). Owns one prepared statement on the store's connection and the
- * partial index requests_unacked (made here at start, so a sweep reads only
- * unacknowledged requests however long the run). Owns no results: they go
- * to runs.c as copies. */
+ * backlog.h). Owns one prepared statement on the store's connection; it
+ * reads through the partial index requests_unacked (store.c's schema), so a
+ * sweep reads only unacknowledged requests however long the run. Owns no
+ * results: they go to runs.c as copies. */
 #include "backlog.h"
 
 #include <inttypes.h>
@@ -50,15 +50,6 @@ static uint32_t s_fitness(sqlite3_stmt *st, int col, double *fit)
 int broker_backlog_load(broker_t *b)
 {
     sqlite3 *db = broker_store_db(b->store);
-    char *msg = NULL;
-    if (sqlite3_exec(db,
-                     "CREATE INDEX IF NOT EXISTS requests_unacked ON requests(run_id, tag)"
-                     " WHERE acked = 0",
-                     NULL, NULL, &msg) != SQLITE_OK) {
-        LOG_ERROR("cannot load the store (unacknowledged requests index): %s", msg ? msg : "?");
-        sqlite3_free(msg);
-        return -1;
-    }
     if (sqlite3_prepare_v3(db, s_page_sql, -1, SQLITE_PREPARE_PERSISTENT, &b->backlog_page,
                            NULL) != SQLITE_OK) {
         LOG_ERROR("cannot load the store (backlog query): %s", sqlite3_errmsg(db));

@@ -205,9 +205,10 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
     if (sqlite3_prepare_v2(db,
                            "SELECT r.run_id, r.tag, r.cached, r.acked, e.key, e.plugin, e.params,"
                            " e.genome, e.seed, e.timeout_ms, e.max_attempts, r.replicate"
-                           " FROM evaluations e INDEXED BY evaluations_pending"
-                           " JOIN requests r ON r.key = e.key"
-                           " WHERE e.status IS NULL AND r.fresh = 0 ORDER BY r.created",
+                           " FROM requests r INDEXED BY requests_unacked"
+                           " JOIN evaluations e ON e.key = r.key"
+                           " WHERE r.acked = 0 AND r.fresh = 0 AND e.status IS NULL"
+                           " ORDER BY r.created",
                            -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "requests");
     int rc;
