@@ -9,6 +9,7 @@
 #include <string.h>
 #include <sys/stat.h>
 
+#include "keyline.h"
 #include "textfile.h"
 
 struct common_allowlist {
@@ -22,18 +23,13 @@ static int s_cmp(const void *a, const void *b)
                   COMMON_KEY_BYTES);
 }
 
-static int s_label_char_ok(unsigned char c)
-{
-    return c >= 0x20 && c != 0x7f; /* printable ASCII and UTF-8 bytes; no controls */
-}
-
 int common_allowlist_label_ok(const char *label)
 {
     size_t n = strlen(label);
     if (n > COMMON_ALLOW_LABEL_MAX)
         return -1;
     for (size_t i = 0; i < n; i++)
-        if (!s_label_char_ok((unsigned char)label[i]))
+        if (!common_keyline_char_ok((unsigned char)label[i]))
             return -1;
     return 0;
 }
@@ -71,29 +67,9 @@ static int s_line(const char *line, size_t n, long number, void *arg, char *err,
     }
     common_allow_entry_t *e = &self->entries[self->n];
     memset(e, 0, sizeof *e);
-    if (common_z85_decode(line, COMMON_KEY_Z85, e->key) != 0) {
-        snprintf(err, errlen, "line %ld: the key is not valid Z85", number);
+    if (common_keyline_split(line, n, number, "label", 0, COMMON_ALLOW_LABEL_MAX, e->key, e->label,
+                             err, errlen) != 0)
         return -1;
-    }
-    const char *label = line + COMMON_KEY_Z85;
-    size_t ln = n - COMMON_KEY_Z85;
-    while (ln > 0 && (*label == ' ' || *label == '\t')) {
-        label++;
-        ln--;
-    }
-    if (ln > COMMON_ALLOW_LABEL_MAX) {
-        snprintf(err, errlen, "line %ld: the label is longer than %d bytes", number,
-                 COMMON_ALLOW_LABEL_MAX);
-        return -1;
-    }
-    for (size_t k = 0; k < ln; k++) {
-        if (!s_label_char_ok((unsigned char)label[k]) && label[k] != '\t') {
-            snprintf(err, errlen, "line %ld: the label has a control character", number);
-            return -1;
-        }
-    }
-    memcpy(e->label, label, ln);
-    e->label[ln] = '\0';
     self->n++;
     return 0;
 }

@@ -9,6 +9,7 @@
 #include <string.h>
 #include <sys/stat.h>
 
+#include "keyline.h"
 #include "textfile.h"
 
 typedef struct {
@@ -28,11 +29,6 @@ static int s_cmp(const void *a, const void *b)
     return c ? c : memcmp(x->key, y->key, COMMON_KEY_BYTES);
 }
 
-static int s_run_char_ok(unsigned char c)
-{
-    return c >= 0x20 && c != 0x7f;
-}
-
 int common_sharelist_run_ok(const char *run_id)
 {
     size_t n = run_id ? strlen(run_id) : 0;
@@ -41,7 +37,7 @@ int common_sharelist_run_ok(const char *run_id)
     if (run_id[0] == ' ' || run_id[0] == '\t' || run_id[n - 1] == ' ' || run_id[n - 1] == '\t')
         return -1; /* the parser trims them: the line would name another run */
     for (size_t i = 0; i < n; i++)
-        if (!s_run_char_ok((unsigned char)run_id[i]) && run_id[i] != '\t')
+        if (!common_keyline_char_ok((unsigned char)run_id[i]) && run_id[i] != '\t')
             return -1;
     return 0;
 }
@@ -72,29 +68,9 @@ static int s_line(const char *line, size_t n, long number, void *arg, char *err,
     }
     s_entry_t *e = &self->entries[self->n];
     memset(e, 0, sizeof *e);
-    if (common_z85_decode(line, COMMON_KEY_Z85, e->key) != 0) {
-        snprintf(err, errlen, "line %ld: the key is not valid Z85", number);
+    if (common_keyline_split(line, n, number, "run id", 1, COMMON_SHARE_RUN_MAX, e->key, e->run,
+                             err, errlen) != 0)
         return -1;
-    }
-    const char *run = line + COMMON_KEY_Z85;
-    size_t rn = n - COMMON_KEY_Z85;
-    while (rn > 0 && (*run == ' ' || *run == '\t')) {
-        run++;
-        rn--;
-    }
-    if (rn == 0 || rn > COMMON_SHARE_RUN_MAX) {
-        snprintf(err, errlen, "line %ld: the run id must be 1 to %d bytes", number,
-                 COMMON_SHARE_RUN_MAX);
-        return -1;
-    }
-    for (size_t k = 0; k < rn; k++) {
-        if (!s_run_char_ok((unsigned char)run[k]) && run[k] != '\t') {
-            snprintf(err, errlen, "line %ld: the run id has a control character", number);
-            return -1;
-        }
-    }
-    memcpy(e->run, run, rn);
-    e->run[rn] = '\0';
     self->n++;
     return 0;
 }
