@@ -13,6 +13,7 @@
 
 #include "cli_util.h"
 #include "commands.h"
+#include "keylist_append.h"
 #include "common/allowlist.h"
 #include "common/keyfile.h"
 
@@ -125,40 +126,12 @@ int cli_cmd_allow(int argc, char **argv)
                 fp, other);
     common_allowlist_destroy(&olist);
 
-    int fresh = stat(path, &st) != 0;
-    int fd = open(path, O_WRONLY | O_CREAT | O_APPEND | O_CLOEXEC, 0644);
-    if (fd < 0) {
-        fprintf(stderr, "fitfarm allow: cannot open %s: %s\n", path, strerror(errno));
+    char header[160];
+    snprintf(header, sizeof header,
+             "# fitfarm %s allow-list: one Z85 public key per line, then an optional label",
+             workers ? "workers" : "clients");
+    if (cli_keylist_append("fitfarm allow", path, header, key, label) != 0)
         return 1;
-    }
-    char z85[COMMON_KEY_Z85 + 1];
-    common_z85_encode_key(key, z85);
-    char line[512];
-    int n = 0;
-    if (fresh)
-        n = snprintf(line, sizeof line,
-                     "# fitfarm %s allow-list: one Z85 public key per line, then an optional "
-                     "label\n",
-                     workers ? "workers" : "clients");
-    /* A list whose last line lacks its newline must not swallow ours. */
-    else if (st.st_size > 0) {
-        int rfd = open(path, O_RDONLY | O_CLOEXEC);
-        char last = '\n';
-        if (rfd >= 0) {
-            if (pread(rfd, &last, 1, st.st_size - 1) != 1)
-                last = '\n';
-            close(rfd);
-        }
-        if (last != '\n')
-            line[n++] = '\n';
-    }
-    n += snprintf(line + n, sizeof line - (size_t)n, "%s %s\n", z85, label);
-    int ok = write(fd, line, (size_t)n) == n;
-    ok = (close(fd) == 0) && ok;
-    if (!ok) {
-        fprintf(stderr, "fitfarm allow: cannot write %s: %s\n", path, strerror(errno));
-        return 1;
-    }
     printf("admitted %s key %s (%s) in %s; send the broker SIGHUP to apply\n", role, fp, label,
            path);
     return 0;

@@ -15,6 +15,7 @@
 
 #include "cli_util.h"
 #include "commands.h"
+#include "keylist_append.h"
 #include "common/keyfile.h"
 #include "common/sharelist.h"
 
@@ -101,39 +102,11 @@ int cli_cmd_share(int argc, char **argv)
         printf("run %s is already shared with key %s in %s\n", run, fp, path);
         return 0;
     }
-    int fresh = stat(path, &st) != 0;
-    int fd = open(path, O_WRONLY | O_CREAT | O_APPEND | O_CLOEXEC, 0644);
-    if (fd < 0) {
-        fprintf(stderr, "fitfarm share: cannot open %s: %s\n", path, strerror(errno));
+    if (cli_keylist_append("fitfarm share", path,
+                           "# fitfarm run shares: a client public key (Z85), then the id of a "
+                           "run it may use",
+                           key, run) != 0)
         return 1;
-    }
-    char z85[COMMON_KEY_Z85 + 1];
-    common_z85_encode_key(key, z85);
-    char line[512];
-    int n = 0;
-    if (fresh) {
-        n = snprintf(line, sizeof line,
-                     "# fitfarm run shares: a client public key (Z85), then the id of a run "
-                     "it may use\n");
-    } else if (st.st_size > 0) {
-        /* A list whose last line lacks its newline must not swallow ours. */
-        char last = '\n';
-        int rfd = open(path, O_RDONLY | O_CLOEXEC);
-        if (rfd >= 0) {
-            if (pread(rfd, &last, 1, st.st_size - 1) != 1)
-                last = '\n';
-            close(rfd);
-        }
-        if (last != '\n')
-            line[n++] = '\n';
-    }
-    n += snprintf(line + n, sizeof line - (size_t)n, "%s %s\n", z85, run);
-    int ok = write(fd, line, (size_t)n) == n;
-    ok = (close(fd) == 0) && ok;
-    if (!ok) {
-        fprintf(stderr, "fitfarm share: cannot write %s: %s\n", path, strerror(errno));
-        return 1;
-    }
     printf("shared run %s with key %s in %s; send the broker SIGHUP to apply\n", run, fp, path);
     return 0;
 }
