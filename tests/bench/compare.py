@@ -201,6 +201,7 @@ def main():
     tmp = tempfile.mkdtemp(prefix="fitfarm-compare-")
     try:
         samples = {}
+        load0 = open("/proc/loadavg").read().split()[0]
         for rep in range(a.repeats):
             for part in (lambda: wire(a.build, a.count), lambda: python_pool(a.count),
                          lambda: library(a.build, a.count, tmp), lambda: cli(a.build, a.count, tmp),
@@ -211,7 +212,9 @@ def main():
         m = {k: statistics.median(v) for k, v in samples.items()}
         units = {"_us": "us", "busy_5ms": "%"}
         print(f"cpus: {os.cpu_count()}; {a.count} trivial evaluations per throughput figure; "
-              f"median of {a.repeats}")
+              f"median of {a.repeats}; load average at the start {load0}, at the end "
+              f"{open('/proc/loadavg').read().split()[0]} (other jobs take CPU from every figure, "
+              f"most of all from the 5 ms one, whose ceiling assumes two idle cores)")
         for k in sorted(m):
             unit = next((u for s, u in units.items() if k.endswith(s) or k == s), "per s")
             print(f"{k}: {m[k]:.1f} {unit}  (runs: {', '.join(f'{x:.0f}' for x in samples[k])})")
