@@ -212,7 +212,11 @@ typedef void (*fitfarm_progress_cb)(size_t done, size_t total, void *arg);
 /* Submits batch and blocks until every result is in or timeout_ms passes
  * (negative: no limit). progress is called (may be NULL) as results arrive.
  * Results are then read with fitfarm_batch_result. A batch is evaluated once;
- * after a time-out, calling it again with the same batch goes on waiting. */
+ * after a time-out, calling it again with the same batch goes on waiting.
+ * A batch larger than the broker's queue cap for its run is sent in parts:
+ * what the broker refused as "queue full" is sent again while the part it
+ * took drains (FITFARM_EQUEUEFULL only when none of the batch is queued,
+ * i.e. other work fills the queue). */
 FITFARM_API int fitfarm_evaluate(fitfarm_run_t *run, fitfarm_batch_t *batch,
                                  fitfarm_progress_cb progress, void *arg, int timeout_ms);
 

@@ -224,3 +224,11 @@ void client_batch_free(fitfarm_batch_t *self)
     free(self->params);
     free(self);
 }
+
+size_t client_batch_in_flight(const fitfarm_batch_t *batch)
+{
+    size_t n = 0, total = batch->slots ? batch->n * batch->replicates : 0;
+    for (size_t i = 0; i < total; i++)
+        n += batch->slots[i].state == CLIENT_SLOT_ACCEPTED;
+    return n;
+}

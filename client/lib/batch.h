@@ -51,6 +51,8 @@ struct fitfarm_batch {
     uint64_t tag_base;    /* tag of slot s is tag_base + s */
 };
 
+/* Slots the broker holds for this batch (ACCEPTED, result not yet here). */
+size_t client_batch_in_flight(const fitfarm_batch_t *batch);
 /* Allocates the slots (all UNSENT); 0 or FITFARM_ENOMEM. */
 int client_batch_prepare(fitfarm_batch_t *batch);
 /* Stores one result with the request's own seed; returns 1 if new, 0 for a

@@ -5,6 +5,7 @@
  * pool and at answers that came in the background.
  *
  * Not here: what a message means (run.c), sockets (client.c). */
+#include "batch.h"
 #include "client.h"
 #include "run.h"
 
@@ -46,6 +47,18 @@ static int s_submit(fitfarm_run_t *run, fitfarm_batch_t *b, int streaming, int64
     return client_run_submit_finish(run, b, rc);
 }
 
+/* A batch larger than the broker's queue cap for its run: the part the
+ * broker took is evaluated, and the rest is sent again every
+ * CLIENT_QUEUE_RETRY_MS while that part drains the queue. Only while some
+ * of this batch is still in the broker's hands: a queue full of other
+ * work is the caller's to judge, and FITFARM_EQUEUEFULL says so. */
+#define CLIENT_QUEUE_RETRY_MS 200
+
+static int s_queue_wait_helps(int rc, const fitfarm_batch_t *batch)
+{
+    return rc == FITFARM_EQUEUEFULL && client_batch_in_flight(batch) > 0;
+}
+
 FITFARM_API int fitfarm_evaluate(fitfarm_run_t *run, fitfarm_batch_t *batch,
                                  fitfarm_progress_cb progress, void *arg, int timeout_ms)
 {
@@ -54,11 +67,23 @@ FITFARM_API int fitfarm_evaluate(fitfarm_run_t *run, fitfarm_batch_t *batch,
     fitfarm_client_t *cl = run->client;
     int64_t deadline = client_deadline(timeout_ms);
     int rc = s_submit(run, batch, 0, deadline, 0, 1);
-    if (rc != FITFARM_OK)
+    int64_t resend_at = 0; /* > 0: part of the batch waits for room in the queue */
+    if (s_queue_wait_helps(rc, batch))
+        resend_at = client_deadline(CLIENT_QUEUE_RETRY_MS);
+    else if (rc != FITFARM_OK)
         return rc;
     size_t total = fitfarm_batch_size(batch) * fitfarm_batch_replicates(batch);
     size_t reported = (size_t)-1;
     while (fitfarm_batch_arrived(batch) < total) {
+        if (resend_at > 0 && client_ms_left(resend_at) == 0) {
+            rc = s_submit(run, batch, 0, deadline, 0, 1);
+            if (rc == FITFARM_OK)
+                resend_at = 0;
+            else if (s_queue_wait_helps(rc, batch))
+                resend_at = client_deadline(CLIENT_QUEUE_RETRY_MS);
+            else
+                return rc;
+        }
         size_t arrived = fitfarm_batch_arrived(batch);
         if (progress && reported != arrived) {
             reported = arrived;
@@ -71,7 +96,10 @@ FITFARM_API int fitfarm_evaluate(fitfarm_run_t *run, fitfarm_batch_t *batch,
         if (left == 0)
             return client_fail(cl, FITFARM_ETIMEDOUT, "%zu of %zu results arrived within %d ms",
                                arrived, total, timeout_ms);
-        rc = s_wait_turn(cl, left < 0 || left > 500 ? 500 : left);
+        int wait = left < 0 || left > 500 ? 500 : left;
+        if (resend_at > 0 && client_ms_left(resend_at) < wait)
+            wait = client_ms_left(resend_at);
+        rc = s_wait_turn(cl, wait);
         if (rc < 0)
             return rc;
         if (!run->client || batch->run != run)
