@@ -458,6 +458,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     }
     broker_run_set_client(run, rid, rid_len, who);
     run->last_used_ms = b->now_ms;
+    run->weight = s->weight ? s->weight : 1;
     broker_store_note_run(b->store, run);
 
     const char *params = broker_intern(&b->intern, canon);

@@ -298,14 +298,22 @@ static broker_eval_t *s_oldest_for(broker_run_t *run, const broker_worker_t *w)
 
 broker_eval_t *broker_runs_pick(broker_runs_t *self, const broker_worker_t *w)
 {
+    /* Weighted round robin: the cursor stays on a run for `weight` picks
+     * (SUBMIT.weight, 1 by default), then moves on; a run with nothing for
+     * this worker gives up the rest of its turn. */
     for (uint32_t i = 0, n = self->n_active; i < n && self->rr_cursor; i++) {
         broker_run_t *run = self->rr_cursor;
-        self->rr_cursor = run->rr_next;
         broker_eval_t *e = s_oldest_for(run, w);
         if (e) {
+            if (++run->rr_served >= (run->weight ? run->weight : 1)) {
+                run->rr_served = 0;
+                self->rr_cursor = run->rr_next;
+            }
             broker_runs_unqueue(self, e);
             return e;
         }
+        run->rr_served = 0;
+        self->rr_cursor = run->rr_next;
     }
     return NULL;
 }

@@ -93,6 +93,8 @@ typedef struct broker_run {
     int idle_deferred; /* went idle inside a SUBMIT being taken */
     struct broker_run *rr_prev, *rr_next;
     int in_rr;
+    uint32_t weight;    /* fair-share weight from its latest SUBMIT (1..PROTO_MAX_WEIGHT) */
+    uint32_t rr_served; /* jobs picked in its current round-robin turn */
     broker_delivery_t *outbox;
     uint32_t n_outbox, cap_outbox;
     struct broker_run *dirty_next;

@@ -21,6 +21,7 @@
 #define PROTO_MAX_PLUGINS 256u        /* plugins one worker reports */
 #define PROTO_MAX_LIST 100000u        /* workers, runs, tags in one message */
 #define PROTO_MAX_REPLICATES 10000u
+#define PROTO_MAX_WEIGHT 1000u /* a run's fair-share weight (SUBMIT.weight) */
 #define PROTO_MAX_SEED_PARAMS 16u /* seed params one plugin lists (fitfarm_plugin.h) */
 
 #define PROTO_KEY_BYTES 32u

@@ -95,7 +95,7 @@ typedef struct {
 
 /* [v, SUBMIT, run_id str, run_seed uint, seed_mode uint, flags uint,
  *  timeout_ms uint, attempts uint, batch_tag uint, plugin str, params str,
- *  items array of proto_item_t] */
+ *  items array of proto_item_t, weight uint] */
 typedef struct {
     char *run_id;
     uint64_t run_seed;
@@ -108,6 +108,10 @@ typedef struct {
     char *params; /* canonical JSON text (proto_params_canonical) */
     uint32_t n_items;
     proto_item_t *items;
+    /* the run's share of the pool against other runs, 1..PROTO_MAX_WEIGHT
+     * (the broker serves a run of weight W W jobs per round); the encoder
+     * sends 0 as 1 */
+    uint32_t weight;
 } proto_submit_t;
 
 /* [v, ACK, run_id str, tags array of uint]: the client has delivered these

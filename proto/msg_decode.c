@@ -509,6 +509,10 @@ static int s_submit(s_cursor_t *c, proto_submit_t *s)
     for (uint32_t i = 0; i < n; i++)
         ELEM(i, s_item(c, &s->items[i]));
     s_path_pop(c, old);
+    FIELD("weight", s_read_u32(c, &s->weight));
+    if (s->weight < 1 || s->weight > PROTO_MAX_WEIGHT)
+        FIELD_FAIL("weight", PROTO_EVALUE, "%lu, expected 1 to %lu", (unsigned long)s->weight,
+                   (unsigned long)PROTO_MAX_WEIGHT);
 cleanup:
     return rc;
 }

@@ -110,6 +110,8 @@ static int s_pack_submit(msgpack_packer *pk, const proto_submit_t *s)
         U64(it->replicate);
         BIN(it->genome, it->genome_len);
     }
+    REQUIRE(s->weight <= PROTO_MAX_WEIGHT);
+    U64(s->weight ? s->weight : 1);
 cleanup:
     return rc;
 }

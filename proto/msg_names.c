@@ -7,7 +7,7 @@
 int proto_msg_field_count(uint32_t type)
 {
     switch (type) {
-    case PROTO_SUBMIT: return 10;
+    case PROTO_SUBMIT: return 11;
     case PROTO_ACK: return 2;
     case PROTO_ACCEPTED: return 3;
     case PROTO_RESULTS: return 2;

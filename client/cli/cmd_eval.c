@@ -75,6 +75,9 @@ static const char s_help[] =
     "  --timeout SECONDS  per-evaluation time limit (default: the worker's)\n"
     "  --attempts N       tries of an evaluation that crashes or times out, each on\n"
     "                     another worker where possible (default 3)\n"
+    "  --weight W         the run's share of the pool while other runs wait too:\n"
+    "                     runs are served in turn, W jobs from this one per turn\n"
+    "                     (1 to 1000, default 1)\n"
     "  --in FILE          read genomes from FILE (default stdin)\n"
     "  --out FILE         write results to FILE (default stdout)\n"
     "  --broker ENDPOINT  use the pool behind this broker client endpoint, e.g.\n"
@@ -125,7 +128,7 @@ typedef struct {
     const char *seed_mode_name, *aggregate_name;
     int stats, no_cache, replay, seed_mode, local, retry_failed;
     int aggregate; /* 0 none, 1 mean, 2 median */
-    uint64_t seed, replicates, slots, timeout_s, attempts;
+    uint64_t seed, replicates, slots, timeout_s, attempts, weight;
     const char *exec[EVAL_MAX_EXEC + 1]; /* --exec NAME=CMD, NULL-terminated */
     size_t n_exec;
     /* state */
@@ -254,6 +257,7 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         NUM_OPT("--slots", slots, 0, 4096)
         NUM_OPT("--timeout", timeout_s, 0, 4294967)
         NUM_OPT("--attempts", attempts, 1, 100)
+        NUM_OPT("--weight", weight, 1, 1000)
 #undef STR_OPT
 #undef NUM_OPT
         int keys = cli_keys_option(argc, argv, &i, "fitfarm eval", exit_code);
@@ -848,6 +852,7 @@ int cli_cmd_eval(int argc, char **argv)
     ropts.retry_failed = e.retry_failed;
     ropts.timeout_s = (unsigned)e.timeout_s;
     ropts.attempts = (unsigned)e.attempts;
+    ropts.weight = (unsigned)e.weight;
     if (fitfarm_run_open(e.client, &ropts, &e.run) != 0) {
         fprintf(stderr, "fitfarm eval: %s\n", fitfarm_client_error(e.client));
         rc = 1;

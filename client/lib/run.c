@@ -49,6 +49,9 @@ int client_run_new(client_core_t *core, fitfarm_client_t *client,
     if (options->seed_mode != PROTO_SEED_GENOME && options->seed_mode != PROTO_SEED_COMMON)
         return client_core_fail(core, FITFARM_EINVAL, "seed_mode %d is neither 0 (per genome) "
                                 "nor 1 (common random numbers)", options->seed_mode);
+    if (options->weight > PROTO_MAX_WEIGHT)
+        return client_core_fail(core, FITFARM_EINVAL, "a run's weight is 1 to %u, not %u",
+                                PROTO_MAX_WEIGHT, options->weight);
     if (options->run_id) {
         size_t len = strlen(options->run_id);
         if (len == 0 || len > PROTO_MAX_NAME_BYTES)
@@ -89,6 +92,7 @@ int client_run_new(client_core_t *core, fitfarm_client_t *client,
                  (options->retry_failed ? PROTO_SUBMIT_RETRY_FAILED : 0);
     run->timeout_s = options->timeout_s;
     run->attempts = options->attempts;
+    run->weight = options->weight ? options->weight : 1;
     run->next_tag = 0; /* deterministic tags: see the top of this file */
     run->next = core->runs;
     core->runs = run;
@@ -446,6 +450,7 @@ static int s_chunk_send(fitfarm_run_t *run, const client_chunk_t *c)
     msg.u.submit.timeout_ms =
         run->timeout_s > UINT32_MAX / 1000u ? UINT32_MAX : run->timeout_s * 1000u;
     msg.u.submit.attempts = run->attempts;
+    msg.u.submit.weight = run->weight;
     msg.u.submit.batch_tag = c->batch_tag;
     msg.u.submit.plugin = b->plugin;
     msg.u.submit.params = b->params;

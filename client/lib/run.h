@@ -50,6 +50,7 @@ struct fitfarm_run {
     uint32_t flags;
     unsigned timeout_s;
     unsigned attempts;
+    unsigned weight; /* fair share, 1..PROTO_MAX_WEIGHT */
     uint64_t next_tag;
     fitfarm_batch_t **batches; /* submitted, ascending tag_base */
     size_t n_batches, cap_batches;

@@ -76,8 +76,8 @@ GENOME = Bin(struct.pack("<3d", 0.1, 0.2, 0.3))
 
 MESSAGES = {
     "submit": [1, 1, "run-1", 42, 0, 0, 5000, 3, 7, "zdt1", '{"n":30}',
-               [[1, 0, GENOME], [2, 1, GENOME], [U64, 9999, Bin(b"")]]],
-    "submit_common": [1, 1, "r", U64, 1, 3, 0, 0, 0, "granular", "{}", []],
+               [[1, 0, GENOME], [2, 1, GENOME], [U64, 9999, Bin(b"")]], 1],
+    "submit_common": [1, 1, "r", U64, 1, 3, 0, 0, 0, "granular", "{}", [], 1000],
     "ack": [1, 2, "run-1", [0, 1, 255, 65536, U64]],
     "status_req": [1, 3],
     "accepted": [1, 10, "run-1", 7, 3],

@@ -317,6 +317,7 @@ static void test_decoded_fields(void **state)
     assert_string_equal(s->plugin, "zdt1");
     assert_string_equal(s->params, "{\"n\":30}");
     assert_int_equal(s->n_items, 3);
+    assert_int_equal(s->weight, 1); /* 0 is sent as 1 */
     assert_int_equal(s->items[0].genome_len, 0);
     assert_null(s->items[0].genome);
     assert_int_equal(s->items[1].tag, UINT64_MAX);
@@ -557,8 +558,8 @@ static void test_huge_declared_counts(void **state)
     /* ACK tags: 1000 declared (within the limit), 1 byte present */
     static const uint8_t ack2[] = {0x94, 0x01, 0x02, 0xa1, 'r', 0xdc, 0x03, 0xe8, 0x01};
     s_expect_refused(ack2, sizeof ack2, NULL, PROTO_ETRUNCATED, "ACK.tags: 1000 elements declared");
-    /* SUBMIT (fixarray of 12) params: str 32 (0xdb) of 0xffffffff bytes */
-    static const uint8_t sub[] = {0x9c, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+    /* SUBMIT (fixarray of 13) params: str 32 (0xdb) of 0xffffffff bytes */
+    static const uint8_t sub[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                   0xa1, 'p', 0xdb, 0xff, 0xff, 0xff, 0xff, 'x'};
     s_expect_refused(sub, sizeof sub, NULL, PROTO_ELIMIT, "SUBMIT.params: 4294967295 bytes");
     /* JOBS genome: bin 32 (0xc6) of 1000 bytes, 2 present */
@@ -673,21 +674,28 @@ static void test_mistyped_fields(void **state)
                      "RESULTS.results[0].finished_at: -1, expected a finite value >= 0");
 
     /* SUBMIT: seed_mode 2; genome as str instead of bin */
-    static const uint8_t s1[] = {0x9c, 0x01, 0x01, 0xa1, 'r', 0x00, 0x02, 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s1[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x02, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x90};
     s_expect_refused(s1, sizeof s1, NULL, PROTO_EVALUE, "SUBMIT.seed_mode: 2");
-    static const uint8_t s2[] = {0x9c, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s2[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x91, 0x93, 0x00, 0x00, 0xa1, 'g'};
     s_expect_refused(s2, sizeof s2, NULL, PROTO_ETYPE, "SUBMIT.items[0].genome: str, expected bin");
     /* replicate index at PROTO_MAX_REPLICATES (0x2710 = 10000) */
-    static const uint8_t s3[] = {0x9c, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s3[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x91, 0x93, 0x00, 0xcd, 0x27, 0x10,
                                  0xc4, 0x00};
     s_expect_refused(s3, sizeof s3, NULL, PROTO_ELIMIT, "SUBMIT.items[0].replicate: 10000");
     /* a map where the items array belongs */
-    static const uint8_t s4[] = {0x9c, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s4[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x80};
     s_expect_refused(s4, sizeof s4, NULL, PROTO_ETYPE, "SUBMIT.items: map, expected array");
+    /* weight 0 and 1001: a run's share is 1 to PROTO_MAX_WEIGHT (1000) */
+    static const uint8_t s5[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+                                 0xa1, 'p', 0xa2, '{', '}', 0x90, 0x00};
+    s_expect_refused(s5, sizeof s5, NULL, PROTO_EVALUE, "SUBMIT.weight: 0, expected 1 to 1000");
+    static const uint8_t s6[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+                                 0xa1, 'p', 0xa2, '{', '}', 0x90, 0xcd, 0x03, 0xe9};
+    s_expect_refused(s6, sizeof s6, NULL, PROTO_EVALUE, "SUBMIT.weight: 1001, expected 1 to 1000");
 }
 
 /* HELLO plugin info, written by hand from the MessagePack spec: its sixth

@@ -85,7 +85,8 @@ class Options(_Sized):
 class RunOptions(_Sized):
     _fields_ = [("size", c_size_t), ("run_id", c_char_p), ("seed", c_u64),
                 ("seed_mode", c_int), ("no_cache", c_int), ("replay", c_int),
-                ("timeout_s", c_uint), ("attempts", c_uint), ("retry_failed", c_int)]
+                ("timeout_s", c_uint), ("attempts", c_uint), ("retry_failed", c_int),
+                ("weight", c_uint)]
 
 
 class RunStats(_Sized):

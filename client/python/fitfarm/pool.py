@@ -137,7 +137,7 @@ class Run:
     A context manager; close() ends it (the Pool's shutdown closes it too)."""
 
     def __init__(self, pool, run_id=None, seed=0, replay=False, seed_mode="genome",
-                 no_cache=False, timeout=None, attempts=None, retry_failed=False):
+                 no_cache=False, timeout=None, attempts=None, retry_failed=False, weight=1):
         if seed_mode not in _SEED_MODES:
             raise ValueError(f"seed_mode must be 'genome' or 'common', not {seed_mode!r}")
         if not 0 <= int(seed) < 2 ** 64:
@@ -156,6 +156,9 @@ class Run:
         opts.timeout_s = 0 if timeout is None else max(1, int(math.ceil(timeout)))
         opts.attempts = 0 if attempts is None else int(attempts)
         opts.retry_failed = 1 if retry_failed else 0
+        if not 1 <= int(weight) <= 1000:
+            raise ValueError("weight must be 1 to 1000")
+        opts.weight = int(weight)
         self.seed = int(seed)
         self.replay = bool(replay)
         h = ctypes.c_void_p()
@@ -722,15 +725,17 @@ class Pool(concurrent.futures.Executor):
 
     # ---- public ------------------------------------------------------------
     def run(self, run_id=None, seed=0, replay=False, seed_mode="genome", no_cache=False,
-            timeout=None, attempts=None, retry_failed=False):
+            timeout=None, attempts=None, retry_failed=False, weight=1):
         """Opens (or resumes, when run_id exists in the store) a run. replay:
         answer only from what the run recorded, never simulate (a request it
         never saw raises NotRecordedError). timeout: per-evaluation limit in
         seconds; attempts: tries of an evaluation that crashes or times out;
         retry_failed: a resumed request the run recorded as crashed or timed out
-        is evaluated again."""
+        is evaluated again. weight: the run's share of the pool while other
+        runs wait too (runs are served in turn, weight jobs from this one per
+        turn; 1 to 1000)."""
         return Run(self, run_id, seed, replay, seed_mode, no_cache, timeout, attempts,
-                   retry_failed)
+                   retry_failed, weight)
 
     def function(self, plugin, params=None, objective=None, run=None, seed=0, replicates=1,
                  seed_mode="genome", aggregate=None, on_failure="raise"):
