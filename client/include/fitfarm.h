@@ -146,8 +146,8 @@ typedef struct {
     int retry_failed;
     /* The run's share of the pool against the other runs queued at the same
      * time: the broker serves runs round robin, weight jobs from this one
-     * per round; 0 = 1. At most 1000. Added in SOVERSION 2's first minor
-     * change: a caller built before it passes a smaller size and gets 1. */
+     * per round; 0 = 1. At most 1000. Added after the struct's first
+     * release: a caller built before it passes a smaller size and gets 1. */
     unsigned weight;
 } fitfarm_run_options_t;
 #define FITFARM_RUN_OPTIONS_INIT {.size = sizeof(fitfarm_run_options_t)}
