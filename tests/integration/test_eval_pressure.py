@@ -117,6 +117,12 @@ with fflib.Pool(broker_args=["--max-queued-per-run", "5000"]) as pool:
     p = subprocess.Popen([fflib.exe("fitfarm"), "eval"] + common + ["--run", "rnd", "--in",
                                                                     "/dev/urandom", "--out", rnd_out],
                          stderr=open(os.path.join(tmp, "rnd.err"), "wb"), env=MEASURE_ENV)
+    # Warm-up: the pool connected and output began (on a loaded machine
+    # that took over 1.5 s, and the first sample caught the CLI still
+    # starting: 8,952 then 17,612 KiB), then a second more.
+    deadline = time.time() + 20
+    while time.time() < deadline and (not os.path.exists(rnd_out) or os.path.getsize(rnd_out) == 0):
+        time.sleep(0.1)
     time.sleep(1.5)
     rss1, size1 = rss_kb(p.pid), os.path.getsize(rnd_out)
     time.sleep(3)
