@@ -3,9 +3,9 @@
  * plugin, and (with --trace) recording what the simulation did through the
  * plugin's optional fitfarm_plugin_trace entry point.
  *
- * Owns option parsing, finding and loading the plugin file, and the output
- * line. Not here: the worker's plugin registry (the worker's own, private),
- * the plugins themselves. The plugin runs in this process: a crashing plugin
+ * Owns option parsing and the output line; finding and loading the plugin
+ * file is cli_plugin.c's. Not here: the worker's plugin registry (the
+ * worker's own, private), the plugins themselves. The plugin runs in this process: a crashing plugin
  * takes the command down, which is what a developer debugging it wants. */
 #include <dlfcn.h>
 #include <jansson.h>
@@ -15,6 +15,7 @@
 #include <string.h>
 #include <time.h>
 
+#include "cli_plugin.h"
 #include "cli_util.h"
 #include "commands.h"
 #include "fitfarm_plugin.h"
@@ -58,77 +59,6 @@ static int s_usage(const char *fmt, const char *arg)
     fprintf(stderr, fmt, arg ? arg : "");
     fputs(" (see fitfarm sim --help)\n", stderr);
     return 2;
-}
-
-/* A plugin name as the ABI allows it: [a-z0-9_-]+, at most 64 bytes. */
-static int s_valid_name(const char *s)
-{
-    size_t n = strlen(s);
-    if (n == 0 || n > 64)
-        return 0;
-    for (size_t i = 0; i < n; i++) {
-        char c = s[i];
-        if (!((c >= 'a' && c <= 'z') || (c >= '0' && c <= '9') || c == '_' || c == '-'))
-            return 0;
-    }
-    return 1;
-}
-
-/* Loads the plugin: a path as given, or NAME.so from the first directory
- * that has it. Returns the descriptor (borrowed from *dl, which the caller
- * dlcloses) or NULL with a sentence in err. */
-static const fitfarm_plugin_t *s_load(const char *plugin, const char *const *dirs, void **dl,
-                                      char *err, size_t errlen)
-{
-    char path[4096];
-    *dl = NULL;
-    if (strchr(plugin, '/')) {
-        *dl = dlopen(plugin, RTLD_NOW | RTLD_LOCAL);
-        if (!*dl) {
-            snprintf(err, errlen, "cannot load %s: %s", plugin, dlerror());
-            return NULL;
-        }
-    } else {
-        if (!s_valid_name(plugin)) {
-            snprintf(err, errlen, "'%.80s' is not a plugin name ([a-z0-9_-]+) nor a path", plugin);
-            return NULL;
-        }
-        char tried[1024] = "";
-        size_t used = 0;
-        for (size_t i = 0; dirs[i] && !*dl; i++) {
-            snprintf(path, sizeof path, "%s/%s.so", dirs[i], plugin);
-            *dl = dlopen(path, RTLD_NOW | RTLD_LOCAL);
-            if (!*dl && used < sizeof tried) {
-                int w =
-                    snprintf(tried + used, sizeof tried - used, "%s%s", used ? ", " : "", dirs[i]);
-                if (w > 0)
-                    used += (size_t)w;
-            }
-        }
-        if (!*dl) {
-            snprintf(err, errlen, "no plugin '%s' (looked for %s.so in: %s)", plugin, plugin,
-                     used ? tried : "no directories");
-            return NULL;
-        }
-    }
-    const fitfarm_plugin_t *(*entry)(void) =
-        (const fitfarm_plugin_t *(*)(void))dlsym(*dl, FITFARM_PLUGIN_SYMBOL);
-    const fitfarm_plugin_t *p = entry ? entry() : NULL;
-    if (!p) {
-        snprintf(err, errlen, "%s has no %s descriptor", plugin, FITFARM_PLUGIN_SYMBOL);
-    } else if (p->abi_version != FITFARM_PLUGIN_ABI) {
-        snprintf(err, errlen, "%s speaks plugin ABI %u, this build %u", plugin,
-                 (unsigned)p->abi_version, (unsigned)FITFARM_PLUGIN_ABI);
-        p = NULL;
-    } else if (!p->name || !p->version || !p->create || !p->evaluate || !p->destroy) {
-        snprintf(err, errlen, "%s has an incomplete descriptor", plugin);
-        p = NULL;
-    }
-    if (!p) {
-        dlclose(*dl);
-        *dl = NULL;
-    }
-    return p;
 }
 
 /* Parses a JSON array of numbers into little-endian doubles (the wire form
@@ -184,7 +114,7 @@ int cli_cmd_sim(int argc, char **argv)
 {
     const char *plugin = NULL, *genome_text = NULL, *params_text = "{}", *trace_path = NULL;
     const char *exec_spec = NULL;
-    const char *dirs[2 * WORKER_MAX_PLUGIN_DIRS + 1];
+    const char *dirs[CLI_PLUGIN_MAX_DIRS];
     size_t ndirs = 0;
     uint64_t seed = 0;
     for (int i = 1; i < argc; i++) {
@@ -236,8 +166,7 @@ int cli_cmd_sim(int argc, char **argv)
         return s_usage("which plugin? give its name%s", NULL);
     if (!genome_text)
         return s_usage("--genome is required%s", NULL);
-    ndirs += worker_default_plugin_dirs(dirs + ndirs, WORKER_MAX_PLUGIN_DIRS + 1);
-    dirs[ndirs] = NULL;
+    cli_plugin_dirs(dirs, ndirs);
 
     int rc = 1;
     char err[512] = "";
@@ -260,7 +189,7 @@ int cli_cmd_sim(int argc, char **argv)
         if (worker_exec_open(exec_spec, &p, err, sizeof err) != 0)
             p = NULL;
     } else {
-        p = s_load(plugin, dirs, &dl, err, sizeof err);
+        p = cli_plugin_open(plugin, dirs, &dl, err, sizeof err);
     }
     if (!p) {
         fprintf(stderr, "fitfarm sim: %s\n", err);
