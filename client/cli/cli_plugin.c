@@ -6,9 +6,14 @@
 #include "cli_plugin.h"
 
 #include <dlfcn.h>
+#include <jansson.h>
 #include <stdint.h>
 #include <stdio.h>
 #include <string.h>
+
+#include "limits.h"
+
+#define CLI_PLUGIN_MAX_GENES (PROTO_MAX_GENOME_BYTES / 8u)
 
 size_t cli_plugin_dirs(const char **dirs, size_t n_given)
 {
@@ -176,4 +181,43 @@ void cli_plugin_label(const fitfarm_plugin_objective_t *list, size_t count, size
         snprintf(out, outlen, "%s (%s)", list[i].name, list[i].unit);
     else
         snprintf(out, outlen, "%s", list[i].name);
+}
+
+uint8_t *cli_plugin_genome(const char *text, size_t *len, char *err, size_t errlen)
+{
+    json_error_t jerr;
+    json_t *arr = json_loads(text, 0, &jerr);
+    uint8_t *out = NULL;
+    if (!arr) {
+        snprintf(err, errlen, "--genome is not valid JSON: %s", jerr.text);
+        goto cleanup;
+    }
+    size_t n = json_is_array(arr) ? json_array_size(arr) : 0;
+    if (!json_is_array(arr) || n > CLI_PLUGIN_MAX_GENES) {
+        snprintf(err, errlen, "--genome must be a JSON array of at most %u numbers", CLI_PLUGIN_MAX_GENES);
+        goto cleanup;
+    }
+    out = malloc(n ? n * 8 : 1);
+    if (!out) {
+        snprintf(err, errlen, "out of memory");
+        goto cleanup;
+    }
+    for (size_t i = 0; i < n; i++) {
+        json_t *v = json_array_get(arr, i);
+        if (!json_is_number(v)) {
+            snprintf(err, errlen, "--genome[%zu] is not a number", i);
+            free(out);
+            out = NULL;
+            goto cleanup;
+        }
+        double d = json_number_value(v);
+        uint64_t bits;
+        memcpy(&bits, &d, sizeof bits);
+        for (int b = 0; b < 8; b++)
+            out[i * 8 + (size_t)b] = (uint8_t)(bits >> (8 * b));
+    }
+    *len = n * 8;
+cleanup:
+    json_decref(arr);
+    return out;
 }

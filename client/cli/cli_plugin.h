@@ -8,6 +8,7 @@
 #define CLIENT_CLI_PLUGIN_H
 
 #include <stddef.h>
+#include <stdint.h>
 
 #include "fitfarm_plugin.h"
 #include "worker/worker.h"
@@ -36,6 +37,11 @@ const fitfarm_plugin_t *cli_plugin_open(const char *plugin, const char *const *d
  * naming the bad entry in err. */
 int cli_plugin_objectives(void *dl, const char *plugin, const fitfarm_plugin_objective_t **list,
                           size_t *count, char *err, size_t errlen);
+
+/* Parses a JSON array of numbers (--genome) into little-endian doubles,
+ * the wire form of an f64 genome. Returns a malloc'd buffer (caller frees)
+ * and its length in *len, or NULL with a sentence in err. */
+uint8_t *cli_plugin_genome(const char *text, size_t *len, char *err, size_t errlen);
 
 /* The axis label of objective i (0-based) into out (CLI_PLUGIN_LABEL_BYTES):
  * "name (unit)", "name", or "f<i+1>" past the list's end. */

@@ -23,7 +23,6 @@
 #include "params.h"
 #include "worker/worker.h"
 
-#define SIM_MAX_GENES (PROTO_MAX_GENOME_BYTES / 8u)
 #define SIM_MAX_OBJECTIVES PROTO_MAX_OBJECTIVES
 
 static const char s_help[] =
@@ -59,48 +58,6 @@ static int s_usage(const char *fmt, const char *arg)
     fprintf(stderr, fmt, arg ? arg : "");
     fputs(" (see fitfarm sim --help)\n", stderr);
     return 2;
-}
-
-/* Parses a JSON array of numbers into little-endian doubles (the wire form
- * of an f64 genome). Returns a malloc'd buffer and its length, or NULL with
- * err. */
-static uint8_t *s_genome(const char *text, size_t *len, char *err, size_t errlen)
-{
-    json_error_t jerr;
-    json_t *arr = json_loads(text, 0, &jerr);
-    uint8_t *out = NULL;
-    if (!arr) {
-        snprintf(err, errlen, "--genome is not valid JSON: %s", jerr.text);
-        goto cleanup;
-    }
-    size_t n = json_is_array(arr) ? json_array_size(arr) : 0;
-    if (!json_is_array(arr) || n > SIM_MAX_GENES) {
-        snprintf(err, errlen, "--genome must be a JSON array of at most %u numbers", SIM_MAX_GENES);
-        goto cleanup;
-    }
-    out = malloc(n ? n * 8 : 1);
-    if (!out) {
-        snprintf(err, errlen, "out of memory");
-        goto cleanup;
-    }
-    for (size_t i = 0; i < n; i++) {
-        json_t *v = json_array_get(arr, i);
-        if (!json_is_number(v)) {
-            snprintf(err, errlen, "--genome[%zu] is not a number", i);
-            free(out);
-            out = NULL;
-            goto cleanup;
-        }
-        double d = json_number_value(v);
-        uint64_t bits;
-        memcpy(&bits, &d, sizeof bits);
-        for (int b = 0; b < 8; b++)
-            out[i * 8 + (size_t)b] = (uint8_t)(bits >> (8 * b));
-    }
-    *len = n * 8;
-cleanup:
-    json_decref(arr);
-    return out;
 }
 
 static double s_cpu_seconds(void)
@@ -180,7 +137,7 @@ int cli_cmd_sim(int argc, char **argv)
         rc = s_usage("--params: %s", err);
         goto cleanup;
     }
-    genome = s_genome(genome_text, &genome_len, err, sizeof err);
+    genome = cli_plugin_genome(genome_text, &genome_len, err, sizeof err);
     if (!genome) {
         rc = s_usage("%s", err);
         goto cleanup;
