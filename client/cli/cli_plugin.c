@@ -11,6 +11,7 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "cli_util.h"
 #include "limits.h"
 
 #define CLI_PLUGIN_MAX_GENES (PROTO_MAX_GENOME_BYTES / 8u)
@@ -18,6 +19,43 @@
 size_t cli_plugin_dirs(const char **dirs, size_t n_given)
 {
     return n_given + worker_default_plugin_dirs(dirs + n_given, CLI_PLUGIN_MAX_DIRS - n_given);
+}
+
+int cli_plugin_match(int argc, char **argv, int *i, unsigned which, cli_plugin_args_t *a,
+                     char *err, size_t errlen)
+{
+    const char *v = NULL;
+    if ((which & CLI_PLUGIN_ARGS_DIRS) && cli_match_value(argc, argv, i, "--plugin-dir", &v)) {
+        if (!v || !*v) {
+            snprintf(err, errlen, "--plugin-dir needs a directory");
+            return -1;
+        }
+        if (a->ndirs == WORKER_MAX_PLUGIN_DIRS) {
+            snprintf(err, errlen, "at most %d --plugin-dir options", WORKER_MAX_PLUGIN_DIRS);
+            return -1;
+        }
+        a->dirs[a->ndirs++] = v;
+        return 1;
+    }
+    if (!(which & CLI_PLUGIN_ARGS_EVAL))
+        return 0;
+    if (cli_match_value(argc, argv, i, "--genome", &v)) {
+        if (!v)
+            snprintf(err, errlen, "--genome needs a JSON array");
+        a->genome = v;
+    } else if (cli_match_value(argc, argv, i, "--params", &v)) {
+        if (!v)
+            snprintf(err, errlen, "--params needs a JSON object");
+        a->params = v ? v : a->params;
+    } else if (cli_match_value(argc, argv, i, "--seed", &v)) {
+        if (!v || cli_parse_u64(v, 0, UINT64_MAX, &a->seed) < 0) {
+            snprintf(err, errlen, "--seed needs a number in 0..2^64-1, not '%.64s'", v ? v : "");
+            v = NULL;
+        }
+    } else {
+        return 0;
+    }
+    return v ? 1 : -1;
 }
 
 /* A plugin name as the ABI allows it: [a-z0-9_-]+, at most 64 bytes. */

@@ -20,6 +20,24 @@
 #define CLI_PLUGIN_LABEL_BYTES                                                                    \
     (FITFARM_PLUGIN_MAX_OBJECTIVE_NAME_BYTES + FITFARM_PLUGIN_MAX_OBJECTIVE_UNIT_BYTES + 4)
 
+/* The options every command that loads a plugin shares. */
+typedef struct {
+    const char *genome;  /* --genome JSON array; NULL until given */
+    const char *params;  /* --params JSON object; set it to "{}" first */
+    uint64_t seed;       /* --seed, 0..2^64-1 */
+    const char *dirs[CLI_PLUGIN_MAX_DIRS]; /* --plugin-dir, in order */
+    size_t ndirs;
+} cli_plugin_args_t;
+
+#define CLI_PLUGIN_ARGS_DIRS 0x1u /* --plugin-dir */
+#define CLI_PLUGIN_ARGS_EVAL 0x2u /* --genome, --params, --seed */
+
+/* Matches the option at argv[*i] among those of which (CLI_PLUGIN_ARGS_*)
+ * into a. Returns 1 matched, 0 not one of them, -1 a bad or missing value
+ * with a sentence for the command's usage message in err. */
+int cli_plugin_match(int argc, char **argv, int *i, unsigned which, cli_plugin_args_t *a,
+                     char *err, size_t errlen);
+
 /* Appends the default plugin folders (worker_default_plugin_dirs) after the
  * n_given ones already in dirs, which holds CLI_PLUGIN_MAX_DIRS entries;
  * NULL-terminates. Returns the new count. */

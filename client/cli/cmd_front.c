@@ -661,8 +661,10 @@ static int s_picture(const front_points_t *p, const size_t *front, size_t h, siz
 int cli_cmd_front(int argc, char **argv)
 {
     const char *path = NULL, *ref_text = NULL, *png = NULL, *svg = NULL, *labels_text = NULL, *v;
-    const char *plugin = NULL, *dirs[CLI_PLUGIN_MAX_DIRS];
-    size_t ndirs = 0;
+    const char *plugin = NULL;
+    cli_plugin_args_t pa = {.params = "{}"};
+    char err[512];
+    int matched;
     int json = 0;
     uint64_t samples = 0;
     for (int i = 1; i < argc; i++) {
@@ -679,14 +681,10 @@ int cli_cmd_front(int argc, char **argv)
             if (!v || cli_parse_u64(v, 1000, 1000000000ull, &samples) != 0)
                 return s_usage("--samples is a whole number from 1000 to 1000000000, not '%s'",
                                v);
-        } else if (cli_match_value(argc, argv, &i, "--png", &v)) {
-            if (!v || !*v)
-                return s_usage("--png needs a file name", NULL);
-            png = v;
-        } else if (cli_match_value(argc, argv, &i, "--svg", &v)) {
-            if (!v || !*v)
-                return s_usage("--svg needs a file name", NULL);
-            svg = v;
+        } else if ((matched = cli_match_file(argc, argv, &i, "--png", &png)) != 0 ||
+                   (matched = cli_match_file(argc, argv, &i, "--svg", &svg)) != 0) {
+            if (matched < 0)
+                return s_usage("--png and --svg need a file name", NULL);
         } else if (cli_match_value(argc, argv, &i, "--labels", &v)) {
             if (!v)
                 return s_usage("--labels needs NAME1,NAME2,...", NULL);
@@ -695,12 +693,10 @@ int cli_cmd_front(int argc, char **argv)
             if (!v || !*v)
                 return s_usage("--plugin needs a plugin name or file", NULL);
             plugin = v;
-        } else if (cli_match_value(argc, argv, &i, "--plugin-dir", &v)) {
-            if (!v || !*v)
-                return s_usage("--plugin-dir needs a directory", NULL);
-            if (ndirs == WORKER_MAX_PLUGIN_DIRS)
-                return s_usage("at most 16 --plugin-dir options%s", NULL);
-            dirs[ndirs++] = v;
+        } else if ((matched = cli_plugin_match(argc, argv, &i, CLI_PLUGIN_ARGS_DIRS, &pa, err,
+                                         sizeof err)) != 0) {
+            if (matched < 0)
+                return s_usage("%s", err);
         } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
             return s_usage("unknown option '%s'", argv[i]);
         } else if (path) {
@@ -713,7 +709,7 @@ int cli_cmd_front(int argc, char **argv)
         return s_usage("FILE is required ('-' for stdin)", NULL);
     if (png && svg)
         return s_usage("one picture at a time: --png or --svg", NULL);
-    cli_plugin_dirs(dirs, ndirs);
+    cli_plugin_dirs(pa.dirs, pa.ndirs);
     double ref[FRONT_MAX_OBJECTIVES];
     size_t n_ref = 0;
     if (ref_text) {
@@ -866,7 +862,7 @@ int cli_cmd_front(int argc, char **argv)
     exit_code = fflush(stdout) == 0 ? 0 : 1;
     if (exit_code == 0 && (png || svg))
         exit_code = s_picture(&p, keep, (size_t)h, keep[knee], ref, &hv, labels_text,
-                              plugin, dirs, png ? png : svg, svg != NULL, path);
+                              plugin, pa.dirs, png ? png : svg, svg != NULL, path);
 done:
     free(keep);
     free(fr);

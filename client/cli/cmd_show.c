@@ -112,11 +112,10 @@ static void s_json(const show_pad_t *pad, const show_layout_t *lay, const char *
 
 int cli_cmd_show(int argc, char **argv)
 {
-    const char *plugin = NULL, *genome_text = NULL, *params_text = "{}", *png = NULL, *svg = NULL;
-    const char *trace_file = NULL, *v, *dirs[CLI_PLUGIN_MAX_DIRS];
-    size_t ndirs = 0;
-    uint64_t seed = 0;
-    int trace = 0, json = 0;
+    const char *plugin = NULL, *png = NULL, *svg = NULL, *trace_file = NULL;
+    cli_plugin_args_t a = {.params = "{}"};
+    char err[512] = "";
+    int trace = 0, json = 0, m;
     for (int i = 1; i < argc; i++) {
         if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
             fputs(s_help, stdout);
@@ -125,35 +124,15 @@ int cli_cmd_show(int argc, char **argv)
             trace = 1;
         } else if (strcmp(argv[i], "--json") == 0) {
             json = 1;
-        } else if (cli_match_value(argc, argv, &i, "--genome", &v)) {
-            if (!v)
-                return s_usage("--genome needs a JSON array", NULL);
-            genome_text = v;
-        } else if (cli_match_value(argc, argv, &i, "--params", &v)) {
-            if (!v)
-                return s_usage("--params needs a JSON object", NULL);
-            params_text = v;
-        } else if (cli_match_value(argc, argv, &i, "--seed", &v)) {
-            if (!v || cli_parse_u64(v, 0, UINT64_MAX, &seed) < 0)
-                return s_usage("--seed needs a number in 0..2^64-1, not '%s'", v);
-        } else if (cli_match_value(argc, argv, &i, "--png", &v)) {
-            if (!v || !*v)
-                return s_usage("--png needs a file name", NULL);
-            png = v;
-        } else if (cli_match_value(argc, argv, &i, "--svg", &v)) {
-            if (!v || !*v)
-                return s_usage("--svg needs a file name", NULL);
-            svg = v;
-        } else if (cli_match_value(argc, argv, &i, "--trace-file", &v)) {
-            if (!v || !*v)
-                return s_usage("--trace-file needs a file name", NULL);
-            trace_file = v;
-        } else if (cli_match_value(argc, argv, &i, "--plugin-dir", &v)) {
-            if (!v || !*v)
-                return s_usage("--plugin-dir needs a directory", NULL);
-            if (ndirs == WORKER_MAX_PLUGIN_DIRS)
-                return s_usage("at most 16 --plugin-dir options%s", NULL);
-            dirs[ndirs++] = v;
+        } else if ((m = cli_plugin_match(argc, argv, &i, CLI_PLUGIN_ARGS_DIRS | CLI_PLUGIN_ARGS_EVAL,
+                                         &a, err, sizeof err)) != 0) {
+            if (m < 0)
+                return s_usage("%s", err);
+        } else if ((m = cli_match_file(argc, argv, &i, "--png", &png)) != 0 ||
+                   (m = cli_match_file(argc, argv, &i, "--svg", &svg)) != 0 ||
+                   (m = cli_match_file(argc, argv, &i, "--trace-file", &trace_file)) != 0) {
+            if (m < 0)
+                return s_usage("--png, --svg and --trace-file need a file name%s", NULL);
         } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
             return s_usage("unknown option '%s'", argv[i]);
         } else if (!plugin) {
@@ -164,30 +143,30 @@ int cli_cmd_show(int argc, char **argv)
     }
     if (!plugin)
         return s_usage("which plugin? only granular designs can be drawn%s", NULL);
-    if (!genome_text)
+    if (!a.genome)
         return s_usage("--genome is required%s", NULL);
     if (!png == !svg)
         return s_usage("give one of --png OUT or --svg OUT%s", NULL);
-    cli_plugin_dirs(dirs, ndirs);
+    cli_plugin_dirs(a.dirs, a.ndirs);
 
     int rc = 1;
-    char err[512] = "", tmp_path[] = "/tmp/fitfarm-show-XXXXXX";
+    char tmp_path[] = "/tmp/fitfarm-show-XXXXXX";
     void *dl = NULL;
     char *params = NULL;
     uint8_t *genome = NULL;
     size_t genome_len = 0;
     int tmp_made = 0;
     show_pad_t pad = {0};
-    if (proto_params_canonical(params_text, &params, err, sizeof err) != 0) {
+    if (proto_params_canonical(a.params, &params, err, sizeof err) != 0) {
         rc = s_usage("--params: %s", err);
         goto cleanup;
     }
-    genome = cli_plugin_genome(genome_text, &genome_len, err, sizeof err);
+    genome = cli_plugin_genome(a.genome, &genome_len, err, sizeof err);
     if (!genome) {
         rc = s_usage("%s", err);
         goto cleanup;
     }
-    const fitfarm_plugin_t *p = cli_plugin_open(plugin, dirs, &dl, err, sizeof err);
+    const fitfarm_plugin_t *p = cli_plugin_open(plugin, a.dirs, &dl, err, sizeof err);
     if (!p) {
         fprintf(stderr, "fitfarm show: %s\n", err);
         goto cleanup;
@@ -220,7 +199,7 @@ int cli_cmd_show(int argc, char **argv)
     }
     const char *path = trace_file ? trace_file : tmp_path;
     err[0] = '\0';
-    if (fn(params, genome, genome_len, seed, path, err, sizeof err) != FITFARM_PLUGIN_OK) {
+    if (fn(params, genome, genome_len, a.seed, path, err, sizeof err) != FITFARM_PLUGIN_OK) {
         err[sizeof err - 1] = '\0';
         fprintf(stderr, "fitfarm show: %s: %s\n", p->name, err);
         goto cleanup;
@@ -237,7 +216,7 @@ int cli_cmd_show(int argc, char **argv)
     char title[256];
     snprintf(title, sizeof title, "granular pad, %d x %d sites: %zu stiff and %zu soft grains, "
              "seed %llu", pad.rows, pad.columns, stiff, pad.grains - stiff,
-             (unsigned long long)seed);
+             (unsigned long long)a.seed);
     show_layout_t lay;
     const char *out = png ? png : svg;
     if (show_pad_draw(&pad, title, trace, out, svg != NULL, &lay, err, sizeof err) != 0) {

@@ -69,43 +69,29 @@ static double s_cpu_seconds(void)
 
 int cli_cmd_sim(int argc, char **argv)
 {
-    const char *plugin = NULL, *genome_text = NULL, *params_text = "{}", *trace_path = NULL;
+    const char *plugin = NULL, *trace_path = NULL;
     const char *exec_spec = NULL;
-    const char *dirs[CLI_PLUGIN_MAX_DIRS];
-    size_t ndirs = 0;
-    uint64_t seed = 0;
+    cli_plugin_args_t a = {.params = "{}"};
+    char err[512] = "";
+    int m;
     for (int i = 1; i < argc; i++) {
         const char *v = NULL;
         if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
             fputs(s_help, stdout);
             return 0;
-        } else if (cli_match_value(argc, argv, &i, "--genome", &v)) {
-            if (!v)
-                return s_usage("--genome needs a JSON array", NULL);
-            genome_text = v;
-        } else if (cli_match_value(argc, argv, &i, "--params", &v)) {
-            if (!v)
-                return s_usage("--params needs a JSON object", NULL);
-            params_text = v;
-        } else if (cli_match_value(argc, argv, &i, "--seed", &v)) {
-            if (!v || cli_parse_u64(v, 0, UINT64_MAX, &seed) < 0)
-                return s_usage("--seed needs a number in 0..2^64-1, not '%s'", v);
-        } else if (cli_match_value(argc, argv, &i, "--trace", &v)) {
-            if (!v || !*v)
+        } else if ((m = cli_plugin_match(argc, argv, &i, CLI_PLUGIN_ARGS_DIRS | CLI_PLUGIN_ARGS_EVAL,
+                                         &a, err, sizeof err)) != 0) {
+            if (m < 0)
+                return s_usage("%s", err);
+        } else if ((m = cli_match_file(argc, argv, &i, "--trace", &trace_path)) != 0) {
+            if (m < 0)
                 return s_usage("--trace needs a file name", NULL);
-            trace_path = v;
         } else if (cli_match_value(argc, argv, &i, "--exec", &v)) {
             if (!v || !strchr(v, '=') || v[0] == '=')
                 return s_usage("--exec needs NAME=COMMAND, not '%s'", v ? v : "");
             if (exec_spec)
                 return s_usage("one --exec at a time%s", NULL);
             exec_spec = v;
-        } else if (cli_match_value(argc, argv, &i, "--plugin-dir", &v)) {
-            if (!v || !*v)
-                return s_usage("--plugin-dir needs a directory", NULL);
-            if (ndirs == WORKER_MAX_PLUGIN_DIRS)
-                return s_usage("at most 16 --plugin-dir options%s", NULL);
-            dirs[ndirs++] = v;
         } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
             return s_usage("unknown option '%s'", argv[i]);
         } else if (!plugin) {
@@ -121,23 +107,22 @@ int cli_cmd_sim(int argc, char **argv)
         return s_usage("--trace needs a plugin file, not --exec%s", NULL);
     if (!plugin && !exec_spec)
         return s_usage("which plugin? give its name%s", NULL);
-    if (!genome_text)
+    if (!a.genome)
         return s_usage("--genome is required%s", NULL);
-    cli_plugin_dirs(dirs, ndirs);
+    cli_plugin_dirs(a.dirs, a.ndirs);
 
     int rc = 1;
-    char err[512] = "";
     void *dl = NULL, *ctx = NULL;
     char *params = NULL;
     uint8_t *genome = NULL;
     double *fitness = NULL;
     size_t genome_len = 0;
     const fitfarm_plugin_t *p = NULL;
-    if (proto_params_canonical(params_text, &params, err, sizeof err) != 0) {
+    if (proto_params_canonical(a.params, &params, err, sizeof err) != 0) {
         rc = s_usage("--params: %s", err);
         goto cleanup;
     }
-    genome = cli_plugin_genome(genome_text, &genome_len, err, sizeof err);
+    genome = cli_plugin_genome(a.genome, &genome_len, err, sizeof err);
     if (!genome) {
         rc = s_usage("%s", err);
         goto cleanup;
@@ -146,7 +131,7 @@ int cli_cmd_sim(int argc, char **argv)
         if (worker_exec_open(exec_spec, &p, err, sizeof err) != 0)
             p = NULL;
     } else {
-        p = cli_plugin_open(plugin, dirs, &dl, err, sizeof err);
+        p = cli_plugin_open(plugin, a.dirs, &dl, err, sizeof err);
     }
     if (!p) {
         fprintf(stderr, "fitfarm sim: %s\n", err);
@@ -186,7 +171,7 @@ int cli_cmd_sim(int argc, char **argv)
     }
     double t0 = s_cpu_seconds();
     err[0] = '\0';
-    int erc = p->evaluate(ctx, genome, genome_len, seed, fitness, err, sizeof err);
+    int erc = p->evaluate(ctx, genome, genome_len, a.seed, fitness, err, sizeof err);
     double cpu = s_cpu_seconds() - t0;
     err[sizeof err - 1] = '\0';
     if (erc != FITFARM_PLUGIN_OK) {
@@ -195,7 +180,7 @@ int cli_cmd_sim(int argc, char **argv)
     }
     if (trace) {
         err[0] = '\0';
-        if (trace(params, genome, genome_len, seed, trace_path, err, sizeof err) !=
+        if (trace(params, genome, genome_len, a.seed, trace_path, err, sizeof err) !=
             FITFARM_PLUGIN_OK) {
             err[sizeof err - 1] = '\0';
             fprintf(stderr, "fitfarm sim: %s: trace failed: %s\n", p->name, err);
@@ -206,7 +191,7 @@ int cli_cmd_sim(int argc, char **argv)
     cli_json_string(stdout, p->name);
     printf(",\"version\":");
     cli_json_string(stdout, p->version);
-    printf(",\"seed\":\"%llu\",\"fitness\":[", (unsigned long long)seed);
+    printf(",\"seed\":\"%llu\",\"fitness\":[", (unsigned long long)a.seed);
     for (uint32_t i = 0; i < info.objectives; i++) {
         char num[32];
         proto_format_double(fitness[i], num);
