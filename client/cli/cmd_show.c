@@ -211,12 +211,20 @@ int cli_cmd_show(int argc, char **argv)
     for (size_t j = 0; j < pad.m; j++)
         cli_plugin_label(names, n_names, j, pad.labels[j], sizeof pad.labels[j]);
     size_t stiff = 0;
-    for (size_t i = 0; i < pad.grains; i++)
+    double share = 0;
+    for (size_t i = 0; i < pad.grains; i++) {
         stiff += pad.stiff[i] >= 0.5;
+        share += pad.stiff[i];
+    }
     char title[256];
-    snprintf(title, sizeof title, "granular pad, %d x %d sites: %zu stiff and %zu soft grains, "
-             "seed %llu", pad.rows, pad.columns, stiff, pad.grains - stiff,
-             (unsigned long long)a.seed);
+    if (pad.graded)
+        snprintf(title, sizeof title, "granular pad, %d x %d sites of graded grains: mean stiff "
+                 "share %.3f, seed %llu", pad.rows, pad.columns, share / (double)pad.grains,
+                 (unsigned long long)a.seed);
+    else
+        snprintf(title, sizeof title, "granular pad, %d x %d sites: %zu stiff and %zu soft "
+                 "grains, seed %llu", pad.rows, pad.columns, stiff, pad.grains - stiff,
+                 (unsigned long long)a.seed);
     show_layout_t lay;
     const char *out = png ? png : svg;
     if (show_pad_draw(&pad, title, trace, out, svg != NULL, &lay, err, sizeof err) != 0) {

@@ -68,10 +68,11 @@ static void s_grain(cairo_t *cr, double x, double y, double r, double stiff)
     cairo_stroke(cr);
 }
 
-static void s_legend(cairo_t *cr, double y, double r_px)
+static void s_legend(cairo_t *cr, double y, double r_px, int graded)
 {
-    static const char *const text[] = {"soft grain", "stiff grain", "plate (rests on the grains)",
-                                       "floor (shaken)", "side wall"};
+    const char *const text[] = {graded ? "soft (stiff share 0)" : "soft grain",
+                                graded ? "stiff (1), graded between" : "stiff grain",
+                                "plate (rests on the grains)", "floor (shaken)", "side wall"};
     double x = S_SIDE, cy = y + S_LEGEND_H / 2;
     for (int k = 0; k < 5; k++) {
         double rr = fmin(r_px, 9.0);
@@ -197,7 +198,7 @@ int show_pad_draw(const show_pad_t *pad, const char *title, int trace, const cha
     cairo_move_to(cr, x1 + 1.5, y_top);
     cairo_line_to(cr, x1 + 1.5, floor_px);
     cairo_stroke(cr);
-    s_legend(cr, legend_y, r0 * scale);
+    s_legend(cr, legend_y, r0 * scale, pad->graded);
 
     for (size_t k = 0; trace && k < pad->n_series; k++)
         s_series_panel(cr, &pad->series[k], DRAW_PANEL_W * (double)(k % 2),

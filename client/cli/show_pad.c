@@ -196,6 +196,8 @@ int show_pad_read(const char *path, show_pad_t *pad, char *err, size_t errlen)
                  : !result ? "result line" : "load phase");
         goto done;
     }
+    for (size_t i = 0; i < pad->grains; i++)
+        pad->graded |= pad->stiff[i] != 0.0 && pad->stiff[i] != 1.0;
     if (!isfinite(pad->plate_y))
         pad->plate_y = pad->rest_plate;
     if (pad->n_series - 1 != n_tr) {

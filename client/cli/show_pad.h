@@ -33,6 +33,7 @@ typedef struct {
     size_t grains;
     double width;      /* container width, m */
     double *x, *y, *r, *stiff; /* grains at grains_t */
+    int graded;        /* some grain's stiff share is neither 0 nor 1 */
     double grains_t;
     double plate_y;    /* plate bottom at the sample nearest grains_t, m */
     double rest_plate, rest_floor;
