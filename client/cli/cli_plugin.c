@@ -21,8 +21,8 @@ size_t cli_plugin_dirs(const char **dirs, size_t n_given)
     return n_given + worker_default_plugin_dirs(dirs + n_given, CLI_PLUGIN_MAX_DIRS - n_given);
 }
 
-int cli_plugin_match(int argc, char **argv, int *i, unsigned which, cli_plugin_args_t *a,
-                     char *err, size_t errlen)
+int cli_plugin_match(int argc, char **argv, int *i, unsigned which, cli_plugin_args_t *a, char *err,
+                     size_t errlen)
 {
     const char *v = NULL;
     if ((which & CLI_PLUGIN_ARGS_DIRS) && cli_match_value(argc, argv, i, "--plugin-dir", &v)) {
@@ -168,9 +168,10 @@ static int s_check_text(const char *plugin, size_t i, const char *what, const ch
         return -1;
     }
     if (!s_printable_utf8((const unsigned char *)s, len)) {
-        snprintf(err, errlen, "plugin %s: %s entry %zu: the %s is not printable UTF-8 (a control "
-                 "character or a bad byte sequence)", plugin, FITFARM_PLUGIN_OBJECTIVE_NAMES_SYMBOL,
-                 i, what);
+        snprintf(err, errlen,
+                 "plugin %s: %s entry %zu: the %s is not printable UTF-8 (a control "
+                 "character or a bad byte sequence)",
+                 plugin, FITFARM_PLUGIN_OBJECTIVE_NAMES_SYMBOL, i, what);
         return -1;
     }
     return 0;
@@ -187,15 +188,19 @@ int cli_plugin_objectives(void *dl, const char *plugin, const fitfarm_plugin_obj
         return 0;
     const fitfarm_plugin_objective_t *l = *(const fitfarm_plugin_objective_t *const *)sym;
     if (!l) {
-        snprintf(err, errlen, "plugin %s: %s is a NULL pointer (do not export it, or point it at "
-                 "a list ended by {NULL, NULL})", plugin, FITFARM_PLUGIN_OBJECTIVE_NAMES_SYMBOL);
+        snprintf(err, errlen,
+                 "plugin %s: %s is a NULL pointer (do not export it, or point it at "
+                 "a list ended by {NULL, NULL})",
+                 plugin, FITFARM_PLUGIN_OBJECTIVE_NAMES_SYMBOL);
         return -1;
     }
     size_t n = 0;
     for (; l[n].name; n++) {
         if (n == FITFARM_PLUGIN_MAX_OBJECTIVE_NAMES) {
-            snprintf(err, errlen, "plugin %s: %s has more than %d entries (or lacks its {NULL, "
-                     "NULL} end)", plugin, FITFARM_PLUGIN_OBJECTIVE_NAMES_SYMBOL,
+            snprintf(err, errlen,
+                     "plugin %s: %s has more than %d entries (or lacks its {NULL, "
+                     "NULL} end)",
+                     plugin, FITFARM_PLUGIN_OBJECTIVE_NAMES_SYMBOL,
                      FITFARM_PLUGIN_MAX_OBJECTIVE_NAMES);
             return -1;
         }
@@ -232,7 +237,8 @@ uint8_t *cli_plugin_genome(const char *text, size_t *len, char *err, size_t errl
     }
     size_t n = json_is_array(arr) ? json_array_size(arr) : 0;
     if (!json_is_array(arr) || n > CLI_PLUGIN_MAX_GENES) {
-        snprintf(err, errlen, "--genome must be a JSON array of at most %u numbers", CLI_PLUGIN_MAX_GENES);
+        snprintf(err, errlen, "--genome must be a JSON array of at most %u numbers",
+                 CLI_PLUGIN_MAX_GENES);
         goto cleanup;
     }
     out = malloc(n ? n * 8 : 1);

@@ -17,14 +17,14 @@
 #define CLI_PLUGIN_MAX_DIRS (2 * WORKER_MAX_PLUGIN_DIRS + 1)
 
 /* "name (unit)", or "name" without a unit: the longest axis label. */
-#define CLI_PLUGIN_LABEL_BYTES                                                                    \
+#define CLI_PLUGIN_LABEL_BYTES                                                                     \
     (FITFARM_PLUGIN_MAX_OBJECTIVE_NAME_BYTES + FITFARM_PLUGIN_MAX_OBJECTIVE_UNIT_BYTES + 4)
 
 /* The options every command that loads a plugin shares. */
 typedef struct {
-    const char *genome;  /* --genome JSON array; NULL until given */
-    const char *params;  /* --params JSON object; set it to "{}" first */
-    uint64_t seed;       /* --seed, 0..2^64-1 */
+    const char *genome;                    /* --genome JSON array; NULL until given */
+    const char *params;                    /* --params JSON object; set it to "{}" first */
+    uint64_t seed;                         /* --seed, 0..2^64-1 */
     const char *dirs[CLI_PLUGIN_MAX_DIRS]; /* --plugin-dir, in order */
     size_t ndirs;
 } cli_plugin_args_t;
@@ -35,8 +35,8 @@ typedef struct {
 /* Matches the option at argv[*i] among those of which (CLI_PLUGIN_ARGS_*)
  * into a. Returns 1 matched, 0 not one of them, -1 a bad or missing value
  * with a sentence for the command's usage message in err. */
-int cli_plugin_match(int argc, char **argv, int *i, unsigned which, cli_plugin_args_t *a,
-                     char *err, size_t errlen);
+int cli_plugin_match(int argc, char **argv, int *i, unsigned which, cli_plugin_args_t *a, char *err,
+                     size_t errlen);
 
 /* Appends the default plugin folders (worker_default_plugin_dirs) after the
  * n_given ones already in dirs, which holds CLI_PLUGIN_MAX_DIRS entries;

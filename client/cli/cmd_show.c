@@ -124,8 +124,9 @@ int cli_cmd_show(int argc, char **argv)
             trace = 1;
         } else if (strcmp(argv[i], "--json") == 0) {
             json = 1;
-        } else if ((m = cli_plugin_match(argc, argv, &i, CLI_PLUGIN_ARGS_DIRS | CLI_PLUGIN_ARGS_EVAL,
-                                         &a, err, sizeof err)) != 0) {
+        } else if ((m = cli_plugin_match(argc, argv, &i,
+                                         CLI_PLUGIN_ARGS_DIRS | CLI_PLUGIN_ARGS_EVAL, &a, err,
+                                         sizeof err)) != 0) {
             if (m < 0)
                 return s_usage("%s", err);
         } else if ((m = cli_match_file(argc, argv, &i, "--png", &png)) != 0 ||
@@ -218,13 +219,15 @@ int cli_cmd_show(int argc, char **argv)
     }
     char title[256];
     if (pad.graded)
-        snprintf(title, sizeof title, "granular pad, %d x %d sites of graded grains: mean stiff "
-                 "share %.3f, seed %llu", pad.rows, pad.columns, share / (double)pad.grains,
-                 (unsigned long long)a.seed);
+        snprintf(title, sizeof title,
+                 "granular pad, %d x %d sites of graded grains: mean stiff "
+                 "share %.3f, seed %llu",
+                 pad.rows, pad.columns, share / (double)pad.grains, (unsigned long long)a.seed);
     else
-        snprintf(title, sizeof title, "granular pad, %d x %d sites: %zu stiff and %zu soft "
-                 "grains, seed %llu", pad.rows, pad.columns, stiff, pad.grains - stiff,
-                 (unsigned long long)a.seed);
+        snprintf(title, sizeof title,
+                 "granular pad, %d x %d sites: %zu stiff and %zu soft "
+                 "grains, seed %llu",
+                 pad.rows, pad.columns, stiff, pad.grains - stiff, (unsigned long long)a.seed);
     show_layout_t lay;
     const char *out = png ? png : svg;
     if (show_pad_draw(&pad, title, trace, out, svg != NULL, &lay, err, sizeof err) != 0) {

@@ -188,8 +188,8 @@ int show_pad_draw(const show_pad_t *pad, const char *title, int trace, const cha
         s_grain(cr, S_SIDE + pad->x[i] * scale, floor_px - pad->y[i] * scale, pad->r[i] * scale,
                 pad->stiff[i]);
     s_rgb(cr, s_plate_rgb);
-    cairo_rectangle(cr, S_SIDE + 1.5, floor_px - (pad->plate_y + plate_h) * scale,
-                    x1 - S_SIDE - 3, plate_h * scale);
+    cairo_rectangle(cr, S_SIDE + 1.5, floor_px - (pad->plate_y + plate_h) * scale, x1 - S_SIDE - 3,
+                    plate_h * scale);
     cairo_fill(cr);
     cairo_set_source_rgb(cr, 0.25, 0.25, 0.25);
     cairo_set_line_width(cr, 3);

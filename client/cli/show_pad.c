@@ -184,16 +184,20 @@ int show_pad_read(const char *path, show_pad_t *pad, char *err, size_t errlen)
         }
         json_decref(o);
         if (bad) {
-            snprintf(err, errlen, "trace line %zu is not a granular trace line as trace.h "
-                     "describes it (or breaks a bound)", lineno);
+            snprintf(err, errlen,
+                     "trace line %zu is not a granular trace line as trace.h "
+                     "describes it (or breaks a bound)",
+                     lineno);
             goto done;
         }
     }
     if (!header || !grains_seen || !result || pad->n_series == 0 ||
         strcmp(pad->series[0].phase, "load") != 0) {
         snprintf(err, errlen, "the trace %s lacks a %s", path,
-                 !header ? "header" : !grains_seen ? "grains line of the load phase"
-                 : !result ? "result line" : "load phase");
+                 !header        ? "header"
+                 : !grains_seen ? "grains line of the load phase"
+                 : !result      ? "result line"
+                                : "load phase");
         goto done;
     }
     for (size_t i = 0; i < pad->grains; i++)

@@ -13,16 +13,16 @@
 
 #include "cli_plugin.h"
 
-#define SHOW_MAX_GRAINS 4096    /* the plugin's GRANULAR_MAX_SITES */
-#define SHOW_MAX_SERIES 17      /* the load phase and up to 16 frequencies */
+#define SHOW_MAX_GRAINS 4096     /* the plugin's GRANULAR_MAX_SITES */
+#define SHOW_MAX_SERIES 17       /* the load phase and up to 16 frequencies */
 #define SHOW_MAX_SAMPLES 2000000 /* per series */
 #define SHOW_MAX_OBJECTIVES 3
 
 typedef struct {
-    char phase[8];    /* "load" or "shake" */
-    double frequency; /* Hz; 0 for load */
-    double scale;     /* metres to the unit below */
-    const char *unit; /* "mm" or "\xc2\xb5m" */
+    char phase[8];                 /* "load" or "shake" */
+    double frequency;              /* Hz; 0 for load */
+    double scale;                  /* metres to the unit below */
+    const char *unit;              /* "mm" or "\xc2\xb5m" */
     double *t, *floor_d, *plate_d; /* n entries; t in s from the start */
     size_t n, cap;
     double t_db; /* shaken: 20 log10 T at this frequency; NaN for load */
@@ -31,11 +31,11 @@ typedef struct {
 typedef struct {
     int rows, columns;
     size_t grains;
-    double width;      /* container width, m */
+    double width;              /* container width, m */
     double *x, *y, *r, *stiff; /* grains at grains_t */
-    int graded;        /* some grain's stiff share is neither 0 nor 1 */
+    int graded;                /* some grain's stiff share is neither 0 nor 1 */
     double grains_t;
-    double plate_y;    /* plate bottom at the sample nearest grains_t, m */
+    double plate_y; /* plate bottom at the sample nearest grains_t, m */
     double rest_plate, rest_floor;
     show_series_t series[SHOW_MAX_SERIES];
     size_t n_series;

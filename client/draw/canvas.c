@@ -106,8 +106,7 @@ double draw_py(const draw_area_t *a, double y)
     return a->y0 + a->h - (y - a->lo[1]) / (a->hi[1] - a->lo[1]) * a->h;
 }
 
-void draw_text(cairo_t *cr, double x, double y, const char *s, double size, double align,
-               int bold)
+void draw_text(cairo_t *cr, double x, double y, const char *s, double size, double align, int bold)
 {
     cairo_select_font_face(cr, "sans-serif", CAIRO_FONT_SLANT_NORMAL,
                            bold ? CAIRO_FONT_WEIGHT_BOLD : CAIRO_FONT_WEIGHT_NORMAL);

@@ -36,8 +36,7 @@ cairo_t *draw_canvas_cairo(draw_canvas_t *self);
 int draw_canvas_finish(draw_canvas_t **self_p, char *err, size_t errlen);
 
 /* Text at (x, y) baseline; align 0 left, 0.5 centred, 1 right. */
-void draw_text(cairo_t *cr, double x, double y, const char *s, double size, double align,
-               int bold);
+void draw_text(cairo_t *cr, double x, double y, const char *s, double size, double align, int bold);
 
 /* Widens [lo, hi] by 4 % each side (an empty range by half its size or 0.5). */
 void draw_range(double *lo, double *hi);

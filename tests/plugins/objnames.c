@@ -36,9 +36,14 @@ static void s_destroy(void *ctx)
 }
 
 static const fitfarm_plugin_t s_plugin = {
-    .abi_version = FITFARM_PLUGIN_ABI, .name = "objnames", .version = "1.0.0",
-    .objectives = 2, .flags = FITFARM_PLUGIN_DETERMINISTIC, .create = s_create,
-    .evaluate = s_evaluate, .destroy = s_destroy,
+    .abi_version = FITFARM_PLUGIN_ABI,
+    .name = "objnames",
+    .version = "1.0.0",
+    .objectives = 2,
+    .flags = FITFARM_PLUGIN_DETERMINISTIC,
+    .create = s_create,
+    .evaluate = s_evaluate,
+    .destroy = s_destroy,
 };
 
 FITFARM_PLUGIN_EXPORT const fitfarm_plugin_t *fitfarm_plugin(void)
