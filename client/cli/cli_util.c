@@ -102,3 +102,14 @@ void cli_json_string(FILE *f, const char *s)
     }
     fputc('"', f);
 }
+
+int cli_match_file(int argc, char **argv, int *i, const char *name, const char **out)
+{
+    const char *v = NULL;
+    if (!cli_match_value(argc, argv, i, name, &v))
+        return 0;
+    if (!v || !*v)
+        return -1;
+    *out = v;
+    return 1;
+}

@@ -10,6 +10,7 @@
  * plugin's fitness is a cost: zdt*, dtlz2, granular). Owns reading and
  * checking the input and the output format; the dominance filter and the
  * hypervolume are client/nsga2/sort.c and hypervolume.c. */
+#include <dlfcn.h>
 #include <errno.h>
 #include <jansson.h>
 #include <math.h>
@@ -19,6 +20,7 @@
 #include <string.h>
 #include <sys/stat.h>
 
+#include "cli_plugin.h"
 #include "cli_util.h"
 #include "commands.h"
 #include "hypervolume.h"
@@ -35,6 +37,7 @@
 static const char s_help[] =
     "usage: fitfarm front FILE [--ref R1,R2,...] [--json] [--samples N]\n"
     "                     [--png OUT | --svg OUT] [--labels NAME1,NAME2,...]\n"
+    "                     [--plugin NAME [--plugin-dir DIR]]\n"
     "\n"
     "Prints the Pareto front of the ok results in FILE ('-' for stdin; a\n"
     "fitfarm-nsga2 output folder means its population.jsonl) and its\n"
@@ -67,6 +70,11 @@ static const char s_help[] =
     "  --svg OUT        the same picture as SVG\n"
     "  --labels L1,...  axis labels, one per objective (default: the CSV column\n"
     "                   names, else f1, f2, ...)\n"
+    "  --plugin NAME    label the axes with the names and units plugin NAME\n"
+    "                   declares (fitfarm_plugin_objective_names), e.g. granular:\n"
+    "                   \"transmissibility (dB)\", \"settlement (mm)\"; the plugin file\n"
+    "                   is read on this machine (NAME.so, or a path); --labels wins\n"
+    "  --plugin-dir DIR look for the plugin in DIR first (repeatable)\n"
     "\n"
     "knee: after scaling each objective to the front's range, the front point\n"
     "with the smallest sum (in two objectives, the point farthest from the line\n"
@@ -561,7 +569,8 @@ done:
 /* The --png/--svg picture. Returns the exit status. */
 static int s_picture(const front_points_t *p, const size_t *front, size_t h, size_t knee,
                      const double *ref, const nsga2_hv_t *hv, const char *labels_text,
-                     const char *out, int svg, const char *input)
+                     const char *plugin, const char *const *dirs, const char *out, int svg,
+                     const char *input)
 {
     const size_t m = p->m;
     if (m < 2) {
@@ -570,12 +579,27 @@ static int s_picture(const front_points_t *p, const size_t *front, size_t h, siz
         return 1;
     }
     static char copy[8192];
-    static char fallback[FRONT_MAX_OBJECTIVES][24];
+    static char fallback[FRONT_MAX_OBJECTIVES][CLI_PLUGIN_LABEL_BYTES];
     const char *labels[FRONT_MAX_OBJECTIVES];
-    for (size_t j = 0; j < m; j++) {
-        snprintf(fallback[j], sizeof fallback[j], "f%zu", j + 1);
-        labels[j] = p->labels[j] ? p->labels[j] : fallback[j];
+    const fitfarm_plugin_objective_t *declared = NULL;
+    size_t n_declared = 0;
+    void *dl = NULL;
+    if (plugin && !labels_text) {
+        char err[512];
+        if (!cli_plugin_open(plugin, dirs, &dl, err, sizeof err) ||
+            cli_plugin_objectives(dl, plugin, &declared, &n_declared, err, sizeof err) != 0) {
+            fprintf(stderr, "fitfarm front: --plugin: %s\n", err);
+            if (dl)
+                dlclose(dl);
+            return 1;
+        }
     }
+    for (size_t j = 0; j < m; j++) {
+        cli_plugin_label(declared, n_declared, j, fallback[j], sizeof fallback[j]);
+        labels[j] = p->labels[j] && !dl ? p->labels[j] : fallback[j];
+    }
+    if (dl)
+        dlclose(dl); /* the labels are copies */
     if (labels_text) {
         if (strlen(labels_text) >= sizeof copy) {
             fprintf(stderr, "fitfarm front: --labels is longer than %zu bytes\n", sizeof copy - 1);
@@ -637,6 +661,10 @@ static int s_picture(const front_points_t *p, const size_t *front, size_t h, siz
 int cli_cmd_front(int argc, char **argv)
 {
     const char *path = NULL, *ref_text = NULL, *png = NULL, *svg = NULL, *labels_text = NULL, *v;
+    const char *plugin = NULL;
+    cli_plugin_args_t pa = {.params = "{}"};
+    char err[512];
+    int matched;
     int json = 0;
     uint64_t samples = 0;
     for (int i = 1; i < argc; i++) {
@@ -653,18 +681,22 @@ int cli_cmd_front(int argc, char **argv)
             if (!v || cli_parse_u64(v, 1000, 1000000000ull, &samples) != 0)
                 return s_usage("--samples is a whole number from 1000 to 1000000000, not '%s'",
                                v);
-        } else if (cli_match_value(argc, argv, &i, "--png", &v)) {
-            if (!v || !*v)
-                return s_usage("--png needs a file name", NULL);
-            png = v;
-        } else if (cli_match_value(argc, argv, &i, "--svg", &v)) {
-            if (!v || !*v)
-                return s_usage("--svg needs a file name", NULL);
-            svg = v;
+        } else if ((matched = cli_match_file(argc, argv, &i, "--png", &png)) != 0 ||
+                   (matched = cli_match_file(argc, argv, &i, "--svg", &svg)) != 0) {
+            if (matched < 0)
+                return s_usage("--png and --svg need a file name", NULL);
         } else if (cli_match_value(argc, argv, &i, "--labels", &v)) {
             if (!v)
                 return s_usage("--labels needs NAME1,NAME2,...", NULL);
             labels_text = v;
+        } else if (cli_match_value(argc, argv, &i, "--plugin", &v)) {
+            if (!v || !*v)
+                return s_usage("--plugin needs a plugin name or file", NULL);
+            plugin = v;
+        } else if ((matched = cli_plugin_match(argc, argv, &i, CLI_PLUGIN_ARGS_DIRS, &pa, err,
+                                         sizeof err)) != 0) {
+            if (matched < 0)
+                return s_usage("%s", err);
         } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
             return s_usage("unknown option '%s'", argv[i]);
         } else if (path) {
@@ -677,6 +709,7 @@ int cli_cmd_front(int argc, char **argv)
         return s_usage("FILE is required ('-' for stdin)", NULL);
     if (png && svg)
         return s_usage("one picture at a time: --png or --svg", NULL);
+    cli_plugin_dirs(pa.dirs, pa.ndirs);
     double ref[FRONT_MAX_OBJECTIVES];
     size_t n_ref = 0;
     if (ref_text) {
@@ -829,7 +862,7 @@ int cli_cmd_front(int argc, char **argv)
     exit_code = fflush(stdout) == 0 ? 0 : 1;
     if (exit_code == 0 && (png || svg))
         exit_code = s_picture(&p, keep, (size_t)h, keep[knee], ref, &hv, labels_text,
-                              png ? png : svg, svg != NULL, path);
+                              plugin, pa.dirs, png ? png : svg, svg != NULL, path);
 done:
     free(keep);
     free(fr);

@@ -3,9 +3,9 @@
  * plugin, and (with --trace) recording what the simulation did through the
  * plugin's optional fitfarm_plugin_trace entry point.
  *
- * Owns option parsing, finding and loading the plugin file, and the output
- * line. Not here: the worker's plugin registry (the worker's own, private),
- * the plugins themselves. The plugin runs in this process: a crashing plugin
+ * Owns option parsing and the output line; finding and loading the plugin
+ * file is cli_plugin.c's. Not here: the worker's plugin registry (the
+ * worker's own, private), the plugins themselves. The plugin runs in this process: a crashing plugin
  * takes the command down, which is what a developer debugging it wants. */
 #include <dlfcn.h>
 #include <jansson.h>
@@ -15,6 +15,7 @@
 #include <string.h>
 #include <time.h>
 
+#include "cli_plugin.h"
 #include "cli_util.h"
 #include "commands.h"
 #include "fitfarm_plugin.h"
@@ -22,7 +23,6 @@
 #include "params.h"
 #include "worker/worker.h"
 
-#define SIM_MAX_GENES (PROTO_MAX_GENOME_BYTES / 8u)
 #define SIM_MAX_OBJECTIVES PROTO_MAX_OBJECTIVES
 
 static const char s_help[] =
@@ -60,119 +60,6 @@ static int s_usage(const char *fmt, const char *arg)
     return 2;
 }
 
-/* A plugin name as the ABI allows it: [a-z0-9_-]+, at most 64 bytes. */
-static int s_valid_name(const char *s)
-{
-    size_t n = strlen(s);
-    if (n == 0 || n > 64)
-        return 0;
-    for (size_t i = 0; i < n; i++) {
-        char c = s[i];
-        if (!((c >= 'a' && c <= 'z') || (c >= '0' && c <= '9') || c == '_' || c == '-'))
-            return 0;
-    }
-    return 1;
-}
-
-/* Loads the plugin: a path as given, or NAME.so from the first directory
- * that has it. Returns the descriptor (borrowed from *dl, which the caller
- * dlcloses) or NULL with a sentence in err. */
-static const fitfarm_plugin_t *s_load(const char *plugin, const char *const *dirs, void **dl,
-                                      char *err, size_t errlen)
-{
-    char path[4096];
-    *dl = NULL;
-    if (strchr(plugin, '/')) {
-        *dl = dlopen(plugin, RTLD_NOW | RTLD_LOCAL);
-        if (!*dl) {
-            snprintf(err, errlen, "cannot load %s: %s", plugin, dlerror());
-            return NULL;
-        }
-    } else {
-        if (!s_valid_name(plugin)) {
-            snprintf(err, errlen, "'%.80s' is not a plugin name ([a-z0-9_-]+) nor a path", plugin);
-            return NULL;
-        }
-        char tried[1024] = "";
-        size_t used = 0;
-        for (size_t i = 0; dirs[i] && !*dl; i++) {
-            snprintf(path, sizeof path, "%s/%s.so", dirs[i], plugin);
-            *dl = dlopen(path, RTLD_NOW | RTLD_LOCAL);
-            if (!*dl && used < sizeof tried) {
-                int w =
-                    snprintf(tried + used, sizeof tried - used, "%s%s", used ? ", " : "", dirs[i]);
-                if (w > 0)
-                    used += (size_t)w;
-            }
-        }
-        if (!*dl) {
-            snprintf(err, errlen, "no plugin '%s' (looked for %s.so in: %s)", plugin, plugin,
-                     used ? tried : "no directories");
-            return NULL;
-        }
-    }
-    const fitfarm_plugin_t *(*entry)(void) =
-        (const fitfarm_plugin_t *(*)(void))dlsym(*dl, FITFARM_PLUGIN_SYMBOL);
-    const fitfarm_plugin_t *p = entry ? entry() : NULL;
-    if (!p) {
-        snprintf(err, errlen, "%s has no %s descriptor", plugin, FITFARM_PLUGIN_SYMBOL);
-    } else if (p->abi_version != FITFARM_PLUGIN_ABI) {
-        snprintf(err, errlen, "%s speaks plugin ABI %u, this build %u", plugin,
-                 (unsigned)p->abi_version, (unsigned)FITFARM_PLUGIN_ABI);
-        p = NULL;
-    } else if (!p->name || !p->version || !p->create || !p->evaluate || !p->destroy) {
-        snprintf(err, errlen, "%s has an incomplete descriptor", plugin);
-        p = NULL;
-    }
-    if (!p) {
-        dlclose(*dl);
-        *dl = NULL;
-    }
-    return p;
-}
-
-/* Parses a JSON array of numbers into little-endian doubles (the wire form
- * of an f64 genome). Returns a malloc'd buffer and its length, or NULL with
- * err. */
-static uint8_t *s_genome(const char *text, size_t *len, char *err, size_t errlen)
-{
-    json_error_t jerr;
-    json_t *arr = json_loads(text, 0, &jerr);
-    uint8_t *out = NULL;
-    if (!arr) {
-        snprintf(err, errlen, "--genome is not valid JSON: %s", jerr.text);
-        goto cleanup;
-    }
-    size_t n = json_is_array(arr) ? json_array_size(arr) : 0;
-    if (!json_is_array(arr) || n > SIM_MAX_GENES) {
-        snprintf(err, errlen, "--genome must be a JSON array of at most %u numbers", SIM_MAX_GENES);
-        goto cleanup;
-    }
-    out = malloc(n ? n * 8 : 1);
-    if (!out) {
-        snprintf(err, errlen, "out of memory");
-        goto cleanup;
-    }
-    for (size_t i = 0; i < n; i++) {
-        json_t *v = json_array_get(arr, i);
-        if (!json_is_number(v)) {
-            snprintf(err, errlen, "--genome[%zu] is not a number", i);
-            free(out);
-            out = NULL;
-            goto cleanup;
-        }
-        double d = json_number_value(v);
-        uint64_t bits;
-        memcpy(&bits, &d, sizeof bits);
-        for (int b = 0; b < 8; b++)
-            out[i * 8 + (size_t)b] = (uint8_t)(bits >> (8 * b));
-    }
-    *len = n * 8;
-cleanup:
-    json_decref(arr);
-    return out;
-}
-
 static double s_cpu_seconds(void)
 {
     struct timespec ts;
@@ -182,43 +69,29 @@ static double s_cpu_seconds(void)
 
 int cli_cmd_sim(int argc, char **argv)
 {
-    const char *plugin = NULL, *genome_text = NULL, *params_text = "{}", *trace_path = NULL;
+    const char *plugin = NULL, *trace_path = NULL;
     const char *exec_spec = NULL;
-    const char *dirs[2 * WORKER_MAX_PLUGIN_DIRS + 1];
-    size_t ndirs = 0;
-    uint64_t seed = 0;
+    cli_plugin_args_t a = {.params = "{}"};
+    char err[512] = "";
+    int m;
     for (int i = 1; i < argc; i++) {
         const char *v = NULL;
         if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0) {
             fputs(s_help, stdout);
             return 0;
-        } else if (cli_match_value(argc, argv, &i, "--genome", &v)) {
-            if (!v)
-                return s_usage("--genome needs a JSON array", NULL);
-            genome_text = v;
-        } else if (cli_match_value(argc, argv, &i, "--params", &v)) {
-            if (!v)
-                return s_usage("--params needs a JSON object", NULL);
-            params_text = v;
-        } else if (cli_match_value(argc, argv, &i, "--seed", &v)) {
-            if (!v || cli_parse_u64(v, 0, UINT64_MAX, &seed) < 0)
-                return s_usage("--seed needs a number in 0..2^64-1, not '%s'", v);
-        } else if (cli_match_value(argc, argv, &i, "--trace", &v)) {
-            if (!v || !*v)
+        } else if ((m = cli_plugin_match(argc, argv, &i, CLI_PLUGIN_ARGS_DIRS | CLI_PLUGIN_ARGS_EVAL,
+                                         &a, err, sizeof err)) != 0) {
+            if (m < 0)
+                return s_usage("%s", err);
+        } else if ((m = cli_match_file(argc, argv, &i, "--trace", &trace_path)) != 0) {
+            if (m < 0)
                 return s_usage("--trace needs a file name", NULL);
-            trace_path = v;
         } else if (cli_match_value(argc, argv, &i, "--exec", &v)) {
             if (!v || !strchr(v, '=') || v[0] == '=')
                 return s_usage("--exec needs NAME=COMMAND, not '%s'", v ? v : "");
             if (exec_spec)
                 return s_usage("one --exec at a time%s", NULL);
             exec_spec = v;
-        } else if (cli_match_value(argc, argv, &i, "--plugin-dir", &v)) {
-            if (!v || !*v)
-                return s_usage("--plugin-dir needs a directory", NULL);
-            if (ndirs == WORKER_MAX_PLUGIN_DIRS)
-                return s_usage("at most 16 --plugin-dir options%s", NULL);
-            dirs[ndirs++] = v;
         } else if (argv[i][0] == '-' && argv[i][1] != '\0') {
             return s_usage("unknown option '%s'", argv[i]);
         } else if (!plugin) {
@@ -234,24 +107,22 @@ int cli_cmd_sim(int argc, char **argv)
         return s_usage("--trace needs a plugin file, not --exec%s", NULL);
     if (!plugin && !exec_spec)
         return s_usage("which plugin? give its name%s", NULL);
-    if (!genome_text)
+    if (!a.genome)
         return s_usage("--genome is required%s", NULL);
-    ndirs += worker_default_plugin_dirs(dirs + ndirs, WORKER_MAX_PLUGIN_DIRS + 1);
-    dirs[ndirs] = NULL;
+    cli_plugin_dirs(a.dirs, a.ndirs);
 
     int rc = 1;
-    char err[512] = "";
     void *dl = NULL, *ctx = NULL;
     char *params = NULL;
     uint8_t *genome = NULL;
     double *fitness = NULL;
     size_t genome_len = 0;
     const fitfarm_plugin_t *p = NULL;
-    if (proto_params_canonical(params_text, &params, err, sizeof err) != 0) {
+    if (proto_params_canonical(a.params, &params, err, sizeof err) != 0) {
         rc = s_usage("--params: %s", err);
         goto cleanup;
     }
-    genome = s_genome(genome_text, &genome_len, err, sizeof err);
+    genome = cli_plugin_genome(a.genome, &genome_len, err, sizeof err);
     if (!genome) {
         rc = s_usage("%s", err);
         goto cleanup;
@@ -260,7 +131,7 @@ int cli_cmd_sim(int argc, char **argv)
         if (worker_exec_open(exec_spec, &p, err, sizeof err) != 0)
             p = NULL;
     } else {
-        p = s_load(plugin, dirs, &dl, err, sizeof err);
+        p = cli_plugin_open(plugin, a.dirs, &dl, err, sizeof err);
     }
     if (!p) {
         fprintf(stderr, "fitfarm sim: %s\n", err);
@@ -300,7 +171,7 @@ int cli_cmd_sim(int argc, char **argv)
     }
     double t0 = s_cpu_seconds();
     err[0] = '\0';
-    int erc = p->evaluate(ctx, genome, genome_len, seed, fitness, err, sizeof err);
+    int erc = p->evaluate(ctx, genome, genome_len, a.seed, fitness, err, sizeof err);
     double cpu = s_cpu_seconds() - t0;
     err[sizeof err - 1] = '\0';
     if (erc != FITFARM_PLUGIN_OK) {
@@ -309,7 +180,7 @@ int cli_cmd_sim(int argc, char **argv)
     }
     if (trace) {
         err[0] = '\0';
-        if (trace(params, genome, genome_len, seed, trace_path, err, sizeof err) !=
+        if (trace(params, genome, genome_len, a.seed, trace_path, err, sizeof err) !=
             FITFARM_PLUGIN_OK) {
             err[sizeof err - 1] = '\0';
             fprintf(stderr, "fitfarm sim: %s: trace failed: %s\n", p->name, err);
@@ -320,7 +191,7 @@ int cli_cmd_sim(int argc, char **argv)
     cli_json_string(stdout, p->name);
     printf(",\"version\":");
     cli_json_string(stdout, p->version);
-    printf(",\"seed\":\"%llu\",\"fitness\":[", (unsigned long long)seed);
+    printf(",\"seed\":\"%llu\",\"fitness\":[", (unsigned long long)a.seed);
     for (uint32_t i = 0; i < info.objectives; i++) {
         char num[32];
         proto_format_double(fitness[i], num);

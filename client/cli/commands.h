@@ -15,6 +15,7 @@ int cli_cmd_runs(int argc, char **argv);   /* cmd_runs.c: the runs a store holds
 int cli_cmd_export(int argc, char **argv); /* cmd_runs.c: one run's requests and results */
 int cli_cmd_verify(int argc, char **argv); /* cmd_verify.c: re-simulate stored results */
 int cli_cmd_front(int argc, char **argv);  /* cmd_front.c: Pareto front and hypervolume of results */
+int cli_cmd_show(int argc, char **argv);   /* cmd_show.c: draw one granular design, its trace */
 int cli_cmd_demo(int argc, char **argv);   /* cmd_demo.c: NSGA-II on the granular pad, pictures */
 
 #endif

@@ -18,6 +18,7 @@ static const char s_usage[] =
     "  export    write one run's requests and results with provenance (jsonl, csv)\n"
     "  verify    re-simulate a stored run on a pool and report every bit that differs\n"
     "  front     the Pareto front of a results file and its hypervolume\n"
+    "  show      draw one granular pad design and its displacement over time\n"
     "  keygen    make a CURVE key pair (NAME.public, NAME.secret)\n"
     "  allow     admit a public key to a broker's clients or workers allow-list\n"
     "  share     let another client key use a run (the broker's runs.share)\n"
@@ -57,6 +58,8 @@ int main(int argc, char **argv)
         return cli_cmd_export(argc - 1, argv + 1);
     if (strcmp(cmd, "verify") == 0)
         return cli_cmd_verify(argc - 1, argv + 1);
+    if (strcmp(cmd, "show") == 0)
+        return cli_cmd_show(argc - 1, argv + 1);
     if (strcmp(cmd, "demo") == 0)
         return cli_cmd_demo(argc - 1, argv + 1);
     if (strcmp(cmd, "front") == 0)

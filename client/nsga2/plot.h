@@ -3,8 +3,8 @@
  * as small dots (later generations darker when the input carries them), the
  * front highlighted (in two objectives joined by its attainment staircase),
  * the knee ringed; and, when given, a panel of hypervolume over generations.
- * Owns layout, axes (tick steps by Heckbert's "nice numbers", Graphics Gems,
- * 1990) and colours; not the front, the knee or the hypervolume, which the
+ * Owns layout, markers and colours (axes and the surface are
+ * client/draw/canvas.c's); not the front, the knee or the hypervolume, which the
  * caller computes. */
 #ifndef CLIENT_NSGA2_PLOT_H
 #define CLIENT_NSGA2_PLOT_H

@@ -375,8 +375,9 @@ int nsga2_search_run(fitfarm_client_t *client, const nsga2_search_options_t *o)
     printf("done: %zu genomes on the final front; %llu evaluations, %llu answered from the store; "
            "files in %s/\n", front, (unsigned long long)total_ev, (unsigned long long)total_cached,
            o->out_dir);
-    printf("picture: fitfarm front %s/population.jsonl --png %s/front.png\n", o->out_dir,
-           o->out_dir);
+    /* --plugin: the axes carry the objective names the plugin declares. */
+    printf("picture: fitfarm front %s/population.jsonl --png %s/front.png --plugin %s\n",
+           o->out_dir, o->out_dir, o->plugin);
     rc = 0;
 done:
     if (nsga2_report_destroy(&s.report) != 0)

@@ -9,10 +9,12 @@ import os
 import random
 import signal
 import sqlite3
+import struct
 import subprocess
 import sys
 import tempfile
 import time
+import zlib
 
 BUILD = os.environ.get("FITFARM_BUILD_DIR", os.path.join(os.path.dirname(__file__), "..", "..", "build"))
 SOURCE = os.environ.get("FITFARM_SOURCE_DIR", os.path.join(os.path.dirname(__file__), "..", ".."))
@@ -217,6 +219,45 @@ def jsonl(gs, with_id=True):
         body = "[" + ",".join(repr(x) for x in g) + "]"
         out.append(f'{{"id": {i}, "genome": {body}}}' if with_id else body)
     return "\n".join(out) + "\n"
+
+
+def png_pixels(path):
+    """(width, height, rows of pixel tuples) of an 8-bit RGB or RGBA PNG, decoded
+    by the PNG specification (W3C/ISO 15948: chunks, IHDR, IDAT, the five row
+    filters) with zlib alone, so no drawing library of ours is involved."""
+    data = open(path, "rb").read()
+    assert data[:8] == b"\x89PNG\r\n\x1a\n", "not a PNG signature"
+    pos, idat, w = 8, b"", None
+    while pos < len(data):
+        n, kind = struct.unpack(">I4s", data[pos:pos + 8])
+        body = data[pos + 8:pos + 8 + n]
+        if kind == b"IHDR":
+            w, h, depth, ctype = struct.unpack(">IIBB", body[:10])
+            assert depth == 8 and ctype in (2, 6), f"depth {depth} colour type {ctype}"
+            bpp = 3 if ctype == 2 else 4
+        elif kind == b"IDAT":
+            idat += body
+        pos += 12 + n
+    raw, stride = zlib.decompress(idat), bpp * w
+    rows, prev = [], bytearray(stride)
+    for y in range(h):
+        f, line = raw[y * (stride + 1)], bytearray(raw[y * (stride + 1) + 1:(y + 1) * (stride + 1)])
+        for i in range(stride):
+            a = line[i - bpp] if i >= bpp else 0
+            b, c = prev[i], prev[i - bpp] if i >= bpp else 0
+            if f == 1:
+                line[i] = (line[i] + a) & 255
+            elif f == 2:
+                line[i] = (line[i] + b) & 255
+            elif f == 3:
+                line[i] = (line[i] + (a + b) // 2) & 255
+            elif f == 4:
+                pa, pb, pc = abs(b - c), abs(a - c), abs(a + b - 2 * c)
+                pr = a if pa <= pb and pa <= pc else b if pb <= pc else c
+                line[i] = (line[i] + pr) & 255
+        rows.append([tuple(line[i:i + bpp]) for i in range(0, stride, bpp)])
+        prev = line
+    return w, h, rows
 
 
 class Check:

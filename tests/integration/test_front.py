@@ -17,11 +17,9 @@ must have the documented layout's size and carry the front's, the knee's and
 the hypervolume curve's colours; the SVG must be an SVG of the same size."""
 import json
 import os
-import struct
 import subprocess
 import sys
 import tempfile
-import zlib
 
 import fflib
 
@@ -151,43 +149,6 @@ if r.returncode == 0:
     if got:
         check.ok(all("generation" in p for p in got["front"]), "front points carry their generation")
 
-def png_pixels(path):
-    """(width, height, rows of pixel tuples) of an 8-bit RGB or RGBA PNG."""
-    data = open(path, "rb").read()
-    assert data[:8] == b"\x89PNG\r\n\x1a\n", "not a PNG signature"
-    pos, idat, w = 8, b"", None
-    while pos < len(data):
-        n, kind = struct.unpack(">I4s", data[pos:pos + 8])
-        body = data[pos + 8:pos + 8 + n]
-        if kind == b"IHDR":
-            w, h, depth, ctype = struct.unpack(">IIBB", body[:10])
-            assert depth == 8 and ctype in (2, 6), f"depth {depth} colour type {ctype}"
-            bpp = 3 if ctype == 2 else 4
-        elif kind == b"IDAT":
-            idat += body
-        pos += 12 + n
-    raw, stride = zlib.decompress(idat), bpp * w
-    rows, prev = [], bytearray(stride)
-    for y in range(h):
-        f, line = raw[y * (stride + 1)], bytearray(raw[y * (stride + 1) + 1:(y + 1) * (stride + 1)])
-        for i in range(stride):
-            a = line[i - bpp] if i >= bpp else 0
-            b, c = prev[i], prev[i - bpp] if i >= bpp else 0
-            if f == 1:
-                line[i] = (line[i] + a) & 255
-            elif f == 2:
-                line[i] = (line[i] + b) & 255
-            elif f == 3:
-                line[i] = (line[i] + (a + b) // 2) & 255
-            elif f == 4:
-                pa, pb, pc = abs(b - c), abs(a - c), abs(a + b - 2 * c)
-                pr = a if pa <= pb and pa <= pc else b if pb <= pc else c
-                line[i] = (line[i] + pr) & 255
-        rows.append([tuple(line[i:i + bpp]) for i in range(0, stride, bpp)])
-        prev = line
-    return w, h, rows
-
-
 def count_near(rows, rgb, tol=12):
     return sum(1 for row in rows for p in row if all(abs(p[k] - rgb[k]) <= tol for k in range(3)))
 
@@ -198,7 +159,7 @@ if r.returncode == 0:
     r = front_cmd([pop_path, "--ref", "1.5,10", "--png", png, "--labels", "cost (EUR),mass (kg)"])
     check.ok(r.returncode == 0 and os.path.exists(png), f"--png: {r.returncode} {r.stderr}")
     if os.path.exists(png):
-        w, h, rows = png_pixels(png)
+        w, h, rows = fflib.png_pixels(png)
         # Two panels (the pair and the curve) of 470 x 440 under a 50-pixel title.
         check.ok((w, h) == (940, 490), f"picture size {w}x{h}, not 940x490")
         left = [row[:470] for row in rows]

@@ -141,4 +141,32 @@ extern FITFARM_PLUGIN_EXPORT const char *const *fitfarm_plugin_seed_params;
 extern FITFARM_PLUGIN_EXPORT const char *fitfarm_plugin_param_defaults;
 #define FITFARM_PLUGIN_PARAM_DEFAULTS_SYMBOL "fitfarm_plugin_param_defaults"
 
+/* Optional: any plugin may name its objectives and their units,
+ *
+ *     static const fitfarm_plugin_objective_t s_objectives[] = {
+ *         {"transmissibility", "dB"}, {"settlement", "mm"}, {NULL, NULL}};
+ *     FITFARM_PLUGIN_EXPORT const fitfarm_plugin_objective_t *fitfarm_plugin_objective_names =
+ *         s_objectives;
+ *
+ * a pointer to an array ended by an entry whose name is NULL. Entry i names
+ * fitness[i]; a plugin whose number of objectives depends on params lists as
+ * many as it can report, and an objective past the list's end is called
+ * f<i+1>. unit may be NULL or "" for a pure number. Names are 1 to 48 bytes,
+ * units at most 16 bytes, both printable UTF-8 (no control characters), at
+ * most 64 entries; the fitness stays a cost to minimise whatever its name.
+ * Read only by the command-line tool, where it draws pictures (`fitfarm
+ * front --plugin NAME`, `fitfarm show`): the worker, the broker and the
+ * wire never see it, so declaring it changes no key and no result, and a
+ * plugin without it works exactly as before. A list breaking these rules is
+ * refused by the tool with the reason. */
+typedef struct {
+    const char *name; /* e.g. "settlement" */
+    const char *unit; /* e.g. "mm"; NULL or "" for none */
+} fitfarm_plugin_objective_t;
+extern FITFARM_PLUGIN_EXPORT const fitfarm_plugin_objective_t *fitfarm_plugin_objective_names;
+#define FITFARM_PLUGIN_OBJECTIVE_NAMES_SYMBOL "fitfarm_plugin_objective_names"
+#define FITFARM_PLUGIN_MAX_OBJECTIVE_NAMES 64
+#define FITFARM_PLUGIN_MAX_OBJECTIVE_NAME_BYTES 48
+#define FITFARM_PLUGIN_MAX_OBJECTIVE_UNIT_BYTES 16
+
 #endif

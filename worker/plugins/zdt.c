@@ -95,6 +95,11 @@ static const fitfarm_plugin_t s_plugin = {
  * and 30.0) are one evaluation to the broker (fitfarm_plugin.h). */
 FITFARM_PLUGIN_EXPORT const char *fitfarm_plugin_param_defaults = "{\"n\": 30}";
 
+/* The benchmark's own names (Zitzler, Deb, Thiele 2000): pure numbers. */
+static const fitfarm_plugin_objective_t s_objectives[] = {{"f1", NULL}, {"f2", NULL}, {NULL, NULL}};
+FITFARM_PLUGIN_EXPORT const fitfarm_plugin_objective_t *fitfarm_plugin_objective_names =
+    s_objectives;
+
 FITFARM_PLUGIN_EXPORT const fitfarm_plugin_t *fitfarm_plugin(void)
 {
     return &s_plugin;

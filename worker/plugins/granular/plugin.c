@@ -109,6 +109,14 @@ FITFARM_PLUGIN_EXPORT const fitfarm_plugin_t *fitfarm_plugin(void)
 static const char *const s_seed_params[] = {"scatter_radius", "jitter", NULL};
 FITFARM_PLUGIN_EXPORT const char *const *fitfarm_plugin_seed_params = s_seed_params;
 
+/* What the fitness vector holds (pad.h): the worst transmissibility over the
+ * disturbance frequencies in dB, the plate's settlement in mm, and with
+ * "objectives": 3 the share of stiff material, a pure number in [0, 1]. */
+static const fitfarm_plugin_objective_t s_objectives[] = {
+    {"transmissibility", "dB"}, {"settlement", "mm"}, {"stiff share", NULL}, {NULL, NULL}};
+FITFARM_PLUGIN_EXPORT const fitfarm_plugin_objective_t *fitfarm_plugin_objective_names =
+    s_objectives;
+
 /* The optional trace entry point (fitfarm_plugin_trace_fn): one evaluation
  * exactly as evaluate() does it, with the time series written to path as
  * JSON Lines (trace.h). */
