@@ -130,6 +130,7 @@ static int s_copy(const char *from, const char *to)
 typedef struct {
     double f[2];
     double genome[DEMO_GENES];
+    uint64_t seed; /* its evaluation seed, so fitfarm show repeats that evaluation */
 } demo_design_t;
 
 /* Reads fitfarm-nsga2's front.jsonl. Returns the count, or -1 (printed). */
@@ -150,8 +151,12 @@ static long s_read_front(const char *path, demo_design_t **out)
         json_t *o = json_loads(line, 0, &jerr);
         json_t *fit = o ? json_object_get(o, "fitness") : NULL;
         json_t *gen = o ? json_object_get(o, "genome") : NULL;
-        if (json_array_size(fit) != 2 || json_array_size(gen) != DEMO_GENES || n >= DEMO_MAX_FRONT) {
-            fprintf(stderr, "fitfarm demo: %s line %zu is not a 2-objective, %d-gene design\n",
+        const char *seed = o ? json_string_value(json_object_get(o, "seed")) : NULL;
+        uint64_t seed_v = 0;
+        if (json_array_size(fit) != 2 || json_array_size(gen) != DEMO_GENES || n >= DEMO_MAX_FRONT ||
+            !seed || cli_parse_u64(seed, 0, UINT64_MAX, &seed_v) != 0) {
+            fprintf(stderr, "fitfarm demo: %s line %zu is not a 2-objective, %d-gene design "
+                            "with its seed\n",
                     path, n + 1, DEMO_GENES);
             json_decref(o);
             rc = -1;
@@ -171,6 +176,7 @@ static long s_read_front(const char *path, demo_design_t **out)
             d[n].f[j] = json_number_value(json_array_get(fit, (size_t)j));
         for (int i = 0; i < DEMO_GENES; i++)
             d[n].genome[i] = json_number_value(json_array_get(gen, (size_t)i));
+        d[n].seed = seed_v;
         n++;
         json_decref(o);
     }
@@ -210,6 +216,34 @@ static void s_design(FILE *f, const char *what, const demo_design_t *d)
     for (int c = 0; c < DEMO_COLUMNS; c++)
         fputs("~~", f);
     fputs("\n\n", f);
+}
+
+/* Draws design d as OUT/design-TAG.png with fitfarm show (one simulation
+ * with the design's own seed: the same evaluation the front holds), and
+ * keeps show's --json as OUT/design-TAG.json. */
+static int s_draw_design(const char *fitfarm, const char *out, const char *tag,
+                         const demo_design_t *d)
+{
+    char genome[DEMO_GENES * 26 + 3], seed[32], png[DEMO_PATH];
+    size_t used = 0;
+    genome[used++] = '[';
+    for (int i = 0; i < DEMO_GENES; i++)
+        used += (size_t)snprintf(genome + used, sizeof genome - used, "%s%.17g", i ? "," : "",
+                                 d->genome[i]);
+    snprintf(genome + used, sizeof genome - used, "]");
+    snprintf(seed, sizeof seed, "%llu", (unsigned long long)d->seed);
+    snprintf(png, sizeof png, "%.4000s/design-%s.png", out, tag);
+    char *argv[] = {(char *)fitfarm, "show", "granular", "--genome", genome, "--seed", seed,
+                    "--png", png, "--json", NULL};
+    /* What was drawn, with the fitness of the evaluation: it must be the
+     * front's (tests/integration/test_demo.py compares the bits). */
+    char log[DEMO_PATH];
+    snprintf(log, sizeof log, "%.4000s/design-%s.json", out, tag);
+    if (s_run(argv, log) != 0) {
+        fprintf(stderr, "fitfarm demo: drawing the %s design failed (see %s)\n", tag, log);
+        return -1;
+    }
+    return 0;
 }
 
 int cli_cmd_demo(int argc, char **argv)
@@ -335,7 +369,12 @@ int cli_cmd_demo(int argc, char **argv)
     if (knee >= 0)
         s_design(s, "knee (the best compromise by our rule; see fitfarm front --help)", &d[knee]);
     int werr = ferror(s) | fclose(s);
+    int drawn = s_draw_design(fitfarm, out, "isolation", &d[best_iso]) == 0 &&
+                s_draw_design(fitfarm, out, "settlement", &d[best_settle]) == 0 &&
+                (knee < 0 || s_draw_design(fitfarm, out, "knee", &d[knee]) == 0);
     free(d);
+    if (!drawn)
+        return 1;
     if (werr) {
         fprintf(stderr, "fitfarm demo: writing %s failed\n", sum_path);
         return 1;
@@ -343,12 +382,14 @@ int cli_cmd_demo(int argc, char **argv)
     printf("\nfitfarm demo: done in %.0f s of search. Look at:\n"
            "  %s/front.png    the front and the hypervolume over generations\n"
            "  %s/summary.txt  three designs of the front, drawn as grids of grains\n"
+           "  %s/design-isolation.png, design-settlement.png, design-knee.png  the same\n"
+           "                  three drawn by fitfarm show (grains by material)\n"
            "  %s/front.csv    every design of the front; %s/front.txt as fitfarm front prints it\n"
            "The same search on a real pool:\n"
            "  fitfarm-nsga2 --plugin granular --genes %d --population %s --generations %s "
            "--seed %s \\\n"
            "      --broker tcp://HOST:5555 --key client.secret --broker-key broker.public "
            "--out my-search\n",
-           secs, out, out, out, out, DEMO_GENES, pop_s, gen_s, seed_s);
+           secs, out, out, out, out, out, DEMO_GENES, pop_s, gen_s, seed_s);
     return 0;
 }

@@ -86,9 +86,10 @@ static void s_array(FILE *f, const double *v, size_t n)
     fputc(']', f);
 }
 
-/* genome NULL: the line carries no genome (population.jsonl, kept small). */
+/* genome NULL: the line carries no genome nor seed (population.jsonl, kept
+ * small). The seed is a string: JSON numbers lose integers past 2^53. */
 static void s_line(FILE *f, size_t gen, size_t rank, const double *fitness, size_t m,
-                   const double *genome, size_t n)
+                   const double *genome, size_t n, uint64_t seed)
 {
     fprintf(f, "{\"generation\": %zu, \"rank\": %zu, \"status\": \"%s\", \"fitness\": ", gen, rank,
             fitness ? "ok" : "failed");
@@ -99,17 +100,18 @@ static void s_line(FILE *f, size_t gen, size_t rank, const double *fitness, size
     if (genome) {
         fputs(", \"genome\": ", f);
         s_array(f, genome, n);
+        fprintf(f, ", \"seed\": \"%llu\"", (unsigned long long)seed);
     }
     fputs("}\n", f);
 }
 
 void nsga2_report_individual(nsga2_report_t *self, size_t gen, size_t rank, const double *fitness,
-                             size_t m, const double *genome, size_t n, int to_front)
+                             size_t m, const double *genome, size_t n, uint64_t seed, int to_front)
 {
-    s_line(self->pop, gen, rank, fitness, m, NULL, 0);
+    s_line(self->pop, gen, rank, fitness, m, NULL, 0, 0);
     if (!to_front || !fitness)
         return;
-    s_line(self->front_jsonl, gen, rank, fitness, m, genome, n);
+    s_line(self->front_jsonl, gen, rank, fitness, m, genome, n, seed);
     if (!self->front_header) {
         for (size_t j = 0; j < m; j++)
             fprintf(self->front_csv, "%sf%zu", j ? "," : "", j + 1);

@@ -35,9 +35,11 @@ int nsga2_report_destroy(nsga2_report_t **self_p);
 void nsga2_report_generation(nsga2_report_t *self, size_t gen, uint64_t evaluations,
                              uint64_t cached, size_t failed, double hv);
 /* One individual of generation gen (fitness NULL: failed). to_front: also
- * into front.jsonl and front.csv. */
+ * into front.jsonl (with seed, its first replicate's evaluation seed, so
+ * `fitfarm show` can repeat that evaluation) and front.csv. */
 void nsga2_report_individual(nsga2_report_t *self, size_t gen, size_t rank, const double *fitness,
-                             size_t m, const double *genome, size_t n, int to_front);
+                             size_t m, const double *genome, size_t n, uint64_t seed,
+                             int to_front);
 
 /* Writes v with 17 significant digits (JSON and CSV alike). */
 void nsga2_report_number(FILE *f, double v);

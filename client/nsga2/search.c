@@ -38,6 +38,7 @@ typedef struct {
     double *genomes;   /* 2N x n: parents first, then offspring */
     double *fitness;   /* 2N x m */
     int *ok;           /* 2N: some replicate ok */
+    uint64_t *seeds;   /* 2N: replicate 0's evaluation seed, as the broker derived it */
     size_t *rank;      /* 2N */
     double *crowd;     /* 2N */
     size_t *order, *start; /* scratch of nsga2_sort, 2N and 2N + 1 */
@@ -127,6 +128,7 @@ static int s_evaluate(s_search_t *s, size_t count, uint64_t *evaluations, uint64
                 n_ok++;
             }
         s->ok[i] = n_ok > 0;
+        s->seeds[i] = fitfarm_batch_result(batch, i, 0, &r) == 0 ? r.seed : 0;
         if (!n_ok && !first_error[0] && fitfarm_batch_result(batch, i, 0, &r) == 0)
             snprintf(first_error, sizeof first_error, "%s: %s", fitfarm_status_name(r.status),
                      r.error[0] ? r.error : "no message");
@@ -235,6 +237,7 @@ static void s_select(s_search_t *s, long fronts)
         memmove(s->genomes + i * n, s->genomes + from * n, n * sizeof *s->genomes);
         memmove(s->fitness + i * m, s->fitness + from * m, m * sizeof *s->fitness);
         s->ok[i] = s->ok[from];
+        s->seeds[i] = s->seeds[from];
         s->rank[i] = s->rank[from];
         s->crowd[i] = s->crowd[from];
     }
@@ -306,7 +309,8 @@ static void s_report_population(s_search_t *s, size_t gen, int last)
 {
     for (size_t i = 0; i < s->pop; i++)
         nsga2_report_individual(s->report, gen, s->rank[i], s->ok[i] ? s->fitness + i * s->m : NULL,
-                                s->m, s->genomes + i * s->n, s->n, last && s->rank[i] == 0);
+                                s->m, s->genomes + i * s->n, s->n, s->seeds[i],
+                                last && s->rank[i] == 0);
 }
 
 int nsga2_search_run(fitfarm_client_t *client, const nsga2_search_options_t *o)
@@ -317,6 +321,7 @@ int nsga2_search_run(fitfarm_client_t *client, const nsga2_search_options_t *o)
     s.genomes = s_alloc(N2 * s.n, sizeof *s.genomes);
     s.fitness = s_alloc(N2, sizeof *s.fitness); /* grown once m is known */
     s.ok = s_alloc(N2, sizeof *s.ok);
+    s.seeds = s_alloc(N2, sizeof *s.seeds);
     s.rank = s_alloc(N2, sizeof *s.rank);
     s.crowd = s_alloc(N2, sizeof *s.crowd);
     s.order = s_alloc(N2, sizeof *s.order);
@@ -386,6 +391,7 @@ done:
     free(s.genomes);
     free(s.fitness);
     free(s.ok);
+    free(s.seeds);
     free(s.rank);
     free(s.crowd);
     free(s.order);

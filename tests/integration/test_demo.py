@@ -4,8 +4,11 @@ front file with the right extremes (the lowest transmissibility, the lowest
 settlement), grids of grains that match those designs' genomes (gene
 r * 12 + c is site (r, c), row 0 on the floor; stiff when the gene is at
 least 0.5, as the granular plugin reads a binary genome), and a PNG of the
-documented size. The granular physics itself is checked elsewhere against
+documented size, and the same three designs drawn by `fitfarm show` with
+their own seeds (the fitness of the drawn evaluation equals the front's, bit
+for bit). The granular physics itself is checked elsewhere against
 published results (test_granular_physics)."""
+import json
 import os
 import re
 import struct
@@ -52,6 +55,21 @@ if os.path.isfile(os.path.join(out, "summary.txt")):
     png = open(os.path.join(out, "front.png"), "rb").read(24)
     w, h = struct.unpack(">II", png[16:24])
     check.ok(png[:8] == b"\x89PNG\r\n\x1a\n" and (w, h) == (940, 490), f"front.png {w}x{h}")
+
+    # The three designs drawn by fitfarm show, each one simulation with the
+    # design's own seed from front.jsonl: its fitness must be the front's,
+    # bit for bit (same genome, params and seed: same evaluation).
+    fronts = [json.loads(l) for l in open(os.path.join(out, "search", "front.jsonl"))]
+    for tag in ("isolation", "settlement", "knee"):
+        png_path = os.path.join(out, f"design-{tag}.png")
+        drawn = json.load(open(os.path.join(out, f"design-{tag}.json")))
+        same = [f for f in fronts if f["fitness"] == drawn["fitness"]]
+        check.ok(len(same) >= 1, f"design-{tag}: fitness {drawn['fitness']} is no front design's")
+        check.ok(all(len(f["seed"]) > 0 and int(f["seed"]) < 2 ** 64 for f in fronts),
+                 "front.jsonl records each design's seed")
+        width, height, _ = fflib.png_pixels(png_path)
+        check.ok((width, height) == (drawn["width"], drawn["height"]) and drawn["grains"] == 72,
+                 f"design-{tag}.png is the drawing show describes: {width}x{height}")
 
 r = subprocess.run([fflib.exe("fitfarm"), "demo", "--population", "7"], capture_output=True,
                    text=True, timeout=60)
