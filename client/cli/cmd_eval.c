@@ -21,6 +21,7 @@
 
 #include "cli_keys.h"
 #include "cli_pool.h"
+#include "eval_help.h"
 #include "eval_lines.h"
 #include "cli_util.h"
 #include "client/include/fitfarm.h"
@@ -45,81 +46,6 @@
 #define EVAL_QUEUE_RETRY_MS 500   /* a batch refused as "queue full" is sent again this often */
 #define EVAL_QUEUE_NOTE_MS 10000  /* and the wait is reported on stderr this often */
 
-static const char s_help[] =
-    "usage: fitfarm eval --plugin NAME [options] [< genomes.jsonl]\n"
-    "\n"
-    "Evaluates genomes read as JSON Lines and writes one result line per input\n"
-    "line and replicate, in input order, as soon as every earlier line is done.\n"
-    "\n"
-    "options:\n"
-    "  --plugin NAME      plugin to evaluate with (required)\n"
-    "  --params JSON      plugin parameters, a JSON object (default {})\n"
-    "  --run ID           run id (default: a new random one); same id and seed resume a run\n"
-    "  --seed N           run seed, 0..2^64-1 (default 0)\n"
-    "  --replicates K     evaluations per genome with different seeds (default 1)\n"
-    "  --aggregate HOW    mean, median or none (default none): after the K result\n"
-    "                     lines of a genome, one summary line with the per-objective\n"
-    "                     mean or median and the sample standard deviation over its\n"
-    "                     ok replicates\n"
-    "  --seed-mode MODE   genome (default): each evaluation's seed derives from the\n"
-    "                     run seed, the genome and the replicate index; common: from\n"
-    "                     the run seed and replicate index only, so every genome sees\n"
-    "                     the same noise (common random numbers)\n"
-    "  --no-cache         evaluate again even when the store holds the result (both\n"
-    "                     results are kept; the cached one keeps answering others)\n"
-    "  --replay           answer only from the store what run --run recorded, never\n"
-    "                     simulate; stops at the first line the run never saw\n"
-    "  --retry-failed     resuming --run: lines the run recorded as crashed or timed\n"
-    "                     out are evaluated again (a larger --timeout alone retries\n"
-    "                     recorded time-outs); ok and invalid results stay\n"
-    "  --timeout SECONDS  per-evaluation time limit (default: the worker's)\n"
-    "  --attempts N       tries of an evaluation that crashes or times out, each on\n"
-    "                     another worker where possible (default 3)\n"
-    "  --weight W         the run's share of the pool while other runs wait too:\n"
-    "                     runs are served in turn, W jobs from this one per turn\n"
-    "                     (1 to 1000, default 1)\n"
-    "  --in FILE          read genomes from FILE (default stdin)\n"
-    "  --out FILE         write results to FILE (default stdout)\n"
-    "  --broker ENDPOINT  use the pool behind this broker client endpoint, e.g.\n"
-    "                     tcp://host:5555; without it (and without FITFARM_BROKER or\n"
-    "                     'broker =' in the config file) an embedded local pool runs\n"
-    "  --local            the embedded local pool, whatever FITFARM_BROKER or the\n"
-    "                     config file say\n"
-    "  --slots N          embedded pool: worker slots (default: online CPUs)\n"
-    "  --plugin-dir DIR   embedded pool: also load plugins from DIR\n"
-    "  --exec NAME=CMD    embedded pool: run program CMD (JSON Lines on stdin and\n"
-    "                     stdout) as plugin NAME; repeatable, up to 16\n"
-    "  --store DIR        embedded pool: keep its durable store in DIR (default: a\n"
-    "                     private temporary one), so --run ID can resume later\n"
-    "  --quiet            no progress line (shown on stderr when it is a terminal:\n"
-    "                     results, cached, failed, rate, time left)\n"
-    "  --stats            at the end, print on stderr one line of counts: results,\n"
-    "                     duplicates dropped, requests re-sent after a reconnect\n"
-    "\n"
-    "resuming: run the same input again with the same --run and --seed; lines the\n"
-    "broker has answered are printed from its store without being evaluated again.\n"
-    "\n"
-    "input, one JSON value per line:\n"
-    "  {\"id\": <string|number|bool|null>, \"genome\": [numbers]}   (id optional)\n"
-    "  [numbers]                                           (a bare genome)\n"
-    "  Blank lines are skipped and produce no output; \"line\" still counts them.\n"
-    "\n"
-    "output, one JSON object per input line and replicate:\n"
-    "  {\"id\": ..., \"line\": L, \"replicate\": R, \"status\": \"ok\", \"fitness\": [numbers],\n"
-    "   \"cached\": false, \"seed\": \"<decimal>\", \"key\": \"<hex>\"}\n"
-    "  id is null when the input had none; line is the 1-based input line number;\n"
-    "  numbers have 17 significant digits, so they parse back to the same double.\n"
-    "  status is ok, invalid, failed, crashed or timeout; when it is not ok,\n"
-    "  \"fitness\" is null and an \"error\" key follows \"key\". An input line that\n"
-    "  cannot be read gets, per replicate,\n"
-    "  {\"id\": ..., \"line\": L, \"replicate\": R, \"status\": \"invalid\", \"error\": \"...\"}\n"
-    "  and every other line is still evaluated. With --aggregate, after a line's\n"
-    "  replicates: {\"id\": ..., \"line\": L, \"aggregate\": \"mean\", \"replicates\": K,\n"
-    "   \"ok\": N, \"fitness\": [numbers], \"std\": [numbers]}  (null when N is 0; std\n"
-    "  null when N < 2).\n"
-    "\n"
-    "exit status: 0 every line ok, 1 some line not ok (or the pool failed),\n"
-    "2 usage error (bad option, unreadable file, unknown plugin).\n";
 
 
 typedef struct {
@@ -182,7 +108,7 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         const char *v = NULL;
         const char *arg = argv[i];
         if (strcmp(arg, "--help") == 0 || strcmp(arg, "-h") == 0) {
-            fputs(s_help, stdout);
+            fputs(cli_eval_help, stdout);
             fputs("\nsecurity, with --broker:\n", stdout);
             fputs(cli_keys_help, stdout);
             *exit_code = 0;
