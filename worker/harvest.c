@@ -31,8 +31,7 @@ static int s_clock_time(const char **p)
     return part[0] * 3600 + part[1] * 60 + part[2];
 }
 
-int worker_harvest_parse_hours(const char *text, int *start_s, int *end_s, char *err,
-                               size_t errlen)
+int worker_harvest_parse_hours(const char *text, int *start_s, int *end_s, char *err, size_t errlen)
 {
     const char *p = text;
     int a = s_clock_time(&p);
@@ -111,8 +110,8 @@ int worker_harvest_init(worker_harvest_t *self, double max_load, const int *wind
     self->loadavg = testing ? test : WORKER_HARVEST_LOADAVG;
     if (max_load > 0) {
         if (testing)
-            LOG_WARN("reading the load from %s (%s, for tests only) instead of %s",
-                     self->loadavg, WORKER_HARVEST_TEST_ENV, WORKER_HARVEST_LOADAVG);
+            LOG_WARN("reading the load from %s (%s, for tests only) instead of %s", self->loadavg,
+                     WORKER_HARVEST_TEST_ENV, WORKER_HARVEST_LOADAVG);
         if (worker_harvest_read_load(self->loadavg) < 0) {
             snprintf(err, errlen, "--max-load: cannot read the load average from %s",
                      self->loadavg);

@@ -30,12 +30,12 @@
 #define WORKER_HARVEST_MAX_LOAD 10000.0
 
 typedef struct {
-    double max_load;      /* > 0: the ceiling; 0: no load rule */
-    int has_window;       /* --hours given */
-    int start_s, end_s;   /* the window, seconds after local midnight, start != end */
-    const char *loadavg;  /* the file read for the load; borrowed */
-    int paused_for_load;  /* hysteresis state */
-    int load_unreadable;  /* logged once */
+    double max_load;     /* > 0: the ceiling; 0: no load rule */
+    int has_window;      /* --hours given */
+    int start_s, end_s;  /* the window, seconds after local midnight, start != end */
+    const char *loadavg; /* the file read for the load; borrowed */
+    int paused_for_load; /* hysteresis state */
+    int load_unreadable; /* logged once */
 } worker_harvest_t;
 
 /* Parses "HH:MM-HH:MM" (each time may carry ":SS") into seconds after
@@ -50,8 +50,8 @@ int worker_harvest_parse_load(const char *text, double *out, char *err, size_t e
 /* Sets self up (no rule when max_load is 0 and hours NULL), reading the load
  * file once when there is a load rule. Returns 0, or -1 with a sentence in
  * err (the load file cannot be read: the rule could not be honoured). */
-int worker_harvest_init(worker_harvest_t *self, double max_load, const int *window,
-                        char *err, size_t errlen);
+int worker_harvest_init(worker_harvest_t *self, double max_load, const int *window, char *err,
+                        size_t errlen);
 
 /* 1 when any rule is set. */
 int worker_harvest_enabled(const worker_harvest_t *self);

@@ -22,8 +22,8 @@ static void test_usage_example(void **state)
     (void)state;
     int window[2];
     char err[256];
-    assert_int_equal(worker_harvest_parse_hours("19:00-07:30", &window[0], &window[1], err,
-                                                sizeof err), 0);
+    assert_int_equal(
+        worker_harvest_parse_hours("19:00-07:30", &window[0], &window[1], err, sizeof err), 0);
     assert_int_equal(window[0], 19 * 3600);
     assert_int_equal(window[1], 7 * 3600 + 30 * 60);
     worker_harvest_t h;
@@ -49,9 +49,9 @@ static void test_parse_hours(void **state)
     assert_int_equal(worker_harvest_parse_hours("00:00-23:59:59", &a, &b, err, sizeof err), 0);
     assert_int_equal(a, 0);
     assert_int_equal(b, 86399);
-    static const char *const bad[] = {"", "7:00-9:00", "24:00-01:00", "10:60-11:00", "10:00",
-                                      "10:00-11:00x", "10:00-", "10:00:61-11:00", "aa:bb-cc:dd",
-                                      "10:00-11:00:00:00"};
+    static const char *const bad[] = {
+        "",       "7:00-9:00",      "24:00-01:00", "10:60-11:00",      "10:00", "10:00-11:00x",
+        "10:00-", "10:00:61-11:00", "aa:bb-cc:dd", "10:00-11:00:00:00"};
     for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
         err[0] = '\0';
         if (worker_harvest_parse_hours(bad[i], &a, &b, err, sizeof err) != -1)
@@ -153,12 +153,9 @@ static void test_calibration(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_usage_example),
-        cmocka_unit_test(test_parse_hours),
-        cmocka_unit_test(test_window_wraps),
-        cmocka_unit_test(test_parse_load),
-        cmocka_unit_test(test_load_hysteresis),
-        cmocka_unit_test(test_calibration),
+        cmocka_unit_test(test_usage_example),   cmocka_unit_test(test_parse_hours),
+        cmocka_unit_test(test_window_wraps),    cmocka_unit_test(test_parse_load),
+        cmocka_unit_test(test_load_hysteresis), cmocka_unit_test(test_calibration),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
