@@ -601,6 +601,8 @@ static void s_on_status(broker_t *b, const uint8_t *rid, size_t rid_len, const c
         /* Running, not prefetched: a worker starts a job as soon as a slot
          * is free, so at most slots of the jobs it holds are running. */
         wi->busy = w->held < w->slots ? w->held : w->slots;
+        wi->speed = w->speed;
+        wi->state = w->state;
         wi->n_plugins = w->n_plugins;
         wi->plugins = common_xcalloc(w->n_plugins ? w->n_plugins : 1, sizeof *wi->plugins);
         for (uint32_t k = 0; k < w->n_plugins; k++) {

@@ -186,3 +186,23 @@ uint32_t broker_dispatch_drop_worker(broker_t *b, broker_worker_t *w)
     broker_registry_remove(&b->registry, w);
     return n;
 }
+
+uint32_t broker_dispatch_hand_back(broker_t *b, broker_worker_t *w, const uint64_t *job_ids,
+                                   uint32_t n)
+{
+    uint32_t back = 0;
+    /* Last first, each pushed to the front: the oldest ends up first again.
+     * No avoid_worker: w takes nothing while paused, and when every other
+     * carrier is paused too, w must be free to take its jobs again. */
+    for (uint32_t i = n; i-- > 0;) {
+        broker_eval_t *e = broker_evals_by_job(&b->evals, job_ids[i]);
+        if (!e || e->worker != w)
+            continue;
+        s_detach(b, e);
+        e->state = BROKER_EVAL_QUEUED;
+        broker_runs_enqueue(&b->runs, e->home, e, 1);
+        assert(broker_eval_check(&b->evals, e));
+        back++;
+    }
+    return back;
+}

@@ -35,4 +35,12 @@ uint32_t broker_dispatch_drop_worker(broker_t *b, broker_worker_t *w);
  * hands its jobs back instead (broker_dispatch_drop_worker). */
 uint32_t broker_dispatch_lose_worker(broker_t *b, broker_worker_t *w);
 
+/* w handed these jobs back (msg.h HAND_BACK: its owner reclaimed the
+ * machine; it will never report them): each one still held by w goes back
+ * to the front of its run (same seed, order kept), not counted as an
+ * attempt or a lost dispatch. Ids not held by w (already answered, or sent
+ * twice) are skipped. Returns how many went back. */
+uint32_t broker_dispatch_hand_back(broker_t *b, broker_worker_t *w, const uint64_t *job_ids,
+                                   uint32_t n);
+
 #endif

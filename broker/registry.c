@@ -195,6 +195,12 @@ void broker_registry_spend(broker_registry_t *self, broker_worker_t *w)
     s_ready_set(self, w, w->credits > 0);
 }
 
+void broker_registry_clear_credits(broker_registry_t *self, broker_worker_t *w)
+{
+    w->credits = 0;
+    s_ready_set(self, w, 0);
+}
+
 void broker_worker_hold(broker_worker_t *w, struct broker_eval *e)
 {
     e->prev = w->jobs_tail;

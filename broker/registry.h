@@ -52,6 +52,10 @@ typedef struct broker_worker {
     struct broker_worker *ready_prev, *ready_next; /* credits > 0 */
     int in_ready;
     char user_id[41]; /* CURVE: the worker's public key (Z85) from ZAP; "" in plaintext */
+    double speed;     /* its calibration score from HELLO (msg.h); 0 = not measured */
+    /* "active", or "paused: " and the reason of its last HAND_BACK until its
+     * next grant of credits (STATUS shows it). */
+    char state[PROTO_MAX_NAME_BYTES + 16];
 } broker_worker_t;
 
 typedef struct {
@@ -89,6 +93,8 @@ void broker_registry_touch(broker_registry_t *self, broker_worker_t *w, int64_t 
 void broker_registry_add_credits(broker_registry_t *self, broker_worker_t *w, uint32_t credits);
 /* Spends one credit. */
 void broker_registry_spend(broker_registry_t *self, broker_worker_t *w);
+/* Forgets w's credits (it handed back, paused: msg.h HAND_BACK). */
+void broker_registry_clear_credits(broker_registry_t *self, broker_worker_t *w);
 
 /* Held job list (dispatch order). */
 void broker_worker_hold(broker_worker_t *w, struct broker_eval *e);

@@ -57,6 +57,16 @@ void broker_worker_timers_start(broker_t *b)
     broker_timers_arm(&b->timers, &b->heartbeat_timer, b->now_ms + b->heartbeat_ms);
 }
 
+/* Credits from w; a paused worker that grants again is active again. */
+static void s_grant(broker_t *b, broker_worker_t *w, uint32_t credits)
+{
+    if (credits > 0 && strcmp(w->state, "active") != 0) {
+        LOG_INFO("worker %s resumed after being %s", w->name, w->state);
+        snprintf(w->state, sizeof w->state, "active");
+    }
+    broker_registry_add_credits(&b->registry, w, credits);
+}
+
 broker_worker_t *broker_worker_on_hello(broker_t *b, const uint8_t *rid, size_t rid_len,
                                         const proto_hello_t *h)
 {
@@ -70,6 +80,8 @@ broker_worker_t *broker_worker_on_hello(broker_t *b, const uint8_t *rid, size_t 
     }
     broker_worker_t *w = broker_registry_add(&b->registry, rid, rid_len, h->name, h->host,
                                              h->arch, h->slots, b->now_ms);
+    w->speed = h->speed;
+    snprintf(w->state, sizeof w->state, "active");
     char list[1024] = "";
     size_t used = 0;
     for (uint32_t i = 0; i < h->n_plugins; i++) {
@@ -90,8 +102,8 @@ broker_worker_t *broker_worker_on_hello(broker_t *b, const uint8_t *rid, size_t 
                 used += (size_t)k;
         }
     }
-    LOG_INFO("worker %s joined from %s (%s), %u slots, plugins: %s", w->name, w->host, w->arch,
-             w->slots, h->n_plugins ? list : "(none)");
+    LOG_INFO("worker %s joined from %s (%s), %u slots, speed %.1f, plugins: %s", w->name,
+             w->host, w->arch, w->slots, w->speed, h->n_plugins ? list : "(none)");
     if (!broker_timer_armed(&b->liveness_timer))
         s_arm_liveness(b);
     return w;
@@ -116,13 +128,24 @@ void broker_worker_on_message(broker_t *b, const uint8_t *rid, size_t rid_len, c
         break;
     case PROTO_CREDIT:
         if (w)
-            broker_registry_add_credits(&b->registry, w, msg->u.credit.credits);
+            s_grant(b, w, msg->u.credit.credits);
         break;
     case PROTO_DONE:
         for (uint32_t i = 0; i < msg->u.done.n_outcomes; i++)
             broker_dispatch_outcome(b, w, &msg->u.done.outcomes[i]);
         if (w)
-            broker_registry_add_credits(&b->registry, w, msg->u.done.credits);
+            s_grant(b, w, msg->u.done.credits);
+        break;
+    case PROTO_HAND_BACK:
+        if (w) {
+            const proto_hand_back_t *hb = &msg->u.hand_back;
+            uint32_t n = broker_dispatch_hand_back(b, w, hb->job_ids, hb->n_jobs);
+            broker_registry_clear_credits(&b->registry, w);
+            snprintf(w->state, sizeof w->state, "paused: %s", hb->reason);
+            LOG_INFO("worker %s paused: %s; re-queued the %u jobs it handed back, none sent "
+                     "until it asks again",
+                     w->name, hb->reason, n);
+        }
         break;
     case PROTO_BYE:
         if (w) {

@@ -39,6 +39,7 @@ typedef enum {
     PROTO_CREDIT = 21,
     PROTO_DONE = 22,
     PROTO_BYE = 23,
+    PROTO_HAND_BACK = 24,
     /* broker -> worker */
     PROTO_JOBS = 30,
     PROTO_REHELLO = 31,
@@ -176,7 +177,7 @@ typedef struct {
 } proto_refused_t;
 
 /* Worker as listed by STATUS: [name str, host str, arch str, slots uint,
- *  busy uint, plugins array of str] */
+ *  busy uint, plugins array of str, speed f64, state str] */
 typedef struct {
     char *name;
     char *host;
@@ -185,6 +186,8 @@ typedef struct {
     uint32_t busy;
     uint32_t n_plugins;
     char **plugins; /* "name@version" */
+    double speed;   /* its HELLO's calibration score; 0 = not measured */
+    char *state;    /* "active", or "paused: " and the worker's reason (HAND_BACK) */
 } proto_worker_info_t;
 
 /* Run as listed by STATUS: [run_id str, queued uint, running uint, done uint,
@@ -233,7 +236,12 @@ typedef struct {
     char *param_defaults; /* canonical JSON object, or "" */
 } proto_plugin_info_t;
 
-/* [v, HELLO, name str, host str, arch str, slots uint, plugins array] */
+/* Calibration scores (HELLO.speed): finite, 0 (not measured) to this. */
+#define PROTO_MAX_SPEED 1e9
+
+/* [v, HELLO, name str, host str, arch str, slots uint, plugins array,
+ *  speed f64]: speed is the worker's calibration score at start (millions of
+ *  loop rounds per second, worker/calibrate.h), 0 to PROTO_MAX_SPEED. */
 typedef struct {
     char *name;
     char *host;
@@ -241,6 +249,7 @@ typedef struct {
     uint32_t slots;
     uint32_t n_plugins;
     proto_plugin_info_t *plugins;
+    double speed;
 } proto_hello_t;
 
 /* [v, CREDIT, credits uint]: the worker can take this many more jobs. */
@@ -269,6 +278,18 @@ typedef struct {
 } proto_done_t;
 
 /* [v, BYE]: the worker leaves; its unfinished jobs go back to the queue. */
+
+/* [v, HAND_BACK, reason str, job_ids array of uint]: the worker's owner has
+ * reclaimed the machine (reason says how, at most name_bytes, e.g. "outside
+ * --hours 08:00-18:00"): it takes no jobs until its next CREDIT, so the broker
+ * forgets the credits it holds; the listed jobs (at most batch_items), which
+ * the worker held and will never report, go back to the queue with the same
+ * seed, not counted as attempts. */
+typedef struct {
+    char *reason;
+    uint32_t n_jobs;
+    uint64_t *job_ids;
+} proto_hand_back_t;
 
 /* ---- broker -> worker -------------------------------------------------- */
 
@@ -308,6 +329,7 @@ typedef struct {
         proto_hello_t hello;
         proto_credit_t credit;
         proto_done_t done;
+        proto_hand_back_t hand_back;
         proto_jobs_t jobs;
     } u; /* STATUS_REQ, BYE, REHELLO, HEARTBEAT have no fields */
 } proto_msg_t;

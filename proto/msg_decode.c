@@ -231,6 +231,16 @@ static int s_read_f64_measure(s_cursor_t *c, double *v)
     return rc;
 }
 
+/* A calibration score: finite, 0 to PROTO_MAX_SPEED. */
+static int s_read_speed(s_cursor_t *c, double *v)
+{
+    int rc = s_read_f64(c, v);
+    if (rc == PROTO_OK && !(isfinite(*v) && *v >= 0 && *v <= PROTO_MAX_SPEED))
+        return s_fail(c, PROTO_EVALUE, "%g, expected a finite value from 0 to %g", *v,
+                      PROTO_MAX_SPEED);
+    return rc;
+}
+
 static int s_read_bool(s_cursor_t *c, uint8_t *v)
 {
     uint8_t b = 0;
@@ -591,7 +601,7 @@ cleanup:
 static int s_worker_info(s_cursor_t *c, proto_worker_info_t *w)
 {
     int rc;
-    if ((rc = s_read_tuple(c, 6)))
+    if ((rc = s_read_tuple(c, 8)))
         goto cleanup;
     FIELD("name", s_read_str(c, c->lim.name_bytes, &w->name));
     FIELD("host", s_read_str(c, c->lim.name_bytes, &w->host));
@@ -600,6 +610,9 @@ static int s_worker_info(s_cursor_t *c, proto_worker_info_t *w)
     FIELD("busy", s_read_u32(c, &w->busy));
     FIELD("plugins", s_read_str_array(c, PROTO_MAX_PLUGINS, s_plugin_ref_limit(c), &w->n_plugins,
                                       &w->plugins));
+    FIELD("speed", s_read_speed(c, &w->speed));
+    /* "paused: " and a reason of at most name_bytes */
+    FIELD("state", s_read_str(c, c->lim.name_bytes + 16, &w->state));
 cleanup:
     return rc;
 }
@@ -625,8 +638,8 @@ static int s_status(s_cursor_t *c, proto_status_t *st)
     int rc;
     uint32_t n = 0;
     size_t old = s_path_push(c, ".workers");
-    /* a worker info is at least 7 bytes, a run info 5 */
-    if ((rc = s_read_array(c, PROTO_MAX_LIST, 7, &n)) ||
+    /* a worker info is at least 1 + 5 + 1 + 9 + 1 bytes, a run info 5 */
+    if ((rc = s_read_array(c, PROTO_MAX_LIST, 17, &n)) ||
         (rc = s_alloc(c, (void **)&st->workers, n, sizeof *st->workers)))
         goto cleanup;
     st->n_workers = n;
@@ -684,6 +697,7 @@ static int s_hello(s_cursor_t *c, proto_hello_t *h)
     for (uint32_t i = 0; i < n; i++)
         ELEM(i, s_plugin_info(c, &h->plugins[i]));
     s_path_pop(c, old);
+    FIELD("speed", s_read_speed(c, &h->speed));
 cleanup:
     return rc;
 }
@@ -717,6 +731,15 @@ static int s_done(s_cursor_t *c, proto_done_t *d)
     for (uint32_t i = 0; i < n; i++)
         ELEM(i, s_outcome(c, &d->outcomes[i]));
     s_path_pop(c, old);
+cleanup:
+    return rc;
+}
+
+static int s_hand_back(s_cursor_t *c, proto_hand_back_t *hb)
+{
+    int rc;
+    FIELD("reason", s_read_str(c, c->lim.name_bytes, &hb->reason));
+    FIELD("job_ids", s_read_u64_array(c, c->lim.batch_items, &hb->n_jobs, &hb->job_ids));
 cleanup:
     return rc;
 }
@@ -849,6 +872,7 @@ int proto_msg_decode(const uint8_t *buf, size_t len, const proto_limits_t *limit
     case PROTO_HELLO: rc = s_hello(c, &m->u.hello); break;
     case PROTO_CREDIT: FIELD("credits", s_read_u32(c, &m->u.credit.credits)); break;
     case PROTO_DONE: rc = s_done(c, &m->u.done); break;
+    case PROTO_HAND_BACK: rc = s_hand_back(c, &m->u.hand_back); break;
     case PROTO_JOBS: rc = s_jobs(c, &m->u.jobs); break;
     default: rc = PROTO_OK; break; /* no fields */
     }

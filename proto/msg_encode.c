@@ -9,6 +9,7 @@
  * domain (NULL strings, status, seed mode, cached flag) so that we never send
  * what a peer must drop; it does not apply proto_limits_t, which are the
  * receiver's choice. Not here: decoding (msg_decode.c), freeing (msg_free.c). */
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -148,7 +149,8 @@ static int s_pack_status(msgpack_packer *pk, const proto_status_t *st)
     for (uint32_t i = 0; i < st->n_workers; i++) {
         const proto_worker_info_t *w = &st->workers[i];
         REQUIRE(w->plugins || w->n_plugins == 0);
-        PACK(msgpack_pack_array(pk, 6));
+        REQUIRE(isfinite(w->speed) && w->speed >= 0 && w->speed <= PROTO_MAX_SPEED);
+        PACK(msgpack_pack_array(pk, 8));
         STR(w->name);
         STR(w->host);
         STR(w->arch);
@@ -157,6 +159,8 @@ static int s_pack_status(msgpack_packer *pk, const proto_status_t *st)
         PACK(msgpack_pack_array(pk, w->n_plugins));
         for (uint32_t j = 0; j < w->n_plugins; j++)
             STR(w->plugins[j]);
+        PACK(msgpack_pack_double(pk, w->speed));
+        STR(w->state);
     }
     PACK(msgpack_pack_array(pk, st->n_runs));
     for (uint32_t i = 0; i < st->n_runs; i++) {
@@ -181,6 +185,7 @@ static int s_pack_hello(msgpack_packer *pk, const proto_hello_t *h)
 {
     int rc = PROTO_OK;
     REQUIRE(h->plugins || h->n_plugins == 0);
+    REQUIRE(isfinite(h->speed) && h->speed >= 0 && h->speed <= PROTO_MAX_SPEED);
     STR(h->name);
     STR(h->host);
     STR(h->arch);
@@ -200,6 +205,7 @@ static int s_pack_hello(msgpack_packer *pk, const proto_hello_t *h)
             STR(p->seed_params[j]);
         STR(p->param_defaults ? p->param_defaults : "");
     }
+    PACK(msgpack_pack_double(pk, h->speed));
 cleanup:
     return rc;
 }
@@ -311,6 +317,15 @@ int proto_msg_encode(const proto_msg_t *msg, uint8_t **out, size_t *out_len)
     case PROTO_DONE:
         rc = s_pack_done(pk, &msg->u.done);
         break;
+    case PROTO_HAND_BACK: {
+        const proto_hand_back_t *hb = &msg->u.hand_back;
+        REQUIRE(hb->job_ids || hb->n_jobs == 0);
+        STR(hb->reason);
+        PACK(msgpack_pack_array(pk, hb->n_jobs));
+        for (uint32_t i = 0; i < hb->n_jobs; i++)
+            U64(hb->job_ids[i]);
+        break;
+    }
     case PROTO_JOBS:
         rc = s_pack_jobs(pk, &msg->u.jobs);
         break;

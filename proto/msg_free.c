@@ -19,6 +19,7 @@ static void s_free_worker_info(proto_worker_info_t *w)
     free(w->name);
     free(w->host);
     free(w->arch);
+    free(w->state);
     if (w->plugins)
         for (uint32_t i = 0; i < w->n_plugins; i++)
             free(w->plugins[i]);
@@ -91,6 +92,10 @@ void proto_msg_destroy(proto_msg_t **msg_p)
         free(st->warnings);
         break;
     }
+    case PROTO_HAND_BACK:
+        free(m->u.hand_back.reason);
+        free(m->u.hand_back.job_ids);
+        break;
     case PROTO_HELLO: {
         proto_hello_t *h = &m->u.hello;
         free(h->name);

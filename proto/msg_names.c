@@ -13,9 +13,10 @@ int proto_msg_field_count(uint32_t type)
     case PROTO_RESULTS: return 2;
     case PROTO_REFUSED: return 6;
     case PROTO_STATUS: return 3;
-    case PROTO_HELLO: return 5;
+    case PROTO_HELLO: return 6;
     case PROTO_CREDIT: return 1;
     case PROTO_DONE: return 2;
+    case PROTO_HAND_BACK: return 2;
     case PROTO_JOBS: return 1;
     case PROTO_STATUS_REQ:
     case PROTO_BYE:
@@ -39,6 +40,7 @@ const char *proto_type_name(int type)
     case PROTO_CREDIT: return "CREDIT";
     case PROTO_DONE: return "DONE";
     case PROTO_BYE: return "BYE";
+    case PROTO_HAND_BACK: return "HAND_BACK";
     case PROTO_JOBS: return "JOBS";
     case PROTO_REHELLO: return "REHELLO";
     case PROTO_HEARTBEAT: return "HEARTBEAT";

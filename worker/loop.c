@@ -18,6 +18,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/utsname.h>
+#include <time.h>
 #include <unistd.h>
 #include <zmq.h>
 
@@ -29,7 +30,9 @@
 #include "common/log.h"
 #include "credits.h"
 #include "msg.h"
+#include "calibrate.h"
 #include "handshake.h"
+#include "harvest.h"
 #include "pool.h"
 #include "reaper.h"
 #include "registry.h"
@@ -40,6 +43,7 @@
 #define S_MAX_OUTCOMES_PER_DONE 10000u
 #define S_CLOSE_LINGER_MS 2000 /* time the last DONE and BYE get to leave */
 #define S_REHELLO_DEBOUNCE_MS 250
+#define S_HARVEST_EVERY_MS 1000 /* how often the idle-harvesting rules are checked */
 
 static volatile sig_atomic_t s_stop_signals;
 
@@ -72,6 +76,17 @@ typedef struct {
     int64_t last_hello_ms;
     int draining;
     uint64_t evaluated;
+    /* Idle harvesting (harvest.h): paused while a rule says the owner has
+     * the machine; job ids to hand back that could not be sent yet. */
+    worker_harvest_t harvest;
+    int paused;
+    int back_due; /* a HAND_BACK must go out, even with no job ids */
+    char pause_reason[PROTO_MAX_NAME_BYTES];
+    int64_t next_harvest_ms;
+    uint64_t *back;
+    size_t n_back, cap_back;
+    uint64_t handed_back;
+    double speed;
 } s_worker_t;
 
 static size_t s_queued(const s_worker_t *self)
@@ -114,9 +129,15 @@ static void s_send_simple(s_worker_t *self, int type)
     s_send(self, &msg);
 }
 
+/* Whether the worker asks for and starts jobs. */
+static int s_taking(const s_worker_t *self)
+{
+    return !self->draining && !self->paused;
+}
+
 static void s_grant(s_worker_t *self)
 {
-    if (self->draining)
+    if (!s_taking(self))
         return;
     uint32_t want = worker_credits_want(&self->credits, s_held(self));
     if (want == 0)
@@ -153,11 +174,118 @@ static void s_register(s_worker_t *self)
     msg.u.hello.slots = worker_pool_slots(self->pool);
     msg.u.hello.n_plugins = (uint32_t)n;
     msg.u.hello.plugins = infos;
+    msg.u.hello.speed = self->speed;
     s_send(self, &msg);
     free(infos);
     self->last_hello_ms = common_clock_ms();
     worker_credits_reset(&self->credits);
+    if (self->paused)
+        self->back_due = 1; /* a HAND_BACK tells the new registration why no credits come */
     s_grant(self);
+}
+
+static void s_back_push(s_worker_t *self, uint64_t job_id)
+{
+    if (self->n_back == self->cap_back) {
+        self->cap_back = self->cap_back ? self->cap_back * 2 : 64;
+        self->back = common_xrealloc(self->back, self->cap_back, sizeof *self->back);
+    }
+    self->back[self->n_back++] = job_id;
+    self->back_due = 1;
+}
+
+/* Jobs in hand and not started go back to the broker (sent by s_flush_back). */
+static void s_hand_back_queue(s_worker_t *self)
+{
+    for (size_t i = self->head; i < self->count; i++) {
+        s_back_push(self, self->queue[i].job_id);
+        s_free_job(&self->queue[i]);
+    }
+    self->head = self->count = 0;
+}
+
+/* Sends the ids to hand back in HAND_BACK messages; on a send failure the
+ * rest waits for the next turn (the broker holds those jobs until then). */
+static void s_flush_back(s_worker_t *self)
+{
+    size_t sent = 0;
+    while (self->back_due) {
+        size_t n = self->n_back - sent;
+        if (n > S_MAX_OUTCOMES_PER_DONE)
+            n = S_MAX_OUTCOMES_PER_DONE;
+        proto_msg_t msg = {.type = PROTO_HAND_BACK};
+        msg.u.hand_back.reason = self->pause_reason;
+        msg.u.hand_back.n_jobs = (uint32_t)n;
+        msg.u.hand_back.job_ids = self->back + sent;
+        if (s_send(self, &msg) != 0)
+            break;
+        self->handed_back += n;
+        sent += n;
+        self->back_due = sent < self->n_back;
+    }
+    if (sent > 0) {
+        memmove(self->back, self->back + sent, (self->n_back - sent) * sizeof *self->back);
+        self->n_back -= sent;
+    }
+}
+
+/* The owner has the machine (reason from harvest.h): no more credits, jobs
+ * not started go back, and with --on-reclaim requeue so do running ones,
+ * their children killed and replaced. */
+static void s_pause(s_worker_t *self, const char *reason)
+{
+    self->paused = 1;
+    snprintf(self->pause_reason, sizeof self->pause_reason, "%s", reason);
+    size_t queued = s_queued(self);
+    s_hand_back_queue(self);
+    size_t stopped = 0;
+    if (self->config.on_reclaim == WORKER_RECLAIM_REQUEUE) {
+        unsigned busy = worker_pool_busy(self->pool);
+        uint64_t *ids = common_xcalloc(busy ? busy : 1, sizeof *ids);
+        stopped = worker_pool_reclaim(self->pool, ids, busy);
+        for (size_t i = 0; i < stopped; i++)
+            s_back_push(self, ids[i]);
+        free(ids);
+    }
+    self->back_due = 1;
+    worker_credits_reset(&self->credits);
+    LOG_INFO("paused: %s; handing %zu queued and %zu stopped jobs back to the broker, %u "
+             "running evaluations finish",
+             reason, queued, stopped, worker_pool_busy(self->pool));
+    s_flush_back(self);
+}
+
+static void s_resume(s_worker_t *self)
+{
+    LOG_INFO("resumed after being paused (%s); asking the broker for jobs again",
+             self->pause_reason);
+    self->paused = 0;
+    self->pause_reason[0] = '\0';
+    worker_credits_reset(&self->credits);
+    s_grant(self);
+}
+
+/* Checks the idle-harvesting rules once a second. */
+static void s_harvest(s_worker_t *self)
+{
+    if (!worker_harvest_enabled(&self->harvest) || self->draining)
+        return;
+    int64_t now = common_clock_ms();
+    if (now < self->next_harvest_ms)
+        return;
+    self->next_harvest_ms = now + S_HARVEST_EVERY_MS;
+    unsigned running = worker_pool_busy(self->pool);
+    unsigned slots = worker_pool_slots(self->pool);
+    char reason[PROTO_MAX_NAME_BYTES];
+    reason[0] = '\0';
+    int take = worker_harvest_check(&self->harvest, running < slots ? running : slots,
+                                    time(NULL), reason, sizeof reason);
+    if (!take && !self->paused)
+        s_pause(self, reason);
+    else if (!take && strcmp(reason, self->pause_reason) != 0)
+        snprintf(self->pause_reason, sizeof self->pause_reason, "%s", reason); /* for HELLO */
+    else if (take && self->paused)
+        s_resume(self);
 }
 
 static void s_on_jobs(s_worker_t *self, proto_msg_t *msg)
@@ -182,6 +310,8 @@ static void s_on_jobs(s_worker_t *self, proto_msg_t *msg)
     }
     LOG_DEBUG("%u jobs arrived; %zu queued, %u running", jobs->n_jobs, s_queued(self),
               worker_pool_busy(self->pool));
+    if (self->paused) /* sent before the broker read our HAND_BACK */
+        s_hand_back_queue(self);
 }
 
 static void s_on_message(s_worker_t *self, const uint8_t *buf, size_t len)
@@ -263,7 +393,7 @@ static void s_collect(s_worker_t *self)
 
 static void s_dispatch(s_worker_t *self)
 {
-    while (!self->draining && s_queued(self) > 0 && worker_pool_idle(self->pool) > 0) {
+    while (s_taking(self) && s_queued(self) > 0 && worker_pool_idle(self->pool) > 0) {
         proto_job_t *job = &self->queue[self->head];
         if (worker_pool_start(self->pool, job) != 0)
             break;
@@ -287,7 +417,7 @@ static void s_flush(s_worker_t *self)
         for (size_t i = 0; i < n; i++)
             outs[i] = self->done[sent + i].outcome;
         size_t held_after = s_held(self);
-        uint32_t want = self->draining ? 0 : worker_credits_want(&self->credits, held_after);
+        uint32_t want = s_taking(self) ? worker_credits_want(&self->credits, held_after) : 0;
         proto_msg_t msg = {.type = PROTO_DONE};
         msg.u.done.credits = want;
         msg.u.done.n_outcomes = (uint32_t)n;
@@ -448,6 +578,10 @@ static void s_defaults(worker_config_t *c)
         c->liveness_ms = 5000;
     if (!c->default_timeout_s)
         c->default_timeout_s = 3600;
+    if (c->nice < 0)
+        c->nice = WORKER_DEFAULT_NICE;
+    if (c->nice > 19)
+        c->nice = 19;
 }
 
 /* The ready file: "ready PID\n", written to a temporary name and renamed so
@@ -470,6 +604,17 @@ static void s_run(s_worker_t *self)
     int forced = 0;
     int64_t drain_stuck_ms = 0;
     int lifeline = self->config.lifeline_fd;
+    if (worker_harvest_enabled(&self->harvest)) {
+        /* Decided before HELLO, so a worker started outside its hours never
+         * grants a credit it would have to take back. */
+        char reason[PROTO_MAX_NAME_BYTES] = "";
+        if (!worker_harvest_check(&self->harvest, 0, time(NULL), reason, sizeof reason)) {
+            self->paused = 1;
+            snprintf(self->pause_reason, sizeof self->pause_reason, "%s", reason);
+            LOG_INFO("starting paused: %s", reason);
+        }
+        self->next_harvest_ms = common_clock_ms() + S_HARVEST_EVERY_MS;
+    }
     s_register(self);
     if (self->config.ready_file && s_write_ready(self->config.ready_file) != 0)
         return;
@@ -505,8 +650,10 @@ static void s_run(s_worker_t *self)
         long timeout = self->next_heartbeat_ms - now;
         timeout = s_min_timeout(timeout, self->last_heard_ms + self->config.liveness_ms - now);
         timeout = s_min_timeout(timeout, worker_pool_timeout_ms(self->pool));
-        if (self->n_done > 0) /* a send failed: retry soon */
+        if (self->n_done > 0 || self->back_due) /* a send failed: retry soon */
             timeout = s_min_timeout(timeout, 10);
+        if (worker_harvest_enabled(&self->harvest) && !self->draining)
+            timeout = s_min_timeout(timeout, self->next_harvest_ms - now);
         if (timeout < 0)
             timeout = 0;
         items[0].socket = self->sock;
@@ -547,13 +694,17 @@ static void s_run(s_worker_t *self)
         s_dispatch(self);
         s_collect(self);
         s_flush(self);
+        s_flush_back(self);
+        s_harvest(self);
         s_timers(self);
     }
     if (forced && self->n_done > 0)
         s_flush(self);
     s_send_simple(self, PROTO_BYE);
-    LOG_INFO("stopped after %llu evaluations; %zu queued jobs handed back",
-             (unsigned long long)self->evaluated, s_queued(self));
+    LOG_INFO("stopped after %llu evaluations; %zu queued jobs handed back (and %llu while "
+             "paused)",
+             (unsigned long long)self->evaluated, s_queued(self),
+             (unsigned long long)self->handed_back);
 }
 
 int worker_main_run(const worker_config_t *config)
@@ -569,6 +720,21 @@ int worker_main_run(const worker_config_t *config)
     if (worker_secure_check(&self->config) != 0)
         return 1;
     s_identity(self);
+    {
+        char herr[256];
+        int window[2] = {self->config.hours_start_s, self->config.hours_end_s};
+        if (worker_harvest_init(&self->harvest, self->config.max_load,
+                                self->config.has_hours ? window : NULL, herr,
+                                sizeof herr) != 0) {
+            LOG_ERROR("%s; not starting", herr);
+            return 1;
+        }
+    }
+    worker_calibration_t cal;
+    worker_calibrate(&cal);
+    self->speed = cal.score;
+    LOG_INFO("calibration: speed %.1f (million loop rounds per second, best of %d) in %.1f ms",
+             cal.score, WORKER_CALIBRATE_ROUNDS, (double)cal.elapsed_us / 1000.0);
     worker_credits_init(&self->credits, self->config.slots);
     s_stop_signals = 0;
     (void)common_fdlimit_raise("worker");
@@ -600,6 +766,7 @@ int worker_main_run(const worker_config_t *config)
         .registry = self->registry,
         .mem_limit_mb = self->config.mem_limit_mb,
         .reap_orphans = subreaper,
+        .nice = self->config.nice,
         .default_timeout_ms = self->config.default_timeout_s > 4000000u
                                   ? 4000000000u
                                   : self->config.default_timeout_s * 1000u,
@@ -610,9 +777,27 @@ int worker_main_run(const worker_config_t *config)
         goto cleanup;
     if (s_open_socket(self) != 0)
         goto cleanup;
-    LOG_INFO("worker %s on %s (%s): %u slots, %zu plugins, broker %s", self->name, self->host,
-             self->arch, self->config.slots, worker_registry_count(self->registry),
-             self->config.broker_endpoint);
+    LOG_INFO("worker %s on %s (%s): %u slots at nice +%d, %zu plugins, broker %s", self->name,
+             self->host, self->arch, self->config.slots, self->config.nice,
+             worker_registry_count(self->registry), self->config.broker_endpoint);
+    if (worker_harvest_enabled(&self->harvest)) {
+        char rules[96] = "", a[16], b[16];
+        if (self->config.max_load > 0)
+            snprintf(rules, sizeof rules, "pauses above a load of %g from others",
+                     self->config.max_load);
+        if (self->config.has_hours) {
+            snprintf(a, sizeof a, "%02d:%02d", self->config.hours_start_s / 3600,
+                     self->config.hours_start_s / 60 % 60);
+            snprintf(b, sizeof b, "%02d:%02d", self->config.hours_end_s / 3600,
+                     self->config.hours_end_s / 60 % 60);
+            size_t used = strlen(rules);
+            snprintf(rules + used, sizeof rules - used, "%stakes jobs from %s to %s local time",
+                     used ? " and " : "", a, b);
+        }
+        LOG_INFO("idle harvesting: %s; when reclaimed, running evaluations %s", rules,
+                 self->config.on_reclaim == WORKER_RECLAIM_REQUEUE ? "are stopped and handed back"
+                                                                   : "finish");
+    }
     self->last_heard_ms = common_clock_ms();
     self->next_heartbeat_ms = self->last_heard_ms + self->config.heartbeat_ms;
     s_run(self);
@@ -634,6 +819,7 @@ cleanup:
     for (size_t i = 0; i < self->n_done; i++)
         worker_pool_result_clear(&self->done[i]);
     free(self->done);
+    free(self->back);
     worker_registry_destroy(&self->registry);
     signal(SIGTERM, SIG_DFL);
     signal(SIGINT, SIG_DFL);

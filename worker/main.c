@@ -9,6 +9,7 @@
 #include "common/config.h"
 #include "common/lifeline.h"
 #include "common/log.h"
+#include "harvest.h"
 #include "worker.h"
 
 #ifndef FITFARM_VERSION
@@ -48,10 +49,26 @@ static void s_usage(FILE *out)
             "                      by the process that started the worker; at end of file\n"
             "                      (that process died) running evaluations are killed and\n"
             "                      the worker stops\n"
+            "\n"
+            "Borrowed machines (README: \"Workers on borrowed desktops\"):\n"
+            "  --nice N            run evaluations N steps nicer than the worker, 0..19\n"
+            "                      (default %d: they only ever yield to other work)\n"
+            "  --max-load L        pause while the 1-minute load average minus our own\n"
+            "                      running evaluations is above L; resume at 3/4 of L\n"
+            "  --hours START-END   take jobs only in this daily window of local time,\n"
+            "                      HH:MM-HH:MM (or HH:MM:SS), e.g. 19:00-07:30 past midnight\n"
+            "  --on-reclaim finish|requeue\n"
+            "                      when a rule pauses the worker: let running evaluations\n"
+            "                      finish (default), or stop them at once and hand them\n"
+            "                      back to the broker to run elsewhere (same seed); jobs\n"
+            "                      not yet started are handed back either way\n"
             "  --help, --version\n"
             "\n"
             "SIGTERM or SIGINT drains (running evaluations finish, queued jobs go back);\n"
-            "a second one stops at once. FITFARM_LOG=debug|info|warn|error sets the log level.\n");
+            "a second one stops at once. FITFARM_LOG=debug|info|warn|error sets the log level.\n"
+            "FITFARM_TEST_LOADAVG_FILE=FILE (tests only) reads the load from FILE instead of\n"
+            "/proc/loadavg.\n",
+            WORKER_DEFAULT_NICE);
 }
 
 /* Parses a decimal integer in [lo, hi]; exits 2 naming the flag otherwise. */
@@ -78,8 +95,10 @@ int main(int argc, char **argv)
     size_t n_dirs = 0, n_exec = 0;
     enum {
         O_BROKER = 1, O_SLOTS, O_DIR, O_NAME, O_EXEC, O_TIMEOUT, O_MEM, O_HB, O_LIVE,
-        O_KEY, O_BROKER_KEY, O_CONFIG, O_INSECURE, O_WITH_DEFAULTS, O_READY, O_LIFELINE
+        O_KEY, O_BROKER_KEY, O_CONFIG, O_INSECURE, O_WITH_DEFAULTS, O_READY, O_LIFELINE,
+        O_NICE, O_MAX_LOAD, O_HOURS, O_ON_RECLAIM
     };
+    config.nice = -1;
     const char *config_path = NULL;
     static const struct option options[] = {
         {"broker", required_argument, NULL, O_BROKER},
@@ -98,6 +117,10 @@ int main(int argc, char **argv)
         {"with-default-plugins", no_argument, NULL, O_WITH_DEFAULTS},
         {"ready-file", required_argument, NULL, O_READY},
         {"lifeline-fd", required_argument, NULL, O_LIFELINE},
+        {"nice", required_argument, NULL, O_NICE},
+        {"max-load", required_argument, NULL, O_MAX_LOAD},
+        {"hours", required_argument, NULL, O_HOURS},
+        {"on-reclaim", required_argument, NULL, O_ON_RECLAIM},
         {"help", no_argument, NULL, 'h'},
         {"version", no_argument, NULL, 'V'},
         {NULL, 0, NULL, 0},
@@ -178,6 +201,38 @@ int main(int argc, char **argv)
             }
             break;
         }
+        case O_NICE:
+            config.nice = (int)s_number("--nice", optarg, 0, 19);
+            break;
+        case O_MAX_LOAD: {
+            char herr[256];
+            if (worker_harvest_parse_load(optarg, &config.max_load, herr, sizeof herr) != 0) {
+                fprintf(stderr, "fitfarm-worker: %s\n", herr);
+                return 2;
+            }
+            break;
+        }
+        case O_HOURS: {
+            char herr[256];
+            if (worker_harvest_parse_hours(optarg, &config.hours_start_s, &config.hours_end_s,
+                                           herr, sizeof herr) != 0) {
+                fprintf(stderr, "fitfarm-worker: %s\n", herr);
+                return 2;
+            }
+            config.has_hours = 1;
+            break;
+        }
+        case O_ON_RECLAIM:
+            if (strcmp(optarg, "finish") == 0) {
+                config.on_reclaim = WORKER_RECLAIM_FINISH;
+            } else if (strcmp(optarg, "requeue") == 0) {
+                config.on_reclaim = WORKER_RECLAIM_REQUEUE;
+            } else {
+                fprintf(stderr, "fitfarm-worker: --on-reclaim needs finish or requeue, got "
+                                "\"%s\"\n", optarg);
+                return 2;
+            }
+            break;
         case 'h':
             s_usage(stdout);
             return 0;

@@ -322,6 +322,13 @@ static int s_spawn(worker_pool_t *self, unsigned i)
             close(op[1]);
         else /* dup2 onto itself keeps close-on-exec: an exec program must inherit it */
             (void)fcntl(op[1], F_SETFD, 0);
+        /* Lower only (0..19, checked by main.c), so no privilege is needed;
+         * the plugin's own processes inherit it. */
+        if (self->config.nice > 0) {
+            errno = 0;
+            if (nice(self->config.nice) == -1 && errno != 0)
+                _exit(5);
+        }
         worker_child_run(sv[1], self->config.registry, self->config.mem_limit_mb, parent, st);
     }
     /* The child does the same; whichever runs first, the group exists before
@@ -876,28 +883,57 @@ size_t worker_pool_wait(worker_pool_t *self, int timeout_ms)
     return self->count - self->head;
 }
 
-void worker_pool_kill_busy(worker_pool_t *self)
+/* SIGKILLs and reaps child i and forgets the jobs it held, appending their
+ * ids to ids (while n < max; ids may be NULL). Its slot is left dead. */
+static void s_stop_child(worker_pool_t *self, unsigned i, uint64_t *ids, size_t max, size_t *n)
 {
+    s_child_t *c = &self->children[i];
+    s_kill(c);
+    while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
+        ;
+    s_output_end(self, i);
+    close(c->fd);
+    c->fd = -1;
+    if (c->out_fd >= 0)
+        close(c->out_fd);
+    c->out_fd = -1;
+    c->pid = 0;
+    for (unsigned k = 0; ids && k < c->qn && *n < max; k++)
+        ids[(*n)++] = s_at(c, k)->job_id;
+    s_drop_jobs(c);
+    c->in.pos = c->in.len = 0;
+    c->out.pos = c->out.len = 0;
+}
+
+/* Stops every child holding jobs and empties the backlog (ids as above);
+ * respawn: start new children in the stopped slots. */
+static size_t s_stop_busy(worker_pool_t *self, uint64_t *ids, size_t max, int respawn)
+{
+    size_t n = 0;
     for (unsigned i = 0; i < self->config.slots; i++) {
         s_child_t *c = &self->children[i];
         if (c->pid > 0 && c->qn > 0) {
-            s_kill(c);
-            while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
-                ;
-            s_output_end(self, i);
-            close(c->fd);
-            c->fd = -1;
-            if (c->out_fd >= 0)
-                close(c->out_fd);
-            c->out_fd = -1;
-            c->pid = 0;
-            s_drop_jobs(c);
-            c->in.pos = c->in.len = 0;
-            c->out.pos = c->out.len = 0;
+            s_stop_child(self, i, ids, max, &n);
+            if (respawn)
+                s_respawn(self, i);
         }
     }
-    for (size_t i = self->bhead; i < self->bcount; i++)
+    for (size_t i = self->bhead; i < self->bcount; i++) {
+        if (ids && n < max)
+            ids[n++] = self->backlog[i].job_id;
         free(self->backlog[i].frame);
+    }
     self->bhead = self->bcount = 0;
     s_sweep(self, 2000);
+    return n;
+}
+
+void worker_pool_kill_busy(worker_pool_t *self)
+{
+    (void)s_stop_busy(self, NULL, 0, 0);
+}
+
+size_t worker_pool_reclaim(worker_pool_t *self, uint64_t *ids, size_t max)
+{
+    return s_stop_busy(self, ids, max, 1);
 }

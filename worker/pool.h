@@ -33,6 +33,8 @@ typedef struct {
     size_t mem_limit_mb;           /* address-space limit per child; 0 = none */
     uint32_t default_timeout_ms;   /* for jobs with timeout_ms 0; 0 = 3600 s */
     unsigned queue_depth;          /* jobs per child; 0 = adaptive (credits.h) */
+    int nice;                      /* added to each child's nice value (0..19): plugins
+                                      yield the CPU to the machine's other users */
     int reap_orphans;              /* the calling process is a child subreaper and starts
                                       no children of its own besides the pool's: kill
                                       and reap every other child after a child's death
@@ -103,5 +105,12 @@ size_t worker_pool_wait(worker_pool_t *self, int timeout_ms);
 /* SIGKILLs the children holding jobs (a forced stop). Their jobs produce no
  * results. */
 void worker_pool_kill_busy(worker_pool_t *self);
+
+/* The owner reclaimed the machine: SIGKILLs the children holding jobs, as
+ * worker_pool_kill_busy, and starts new ones. Writes the ids of every job
+ * the pool held and had not finished (at most max; worker_pool_busy() is
+ * enough) into ids and returns the count: those jobs produce no results,
+ * while results finished before the call are still taken as usual. */
+size_t worker_pool_reclaim(worker_pool_t *self, uint64_t *ids, size_t max);
 
 #endif

@@ -33,7 +33,16 @@ typedef struct {
     /* The read end of the starter's lifeline pipe (common/lifeline.h): at end
      * of file the worker stops at once, as on a second SIGTERM. 0 = none. */
     int lifeline_fd;
+    /* Idle harvesting (harvest.h), appended. */
+    int nice;           /* added to the children's nice value, 0..19; -1 = the default */
+    double max_load;    /* pause above this load from other processes; 0 = no rule */
+    int has_hours;      /* take jobs only in [hours_start_s, hours_end_s) local time */
+    int hours_start_s, hours_end_s;
+    int on_reclaim;     /* WORKER_RECLAIM_*: what a pause does to running evaluations */
 } worker_config_t;
+
+#define WORKER_DEFAULT_NICE 10
+enum { WORKER_RECLAIM_FINISH = 0, WORKER_RECLAIM_REQUEUE = 1 };
 
 /* The default plugin directories: the build tree's plugins folder when this
  * executable lives in the build tree, then the plugin folder of the install

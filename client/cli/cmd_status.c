@@ -37,8 +37,11 @@ static const char s_help[] =
     "  --json             one JSON object per refresh instead of the view:\n"
     "                     {\"workers\": [{\"name\", \"host\", \"arch\", \"slots\", \"busy\"\n"
     "                     (evaluations running, never prefetched jobs), \"plugins\":\n"
-    "                     [\"name@version\"]}], \"runs\": [{\"run\", \"queued\" (waiting\n"
-    "                     for a worker), \"running\" (sent to a worker: running or\n"
+    "                     [\"name@version\"], \"speed\" (calibration score at start:\n"
+    "                     million rounds/s of a fixed loop on one core; 0 = unknown),\n"
+    "                     \"state\" (\"active\" or \"paused: WHY\")}], \"runs\": [{\"run\",\n"
+    "                     \"queued\" (waiting for a worker), \"running\" (sent to a\n"
+    "                     worker: running or\n"
     "                     prefetched there), \"done\" (requests answered),\n"
     "                     \"evaluated\" (simulations it paid for), \"cached\" (answered\n"
     "                     from the store), \"failed\" (answered with a status other than\n"
@@ -136,9 +139,10 @@ static int s_print_json(const fitfarm_status_t *st, const s_filter_t *filter)
         for (size_t p = 0; plugins && p < w->n_plugins; p++)
             json_array_append_new(plugins, json_string(w->plugins[p]));
         json_array_append_new(
-            workers, json_pack("{s:s?, s:s?, s:s?, s:I, s:I, s:o?}", "name", w->name, "host",
-                               w->host, "arch", w->arch, "slots", (json_int_t)w->slots, "busy",
-                               (json_int_t)w->busy, "plugins", plugins));
+            workers, json_pack("{s:s?, s:s?, s:s?, s:I, s:I, s:o?, s:f, s:s?}", "name", w->name,
+                               "host", w->host, "arch", w->arch, "slots", (json_int_t)w->slots,
+                               "busy", (json_int_t)w->busy, "plugins", plugins, "speed",
+                               w->speed, "state", w->state));
     }
     for (size_t i = 0; i < fitfarm_status_n_runs(st); i++) {
         fitfarm_run_info_t ri = FITFARM_RUN_INFO_INIT, *r = &ri;
@@ -291,7 +295,8 @@ static void s_print_view(const fitfarm_status_t *st, const s_filter_t *filter,
         for (size_t k = i; k < n_workers; k++) {
             if (strcmp(ws[k].host, ws[i].host) != 0)
                 continue;
-            printf("      %-24s %u/%u  ", ws[k].name, ws[k].busy, ws[k].slots);
+            printf("      %-24s %u/%u  speed %-6.0f %s  ", ws[k].name, ws[k].busy, ws[k].slots,
+                   ws[k].speed, ws[k].state ? ws[k].state : "");
             for (size_t p = 0; p < ws[k].n_plugins; p++)
                 printf("%s%s", p ? " " : "", ws[k].plugins[p]);
             printf("\n");

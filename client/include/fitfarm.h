@@ -273,6 +273,11 @@ typedef struct {
     unsigned slots, busy;
     size_t n_plugins;
     const char *const *plugins; /* "name@version" */
+    /* Appended (the size field says whether a caller's struct has them): */
+    double speed;      /* its calibration score at start: millions of rounds per
+                        * second of a fixed arithmetic loop on one core; 0 = not
+                        * measured. Compares machines, not plugins. */
+    const char *state; /* "active", or "paused: " and why (its owner's hours or load) */
 } fitfarm_worker_info_t;
 #define FITFARM_WORKER_INFO_INIT {.size = sizeof(fitfarm_worker_info_t)}
 

@@ -61,7 +61,9 @@ FITFARM_API int fitfarm_status_worker(const fitfarm_status_t *self, size_t i,
                                   .slots = w->slots,
                                   .busy = w->busy,
                                   .n_plugins = w->n_plugins,
-                                  .plugins = (const char *const *)w->plugins};
+                                  .plugins = (const char *const *)w->plugins,
+                                  .speed = w->speed,
+                                  .state = w->state};
     CLIENT_COPY_OUT(out, full);
     return FITFARM_OK;
 }

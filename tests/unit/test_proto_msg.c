@@ -146,9 +146,12 @@ static proto_msg_t s_sample(uint32_t type)
     case PROTO_STATUS:
         workers[0] = (proto_worker_info_t){.name = "w1", .host = "lab-3", .arch = "x86_64",
                                            .slots = 8, .busy = 3, .n_plugins = 2,
-                                           .plugins = s_plugins_a};
+                                           .plugins = s_plugins_a, .speed = 812.5,
+                                           .state = "active"};
         workers[1] = (proto_worker_info_t){.name = "", .host = "", .arch = "", .slots = 0,
-                                           .busy = 0, .n_plugins = 0, .plugins = NULL};
+                                           .busy = 0, .n_plugins = 0, .plugins = NULL,
+                                           .speed = PROTO_MAX_SPEED,
+                                           .state = "paused: outside --hours 08:00-18:00"};
         runs[0] = (proto_run_info_t){.run_id = "run-1", .queued = UINT64_MAX, .running = 0,
                                      .done = 1u << 20, .evaluated = 5, .cached = UINT64_MAX - 1,
                                      .failed = 3};
@@ -164,7 +167,13 @@ static proto_msg_t s_sample(uint32_t type)
                                          .n_seed_params = 2, .seed_params = s_seed_params,
                                          .param_defaults = "{\"jitter\":0.01,\"n\":30}"};
         m.u.hello = (proto_hello_t){.name = "w1", .host = "lab-3", .arch = "x86_64",
-                                    .slots = UINT32_MAX, .n_plugins = 2, .plugins = pinfo};
+                                    .slots = UINT32_MAX, .n_plugins = 2, .plugins = pinfo,
+                                    .speed = 812.5};
+        break;
+    case PROTO_HAND_BACK:
+        m.u.hand_back = (proto_hand_back_t){.reason = "load 3.10 above --max-load 2",
+                                            .n_jobs = sizeof s_tags / sizeof s_tags[0],
+                                            .job_ids = s_tags};
         break;
     case PROTO_CREDIT:
         m.u.credit.credits = 256;
@@ -196,7 +205,7 @@ static proto_msg_t s_sample(uint32_t type)
 static const uint32_t s_all_types[] = {
     PROTO_SUBMIT, PROTO_ACK,    PROTO_STATUS_REQ, PROTO_ACCEPTED, PROTO_RESULTS,
     PROTO_REFUSED, PROTO_STATUS, PROTO_HELLO,     PROTO_CREDIT,   PROTO_DONE,
-    PROTO_BYE,    PROTO_JOBS,   PROTO_REHELLO,    PROTO_HEARTBEAT,
+    PROTO_BYE,    PROTO_JOBS,   PROTO_REHELLO,    PROTO_HEARTBEAT, PROTO_HAND_BACK,
 };
 #define N_TYPES (sizeof s_all_types / sizeof s_all_types[0])
 
@@ -334,6 +343,18 @@ static void test_decoded_fields(void **state)
     assert_int_equal(d->u.status.runs[0].cached, UINT64_MAX - 1);
     assert_int_equal(d->u.status.runs[0].failed, 3);
     assert_string_equal(d->u.status.warnings[0], "two builds of zdt1@1.0 in the pool");
+    assert_true(d->u.status.workers[0].speed == 812.5);
+    assert_true(d->u.status.workers[1].speed == PROTO_MAX_SPEED);
+    assert_string_equal(d->u.status.workers[0].state, "active");
+    assert_string_equal(d->u.status.workers[1].state, "paused: outside --hours 08:00-18:00");
+    proto_msg_destroy(&d);
+
+    m = s_sample(PROTO_HAND_BACK);
+    d = s_round_trip(&m);
+    assert_string_equal(d->u.hand_back.reason, "load 3.10 above --max-load 2");
+    assert_int_equal(d->u.hand_back.n_jobs, sizeof s_tags / sizeof s_tags[0]);
+    for (uint32_t i = 0; i < d->u.hand_back.n_jobs; i++)
+        assert_int_equal(d->u.hand_back.job_ids[i], s_tags[i]);
     proto_msg_destroy(&d);
 
     m = s_sample(PROTO_HELLO);
@@ -346,6 +367,7 @@ static void test_decoded_fields(void **state)
     assert_int_equal(d->u.hello.plugins[1].n_seed_params, 2);
     assert_string_equal(d->u.hello.plugins[1].seed_params[0], "scatter_radius");
     assert_string_equal(d->u.hello.plugins[1].seed_params[1], "jitter");
+    assert_true(d->u.hello.speed == 812.5);
     proto_msg_destroy(&d);
 }
 
@@ -704,7 +726,7 @@ static void test_mistyped_fields(void **state)
 static size_t s_hello_head(uint8_t *b, uint8_t info_header)
 {
     size_t n = 0;
-    b[n++] = 0x97; /* fixarray, 7: version, type, name, host, arch, slots, plugins */
+    b[n++] = 0x98; /* fixarray, 8: version, type, name, host, arch, slots, plugins, speed */
     b[n++] = 0x01, b[n++] = 0x14; /* version 1, type 20 = HELLO */
     b[n++] = 0xa1, b[n++] = 'w', b[n++] = 0xa1, b[n++] = 'h', b[n++] = 0xa1, b[n++] = 'a';
     b[n++] = 0x01; /* slots 1 */
@@ -726,6 +748,10 @@ static void test_hello_seed_params(void **state)
     b[n++] = 0x92, b[n++] = 0xa1, b[n++] = 'x', b[n++] = 0xa1, b[n++] = 'y'; /* ["x", "y"] */
     b[n++] = 0xa7, b[n++] = '{', b[n++] = '"', b[n++] = 'x', b[n++] = '"', b[n++] = ':';
     b[n++] = '0', b[n++] = '}'; /* param_defaults {"x":0} */
+    size_t at_speed = n;
+    b[n++] = 0xcb, b[n++] = 0x40, b[n++] = 0x59; /* speed: float 64 of 100.0 */
+    for (int i = 0; i < 6; i++)
+        b[n++] = 0x00;
     proto_msg_t *d = NULL;
     proto_err_t err;
     if (proto_msg_decode(b, n, NULL, &d, &err) != PROTO_OK)
@@ -733,7 +759,26 @@ static void test_hello_seed_params(void **state)
     assert_int_equal(d->u.hello.plugins[0].n_seed_params, 2);
     assert_string_equal(d->u.hello.plugins[0].seed_params[1], "y");
     assert_string_equal(d->u.hello.plugins[0].param_defaults, "{\"x\":0}");
+    assert_true(d->u.hello.speed == 100.0);
     proto_msg_destroy(&d);
+    /* speed: negative (-100.0, sign bit), NaN, past PROTO_MAX_SPEED (1e10 is
+     * 0x4202a05f20000000), and a float 32 are refused */
+    b[at_speed + 1] = 0xc0;
+    s_expect_refused(b, n, NULL, PROTO_EVALUE, "HELLO.speed: -100, expected a finite value");
+    b[at_speed + 1] = 0x7f, b[at_speed + 2] = 0xf8;
+    s_expect_refused(b, n, NULL, PROTO_EVALUE, "HELLO.speed: nan, expected a finite value");
+    const uint8_t big[8] = {0x42, 0x02, 0xa0, 0x5f, 0x20, 0x00, 0x00, 0x00};
+    memcpy(b + at_speed + 1, big, 8);
+    s_expect_refused(b, n, NULL, PROTO_EVALUE, "HELLO.speed: 1e+10, expected a finite value");
+    b[at_speed] = 0xca; /* float 32 of 0x42020000 = 32.5, then 4 trailing bytes */
+    s_expect_refused(b, n, NULL, PROTO_ETYPE, "HELLO.speed");
+    /* the encoder refuses a speed the decoder would */
+    proto_msg_t hm = s_sample(PROTO_HELLO);
+    hm.u.hello.speed = -1.0;
+    uint8_t *hbuf = NULL;
+    size_t hlen = 0;
+    assert_int_equal(proto_msg_encode(&hm, &hbuf, &hlen), PROTO_EVALUE);
+    assert_null(hbuf);
 
     n = s_hello_head(b, 0x97);
     b[n++] = 0xa1, b[n++] = 'x'; /* a str where the array belongs */

@@ -113,7 +113,8 @@ class Refusal(_Sized):
 class WorkerInfo(_Sized):
     _fields_ = [("size", c_size_t), ("name", c_char_p), ("host", c_char_p),
                 ("arch", c_char_p), ("slots", c_uint), ("busy", c_uint),
-                ("n_plugins", c_size_t), ("plugins", ctypes.POINTER(c_char_p))]
+                ("n_plugins", c_size_t), ("plugins", ctypes.POINTER(c_char_p)),
+                ("speed", ctypes.c_double), ("state", c_char_p)]
 
 
 class RunInfo(_Sized):

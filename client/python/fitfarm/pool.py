@@ -822,7 +822,8 @@ class Pool(concurrent.futures.Executor):
                         out["workers"].append({
                             "name": L.text(w.name), "host": L.text(w.host),
                             "arch": L.text(w.arch), "slots": w.slots, "busy": w.busy,
-                            "plugins": [L.text(w.plugins[j]) for j in range(w.n_plugins)]})
+                            "plugins": [L.text(w.plugins[j]) for j in range(w.n_plugins)],
+                            "speed": w.speed, "state": L.text(w.state)})
                 for i in range(L.status_n_runs(sh)):
                     r = L.RunInfo()
                     if L.status_run(sh, i, ctypes.byref(r)) == 0:
