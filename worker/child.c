@@ -4,6 +4,7 @@
 #include "child.h"
 
 #include <errno.h>
+#include <fcntl.h>
 #include <math.h>
 #include <signal.h>
 #include <stdint.h>
@@ -336,4 +337,21 @@ void worker_child_run(int fd, const worker_registry_t *registry, size_t mem_limi
     /* The co-processes are stopped: what they started and left is ours now. */
     (void)worker_reaper_sweep(NULL, 0, 1000);
     _exit(0);
+}
+
+void worker_child_enter(int fd, int out_fd, int nice_incr, const worker_registry_t *registry,
+                        size_t mem_limit_mb, pid_t parent, worker_child_status_t *status)
+{
+    if (dup2(out_fd, 1) < 0 || dup2(out_fd, 2) < 0)
+        _exit(4);
+    if (out_fd > 2)
+        close(out_fd);
+    else /* dup2 onto itself keeps close-on-exec: an exec program must inherit it */
+        (void)fcntl(out_fd, F_SETFD, 0);
+    if (nice_incr > 0) {
+        errno = 0;
+        if (nice(nice_incr) == -1 && errno != 0)
+            _exit(5);
+    }
+    worker_child_run(fd, registry, mem_limit_mb, parent, status);
 }

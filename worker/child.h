@@ -49,4 +49,13 @@ typedef struct {
 void worker_child_run(int fd, const worker_registry_t *registry, size_t mem_limit_mb,
                       pid_t parent, worker_child_status_t *status) __attribute__((noreturn));
 
+/* The first steps of a freshly forked child before worker_child_run:
+ * stdout and stderr (the plugin's and its programs') onto out_fd, the pipe
+ * the worker reads a bounded part of (output.h), and a lower CPU priority
+ * (nice_incr 0..19, checked by main.c; lowering needs no privilege and the
+ * plugin's own processes inherit it). Never returns. */
+void worker_child_enter(int fd, int out_fd, int nice_incr, const worker_registry_t *registry,
+                        size_t mem_limit_mb, pid_t parent, worker_child_status_t *status)
+    __attribute__((noreturn));
+
 #endif

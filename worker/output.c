@@ -74,3 +74,19 @@ void worker_output_flush(worker_output_t *o)
     o->len = 0;
     o->cut = 0;
 }
+
+int worker_output_read_for(worker_output_t *o, int fd, uint64_t owner)
+{
+    if ((o->len || o->cut) && owner && o->job_id != owner)
+        worker_output_flush(o);
+    if (!o->len && !o->cut)
+        o->job_id = owner;
+    return worker_output_read(o, fd);
+}
+
+void worker_output_end(worker_output_t *o)
+{
+    if (o->len || o->cut)
+        worker_output_flush(o);
+    o->job_id = 0;
+}

@@ -37,4 +37,12 @@ int worker_output_read(worker_output_t *o, int fd);
  * empties it. */
 void worker_output_flush(worker_output_t *o);
 
+/* worker_output_read for the output of job `owner` (0: nobody's): what was
+ * kept for another job is logged first, so each job's lines are logged
+ * under its own id. Returns as worker_output_read. */
+int worker_output_read_for(worker_output_t *o, int fd, uint64_t owner);
+
+/* The job (or the child) ended: logs what is left and belongs to nobody. */
+void worker_output_end(worker_output_t *o);
+
 #endif

@@ -46,6 +46,7 @@
 #include "common/log.h"
 #include "credits.h"
 #include "frame.h"
+#include "memnote.h"
 #include "output.h"
 #include "reaper.h"
 
@@ -135,11 +136,7 @@ static void s_output_drain(worker_pool_t *self, unsigned i)
     int64_t start_us;
     int k = s_running(self, i, &start_us);
     uint64_t owner = k >= 0 ? s_at(c, (unsigned)k)->job_id : c->qn ? s_at(c, 0)->job_id : 0;
-    if ((c->output.len || c->output.cut) && owner && c->output.job_id != owner)
-        worker_output_flush(&c->output);
-    if (!c->output.len && !c->output.cut)
-        c->output.job_id = owner;
-    if (worker_output_read(&c->output, c->out_fd)) {
+    if (worker_output_read_for(&c->output, c->out_fd, owner)) {
         /* Every writer closed it: polling on would only see end of file. */
         close(c->out_fd);
         c->out_fd = -1;
@@ -151,30 +148,7 @@ static void s_output_end(worker_pool_t *self, unsigned i)
 {
     s_child_t *c = &self->children[i];
     s_output_drain(self, i);
-    if (c->output.len || c->output.cut)
-        worker_output_flush(&c->output);
-    c->output.job_id = 0;
-}
-
-/* A failed or crashed evaluation whose process came near the address-space
- * limit most likely ran out of memory: say so, naming the limit, since the
- * plugin's own message ("out of memory", or a bare SIGSEGV) cannot. Peak RSS
- * under-counts address space, hence the three-quarters threshold. */
-static void s_note_memory_limit(const worker_pool_t *self, worker_pool_result_t *r)
-{
-    uint64_t limit_kb = (uint64_t)self->config.mem_limit_mb * 1024u;
-    if (!limit_kb || r->outcome.status == PROTO_STATUS_OK ||
-        r->outcome.status == PROTO_STATUS_INVALID || r->outcome.peak_rss_kb < limit_kb / 4u * 3u)
-        return;
-    const char *was = r->outcome.error ? r->outcome.error : "";
-    size_t n = strlen(was) + 128;
-    char *e = common_xmalloc(n);
-    snprintf(e, n, "%s%smemory limit: the evaluation's process reached %llu MB of its %zu MB "
-             "--mem-limit",
-             was, was[0] ? "; " : "", (unsigned long long)(r->outcome.peak_rss_kb / 1024u),
-             self->config.mem_limit_mb);
-    free(r->outcome.error);
-    r->outcome.error = e;
+    worker_output_end(&c->output);
 }
 
 static void s_push(worker_pool_t *self, const worker_pool_result_t *r)
@@ -205,7 +179,7 @@ static void s_push_failure(worker_pool_t *self, uint64_t job_id, int64_t start_u
                                 (double)ru->ru_stime.tv_sec + ru->ru_stime.tv_usec * 1e-6;
     }
     r.wall_us = common_clock_us() - start_us;
-    s_note_memory_limit(self, &r);
+    worker_memnote_apply(&r.outcome, self->config.mem_limit_mb);
     s_push(self, &r);
 }
 
@@ -276,6 +250,27 @@ static void s_drain_backlog(worker_pool_t *self)
     self->bhead = self->bcount = 0;
 }
 
+/* Closes a slot whose process has been reaped: its socket and output pipe,
+ * and what was half read or written on them. */
+static void s_close_slot(s_child_t *c)
+{
+    if (c->fd >= 0)
+        close(c->fd);
+    if (c->out_fd >= 0)
+        close(c->out_fd);
+    c->fd = c->out_fd = -1;
+    c->pid = 0;
+    c->in.pos = c->in.len = 0;
+    c->out.pos = c->out.len = 0;
+}
+
+static void s_nonblock(int fd, unsigned i, const char *what)
+{
+    int fl = fcntl(fd, F_GETFL);
+    if (fl < 0 || fcntl(fd, F_SETFL, fl | O_NONBLOCK) != 0)
+        LOG_WARN("cannot make child %u's %s non-blocking: %s", i, what, strerror(errno));
+}
+
 static int s_spawn(worker_pool_t *self, unsigned i)
 {
     s_child_t *c = &self->children[i];
@@ -306,30 +301,13 @@ static int s_spawn(worker_pool_t *self, unsigned i)
     if (pid == 0) {
         /* Other children's sockets must not stay open here, or their deaths
          * would not read as end of file in the parent. */
-        for (unsigned j = 0; j < self->config.slots; j++) {
-            if (j != i && self->children[j].fd >= 0)
-                close(self->children[j].fd);
-            if (j != i && self->children[j].out_fd >= 0)
-                close(self->children[j].out_fd);
-        }
+        for (unsigned j = 0; j < self->config.slots; j++)
+            if (j != i)
+                s_close_slot(&self->children[j]); /* this process's copies only */
         close(sv[0]);
         close(op[0]);
-        /* stdout and stderr, the plugin's and its programs', go to the
-         * worker, which keeps a bounded part (output.h). */
-        if (dup2(op[1], 1) < 0 || dup2(op[1], 2) < 0)
-            _exit(4);
-        if (op[1] > 2)
-            close(op[1]);
-        else /* dup2 onto itself keeps close-on-exec: an exec program must inherit it */
-            (void)fcntl(op[1], F_SETFD, 0);
-        /* Lower only (0..19, checked by main.c), so no privilege is needed;
-         * the plugin's own processes inherit it. */
-        if (self->config.nice > 0) {
-            errno = 0;
-            if (nice(self->config.nice) == -1 && errno != 0)
-                _exit(5);
-        }
-        worker_child_run(sv[1], self->config.registry, self->config.mem_limit_mb, parent, st);
+        worker_child_enter(sv[1], op[1], self->config.nice, self->config.registry,
+                           self->config.mem_limit_mb, parent, st);
     }
     /* The child does the same; whichever runs first, the group exists before
      * anything is killed through it. */
@@ -341,14 +319,10 @@ static int s_spawn(worker_pool_t *self, unsigned i)
     c->output.cut = 0;
     c->output.job_id = 0;
     c->output.child = (int)i;
-    int ofl = fcntl(op[0], F_GETFL);
-    if (ofl < 0 || fcntl(op[0], F_SETFL, ofl | O_NONBLOCK) != 0)
-        LOG_WARN("cannot make child %u's output pipe non-blocking: %s", i, strerror(errno));
     /* Non-blocking: a child busy with a long evaluation must never stall the
-     * parent's write of the jobs queued behind it. */
-    int fl = fcntl(sv[0], F_GETFL);
-    if (fl < 0 || fcntl(sv[0], F_SETFL, fl | O_NONBLOCK) != 0)
-        LOG_WARN("cannot make child %u's socket non-blocking: %s", i, strerror(errno));
+     * parent's write of the jobs queued behind it, nor its output reads. */
+    s_nonblock(op[0], i, "output pipe");
+    s_nonblock(sv[0], i, "socket");
     c->pid = pid;
     c->fd = sv[0];
     c->next_seq = 0;
@@ -429,16 +403,7 @@ static void s_requeue_all(worker_pool_t *self, unsigned i, int k, int blameless,
  * its jobs must have been moved out. */
 static void s_respawn(worker_pool_t *self, unsigned i)
 {
-    s_child_t *c = &self->children[i];
-    if (c->fd >= 0)
-        close(c->fd);
-    c->fd = -1;
-    if (c->out_fd >= 0)
-        close(c->out_fd);
-    c->out_fd = -1;
-    c->pid = 0;
-    c->in.pos = c->in.len = 0;
-    c->out.pos = c->out.len = 0;
+    s_close_slot(&self->children[i]);
     s_sweep(self, 1000);
     s_spawn(self, i);
 }
@@ -544,7 +509,7 @@ static void s_on_answer(worker_pool_t *self, unsigned i, proto_msg_t *msg, uint6
                  (unsigned long long)limit_kb);
         *retire = 1;
     }
-    s_note_memory_limit(self, &r);
+    worker_memnote_apply(&r.outcome, self->config.mem_limit_mb);
     s_push(self, &r);
 }
 
@@ -892,17 +857,10 @@ static void s_stop_child(worker_pool_t *self, unsigned i, uint64_t *ids, size_t 
     while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
         ;
     s_output_end(self, i);
-    close(c->fd);
-    c->fd = -1;
-    if (c->out_fd >= 0)
-        close(c->out_fd);
-    c->out_fd = -1;
-    c->pid = 0;
     for (unsigned k = 0; ids && k < c->qn && *n < max; k++)
         ids[(*n)++] = s_at(c, k)->job_id;
     s_drop_jobs(c);
-    c->in.pos = c->in.len = 0;
-    c->out.pos = c->out.len = 0;
+    s_close_slot(c);
 }
 
 /* Stops every child holding jobs and empties the backlog (ids as above);
