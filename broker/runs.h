@@ -120,6 +120,9 @@ typedef struct {
     broker_run_t *spill_head;   /* runs that owe results from the store */
     int went_idle;              /* a run went idle: the loop logs memory use */
     uint64_t epoch;             /* successful store commits so far (loop.c counts them) */
+    /* Requests answered, and those answered from a stored result, over every
+     * run since the broker started (runs that left RAM included). */
+    uint64_t answered_total, cached_total;
 } broker_runs_t;
 
 void broker_runs_init(broker_runs_t *self);

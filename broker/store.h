@@ -28,6 +28,7 @@
 #include "evals.h"
 #include "msg.h"
 #include "runs.h"
+#include "stats.h"
 
 typedef struct broker_store broker_store_t;
 struct broker;
@@ -116,6 +117,9 @@ const char *broker_store_path(const broker_store_t *self);
 void broker_store_report_damage(const char *path, const char *what, const char *msg);
 /* Counters for the log: commits made, statements written. */
 uint64_t broker_store_commits(const broker_store_t *self);
+/* How long each successful COMMIT took (a turn with nothing written makes
+ * none). Borrowed, valid until the store is closed. */
+const broker_hist_t *broker_store_commit_times(const broker_store_t *self);
 
 /* The raw handle for store_load.c. Borrowed. */
 struct sqlite3 *broker_store_db(broker_store_t *self);
