@@ -16,6 +16,7 @@
 #include "common/log.h"
 #include "core.h"
 #include "metrics.h"
+#include "status_page.h"
 
 struct broker_http {
     struct MHD_Daemon *daemon;
@@ -99,6 +100,9 @@ static enum MHD_Result s_reply(struct MHD_Connection *c, unsigned code, const ch
     MHD_add_response_header(r, MHD_HTTP_HEADER_CONTENT_TYPE, type);
     MHD_add_response_header(r, MHD_HTTP_HEADER_CACHE_CONTROL, "no-store");
     MHD_add_response_header(r, "X-Content-Type-Options", "nosniff");
+    /* No script, no outside resource, even if escaping ever missed a spot. */
+    MHD_add_response_header(r, "Content-Security-Policy",
+                            "default-src 'none'; style-src 'unsafe-inline'");
     if (code == MHD_HTTP_METHOD_NOT_ALLOWED)
         MHD_add_response_header(r, MHD_HTTP_HEADER_ALLOW, "GET, HEAD");
     enum MHD_Result rc = MHD_queue_response(c, code, r);
@@ -128,8 +132,14 @@ static enum MHD_Result s_answer(void *cls, struct MHD_Connection *c, const char 
         char *text = broker_metrics_text(self->b, &len);
         return s_reply(c, MHD_HTTP_OK, "text/plain; version=0.0.4; charset=utf-8", text, len);
     }
+    if (strcmp(url, "/") == 0) {
+        size_t len = 0;
+        char *html = broker_status_page_html(self->b, &len);
+        return s_reply(c, MHD_HTTP_OK, "text/html; charset=utf-8", html, len);
+    }
+    static const char s_missing[] = "not found: the broker serves / and /metrics\n";
     return s_reply(c, MHD_HTTP_NOT_FOUND, "text/plain; charset=utf-8",
-                   common_xstrdup("not found: the broker serves /metrics\n"), 38);
+                   common_xstrdup(s_missing), sizeof s_missing - 1);
 }
 
 broker_http_t *broker_http_new(broker_t *b, const char *address, char *url, size_t url_len)
@@ -182,7 +192,7 @@ broker_http_t *broker_http_new(broker_t *b, const char *address, char *url, size
         inet_ntop(AF_INET, &((struct sockaddr_in *)&addr)->sin_addr, host, sizeof host);
     snprintf(url, url_len, addr.ss_family == AF_INET6 ? "http://[%s]:%u" : "http://%s:%u", host,
              (unsigned)port);
-    LOG_INFO("serving metrics on %s/metrics", url);
+    LOG_INFO("serving the status page on %s/ and metrics on %s/metrics", url, url);
     if (!loopback)
         LOG_WARN("the http listener %s is not on loopback: anyone who can reach it reads the "
                  "metrics without credentials (run ids, worker and host names); prefer "

@@ -1,9 +1,9 @@
 /* http.h: the broker's opt-in HTTP listener (--http) serving the metrics
- * page at /metrics. libmicrohttpd without threads of its own: its epoll
+ * page at /metrics and the status page at / (status_page.h). libmicrohttpd without threads of its own: its epoll
  * descriptor sits in the broker's zmq_poll set and broker_http_run is called
  * on the broker's thread, so the page reads broker state with no locking.
  * Only GET and HEAD; a bounded number of connections, request sizes and
- * time-outs. Internal to the broker. Not here: the page's text (metrics.c). */
+ * time-outs. Internal to the broker. Not here: the pages' text. */
 #ifndef BROKER_HTTP_H
 #define BROKER_HTTP_H
 
