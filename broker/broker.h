@@ -56,6 +56,10 @@ typedef struct {
     /* The read end of the starter's lifeline pipe (common/lifeline.h); the
      * broker stops as on SIGTERM when it reports end of file. 0 = none. */
     int lifeline_fd;
+    /* Where to serve the metrics page over HTTP ("PORT", "HOST:PORT",
+     * "[IPv6]:PORT"; HOST defaults to 127.0.0.1, http.h); NULL = off.
+     * The bound URL is a third line "http URL" of the endpoints file. */
+    const char *http_address;
 } broker_config_t;
 
 #define BROKER_DEFAULT_LOCK_WAIT_MS 10000 /* a killed predecessor ends well within this */

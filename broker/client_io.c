@@ -18,6 +18,8 @@
 #include "key.h"
 #include "params.h"
 #include "quota.h"
+#include "stats.h"
+#include "status.h"
 
 #define S_REFUSAL_QUIET_MS 10000
 
@@ -119,6 +121,7 @@ static void s_send_refused(broker_t *b, const uint8_t *rid, size_t rid_len, uint
                            uint64_t batch_tag, const char *run_id, const proto_item_t *item,
                            const char *text)
 {
+    broker_stats_refused(&b->stats, code);
     if (!b->clients)
         return;
     proto_msg_t msg = {.type = PROTO_REFUSED};
@@ -325,14 +328,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                          : "the message carries no client key");
         snprintf(text, sizeof text, BROKER_ACCESS_REFUSAL, s->run_id);
         rc = PROTO_REFUSE_NOT_PERMITTED;
-        if (b->clients) {
-            proto_msg_t msg = {.type = PROTO_REFUSED};
-            msg.u.refused.code = (uint32_t)rc;
-            msg.u.refused.batch_tag = s->batch_tag;
-            msg.u.refused.run_id = s->run_id;
-            msg.u.refused.text = text;
-            broker_envelope_send(b->clients, rid, rid_len, &msg);
-        }
+        s_send_refused(b, rid, rid_len, (uint32_t)rc, s->batch_tag, s->run_id, NULL, text);
         goto cleanup;
     }
     if (run && (run->seed != s->run_seed || run->seed_mode != s->seed_mode)) {
@@ -588,68 +584,10 @@ static void s_on_ack(broker_t *b, const uint8_t *rid, size_t rid_len, const char
 static void s_on_status(broker_t *b, const uint8_t *rid, size_t rid_len, const char *who)
 {
     proto_msg_t msg = {.type = PROTO_STATUS};
-    proto_status_t *st = &msg.u.status;
-    st->n_workers = b->registry.n;
-    st->workers = common_xcalloc(st->n_workers ? st->n_workers : 1, sizeof *st->workers);
-    uint32_t i = 0;
-    for (broker_worker_t *w = b->registry.seen_head; w; w = w->seen_next, i++) {
-        proto_worker_info_t *wi = &st->workers[i];
-        wi->name = w->name;
-        wi->host = w->host;
-        wi->arch = w->arch;
-        wi->slots = w->slots;
-        /* Running, not prefetched: a worker starts a job as soon as a slot
-         * is free, so at most slots of the jobs it holds are running. */
-        wi->busy = w->held < w->slots ? w->held : w->slots;
-        wi->speed = w->speed;
-        wi->state = w->state;
-        wi->n_plugins = w->n_plugins;
-        wi->plugins = common_xcalloc(w->n_plugins ? w->n_plugins : 1, sizeof *wi->plugins);
-        for (uint32_t k = 0; k < w->n_plugins; k++) {
-            size_t n = strlen(w->plugins[k]->name) + strlen(w->plugins[k]->version) + 2;
-            wi->plugins[k] = common_xmalloc(n);
-            snprintf(wi->plugins[k], n, "%s@%s", w->plugins[k]->name, w->plugins[k]->version);
-        }
-    }
-    size_t n_runs = broker_table_size(b->runs.by_id);
-    if (n_runs > PROTO_MAX_LIST)
-        n_runs = PROTO_MAX_LIST; /* the decoder's cap; the oldest extra runs are left out */
-    st->runs = common_xcalloc(n_runs ? n_runs : 1, sizeof *st->runs);
-    size_t cur = 0;
-    broker_run_t *run;
-    while (st->n_runs < n_runs && (run = broker_table_next(b->runs.by_id, &cur))) {
-        broker_access_t access = broker_access_may_use(b, run, who);
-        if (access == BROKER_ACCESS_NO || access == BROKER_ACCESS_CLAIM)
-            continue;
-        proto_run_info_t *ri = &st->runs[st->n_runs++];
-        ri->run_id = run->id;
-        ri->queued = run->n_queued;
-        ri->running = run->n_running;
-        ri->done = broker_runs_durable_answered(&b->runs, run); /* only what the store holds */
-        ri->evaluated = run->n_evaluated;
-        ri->cached = run->n_cached;
-        ri->failed = run->n_failed;
-    }
-    st->n_warnings = broker_catalog_warnings(&b->catalog, &st->warnings, 0);
-    if (broker_store_failing(b->store)) {
-        char text[1200];
-        broker_store_describe(b->store, text, sizeof text);
-        st->warnings = common_xrealloc(st->warnings, (size_t)st->n_warnings + 1,
-                                       sizeof *st->warnings);
-        st->warnings[st->n_warnings++] = common_xstrdup(text);
-    }
+    broker_status_fill(b, who, 0, &msg.u.status);
     if (b->clients)
         broker_envelope_send(b->clients, rid, rid_len, &msg);
-    for (i = 0; i < st->n_workers; i++) {
-        for (uint32_t k = 0; k < st->workers[i].n_plugins; k++)
-            free(st->workers[i].plugins[k]);
-        free(st->workers[i].plugins);
-    }
-    free(st->workers);
-    free(st->runs);
-    for (i = 0; i < st->n_warnings; i++)
-        free(st->warnings[i]);
-    free(st->warnings);
+    broker_status_clear(&msg.u.status);
 }
 
 void broker_client_on_message(broker_t *b, const uint8_t *rid, size_t rid_len,

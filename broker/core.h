@@ -15,6 +15,7 @@
 #include "msg.h"
 #include "registry.h"
 #include "runs.h"
+#include "stats.h"
 #include "store.h"
 #include "timers.h"
 
@@ -78,6 +79,8 @@ typedef struct broker {
     proto_result_t *results;
     /* counters */
     uint64_t jobs_sent, results_sent, dropped_msgs;
+    broker_stats_t stats;         /* for the metrics page only (stats.h) */
+    struct broker_http *http;     /* the metrics and status listener; NULL = off (http.h) */
     /* security and limits (zap.h, access.h, quota.h); zap NULL in plaintext mode */
     struct broker_zap *zap;
     struct common_sharelist *shares; /* runs shared with other keys; NULL = none */

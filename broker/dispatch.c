@@ -4,6 +4,7 @@
 #include "quota.h"
 
 #include <assert.h>
+#include <math.h>
 #include <inttypes.h>
 #include <string.h>
 
@@ -115,6 +116,12 @@ static int s_retryable(uint32_t status)
 
 void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcome_t *o)
 {
+    if (w) {
+        w->outcomes++;
+        /* Bounded like the store's copy (cache.c): a bad figure adds nothing. */
+        if (isfinite(o->cpu_seconds) && o->cpu_seconds > 0 && o->cpu_seconds < 1e9)
+            w->cpu_seconds += o->cpu_seconds;
+    }
     broker_eval_t *e = broker_evals_by_job(&b->evals, o->job_id);
     if (e) {
         if (e->worker != w) {

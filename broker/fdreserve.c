@@ -22,6 +22,7 @@
 #include "common/clock.h"
 #include "common/fdlimit.h"
 #include "common/log.h"
+#include "stats.h"
 
 static const char *const s_role[2] = {"clients", "workers"};
 
@@ -190,7 +191,10 @@ void broker_fdreserve_watch(void *ctx, void *router, int role, const char *bound
     char ep[64];
     snprintf(ep, sizeof ep, "inproc://fitfarm-broker-accept-%s", s_role[role]);
     int zero = 0;
-    if (zmq_socket_monitor(router, ep, ZMQ_EVENT_ACCEPT_FAILED) != 0 ||
+    /* Connections opened and closed too, for the metrics page (stats.h). */
+    if (zmq_socket_monitor(router, ep,
+                           ZMQ_EVENT_ACCEPT_FAILED | ZMQ_EVENT_ACCEPTED |
+                               ZMQ_EVENT_DISCONNECTED) != 0 ||
         !(s.monitor[role] = zmq_socket(ctx, ZMQ_PAIR)) ||
         zmq_setsockopt(s.monitor[role], ZMQ_LINGER, &zero, sizeof zero) != 0 ||
         zmq_connect(s.monitor[role], ep) != 0) {
@@ -354,6 +358,11 @@ static void s_read_monitor(int role)
         }
         if (event == ZMQ_EVENT_ACCEPT_FAILED)
             broker_fdreserve_accept_failed(role, (int)value);
+        else
+            broker_stats_connection_event(role == BROKER_FDRESERVE_WORKERS
+                                              ? BROKER_STATS_WORKERS
+                                              : BROKER_STATS_CLIENTS,
+                                          event);
     }
 }
 

@@ -26,6 +26,8 @@
 #include "envelope.h"
 #include "fdreserve.h"
 #include "guard.h"
+#include "http.h"
+#include "stats.h"
 #include "worker_io.h"
 
 static volatile sig_atomic_t s_stop;
@@ -70,10 +72,12 @@ static void *s_bind(broker_t *b, const char *endpoint, const char *role, char *b
     return sock;
 }
 
-static int s_write_endpoints(const char *path, const char *clients, const char *workers)
+static int s_write_endpoints(const char *path, const char *clients, const char *workers,
+                             const char *http)
 {
     char text[2048];
-    int n = snprintf(text, sizeof text, "clients %s\nworkers %s\n", clients, workers);
+    int n = snprintf(text, sizeof text, "clients %s\nworkers %s\n%s%s%s", clients, workers,
+                     http[0] ? "http " : "", http, http[0] ? "\n" : "");
     if (n < 0 || (size_t)n >= sizeof text) {
         LOG_ERROR("cannot write the endpoints file %s: endpoints too long", path);
         return -1;
@@ -163,7 +167,7 @@ int broker_main_run(const broker_config_t *config)
 {
     int rc = 1;
     broker_t b;
-    char clients_ep[512] = "", workers_ep[512] = "";
+    char clients_ep[512] = "", workers_ep[512] = "", http_url[128] = "";
     struct sigaction sa, old_term, old_int, old_hup;
 
     if (!config || !config->clients_endpoint || !config->workers_endpoint) {
@@ -196,6 +200,7 @@ int broker_main_run(const broker_config_t *config)
     if (broker_guard_start(&b, config) != 0)
         goto cleanup;
     (void)common_fdlimit_raise("broker");
+    broker_stats_connections_reset();
     broker_fdreserve_start();
     b.clients = s_bind(&b, config->clients_endpoint, "clients", clients_ep, sizeof clients_ep);
     if (!b.clients)
@@ -205,8 +210,11 @@ int broker_main_run(const broker_config_t *config)
     if (!b.workers)
         goto cleanup;
     broker_fdreserve_watch(b.ctx, b.workers, BROKER_FDRESERVE_WORKERS, workers_ep, !b.zap);
+    if (config->http_address &&
+        !(b.http = broker_http_new(&b, config->http_address, http_url, sizeof http_url)))
+        goto cleanup;
     if (config->endpoints_file &&
-        s_write_endpoints(config->endpoints_file, clients_ep, workers_ep) != 0)
+        s_write_endpoints(config->endpoints_file, clients_ep, workers_ep, http_url) != 0)
         goto cleanup;
     LOG_INFO("broker ready: liveness %d ms, heartbeat %d ms, %u attempts per job; in RAM at "
              "most %" PRIu64 " cached results (~%" PRIu64 " MiB) and %" PRIu64
@@ -221,6 +229,11 @@ int broker_main_run(const broker_config_t *config)
     };
     int n_items = 2 + (b.zap ? broker_zap_pollitems(b.zap, items + 2, 3) : 0);
     n_items += broker_fdreserve_pollitems(items + n_items, 2);
+    int http = -1; /* its index in items */
+    if (b.http) {
+        http = n_items++;
+        items[http] = (zmq_pollitem_t){.fd = broker_http_fd(b.http), .events = ZMQ_POLLIN};
+    }
     int lifeline = -1; /* its index in items */
     if (config->lifeline_fd > 0) {
         lifeline = n_items++;
@@ -238,6 +251,9 @@ int broker_main_run(const broker_config_t *config)
         int64_t reopen = broker_fdreserve_timeout_ms(b.now_ms);
         if (reopen >= 0 && (timeout < 0 || reopen < timeout))
             timeout = (long)reopen;
+        long http_in = broker_http_timeout_ms(b.http);
+        if (http_in >= 0 && (timeout < 0 || http_in < timeout))
+            timeout = http_in; /* its connection time-outs, or work left over */
         if (s_reload) {
             s_reload = 0;
             broker_guard_reload(&b);
@@ -259,6 +275,13 @@ int broker_main_run(const broker_config_t *config)
         if (b.zap)
             broker_zap_handle(b.zap); /* handshakes first: admitted peers then speak */
         broker_fdreserve_handle(b.now_ms); /* accepts that failed for want of descriptors */
+        /* Every turn, not only when its descriptor is readable or its time-out
+         * is due: after closing connections at its limit libmicrohttpd takes
+         * the listener back into its epoll set only in a later run, with
+         * nothing to wake us for it (a non-blocking epoll_wait costs little).
+         * On this thread: its pages read broker state. */
+        if (http >= 0)
+            broker_http_run(b.http);
         if (items[0].revents & ZMQ_POLLIN)
             s_drain(&b, b.clients, 0);
         if (items[1].revents & ZMQ_POLLIN)
@@ -302,6 +325,7 @@ cleanup:
             zmq_close(b.workers);
         }
     }
+    broker_http_destroy(&b.http);
     broker_guard_stop(&b);
     broker_fdreserve_stop();
     if (b.ctx)

@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "broker.h"
+#include "http.h"
 #include "common/config.h"
 #include "common/lifeline.h"
 
@@ -74,6 +75,10 @@ static void s_usage(FILE *out)
             "  --cache-entries N     finished results kept in RAM (default 1000000); others\n"
             "                        are read from the store when asked for\n"
             "  --cache-mb N          their approximate size in MiB (default 256)\n"
+            "  --http [HOST:]PORT    serve metrics (Prometheus text) at http://HOST:PORT/metrics;\n"
+            "                        off by default; HOST defaults to 127.0.0.1 (the page\n"
+            "                        needs no credentials: keep it on loopback, README\n"
+            "                        \"Metrics\"); port 0 picks a free one (endpoints file)\n"
             "  --help                this text\n"
             "  --version             print the version\n"
             "\n"
@@ -172,7 +177,7 @@ int main(int argc, char **argv)
             "--max-unacked",      "--cache-entries",    "--cache-mb",
             "--max-queued-per-key", "--max-queued-bytes-per-run", "--max-queued-bytes-per-key",
             "--max-queued-bytes", "--max-runs-per-key", "--max-runs",
-            "--lock-wait",        "--lifeline-fd"};
+            "--lock-wait",        "--lifeline-fd",      "--http"};
         int known = 0;
         for (size_t k = 0; k < sizeof with_value / sizeof *with_value; k++)
             known |= strcmp(a, with_value[k]) == 0;
@@ -188,6 +193,13 @@ int main(int argc, char **argv)
             cfg.workers_endpoint = v;
         } else if (strcmp(a, "--store") == 0) {
             cfg.store_dir = v;
+        } else if (strcmp(a, "--http") == 0) {
+            struct sockaddr_storage addr;
+            int loopback = 0;
+            char herr[256];
+            if (broker_http_parse(v, &addr, &loopback, herr, sizeof herr) != 0)
+                return s_bad("%s", herr);
+            cfg.http_address = v;
         } else if (strcmp(a, "--lock-wait") == 0) {
             char *end = NULL;
             errno = 0;

@@ -46,6 +46,10 @@ typedef struct broker_worker {
     uint32_t carries_bits;
     uint32_t credits;
     uint32_t held; /* jobs dispatched and not finished */
+    /* Outcomes this registration reported and the CPU seconds they say they
+     * took (the metrics page); retried and ignored ones count too. */
+    uint64_t outcomes;
+    double cpu_seconds;
     struct broker_eval *jobs_head, *jobs_tail; /* held, in dispatch order */
     int64_t last_seen_ms;
     struct broker_worker *seen_prev, *seen_next;   /* last-seen order */

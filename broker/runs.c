@@ -442,6 +442,8 @@ void broker_runs_answer(broker_runs_t *self, broker_run_t *run, uint64_t tag, ui
     assert(e->state == BROKER_EVAL_DONE || cached == 0);
     (void)s_push_eval(self, run, tag, seed, e, cached); /* past a cap: the store has it, acked = 0 */
     run->n_answered++;
+    self->answered_total++;
+    self->cached_total += cached != 0;
     if (run->answered_epoch != self->epoch) {
         run->answered_epoch = self->epoch; /* the earlier ones committed since */
         run->answered_since = 0;

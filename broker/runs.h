@@ -127,6 +127,9 @@ typedef struct {
      * (without this, 100,000 cached items logged 100,000 lines). */
     broker_run_t *taking;
     uint64_t epoch;             /* successful store commits so far (loop.c counts them) */
+    /* Requests answered, and those answered from a stored result, over every
+     * run since the broker started (runs that left RAM included). */
+    uint64_t answered_total, cached_total;
 } broker_runs_t;
 
 void broker_runs_init(broker_runs_t *self);

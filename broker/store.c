@@ -175,7 +175,7 @@ struct broker_store {
     sqlite3_stmt *stmt[S_COUNT_];
     int lock_fd; /* DIR/fitfarm.lock, flock'ed for the broker's life; -1 in memory */
     uint64_t commits;
-    double commit_seconds; /* summed wall time of the COMMITs (each one fsync) */
+    broker_hist_t commit_times; /* successful COMMITs, seconds (metrics.c) */
     /* Every write since the last successful commit (store_log.h), and what
      * it holds in the user's terms. */
     broker_store_log_t log;
@@ -201,6 +201,12 @@ sqlite3 *broker_store_db(broker_store_t *self)
     return self->db;
 }
 
+const broker_hist_t *broker_store_commit_times(const broker_store_t *self)
+{
+    static const broker_hist_t s_none;
+    return self ? &self->commit_times : &s_none;
+}
+
 uint64_t broker_store_commits(const broker_store_t *self)
 {
     return self ? self->commits : 0;
@@ -208,7 +214,7 @@ uint64_t broker_store_commits(const broker_store_t *self)
 
 double broker_store_commit_seconds(const broker_store_t *self)
 {
-    return self ? self->commit_seconds : 0;
+    return self ? self->commit_times.sum : 0;
 }
 
 void broker_store_report_damage(const char *path, const char *what, const char *msg)
@@ -829,17 +835,14 @@ int broker_store_commit(broker_store_t *self)
         return 0; /* nothing written this turn */
     } else {
         sqlite3_stmt *st = self->stmt[S_COMMIT];
-        struct timespec t0, t1;
-        clock_gettime(CLOCK_MONOTONIC, &t0);
+        int64_t t0 = common_clock_us();
         int rc = sqlite3_step(st);
         sqlite3_reset(st);
-        clock_gettime(CLOCK_MONOTONIC, &t1);
-        self->commit_seconds +=
-            (double)(t1.tv_sec - t0.tv_sec) + (double)(t1.tv_nsec - t0.tv_nsec) * 1e-9;
         if (rc != SQLITE_DONE) {
             s_fail(self, rc, "COMMIT");
             return -1;
         }
+        broker_hist_observe(&self->commit_times, (double)(common_clock_us() - t0) / 1e6);
     }
     self->commits++;
     broker_store_log_clear(&self->log);

@@ -28,6 +28,7 @@
 #include "evals.h"
 #include "msg.h"
 #include "runs.h"
+#include "stats.h"
 
 typedef struct broker_store broker_store_t;
 struct broker;
@@ -118,6 +119,9 @@ void broker_store_report_damage(const char *path, const char *what, const char *
 uint64_t broker_store_commits(const broker_store_t *self);
 /* The summed wall time of those commits, in seconds (each pays an fsync). */
 double broker_store_commit_seconds(const broker_store_t *self);
+/* How long each successful COMMIT took (a turn with nothing written makes
+ * none). Borrowed, valid until the store is closed. */
+const broker_hist_t *broker_store_commit_times(const broker_store_t *self);
 
 /* The raw handle for store_load.c. Borrowed. */
 struct sqlite3 *broker_store_db(broker_store_t *self);

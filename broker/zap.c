@@ -14,6 +14,7 @@
 #include "common/clock.h"
 #include "common/log.h"
 #include "fdreserve.h"
+#include "stats.h"
 
 #define S_ZAP_ENDPOINT "inproc://zeromq.zap.01"
 #define S_ZAP_MAX_FRAMES 8
@@ -157,8 +158,11 @@ int broker_zap_secure(broker_zap_t *self, void *router, const char *role)
         return -1;
     }
     /* One monitor per socket: accept failures ride along (fdreserve.h). */
+    /* Connections opened and closed ride along too, for the metrics page
+     * (stats.h). */
     int events = ZMQ_EVENT_HANDSHAKE_FAILED_NO_DETAIL | ZMQ_EVENT_HANDSHAKE_FAILED_PROTOCOL |
-                 ZMQ_EVENT_HANDSHAKE_FAILED_AUTH | ZMQ_EVENT_ACCEPT_FAILED;
+                 ZMQ_EVENT_HANDSHAKE_FAILED_AUTH | ZMQ_EVENT_ACCEPT_FAILED |
+                 ZMQ_EVENT_ACCEPTED | ZMQ_EVENT_DISCONNECTED;
     int zero = 0;
     if (zmq_socket_monitor(router, ep, events) != 0 ||
         !(self->monitors[r].pair = zmq_socket(self->ctx, ZMQ_PAIR)) ||
@@ -327,6 +331,12 @@ static void s_handle_monitor(broker_zap_t *self, int role)
             zmq_msg_init(&frame);
             more = zmq_msg_recv(&frame, m->pair, 0) >= 0 && zmq_msg_more(&frame);
             zmq_msg_close(&frame);
+        }
+        if (event == ZMQ_EVENT_ACCEPTED || event == ZMQ_EVENT_DISCONNECTED) {
+            broker_stats_connection_event(role == S_WORKERS ? BROKER_STATS_WORKERS
+                                                            : BROKER_STATS_CLIENTS,
+                                          event);
+            continue;
         }
         /* Refusals by the allow-lists are logged by the handler, with the key. */
         if (event == ZMQ_EVENT_HANDSHAKE_FAILED_AUTH)

@@ -94,6 +94,7 @@ class Pool:
             if os.path.exists(epfile):
                 eps = dict(line.split(" ", 1) for line in open(epfile).read().split("\n") if line)
                 self.clients_ep, self.workers_ep = eps["clients"].strip(), eps["workers"].strip()
+                self.http_url = eps["http"].strip() if "http" in eps else None  # --http
                 return p
             time.sleep(0.02)
         raise RuntimeError("broker did not write its endpoints file")
