@@ -5,8 +5,9 @@ state, spool and log file in a temporary folder) and stopped by PID at the
 end. A real broker with CURVE keys; workers start only through sbatch.
 
 A search of 24 genomes with the stochastic `spin` plugin runs through the
-first job; that job is cancelled with scancel mid-run; a second job finishes
-the search. Every line must come back once, ok, with fitness bits identical
+first job (fitfarm-workers.sbatch); that job is cancelled with scancel
+mid-run; a second job, submitted by fitfarm-slurm-submit as the job-array
+pattern (fitfarm-workers-array.sbatch), finishes the search. Every line must come back once, ok, with fitness bits identical
 to the same genomes and seed evaluated on the embedded pool (no Slurm, no
 broker of ours): seeds depend on content only, never on which worker or
 attempt (DESIGN.md, "Keys, seeds, determinism").
@@ -214,8 +215,20 @@ try:
     check.ok(fflib.done_in_store(db) < N, "the job was cancelled mid-run")
     check.ok(cli.poll() is None, "the search waits for workers while none is left")
 
-    rc, job2, err = submit("second", pool.workers_ep, pool.key("worker.secret"), pool.key("broker.public"))
-    check.ok(rc == 0, f"second sbatch: {err}")
+    # The second job: the submit helper, with the job-array pattern of
+    # opportunistic workers (one element). It first refuses an endpoint
+    # where nothing listens.
+    helper = os.path.join(fflib.SOURCE, "deploy", "slurm", "fitfarm-slurm-submit")
+    common = ["--key", pool.key("worker.secret"), "--broker-key", pool.key("broker.public"),
+              "--program", fflib.exe("fitfarm-worker")]
+    r = subprocess.run([helper, "--broker", f"tcp://127.0.0.1:{free_port()}"] + common,
+                       capture_output=True, text=True, env=env, timeout=30)
+    check.ok(r.returncode == 2 and "nothing listens" in r.stderr, f"submit to a dead endpoint: {r.returncode} {r.stderr}")
+    r = subprocess.run([helper, "--broker", pool.workers_ep, "--array", "1", "--cpus", str(cpus)] + common
+                       + ["--", "-o", os.path.join(tmp, "out", "second-%A_%a.out")],
+                       capture_output=True, text=True, env=env, timeout=30)
+    job2 = r.stdout.strip().split(";")[0].split("_")[0]
+    check.ok(r.returncode == 0 and job2.isdigit(), f"fitfarm-slurm-submit --array 1: {r.returncode} {r.stdout} {r.stderr}")
     cli.wait(timeout=120)
     check.ok(cli.returncode == 0, f"the search finished, exit {cli.returncode}")
     out = [json.loads(l) for l in open(out_path).read().splitlines() if l.strip()]
@@ -227,6 +240,9 @@ try:
     same = sum(1 for r in ref if by_id.get(r["id"], {}).get("fitness") == r["fitness"]
                and by_id[r["id"]].get("status") == "ok")
     check.ok(same == N, f"{same} of {N} results bit-identical to the embedded pool's")
+    st = pool.status() or {}
+    names = [w.get("name") for w in st.get("workers", [])]
+    check.ok(any(n and f"job{job2}_0" in n for n in names), f"the array element's worker served the pool: {names}")
     slurm("scancel", job2)
     wait_for("the second job to end", lambda: job_gone(job2), 60)
 finally:
