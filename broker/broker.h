@@ -24,6 +24,10 @@ typedef struct {
      * as two lines "clients ENDPOINT\nworkers ENDPOINT\n"; NULL = nowhere.
      * Written atomically (temp file + rename) once both are bound. */
     const char *endpoints_file;
+    /* Where to write this process's PID once both endpoints listen (removed
+     * at exit); NULL = nowhere. A file naming a live process stops the
+     * start (pidfile.h). */
+    const char *pid_file;
     /* Security (zap.h). CURVE on both endpoints unless insecure; insecure
      * (plaintext) is refused unless both endpoints are ipc://, inproc:// or
      * loopback tcp://. */

@@ -28,6 +28,7 @@
 #include "guard.h"
 #include "http.h"
 #include "stats.h"
+#include "pidfile.h"
 #include "worker_io.h"
 
 static volatile sig_atomic_t s_stop;
@@ -175,6 +176,12 @@ int broker_main_run(const broker_config_t *config)
         return 1;
     }
     common_log_set_tag("broker");
+    char perr[1024];
+    int wrote_pid = 0;
+    if (config->pid_file && broker_pidfile_check(config->pid_file, perr, sizeof perr) != 0) {
+        LOG_ERROR("not starting: %s", perr);
+        return 1;
+    }
     broker_core_init_config(&b, config);
     b.now_ms = common_clock_ms();
 
@@ -216,6 +223,13 @@ int broker_main_run(const broker_config_t *config)
     if (config->endpoints_file &&
         s_write_endpoints(config->endpoints_file, clients_ep, workers_ep, http_url) != 0)
         goto cleanup;
+    if (config->pid_file) {
+        if (broker_pidfile_write(config->pid_file, perr, sizeof perr) != 0) {
+            LOG_ERROR("%s; stopping", perr);
+            goto cleanup;
+        }
+        wrote_pid = 1;
+    }
     LOG_INFO("broker ready: liveness %d ms, heartbeat %d ms, %u attempts per job; in RAM at "
              "most %" PRIu64 " cached results (~%" PRIu64 " MiB) and %" PRIu64
              " results per run awaiting acknowledgement (%" PRIu64 " in all)",
@@ -334,5 +348,7 @@ cleanup:
     sigaction(SIGTERM, &old_term, NULL);
     sigaction(SIGINT, &old_int, NULL);
     sigaction(SIGHUP, &old_hup, NULL);
+    if (wrote_pid)
+        broker_pidfile_remove(config->pid_file);
     return rc;
 }

@@ -36,6 +36,9 @@ static void s_usage(FILE *out)
             "                        \"clients EP\\nworkers EP\\n\" (atomically, once both are\n"
             "                        listening: a starter waits for this file to know the\n"
             "                        broker is ready)\n"
+            "  --pid-file FILE       write this process's PID there once listening; removed\n"
+            "                        at exit; refuses to start while FILE names a live\n"
+            "                        process. Reload allow-lists: kill -HUP \"$(cat FILE)\"\n"
             "  --lifeline-fd N       descriptor N (3..1023) is the read end of a pipe held\n"
             "                        open by the process that started the broker; when it\n"
             "                        reads end of file (that process died) the broker stops\n"
@@ -170,7 +173,7 @@ int main(int argc, char **argv)
         static const char *const with_value[] = {
             "--clients",          "--workers",          "--store",
             "--liveness",         "--lost-after",       "--heartbeat",        "--attempts",
-            "--endpoints-file",   "--key",              "--keys",
+            "--endpoints-file",   "--pid-file",         "--key",              "--keys",
             "--config",           "--max-message-bytes", "--max-genome-bytes",
             "--max-batch",        "--max-objectives",   "--max-string-bytes",
             "--max-queued-per-run", "--max-queued-per-client", "--max-unacked-per-run",
@@ -214,6 +217,8 @@ int main(int argc, char **argv)
                 return s_bad("%s", lerr);
         } else if (strcmp(a, "--endpoints-file") == 0) {
             cfg.endpoints_file = v;
+        } else if (strcmp(a, "--pid-file") == 0) {
+            cfg.pid_file = v;
         } else if (strcmp(a, "--key") == 0) {
             cfg.key_file = v;
         } else if (strcmp(a, "--keys") == 0) {

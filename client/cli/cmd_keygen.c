@@ -1,6 +1,7 @@
 /* cmd_keygen.c: `fitfarm keygen NAME [--dir DIR]`: a new CURVE key pair in
  * NAME.public and NAME.secret (common/keyfile.h has the format). Refuses to
  * overwrite either file. Not here: allow-lists (cmd_allow.c). */
+#include <errno.h>
 #include <stdio.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -15,7 +16,7 @@ static const char s_help[] =
     "Makes a CURVE key pair for a broker, a worker or a client: DIR/NAME.public\n"
     "(give it to the other side) and DIR/NAME.secret (mode 0600; never copy it off\n"
     "this machine). Refuses to overwrite an existing key. DIR defaults to the\n"
-    "current folder and is created (mode 0700) if missing.\n"
+    "current folder; it and any missing folder above it are created (mode 0700).\n"
     "\n"
     "Then, on the broker's machine:\n"
     "  fitfarm allow client NAME.public --keys KEYS    (a machine that submits)\n"
@@ -23,6 +24,41 @@ static const char s_help[] =
     "and start the daemons with --key NAME.secret (and --broker-key broker.public).\n"
     "\n"
     "exit status: 0 written, 1 not written (the reason is printed), 2 usage error.\n";
+
+/* Creates dir and every missing folder above it, each mode 0700 (a key
+ * folder's parents are often made just for it, like ~/.fitfarm/keys).
+ * Returns 0, or -1 with the folder that failed and why in err. */
+static int s_make_dirs(const char *dir, char *err, size_t err_len)
+{
+    char path[4096];
+    size_t n = strlen(dir);
+    if (n >= sizeof path) {
+        snprintf(err, err_len, "folder name too long (%zu bytes, at most %zu)", n,
+                 sizeof path - 1);
+        return -1;
+    }
+    memcpy(path, dir, n + 1);
+    for (size_t i = 1; i <= n; i++) {
+        if (path[i] != '/' && path[i] != '\0')
+            continue;
+        char c = path[i];
+        path[i] = '\0';
+        struct stat st;
+        if (stat(path, &st) == 0) {
+            if (!S_ISDIR(st.st_mode)) {
+                snprintf(err, err_len, "cannot create folder %s: %s exists and is not a folder",
+                         dir, path);
+                return -1;
+            }
+        } else if (mkdir(path, 0700) != 0 && errno != EEXIST) {
+            snprintf(err, err_len, "cannot create folder %s: mkdir %s: %s", dir, path,
+                     strerror(errno));
+            return -1;
+        }
+        path[i] = c;
+    }
+    return 0;
+}
 
 int cli_cmd_keygen(int argc, char **argv)
 {
@@ -53,9 +89,9 @@ int cli_cmd_keygen(int argc, char **argv)
                         "(see fitfarm keygen --help)\n");
         return 2;
     }
-    struct stat st;
-    if (stat(dir, &st) != 0 && mkdir(dir, 0700) != 0) {
-        fprintf(stderr, "fitfarm keygen: cannot create folder %s\n", dir);
+    char derr[4400];
+    if (s_make_dirs(dir, derr, sizeof derr) != 0) {
+        fprintf(stderr, "fitfarm keygen: %s\n", derr);
         return 1;
     }
     common_keypair_t *pair = NULL;

@@ -66,11 +66,34 @@ static int s_line(const char *line, size_t n, long number, void *arg, char *err,
         snprintf(err, errlen, "line %ld: %s is set twice", number, s_known[idx]);
         return -1;
     }
-    self->values[idx] = strndup(value, vn);
+    /* Paths starting "~/" (or just "~") are under $HOME, as in a shell:
+     * users write them so and expect them to work. "~user" is not expanded. */
+    const char *home = "";
+    size_t hn = 0;
+    if (idx != 0 && value[0] == '~' && (vn == 1 || value[1] == '/')) {
+        home = getenv("HOME");
+        if (!home || home[0] != '/') {
+            snprintf(err, errlen, "line %ld: %s starts with ~ but HOME is not set to a folder",
+                     number, s_known[idx]);
+            return -1;
+        }
+        hn = strlen(home);
+        value++;
+        vn--;
+        if (hn + vn > COMMON_CONFIG_VALUE_MAX) {
+            snprintf(err, errlen, "line %ld: %s is longer than %d bytes once ~ is expanded",
+                     number, s_known[idx], COMMON_CONFIG_VALUE_MAX);
+            return -1;
+        }
+    }
+    self->values[idx] = malloc(hn + vn + 1);
     if (!self->values[idx]) {
         snprintf(err, errlen, "out of memory");
         return -1;
     }
+    memcpy(self->values[idx], home, hn);
+    memcpy(self->values[idx] + hn, value, vn);
+    self->values[idx][hn + vn] = '\0';
     return 0;
 }
 

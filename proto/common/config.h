@@ -3,7 +3,8 @@
  * Format (ours): UTF-8 text, one "name = value" per line; '#' starts a
  * comment line; blank lines are ignored; names are lower-case letters, digits
  * and '_'; the value is the rest of the line with surrounding blanks removed
- * (no quoting: a path may contain spaces). Known names (one file may serve the
+ * (no quoting: a path may contain spaces; a path value "~" or "~/..." is
+ * under $HOME, "~user" is left as written). Known names (one file may serve the
  * broker, a worker and the CLI; each reads the names it needs):
  *     broker      the broker's endpoint (worker: workers endpoint; CLI: clients endpoint)
  *     key         this program's own .secret key file

@@ -273,6 +273,34 @@ void common_keypair_destroy(common_keypair_t **pair_p)
     *pair_p = NULL;
 }
 
+/* A secret key was asked for and path would not do: if it holds a public
+ * key (a NAME.public given as --key, mode 0644 as keygen makes it), err says
+ * that instead of calling it exposed or malformed. Public text is no secret:
+ * an ordinary read is fine. */
+static void s_public_instead(const char *path, char *err, size_t errlen)
+{
+    char *buf = NULL;
+    size_t len = 0;
+    uint8_t key[COMMON_KEY_BYTES];
+    char ignored[256];
+    if (!err || !errlen)
+        return;
+    if (s_read(path, 0, &buf, &len, ignored, sizeof ignored) != 0) {
+        free(buf); /* a too-long file leaves its first bytes here */
+        return;
+    }
+    if (common_keyfile_parse_public(buf, len, key, ignored, sizeof ignored) == 0) {
+        size_t n = strlen(path);
+        int named = n > 7 && strcmp(path + n - 7, ".public") == 0;
+        snprintf(err, errlen,
+                 "%s is a public key, but a secret key is needed here (this machine's own "
+                 "NAME.secret from fitfarm keygen%s%.*s%s)",
+                 path, named ? ", probably " : "", named ? (int)(n - 7) : 0, path,
+                 named ? ".secret" : "");
+    }
+    free(buf);
+}
+
 int common_keyfile_read_secret(const char *path, common_keypair_t **out, char *err,
                                size_t errlen)
 {
@@ -292,10 +320,13 @@ int common_keyfile_read_secret(const char *path, common_keypair_t **out, char *e
             snprintf(err, errlen, "out of secure memory reading %s", path);
         goto cleanup;
     }
-    if (s_read(path, 1, &buf, &len, err, errlen) != 0)
+    if (s_read(path, 1, &buf, &len, err, errlen) != 0) {
+        s_public_instead(path, err, errlen);
         goto cleanup;
+    }
     if (common_keyfile_parse_secret(buf, len, pair, err, errlen) != 0) {
         common_textfile_prefix(err, errlen, "key file", path);
+        s_public_instead(path, err, errlen);
         goto cleanup;
     }
     *out = pair;

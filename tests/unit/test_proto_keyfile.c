@@ -199,6 +199,22 @@ static void test_config_and_precedence(void **state)
     assert_non_null(strstr(err, "line 2"));
     assert_int_equal(common_config_parse("x = 1\n", 6, &c, err, sizeof err), -1);
     assert_non_null(strstr(err, "unknown setting"));
+
+    /* "~/" in a path is $HOME, as a POSIX shell's tilde expansion (common
+     * practice); "~user" and a ~ inside the path, or in the endpoint, stay. */
+    setenv("HOME", "/home/ff user", 1);
+    const char *tilde = "key = ~/.fitfarm/a.secret\nbroker_key = ~other/b.public\n"
+                        "keys_dir = ~\nbroker = tcp://~:1\n";
+    assert_int_equal(common_config_parse(tilde, strlen(tilde), &c, err, sizeof err), 0);
+    assert_string_equal(common_config_get(c, "key"), "/home/ff user/.fitfarm/a.secret");
+    assert_string_equal(common_config_get(c, "broker_key"), "~other/b.public");
+    assert_string_equal(common_config_get(c, "keys_dir"), "/home/ff user");
+    assert_string_equal(common_config_get(c, "broker"), "tcp://~:1");
+    common_config_destroy(&c);
+    unsetenv("HOME");
+    assert_int_equal(common_config_parse("key = ~/a\n", 10, &c, err, sizeof err), -1);
+    assert_non_null(strstr(err, "HOME"));
+    assert_non_null(strstr(err, "line 1"));
 }
 
 static void test_local_endpoints(void **state)
