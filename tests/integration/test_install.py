@@ -40,7 +40,7 @@ pc = subprocess.run(["pkg-config", "--cflags", "--libs", "fitfarm"], capture_out
 check.ok(pc.returncode == 0 and prefix in os.path.realpath(libdir) and "-lfitfarm" in pc.stdout,
          f"pkg-config fitfarm: {pc.stdout} {pc.stderr}")
 flags = pc.stdout.split()
-header = open(glob.glob(os.path.join(prefix, "include", "fitfarm.h"))[0]).read()
+header = open(glob.glob(os.path.join(prefix, "include", "fitfarm", "fitfarm.h"))[0]).read()
 check.ok("FITFARM_OPTIONS_INIT" in header, "the installed header is the one the example is written for")
 exe = os.path.join(tmp, "readme_example")
 src = os.path.join(fflib.SOURCE, "client", "examples", "readme_example.c")
@@ -118,7 +118,7 @@ sdk = os.path.join(tmp, "sdk")
 os.makedirs(sdk)
 with open(os.path.join(sdk, "tinysum.c"), "w") as f:
     f.write(PLUGIN_SRC)
-inc = os.path.join(prefix, "include")
+inc = os.path.join(prefix, "include", "fitfarm")
 check.ok(os.path.isfile(os.path.join(inc, "fitfarm_plugin.h")), "fitfarm_plugin.h is installed")
 so = os.path.join(sdk, "tinysum.so")
 cc = subprocess.run(["cc", "-std=c11", "-Wall", "-Wextra", "-Werror", "-ffp-contract=off", "-fPIC",
