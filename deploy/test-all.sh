@@ -16,6 +16,9 @@ cmake --build build -j"$JOBS"
 echo "== release tests"
 ctest --test-dir build --output-on-failure -j"$JOBS"
 
+echo "== package: .deb built, installed with dpkg, quick start from /usr/bin, removed"
+deploy/test-package.sh build-deb
+
 echo "== sanitizer build (ASan + UBSan)"
 cmake -S . -B build-san -DCMAKE_BUILD_TYPE=Debug -DFITFARM_SANITIZE=ON -DFITFARM_WERROR=ON >/dev/null
 cmake --build build-san -j"$JOBS"
