@@ -9,7 +9,7 @@ libcmocka-dev libsqlite3-dev sqlite3 libjansson-dev libcairo2-dev libfontconfig-
 clang libclang-rt-14-dev
 libmicrohttpd-dev python3-prometheus-client chromium
 slurmctld slurmd slurm-client munge
-systemd"
+systemd groff-base dpkg-dev"
 
 missing=""
 for p in $PACKAGES; do
