@@ -206,6 +206,29 @@ static void s_default_signals(void)
     sigprocmask(SIG_SETMASK, &none, NULL);
 }
 
+static void s_on_group_term(int sig)
+{
+    (void)sig; /* the worker decides: it drains, and stops us with SIGKILL */
+}
+
+/* A batch system stopping a job (Slurm's scancel, a preemption) sends
+ * SIGTERM to every process of the job, not only to the worker: with the
+ * default action a running evaluation died ("killed by signal 15") and was
+ * counted as a crashed attempt, although the worker was draining and meant
+ * to let it finish. A handler that does nothing keeps the evaluation
+ * running; unlike SIG_IGN it is reset by execve, so programs a plugin
+ * starts still get the default action. The worker itself stops children
+ * only with SIGKILL. */
+static void s_survive_group_term(void)
+{
+    struct sigaction sa;
+    memset(&sa, 0, sizeof sa);
+    sa.sa_handler = s_on_group_term;
+    sa.sa_flags = SA_RESTART; /* the plugin's system calls go on */
+    sigemptyset(&sa.sa_mask);
+    (void)sigaction(SIGTERM, &sa, NULL);
+}
+
 /* Kills what the evaluation left running: every child of ours except the
  * exec co-processes (they live across evaluations; their own helpers die
  * with them), and, through the subreaper, whatever those children had
@@ -243,6 +266,7 @@ void worker_child_run(int fd, const worker_registry_t *registry, size_t mem_limi
     if (getppid() != parent) /* the parent died before prctl took effect */
         _exit(0);
     s_default_signals();
+    s_survive_group_term();
     /* Orphans of the plugin's processes come to us, not to init: the sweep
      * after each evaluation finds them (reaper.h). */
     if (worker_reaper_become() != 0)
