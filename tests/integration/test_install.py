@@ -1,6 +1,7 @@
 """An installed fitfarm works on its own: `cmake --install` of this build
 into a temporary prefix, README's C example (client/examples/readme_example.c)
-compiled with `cc $(pkg-config --cflags --libs fitfarm)` against that prefix,
+compiled with `cc $(pkg-config --cflags --libs fitfarm)` against that prefix
+(and a plugin with `pkg-config --cflags fitfarm-plugin`),
 and run with only LD_LIBRARY_PATH (and PATH) set, from a folder outside the
 build tree. The library must find the installed fitfarm-broker and
 fitfarm-worker beside itself, and the worker its installed plugins, with no
@@ -121,10 +122,17 @@ with open(os.path.join(sdk, "tinysum.c"), "w") as f:
 inc = os.path.join(prefix, "include", "fitfarm")
 check.ok(os.path.isfile(os.path.join(inc, "fitfarm_plugin.h")), "fitfarm_plugin.h is installed")
 so = os.path.join(sdk, "tinysum.so")
-cc = subprocess.run(["cc", "-std=c11", "-Wall", "-Wextra", "-Werror", "-ffp-contract=off", "-fPIC",
-                     "-shared", "-I" + inc, "tinysum.c", "-o", so],
+# The plugin's flags from the installed fitfarm-plugin.pc (the SDK headers
+# and the floating-point flags a bit-exact plugin needs), nothing else.
+ppc = subprocess.run(["pkg-config", "--cflags", "fitfarm-plugin"], capture_output=True, text=True,
+                     env=env)
+incs = [os.path.realpath(f[2:]) for f in ppc.stdout.split() if f.startswith("-I")]
+check.ok(ppc.returncode == 0 and os.path.realpath(inc) in incs and "-ffp-contract=off" in ppc.stdout,
+         f"pkg-config --cflags fitfarm-plugin: {ppc.stdout} {ppc.stderr}")
+cc = subprocess.run(["cc", "-std=c11", "-Wall", "-Wextra", "-Werror", "-fPIC", "-shared"]
+                    + ppc.stdout.split() + ["tinysum.c", "-o", so],
                     capture_output=True, text=True, cwd=sdk, timeout=120)
-check.ok(cc.returncode == 0, f"a plugin compiles with only {inc}: {cc.stderr[-2000:]}")
+check.ok(cc.returncode == 0, f"a plugin compiles with pkg-config fitfarm-plugin: {cc.stderr[-2000:]}")
 if cc.returncode == 0:
     gs = fflib.genomes(20, 5, seed=3)
     run_env = {"LD_LIBRARY_PATH": libdir, "PATH": "/usr/bin:/bin", "HOME": tmp}
