@@ -575,9 +575,24 @@ static void s_on_ack(broker_t *b, const uint8_t *rid, size_t rid_len, const char
         return;
     }
     run->last_used_ms = b->now_ms;
-    for (uint32_t i = 0; i < a->n_tags; i++)
-        if (broker_runs_ack(&b->runs, run, a->tags[i]))
-            broker_store_note_ack(b->store, run, a->tags[i]);
+    /* Consecutive tags that were owed go to the store as one range. */
+    uint64_t first = 0, last = 0;
+    int open = 0;
+    for (uint32_t i = 0; i < a->n_tags; i++) {
+        uint64_t tag = a->tags[i];
+        if (!broker_runs_ack(&b->runs, run, tag))
+            continue;
+        if (open && last != UINT64_MAX && tag == last + 1) {
+            last = tag;
+            continue;
+        }
+        if (open)
+            broker_store_note_ack(b->store, run, first, last);
+        first = last = tag;
+        open = 1;
+    }
+    if (open)
+        broker_store_note_ack(b->store, run, first, last);
 }
 
 /* Lists the pool and the runs who may use (no other key's run, access.h). */

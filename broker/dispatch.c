@@ -40,6 +40,7 @@ uint64_t broker_dispatch_turn(broker_t *b)
             broker_worker_hold(w, e);
             broker_registry_spend(&b->registry, w);
             e->home->n_running++;
+            b->runs.total_running++;
             proto_job_t *j = &b->jobs[n++];
             j->job_id = e->job_id;
             j->plugin = e->plugin->name;
@@ -68,6 +69,8 @@ static void s_detach(broker_t *b, broker_eval_t *e)
         e->worker = NULL;
         assert(e->home->n_running > 0);
         e->home->n_running--;
+        assert(b->runs.total_running > 0);
+        b->runs.total_running--;
     } else if (e->state == BROKER_EVAL_QUEUED) {
         broker_runs_unqueue(&b->runs, e);
     }

@@ -132,23 +132,37 @@ static void s_drain(broker_t *b, void *sock, int workers)
 /* Returns 0, or -1 when the store could not commit (nothing went out), or 1
  * when it held this turn's writes for the next turn (may_hold only).
  *
- * The hold: a turn that sent jobs to workers and holds no results yet (a
- * new batch, say) leaves its commit to the next turn, at most
- * BROKER_COMMIT_HOLD_MS later. A quick evaluation's result then arrives
- * within the hold and one commit covers the request and its result, so a
- * single evaluation's round trip pays one fsync instead of two (its
- * ACCEPTED and RESULTS go out together). Nothing that depends on the held
- * writes goes out before they commit, so no guarantee changes; ACCEPTED is
- * at most BROKER_COMMIT_HOLD_MS later. */
+ * The hold (group commit across turns): while jobs are out on workers and
+ * the oldest write an answer depends on is younger than
+ * BROKER_COMMIT_HOLD_MS, the commit waits for the next turn, so results
+ * that arrive close together share one fsync. A quick evaluation's result
+ * arrives within the hold and one commit covers its request and its
+ * result (its ACCEPTED and RESULTS go out together), and a generation of
+ * quick evaluations, whose results come back in several messages, commits
+ * them together rather than once per message. Nothing that depends on the
+ * held writes goes out before they commit, so no guarantee changes; an
+ * answer is at most BROKER_COMMIT_HOLD_MS (plus a turn) later, and with no
+ * job out nothing is held. */
 static int s_before_sleep(broker_t *b, int may_hold)
 {
-    uint64_t sent = b->jobs_sent;
     /* A store that cannot write could not keep the results of new jobs:
      * the running ones finish and wait in memory, nothing more is sent. */
     if (!b->stopping && !broker_store_failing(b->store))
         broker_dispatch_turn(b);
-    if (may_hold && !b->stopping && b->jobs_sent > sent && broker_store_unwritten(b->store) == 0)
-        return 1;
+    if (may_hold && !b->stopping && b->runs.total_running > 0 &&
+        !broker_store_failing(b->store)) {
+        int64_t waited = broker_store_waiting_us(b->store, common_clock_us());
+        if (waited >= 0 && waited < (int64_t)BROKER_COMMIT_HOLD_MS * 1000)
+            return 1;
+    }
+    /* Only acknowledgements wait (store.h): no answer depends on them, so
+     * what is queued is durable already and goes out; they commit with the
+     * next turn's writes, or when their time is up (the poll time-out). */
+    if (!b->stopping && broker_store_commit_due_in_ms(b->store, common_clock_ms()) > 0) {
+        b->runs.epoch++;
+        broker_client_flush(b);
+        return 0;
+    }
     if (broker_store_commit(b->store) != 0) {
         /* Nothing that depends on it may go out (store.c logs, rate-limited),
          * but a client waiting for this turn's ACCEPTED hears why. */
@@ -259,6 +273,9 @@ int broker_main_run(const broker_config_t *config)
         long timeout = b.backlog_more ? 0 : broker_timers_timeout(&b.timers, b.now_ms);
         if (holding && (timeout < 0 || timeout > BROKER_COMMIT_HOLD_MS))
             timeout = BROKER_COMMIT_HOLD_MS; /* the held commit is made next turn */
+        long lazy = broker_store_commit_due_in_ms(b.store, b.now_ms);
+        if (lazy > 0 && (timeout < 0 || lazy < timeout))
+            timeout = lazy; /* acknowledgements left waiting commit then */
         long retry = broker_store_retry_in_ms(b.store);
         if (retry >= 0 && (timeout < 0 || retry < timeout))
             timeout = retry; /* wake for the store's next retry */
@@ -301,7 +318,7 @@ int broker_main_run(const broker_config_t *config)
         if (items[1].revents & ZMQ_POLLIN)
             s_drain(&b, b.workers, 1);
         broker_timers_run(&b.timers, b.now_ms);
-        holding = s_before_sleep(&b, !holding) == 1;
+        holding = s_before_sleep(&b, 1) == 1;
     }
     /* Stop accepting; what this process owes goes out before the sockets close. */
     b.stopping = 1;

@@ -115,6 +115,7 @@ typedef struct {
     broker_run_t *dirty_head;
     int64_t back_seq, front_seq;
     uint64_t total_queued;
+    uint64_t total_running; /* jobs on workers, over all runs (dispatch.c) */
     broker_delivery_t *free_nodes;
     /* bounded delivery */
     uint64_t max_per_run, max_total;

@@ -122,6 +122,7 @@ enum {
     S_FIND_FRESH,
     S_RESULT,
     S_ACK,
+    S_ACK_RANGE,
     S_UNACK,
     S_PLUGIN,
     S_FIND_RUN,
@@ -151,6 +152,7 @@ static const char *const s_sql[S_COUNT_] = {
                  " arch = ?10, digest = ?11, cpu_seconds = ?12, peak_rss_kb = ?13,"
                  " finished_at = ?14, run_id = ?15 WHERE key = ?1",
     [S_ACK] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag = ?2",
+    [S_ACK_RANGE] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag BETWEEN ?2 AND ?3",
     [S_UNACK] = "UPDATE requests SET acked = 0 WHERE run_id = ?1 AND tag = ?2 AND acked = 1",
     [S_PLUGIN] = "INSERT INTO plugins(name, version, objectives, flags, digests, last_seen,"
                  " seed_params, param_defaults) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)"
@@ -180,6 +182,12 @@ struct broker_store {
      * it holds in the user's terms. */
     broker_store_log_t log;
     uint64_t log_results, log_requests;
+    /* Of those, the writes an answer may depend on (all but
+     * acknowledgements), and when the first acknowledgement left waiting
+     * was noted (0: none): see broker_store_commit_due_in_ms. */
+    uint64_t log_must;
+    int64_t lazy_since_ms;
+    int64_t must_since_us; /* when the first of log_must was noted */
     /* Sticky failure: fail_rc != 0 from the first failed write or commit
      * until a retry of the whole log commits. */
     int fail_rc;
@@ -504,6 +512,12 @@ static int s_begin(broker_store_t *self, const char *sql_begin, sqlite3_stmt *st
 /* Starts op `which` in the log; the caller fills its values and calls s_write. */
 static size_t s_op(broker_store_t *self, int which)
 {
+    if (which != S_ACK && which != S_ACK_RANGE) {
+        if (self->log_must++ == 0)
+            self->must_since_us = common_clock_us();
+    }
+    else if (self->lazy_since_ms == 0)
+        self->lazy_since_ms = common_clock_ms();
     if (which == S_HISTORY || which == S_RESULT)
         self->log_results++;
     else if (which == S_REQUEST)
@@ -743,11 +757,16 @@ static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *
     s_write(self, i);
 }
 
-void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64_t tag)
+void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64_t first,
+                           uint64_t last)
 {
-    size_t i = s_op(self, S_ACK);
+    /* One statement for a generation's acknowledgements, which come as one
+     * range of tags, rather than one per tag. */
+    size_t i = s_op(self, first == last ? S_ACK : S_ACK_RANGE);
     s_text(self, i, 1, run->id);
-    s_u64(self, i, 2, tag);
+    s_u64(self, i, 2, first);
+    if (first != last)
+        s_u64(self, i, 3, last);
     s_write(self, i);
 }
 
@@ -846,8 +865,26 @@ int broker_store_commit(broker_store_t *self)
     }
     self->commits++;
     broker_store_log_clear(&self->log);
-    self->log_results = self->log_requests = 0;
+    self->log_results = self->log_requests = self->log_must = 0;
+    self->lazy_since_ms = 0;
     return 0;
+}
+
+int64_t broker_store_waiting_us(const broker_store_t *self, int64_t now_us)
+{
+    if (!self || self->log_must == 0)
+        return -1;
+    return now_us > self->must_since_us ? now_us - self->must_since_us : 0;
+}
+
+long broker_store_commit_due_in_ms(const broker_store_t *self, int64_t now_ms)
+{
+    if (!self || self->fail_rc || self->log_must > 0)
+        return 0; /* a failing store keeps its own retry pacing (commit) */
+    if (self->lazy_since_ms == 0)
+        return -1;
+    int64_t left = self->lazy_since_ms + BROKER_STORE_LAZY_MS - now_ms;
+    return left > 0 ? (long)left : 0;
 }
 
 int broker_store_failing(const broker_store_t *self)

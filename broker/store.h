@@ -77,7 +77,9 @@ int broker_store_find_fresh_result(broker_store_t *self, const char *run_id,
 void broker_store_note_result(broker_store_t *self, const broker_eval_t *e,
                               const proto_outcome_t *o, const char *worker, const char *host,
                               const char *arch);
-void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64_t tag);
+/* Request tags first..last of run (each owed until now) were acknowledged. */
+void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64_t first,
+                           uint64_t last);
 /* A recorded request is answered again by a re-evaluation of its own (a
  * crash or time-out retried on resume): it now reads its run's latest
  * re-evaluation, as a no-cache request does, and is owed again. */
@@ -93,6 +95,23 @@ void broker_store_note_plugin(broker_store_t *self, const broker_plugin_t *p);
  * transaction once the back-off allows (broker_store_retry_in_ms), until one
  * commits. */
 int broker_store_commit(broker_store_t *self);
+/* When this turn's writes must commit, in milliseconds from now_ms
+ * (common_clock_ms): 0 when something noted since the last commit must be
+ * durable before an answer goes out (every note but an acknowledgement),
+ * or while failing; the time left of BROKER_STORE_LAZY_MS when only
+ * acknowledgements wait; -1 when nothing waits.
+ *
+ * Why acknowledgements may wait: delivery is at-least-once on the wire and
+ * the client drops duplicates by tag (DESIGN.md, reliability), so an
+ * acknowledgement lost in a crash costs a re-sent result, never a wrong
+ * one. Left open, they ride on the next commit that must happen anyway:
+ * an optimizer's generation, whose ACK arrives just before its next
+ * SUBMIT, pays one fsync fewer. */
+long broker_store_commit_due_in_ms(const broker_store_t *self, int64_t now_ms);
+/* How long (microseconds at now_us, common_clock_us) the oldest note an
+ * answer depends on has waited for a commit; -1 when none waits. */
+int64_t broker_store_waiting_us(const broker_store_t *self, int64_t now_us);
+#define BROKER_STORE_LAZY_MS 100 /* longest acknowledgements wait for a commit */
 /* 1 while the store cannot write (a failed write or commit not yet
  * retried successfully); 0 when writable or self is NULL. */
 int broker_store_failing(const broker_store_t *self);

@@ -144,9 +144,20 @@ with fflib.Pool(broker_args=CAPS) as pool:
     run = [r for r in st.get("runs", []) if r.get("run") == "away"]
     check.ok(run and run[0].get("evaluated") == N,
              f"nothing evaluated twice: evaluated {run[0].get('evaluated') if run else '?'} for {N} lines")
-    db = sqlite3.connect(f"file:{db_path}?mode=ro", uri=True)
-    unacked = db.execute("SELECT count(*) FROM requests WHERE run_id = 'away' AND acked = 0").fetchone()[0]
-    db.close()
+    def count_unacked():
+        db = sqlite3.connect(f"file:{db_path}?mode=ro", uri=True)
+        try:
+            return db.execute("SELECT count(*) FROM requests WHERE run_id = 'away' AND acked = 0"
+                              ).fetchone()[0]
+        finally:
+            db.close()
+    # Acknowledgements commit with the next write or within 100 ms
+    # (BROKER_STORE_LAZY_MS, broker/store.h): give them a moment.
+    deadline = time.time() + 3
+    unacked = count_unacked()
+    while unacked and time.time() < deadline:
+        time.sleep(0.05)
+        unacked = count_unacked()
     check.ok(unacked == 0, f"the store marks every request of the run acknowledged ({unacked} not)")
     # Outside reference for the bits: an uninterrupted embedded run of the
     # same input and seed (spin draws from the documented seed derivation).

@@ -189,6 +189,11 @@ with fflib.Pool(tmp=tmp, broker_exe="fitfarm-broker-faults",
     # space is back the run's requests (kept in the write log) are answered
     # when it is resumed.
     caught = fflib.jsonl(fflib.genomes(5, 4, seed=123))
+    # The fault seam applies the limit when a write transaction begins; the
+    # first client's last acknowledgements may still wait in an open one
+    # (BROKER_STORE_LAZY_MS, 100 ms, broker/store.h), which the caught
+    # batch would join. Let them commit first.
+    time.sleep(0.5)
     open(pages, "w").write("+0")  # full from the next write on
     t0 = time.time()
     rc3, lines3, err3 = fflib.run_eval(["--broker", pool.clients_ep, "--run", "caught"] + PARAMS,
