@@ -55,16 +55,13 @@ static int s_line(const char *line, size_t n, long number, void *arg, char *err,
         snprintf(err, errlen, "line %ld: more than %d keys", number, COMMON_ALLOW_MAX_KEYS);
         return -1;
     }
-    if (self->n == p->cap) {
-        size_t ncap = p->cap ? p->cap * 2 : 16;
-        common_allow_entry_t *e = realloc(self->entries, ncap * sizeof *e);
-        if (!e) {
-            snprintf(err, errlen, "out of memory");
-            return -1;
-        }
-        self->entries = e;
-        p->cap = ncap;
+    common_allow_entry_t *grown =
+        common_keyline_grow(self->entries, &p->cap, self->n, sizeof *self->entries);
+    if (!grown) {
+        snprintf(err, errlen, "out of memory");
+        return -1;
     }
+    self->entries = grown;
     common_allow_entry_t *e = &self->entries[self->n];
     memset(e, 0, sizeof *e);
     if (common_keyline_split(line, n, number, "label", 0, COMMON_ALLOW_LABEL_MAX, e->key, e->label,
@@ -84,15 +81,8 @@ int common_allowlist_parse(const char *text, size_t len, common_allowlist_t **ou
         snprintf(err, errlen, "out of memory");
         return -1;
     }
-    if (len > COMMON_ALLOW_MAX_BYTES) {
-        snprintf(err, errlen, "%zu bytes: larger than an allow-list may be (%u)", len,
-                 COMMON_ALLOW_MAX_BYTES);
+    if (common_keyline_text_ok(text, len, COMMON_ALLOW_MAX_BYTES, "an allow-list", err, errlen) != 0)
         goto cleanup;
-    }
-    if (memchr(text, '\0', len)) {
-        snprintf(err, errlen, "contains a NUL byte: not an allow-list");
-        goto cleanup;
-    }
     s_parse_t p = {self, 0};
     if (common_textfile_lines(text, len, 0, s_line, &p, err, errlen) != 0)
         goto cleanup;

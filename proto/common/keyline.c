@@ -3,6 +3,7 @@
 #include "keyline.h"
 
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 int common_keyline_char_ok(unsigned char c)
@@ -40,5 +41,30 @@ int common_keyline_split(const char *line, size_t n, long number, const char *wh
     }
     memcpy(text, t, tn);
     text[tn] = '\0';
+    return 0;
+}
+
+void *common_keyline_grow(void *entries, size_t *cap, size_t n, size_t elem)
+{
+    if (n < *cap)
+        return entries;
+    size_t ncap = *cap ? *cap * 2 : 16;
+    void *grown = realloc(entries, ncap * elem);
+    if (grown)
+        *cap = ncap;
+    return grown;
+}
+
+int common_keyline_text_ok(const char *text, size_t len, size_t max, const char *what, char *err,
+                           size_t errlen)
+{
+    if (len > max) {
+        snprintf(err, errlen, "%zu bytes: larger than %s may be (%zu)", len, what, max);
+        return -1;
+    }
+    if (memchr(text, '\0', len)) {
+        snprintf(err, errlen, "contains a NUL byte: not %s", what);
+        return -1;
+    }
     return 0;
 }

@@ -23,4 +23,15 @@ int common_keyline_split(const char *line, size_t n, long number, const char *wh
                          size_t max, uint8_t key[COMMON_KEY_BYTES], char *text, char *err,
                          size_t errlen);
 
+/* Room for entry n in an array of elem-byte entries holding *cap: returns
+ * entries, or a copy twice as large (16 at first, *cap updated), or NULL
+ * when out of memory (entries untouched). */
+void *common_keyline_grow(void *entries, size_t *cap, size_t n, size_t elem);
+
+/* A list's whole text, before its lines are read: at most max bytes and no
+ * NUL. what names the list in the messages ("an allow-list"). Returns 0, or
+ * -1 with the reason in err. */
+int common_keyline_text_ok(const char *text, size_t len, size_t max, const char *what, char *err,
+                           size_t errlen);
+
 #endif

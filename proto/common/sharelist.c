@@ -56,16 +56,12 @@ static int s_line(const char *line, size_t n, long number, void *arg, char *err,
         snprintf(err, errlen, "line %ld: more than %d shares", number, COMMON_SHARE_MAX_ENTRIES);
         return -1;
     }
-    if (self->n == self->cap) {
-        size_t ncap = self->cap ? self->cap * 2 : 16;
-        s_entry_t *e = realloc(self->entries, ncap * sizeof *e);
-        if (!e) {
-            snprintf(err, errlen, "out of memory");
-            return -1;
-        }
-        self->entries = e;
-        self->cap = ncap;
+    s_entry_t *grown = common_keyline_grow(self->entries, &self->cap, self->n, sizeof *grown);
+    if (!grown) {
+        snprintf(err, errlen, "out of memory");
+        return -1;
     }
+    self->entries = grown;
     s_entry_t *e = &self->entries[self->n];
     memset(e, 0, sizeof *e);
     if (common_keyline_split(line, n, number, "run id", 1, COMMON_SHARE_RUN_MAX, e->key, e->run,
@@ -85,15 +81,8 @@ int common_sharelist_parse(const char *text, size_t len, common_sharelist_t **ou
         snprintf(err, errlen, "out of memory");
         return -1;
     }
-    if (len > COMMON_SHARE_MAX_BYTES) {
-        snprintf(err, errlen, "%zu bytes: larger than a share list may be (%u)", len,
-                 COMMON_SHARE_MAX_BYTES);
+    if (common_keyline_text_ok(text, len, COMMON_SHARE_MAX_BYTES, "a share list", err, errlen) != 0)
         goto cleanup;
-    }
-    if (memchr(text, '\0', len)) {
-        snprintf(err, errlen, "contains a NUL byte: not a share list");
-        goto cleanup;
-    }
     if (common_textfile_lines(text, len, 0, s_line, self, err, errlen) != 0)
         goto cleanup;
     if (self->n > 1)
