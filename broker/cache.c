@@ -12,7 +12,7 @@
 
 static const char s_lookup_sql[] =
     "SELECT plugin, params, genome, seed, timeout_ms, max_attempts, status, fitness, error,"
-    " attempts, " BROKER_CACHE_PROVENANCE_COLUMNS
+    " attempts, " BROKER_CACHE_PROVENANCE_COLUMNS ", version"
     " FROM evaluations WHERE key = ?1 AND status IS NOT NULL";
 
 /* Fitness doubles from a little-endian blob; returns how many (capped). */
@@ -70,7 +70,10 @@ broker_eval_t *broker_cache_lookup(broker_t *b, const uint8_t key[PROTO_KEY_BYTE
     if (rc == SQLITE_ROW) {
         const char *name = (const char *)sqlite3_column_text(st, 0);
         const char *params = (const char *)sqlite3_column_text(st, 1);
-        broker_plugin_t *plugin = name ? broker_catalog_get(&b->catalog, name) : NULL;
+        const char *version = (const char *)sqlite3_column_text(st, 15);
+        /* The version the key was computed with (it is part of the key). */
+        broker_plugin_t *plugin =
+            name && version ? broker_catalog_get(&b->catalog, name, version) : NULL;
         if (plugin && params) {
             double fit[PROTO_MAX_OBJECTIVES];
             e = broker_evals_new(&b->evals, key, plugin, broker_intern(&b->intern, params),

@@ -1,6 +1,6 @@
 /* catalog.c: the plugin catalog (see catalog.h). Owns the entries and their
  * strings; entries are never removed, so pointers to them stay valid for the
- * broker's life (evaluations keep one). */
+ * broker's life (evaluations and run queues keep one). */
 #include "catalog.h"
 
 #include <stdio.h>
@@ -11,6 +11,7 @@
 #include "common/log.h"
 #include "key.h"
 #include "params.h"
+#include "version.h"
 
 static void s_free_seed_params(broker_plugin_t *p)
 {
@@ -60,6 +61,7 @@ void broker_catalog_init(broker_catalog_t *self)
 {
     memset(self, 0, sizeof *self);
     self->by_name = broker_table_new();
+    self->by_ref = broker_table_new();
 }
 
 void broker_catalog_fini(broker_catalog_t *self)
@@ -67,19 +69,46 @@ void broker_catalog_fini(broker_catalog_t *self)
     for (uint32_t i = 0; i < self->n; i++) {
         free(self->list[i]->name);
         free(self->list[i]->version);
-        free(self->list[i]->other_version);
+        free(self->list[i]->ref);
         s_free_seed_params(self->list[i]);
         free(self->list[i]->param_defaults);
         free(self->list[i]);
     }
     free(self->list);
     broker_table_destroy(&self->by_name);
+    broker_table_destroy(&self->by_ref);
     memset(self, 0, sizeof *self);
 }
 
-broker_plugin_t *broker_catalog_get(const broker_catalog_t *self, const char *name)
+broker_plugin_t *broker_catalog_first(const broker_catalog_t *self, const char *name)
 {
     return broker_table_get(self->by_name, name, strlen(name));
+}
+
+broker_plugin_t *broker_catalog_get(const broker_catalog_t *self, const char *name,
+                                    const char *version)
+{
+    size_t nl = strlen(name), vl = strlen(version);
+    if (nl + vl + 1 > 2 * PROTO_MAX_NAME_BYTES)
+        return NULL; /* longer than any entry can be */
+    char ref[2 * PROTO_MAX_NAME_BYTES + 1];
+    memcpy(ref, name, nl + 1);
+    memcpy(ref + nl + 1, version, vl);
+    return broker_table_get(self->by_ref, ref, nl + 1 + vl);
+}
+
+broker_plugin_t *broker_catalog_resolve(const broker_catalog_t *self, const char *name,
+                                        const char *constraint)
+{
+    broker_plugin_t *first = broker_catalog_first(self, name);
+    if (!constraint)
+        return first;
+    broker_plugin_t *best = NULL;
+    for (broker_plugin_t *p = first; p; p = p->next_version)
+        if (proto_version_matches(p->version, constraint) &&
+            (!best || proto_version_cmp(p->version, best->version) > 0))
+            best = p; /* strictly higher: a tie keeps the one seen first */
+    return best;
 }
 
 int broker_plugin_stochastic(const broker_plugin_t *plugin, const char *canonical_params)
@@ -89,34 +118,52 @@ int broker_plugin_stochastic(const broker_plugin_t *plugin, const char *canonica
     return !proto_params_all_zero(canonical_params, plugin->seed_params, plugin->n_seed_params);
 }
 
-broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugin_info_t *info)
+static broker_plugin_t *s_new_entry(broker_catalog_t *self, const proto_plugin_info_t *info)
 {
-    broker_plugin_t *p = broker_catalog_get(self, info->name);
-    if (!p) {
-        p = common_xcalloc(1, sizeof *p);
-        p->id = self->n;
-        p->name = common_xstrdup(info->name);
-        p->version = common_xstrdup(info->version);
-        p->objectives = info->objectives;
-        p->flags = info->flags;
-        s_take_seed_params(p, info);
-        s_take_param_defaults(p, info);
-        if (self->n == self->cap) {
-            self->cap = self->cap ? self->cap * 2 : 8;
-            self->list = common_xrealloc(self->list, self->cap, sizeof *self->list);
-        }
-        self->list[self->n++] = p;
+    broker_plugin_t *p = common_xcalloc(1, sizeof *p);
+    p->id = self->n;
+    p->name = common_xstrdup(info->name);
+    p->version = common_xstrdup(info->version);
+    size_t nl = strlen(info->name), vl = strlen(info->version);
+    p->ref_len = nl + 1 + vl;
+    p->ref = common_xmalloc(p->ref_len + 1);
+    memcpy(p->ref, info->name, nl + 1);
+    memcpy(p->ref + nl + 1, info->version, vl + 1);
+    p->objectives = info->objectives;
+    p->flags = info->flags;
+    s_take_seed_params(p, info);
+    s_take_param_defaults(p, info);
+    if (self->n == self->cap) {
+        self->cap = self->cap ? self->cap * 2 : 8;
+        self->list = common_xrealloc(self->list, self->cap, sizeof *self->list);
+    }
+    self->list[self->n++] = p;
+    broker_table_put(self->by_ref, p->ref, p->ref_len, p);
+    broker_plugin_t *first = broker_catalog_first(self, p->name);
+    if (!first) {
         broker_table_put(self->by_name, p->name, strlen(p->name), p);
+        return p;
     }
-    if (strcmp(p->version, info->version) != 0) {
-        if (!p->other_version) {
-            p->other_version = common_xstrdup(info->version);
-            LOG_WARN("plugin %s is reported at version %s and %s; jobs go only to workers "
-                     "with %s",
-                     p->name, p->version, info->version, p->version);
-        }
-        return NULL;
-    }
+    broker_plugin_t *last = first;
+    while (last->next_version)
+        last = last->next_version;
+    last->next_version = p;
+    char versions[512];
+    broker_catalog_versions(self, p->name, versions, sizeof versions);
+    LOG_INFO("plugin %s is now known at version %s too (known: %s); jobs for each version go "
+             "only to workers that carry it, and a plugin given without a version stays %s",
+             p->name, p->version, versions, first->version);
+    return p;
+}
+
+broker_plugin_t *broker_catalog_report(broker_catalog_t *self, const proto_plugin_info_t *info,
+                                       broker_plugin_t **known)
+{
+    broker_plugin_t *p = broker_catalog_get(self, info->name, info->version);
+    if (!p)
+        p = s_new_entry(self, info);
+    if (known)
+        *known = p;
     if (p->flags != info->flags)
         LOG_WARN("plugin %s %s is reported with flags %u and %u; keeping %u", p->name,
                  p->version, p->flags, info->flags, p->flags);
@@ -165,11 +212,13 @@ void broker_catalog_names(const broker_catalog_t *self, char *out, size_t outlen
         return;
     out[0] = '\0';
     broker_plugin_t **sorted = common_xcalloc(self->n ? self->n : 1, sizeof *sorted);
-    if (self->n)
-        memcpy(sorted, self->list, self->n * sizeof *sorted);
-    qsort(sorted, self->n, sizeof *sorted, s_cmp_names);
+    uint32_t n = 0;
+    for (uint32_t i = 0; i < self->n; i++)
+        if (broker_catalog_first(self, self->list[i]->name) == self->list[i])
+            sorted[n++] = self->list[i]; /* one per name */
+    qsort(sorted, n, sizeof *sorted, s_cmp_names);
     size_t used = 0;
-    for (uint32_t i = 0; i < self->n && used < outlen; i++) {
+    for (uint32_t i = 0; i < n && used < outlen; i++) {
         int k = snprintf(out + used, outlen - used, "%s%s", i ? ", " : "", sorted[i]->name);
         if (k < 0)
             break;
@@ -178,17 +227,77 @@ void broker_catalog_names(const broker_catalog_t *self, char *out, size_t outlen
     free(sorted);
 }
 
+static int s_cmp_versions(const void *a, const void *b)
+{
+    const broker_plugin_t *x = *(broker_plugin_t *const *)a, *y = *(broker_plugin_t *const *)b;
+    int d = proto_version_cmp(x->version, y->version);
+    return d ? d : (x->id > y->id) - (x->id < y->id);
+}
+
+/* The versions of p's name other than p's that connected workers carry
+ * ("1.3 (2 workers), 2.0 (1 worker)"), in version order; "" when none.
+ * Returns how many workers carry them. */
+static uint32_t s_carried_elsewhere(const broker_catalog_t *self, const broker_plugin_t *p,
+                                    char *out, size_t outlen)
+{
+    broker_plugin_t *list[64];
+    uint32_t n = 0, workers = 0;
+    for (broker_plugin_t *q = broker_catalog_first(self, p->name); q && n < 64;
+         q = q->next_version)
+        if (q != p && q->carriers > 0)
+            list[n++] = q;
+    qsort(list, n, sizeof *list, s_cmp_versions);
+    out[0] = '\0';
+    size_t used = 0;
+    for (uint32_t i = 0; i < n && used < outlen; i++) {
+        workers += list[i]->carriers;
+        int k = snprintf(out + used, outlen - used, "%s%s (%u worker%s)", i ? ", " : "",
+                         list[i]->version, list[i]->carriers, list[i]->carriers == 1 ? "" : "s");
+        if (k < 0)
+            break;
+        used += (size_t)k;
+    }
+    return workers;
+}
+
+void broker_catalog_versions(const broker_catalog_t *self, const char *name, char *out,
+                             size_t outlen)
+{
+    if (outlen == 0)
+        return;
+    out[0] = '\0';
+    broker_plugin_t *list[64];
+    uint32_t n = 0, more = 0;
+    for (broker_plugin_t *q = broker_catalog_first(self, name); q; q = q->next_version) {
+        if (n < 64)
+            list[n++] = q;
+        else
+            more++;
+    }
+    qsort(list, n, sizeof *list, s_cmp_versions);
+    size_t used = 0;
+    for (uint32_t i = 0; i < n && used < outlen; i++) {
+        int k = snprintf(out + used, outlen - used, "%s%s", i ? ", " : "", list[i]->version);
+        if (k < 0)
+            break;
+        used += (size_t)k;
+    }
+    if (more && used < outlen)
+        snprintf(out + used, outlen - used, " and %u more", more);
+}
+
 static void s_push(char ***warnings, uint32_t *n, char *text)
 {
     *warnings = common_xrealloc(*warnings, (size_t)*n + 1, sizeof **warnings);
     (*warnings)[(*n)++] = text;
 }
 
-uint32_t broker_catalog_warnings(const broker_catalog_t *self, char ***warnings, uint32_t n)
+uint32_t broker_catalog_warnings(const broker_catalog_t *self, const uint8_t *wanted,
+                                 char ***warnings, uint32_t n)
 {
     for (uint32_t i = 0; i < self->n; i++) {
         const broker_plugin_t *p = self->list[i];
-        char text[512];
+        char text[1024];
         if (p->n_digests > 1) {
             char a[2 * PROTO_DIGEST_BYTES + 1], b[2 * PROTO_DIGEST_BYTES + 1];
             proto_hex(p->digests[0], PROTO_DIGEST_BYTES, a);
@@ -201,25 +310,39 @@ uint32_t broker_catalog_warnings(const broker_catalog_t *self, char ***warnings,
                      p->name, p->version, p->n_digests == 2 ? "two" : "several", a, b, a);
             s_push(warnings, &n, common_xstrdup(text));
         }
-        if (p->carriers == 0 && p->blocked_offers > 0) {
-            char pinned[2 * PROTO_DIGEST_BYTES + 1] = "";
-            if (p->n_digests > 0) {
-                proto_hex(p->digests[0], PROTO_DIGEST_BYTES, pinned);
-                pinned[12] = '\0';
-            }
+        if (p->carriers > 0)
+            continue;
+        char pinned[2 * PROTO_DIGEST_BYTES + 1] = "";
+        if (p->n_digests > 0) {
+            proto_hex(p->digests[0], PROTO_DIGEST_BYTES, pinned);
+            pinned[12] = '\0';
+        }
+        char others[512];
+        uint32_t elsewhere = s_carried_elsewhere(self, p, others, sizeof others);
+        int waits = wanted && wanted[p->id];
+        if (p->blocked_offers > 0) {
+            /* Said even with nothing queued, as it always was: a pinned-out
+             * build is worth knowing before the first batch. */
             snprintf(text, sizeof text,
                      "plugin %s %s: no connected worker can take its jobs: %u worker(s) offer "
-                     "it with another build or version; its jobs wait for a worker with "
-                     "version %s%s%s",
-                     p->name, p->version, p->blocked_offers, p->version,
-                     pinned[0] ? " and build " : "", pinned[0] ? pinned : "");
+                     "it with another build%s%s; its jobs wait for a worker with version %s%s%s",
+                     p->name, p->version, p->blocked_offers,
+                     elsewhere ? ", and workers offer other versions: " : "",
+                     elsewhere ? others : "", p->version, pinned[0] ? " and build " : "",
+                     pinned[0] ? pinned : "");
             s_push(warnings, &n, common_xstrdup(text));
-        }
-        if (p->other_version) {
+        } else if (waits && elsewhere) {
             snprintf(text, sizeof text,
-                     "plugin %s is reported at versions %s and %s: only workers with %s get "
-                     "its jobs",
-                     p->name, p->version, p->other_version, p->version);
+                     "plugin %s %s: no connected worker offers plugin %s version %s; workers "
+                     "offer it at another version: %s; its jobs wait for a worker with version "
+                     "%s (give a version constraint, %s@VERSION, to use another)",
+                     p->name, p->version, p->name, p->version, others, p->version, p->name);
+            s_push(warnings, &n, common_xstrdup(text));
+        } else if (waits) {
+            snprintf(text, sizeof text,
+                     "plugin %s %s: no connected worker offers plugin %s version %s; its jobs "
+                     "wait until one joins",
+                     p->name, p->version, p->name, p->version);
             s_push(warnings, &n, common_xstrdup(text));
         }
     }

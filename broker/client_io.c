@@ -20,6 +20,7 @@
 #include "quota.h"
 #include "stats.h"
 #include "status.h"
+#include "version.h"
 
 #define S_REFUSAL_QUIET_MS 10000
 
@@ -272,18 +273,39 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                  !s->run_id || !*s->run_id ? "the run id is empty" : "unknown seed mode");
         goto cleanup;
     }
-    broker_plugin_t *plugin = broker_catalog_get(&b->catalog, s->plugin);
+    /* "name" or "name@constraint", resolved here once: the key names the
+     * version, so every request of the batch is bound to it (catalog.h). */
+    char pname[PROTO_MAX_NAME_BYTES + 1];
+    const char *constraint = NULL;
+    if (proto_plugin_ref_split(s->plugin, pname, sizeof pname, &constraint, text,
+                               sizeof text) != 0) {
+        rc = PROTO_REFUSE_UNKNOWN_PLUGIN;
+        s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+        goto cleanup;
+    }
+    broker_plugin_t *plugin = broker_catalog_resolve(&b->catalog, pname, constraint);
+    if (!plugin && constraint && broker_catalog_first(&b->catalog, pname)) {
+        char versions[1024];
+        broker_catalog_versions(&b->catalog, pname, versions, sizeof versions);
+        snprintf(text, sizeof text,
+                 "no worker has offered plugin %s at a version matching %s (a version that is "
+                 "%s or starts with %s.); known versions: %s",
+                 pname, constraint, constraint, constraint, versions);
+        rc = PROTO_REFUSE_UNKNOWN_PLUGIN;
+        s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
+        goto cleanup;
+    }
     if (!plugin) {
         char names[1024];
         broker_catalog_names(&b->catalog, names, sizeof names);
         if (names[0])
             snprintf(text, sizeof text,
-                     "no worker in the pool carries plugin '%s'; the pool has: %s", s->plugin,
+                     "no worker in the pool carries plugin '%s'; the pool has: %s", pname,
                      names);
         else
             snprintf(text, sizeof text,
                      "no worker in the pool carries plugin '%s'; the pool has no workers yet",
-                     s->plugin);
+                     pname);
         rc = PROTO_REFUSE_UNKNOWN_PLUGIN;
         s_refuse(b, rid, rid_len, rc, s->batch_tag, s->run_id, text);
         goto cleanup;
@@ -388,11 +410,22 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         if (memcmp(old, keys[i], PROTO_KEY_BYTES) != 0) {
             if (s->flags & PROTO_SUBMIT_REPLAY)
                 break; /* other content under a recorded tag: never seen, refused below */
-            snprintf(text, sizeof text,
-                     "run %s request %" PRIu64 " (item %u of the batch) was recorded with "
-                     "another genome or params; one client per run at a time, and a resumed "
-                     "run must send the same requests in the same order",
-                     run->id, s->items[i].tag, i);
+            /* Another version of the plugin (a constraint that now resolves
+             * higher) says so, naming the version that resumes the run. */
+            broker_eval_t *was = broker_cache_lookup(b, old);
+            if (was && was->plugin != plugin && strcmp(was->plugin->name, plugin->name) == 0)
+                snprintf(text, sizeof text,
+                         "run %s request %" PRIu64 " (item %u of the batch) was recorded with "
+                         "plugin %s version %s, and %s now means version %s; resume it with "
+                         "the version it was recorded with (%s@%s)",
+                         run->id, s->items[i].tag, i, was->plugin->name, was->plugin->version,
+                         s->plugin, plugin->version, was->plugin->name, was->plugin->version);
+            else
+                snprintf(text, sizeof text,
+                         "run %s request %" PRIu64 " (item %u of the batch) was recorded with "
+                         "another genome or params; one client per run at a time, and a "
+                         "resumed run must send the same requests in the same order",
+                         run->id, s->items[i].tag, i);
             rc = PROTO_REFUSE_RUN_MISMATCH;
             s_refuse_item(b, rid, rid_len, rc, s->batch_tag, s->run_id, &s->items[i], text);
             goto cleanup;
@@ -422,9 +455,10 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     if (!run) {
         run = broker_runs_new(&b->runs, s->run_id, s->run_seed, s->seed_mode, who);
         broker_quota_attach(b, run);
-        LOG_INFO("run %s started by client %s (%s): seed %" PRIu64 ", plugin %s", run->id,
+        LOG_INFO("run %s started by client %s (%s): seed %" PRIu64 ", plugin %s %s%s%s", run->id,
                  broker_rid_hex(rid, rid_len, hex), broker_access_name(who, name), run->seed,
-                 plugin->name);
+                 plugin->name, plugin->version, constraint ? ", asked as " : "",
+                 constraint ? s->plugin : "");
     } else {
         if (access == BROKER_ACCESS_CLAIM) {
             broker_quota_detach(b, run);

@@ -40,7 +40,7 @@ typedef struct broker_worker {
     uint32_t slots;
     broker_plugin_t **plugins; /* carried, borrowed from the catalog */
     uint32_t n_plugins;
-    broker_plugin_t **blocked; /* offered with another build or version: no jobs */
+    broker_plugin_t **blocked; /* offered with another build than the pinned: no jobs */
     uint32_t n_blocked;
     uint8_t *carries; /* bitmap over catalog plugin ids */
     uint32_t carries_bits;
@@ -84,7 +84,7 @@ broker_worker_t *broker_registry_add(broker_registry_t *self, const uint8_t *rid
                                      uint32_t slots, int64_t now_ms);
 /* Adds a plugin the worker carries (counts it as a carrier in the catalog). */
 void broker_worker_carry(broker_worker_t *w, broker_plugin_t *plugin);
-/* Records that w offers plugin's name with a build or version the catalog
+/* Records that w offers plugin's name and version with a build the catalog
  * does not give jobs to (counted in plugin->blocked_offers while w is here). */
 void broker_worker_block(broker_worker_t *w, broker_plugin_t *plugin);
 int broker_worker_carries(const broker_worker_t *w, const broker_plugin_t *plugin);

@@ -57,7 +57,17 @@ void broker_status_fill(broker_t *b, const char *who, int every_run, proto_statu
         ri->cached = run->n_cached;
         ri->failed = run->n_failed;
     }
-    st->n_warnings = broker_catalog_warnings(&b->catalog, &st->warnings, 0);
+    /* Plugin versions with queued jobs in any run (not only those this key
+     * may see: the warning names a plugin, not a run): one nobody offers is
+     * worth a warning. */
+    uint8_t *wanted = common_xcalloc(b->catalog.n ? b->catalog.n : 1, 1);
+    cur = 0;
+    while ((run = broker_table_next(b->runs.by_id, &cur)))
+        for (uint32_t q = 0; q < run->n_queues; q++)
+            if (run->queues[q].head)
+                wanted[run->queues[q].plugin->id] = 1;
+    st->n_warnings = broker_catalog_warnings(&b->catalog, wanted, &st->warnings, 0);
+    free(wanted);
     if (broker_store_failing(b->store)) {
         char text[1200];
         broker_store_describe(b->store, text, sizeof text);

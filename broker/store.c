@@ -50,8 +50,11 @@
 
 #define STORE_FILE "fitfarm.db"
 /* 2: the results history holds re-evaluations only; a first evaluation's
- * run is evaluations.run_id (s_migrate_history moves schema 1 stores). */
-#define STORE_SCHEMA_VERSION 2
+ * run is evaluations.run_id (s_migrate_history moves schema 1 stores).
+ * 3: plugins has one row per name and version, with first_seen (which
+ * version a plugin given without one means, catalog.h); s_migrate_versions
+ * moves schema 2 stores. */
+#define STORE_SCHEMA_VERSION 3
 /* SQLite's page cache, in KiB (negative cache_size means KiB). Its default,
  * 2 MiB, holds a few thousand pages: past it every lookup of a cached
  * result and every update of a random-keyed b-tree page read the page back
@@ -60,6 +63,13 @@
  * the cache at 70,000-73,000/s with the default and 102,000-113,000/s with
  * this, in alternating runs of one session. */
 #define STORE_CACHE_KIB "65536"
+
+/* The plugins table of schema 3, here and in s_migrate_versions. */
+#define S_PLUGINS_COLUMNS                                                                      \
+    "(name TEXT NOT NULL, version TEXT NOT NULL, objectives INTEGER NOT NULL,"                 \
+    " flags INTEGER NOT NULL, digests BLOB NOT NULL, last_seen REAL NOT NULL,"                 \
+    " seed_params TEXT, param_defaults TEXT, first_seen REAL NOT NULL,"                        \
+    " PRIMARY KEY(name, version))"
 
 static const char s_schema[] =
     "CREATE TABLE IF NOT EXISTS meta(name TEXT PRIMARY KEY, value TEXT NOT NULL);"
@@ -93,10 +103,7 @@ static const char s_schema[] =
     " error TEXT, attempts INTEGER, worker TEXT, host TEXT, arch TEXT, digest BLOB,"
     " cpu_seconds REAL, peak_rss_kb INTEGER, finished_at REAL NOT NULL);"
     "CREATE INDEX IF NOT EXISTS results_by_run ON results(run_id, key);"
-    "CREATE TABLE IF NOT EXISTS plugins("
-    " name TEXT PRIMARY KEY, version TEXT NOT NULL, objectives INTEGER NOT NULL,"
-    " flags INTEGER NOT NULL, digests BLOB NOT NULL, last_seen REAL NOT NULL,"
-    " seed_params TEXT, param_defaults TEXT);";
+    "CREATE TABLE IF NOT EXISTS plugins" S_PLUGINS_COLUMNS ";";
 
 /* Every simulation that finished: the first evaluation of each key (in
  * evaluations, with the run that paid for it) and every re-evaluation (in
@@ -154,10 +161,12 @@ static const char *const s_sql[S_COUNT_] = {
     [S_ACK] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag = ?2",
     [S_ACK_RANGE] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag BETWEEN ?2 AND ?3",
     [S_UNACK] = "UPDATE requests SET acked = 0 WHERE run_id = ?1 AND tag = ?2 AND acked = 1",
+    /* first_seen is written once: it orders a name's versions (catalog.h). */
     [S_PLUGIN] = "INSERT INTO plugins(name, version, objectives, flags, digests, last_seen,"
-                 " seed_params, param_defaults) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)"
-                 " ON CONFLICT(name) DO UPDATE"
-                 " SET version = ?2, objectives = ?3, flags = ?4, digests = ?5, last_seen = ?6,"
+                 " seed_params, param_defaults, first_seen)"
+                 " VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?6)"
+                 " ON CONFLICT(name, version) DO UPDATE"
+                 " SET objectives = ?3, flags = ?4, digests = ?5, last_seen = ?6,"
                  " seed_params = ?7, param_defaults = ?8",
     [S_FIND_RUN] = "SELECT seed, seed_mode, owner FROM runs WHERE run_id = ?1",
     [S_REFRESH] = "UPDATE requests SET fresh = 1, acked = 0 WHERE run_id = ?1 AND tag = ?2",
@@ -329,6 +338,39 @@ static int s_migrate_history(broker_store_t *self)
     return 0;
 }
 
+/* Schema 2 stores keyed plugins by name alone (one version per name, the
+ * first one seen). Rebuilds the table keyed by name and version, its rows
+ * first_seen = last_seen (one version each: nothing to order), and sets
+ * schema_version 3, in one transaction, once per store. A table has a few
+ * rows: this takes milliseconds. */
+static int s_migrate_versions(broker_store_t *self)
+{
+    if (sqlite3_exec(self->db, "SELECT first_seen FROM plugins LIMIT 0", NULL, NULL, NULL) ==
+        SQLITE_OK)
+        return 0;
+    if (s_exec(self, "BEGIN IMMEDIATE") != 0 ||
+        s_exec(self, "CREATE TABLE plugins_v3" S_PLUGINS_COLUMNS) != 0 ||
+        s_exec(self, "INSERT INTO plugins_v3(name, version, objectives, flags, digests,"
+                     " last_seen, seed_params, param_defaults, first_seen)"
+                     " SELECT name, version, objectives, flags, digests, last_seen, seed_params,"
+                     " param_defaults, last_seen FROM plugins ORDER BY rowid") != 0 ||
+        s_exec(self, "DROP TABLE plugins") != 0 ||
+        s_exec(self, "ALTER TABLE plugins_v3 RENAME TO plugins") != 0 ||
+        s_exec(self, "UPDATE meta SET value = '3' WHERE name = 'schema_version'") != 0 ||
+        s_exec(self, "COMMIT") != 0) {
+        if (!sqlite3_get_autocommit(self->db))
+            sqlite3_exec(self->db, "ROLLBACK", NULL, NULL, NULL);
+        LOG_ERROR("store %s: cannot move it to schema 3 (nothing changed: the transaction "
+                  "rolled back)",
+                  self->path);
+        return -1;
+    }
+    LOG_INFO("store %s moved to schema 3: plugins are kept per name and version (a plugin "
+             "given without a version still means the one this store saw first)",
+             self->path);
+    return 0;
+}
+
 broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms)
 {
     broker_store_t *self = common_xcalloc(1, sizeof *self);
@@ -390,7 +432,8 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
             SQLITE_OK &&
         s_exec(self, "ALTER TABLE runs ADD COLUMN owner TEXT") != 0)
         goto fail;
-    if (s_migrate_history(self) != 0 || s_exec(self, s_simulations_view) != 0)
+    if (s_migrate_history(self) != 0 || s_migrate_versions(self) != 0 ||
+        s_exec(self, s_simulations_view) != 0)
         goto fail;
     for (int i = 0; i < S_COUNT_; i++) {
         if (sqlite3_prepare_v3(self->db, s_sql[i], -1, SQLITE_PREPARE_PERSISTENT, &self->stmt[i],

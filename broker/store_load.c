@@ -92,7 +92,7 @@ static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
     sqlite3_stmt *st = NULL;
     if (sqlite3_prepare_v2(db,
                            "SELECT name, version, objectives, flags, digests, seed_params,"
-                           " param_defaults FROM plugins",
+                           " param_defaults FROM plugins ORDER BY first_seen, rowid",
                            -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "plugins");
     int rc;
@@ -123,7 +123,7 @@ static int s_load_plugins(broker_t *b, sqlite3 *db, uint32_t *n)
         for (int i = 0; i < (nd > 0 ? nd : 1); i++) {
             if (nd > 0)
                 memcpy(info.digest, d + (size_t)i * PROTO_DIGEST_BYTES, PROTO_DIGEST_BYTES);
-            broker_catalog_report(&b->catalog, &info);
+            broker_catalog_report(&b->catalog, &info, NULL);
         }
         json_decref(seeds);
         free(canon_dflt);
@@ -164,19 +164,23 @@ static int s_load_runs(broker_t *b, sqlite3 *db, uint32_t *n)
 }
 
 /* A new evaluation from columns [key, plugin, params, genome, seed,
- * timeout_ms, max_attempts] starting at col; NULL (logged) when its plugin
- * is unknown. */
-static broker_eval_t *s_new_eval(broker_t *b, sqlite3_stmt *st, int col)
+ * timeout_ms, max_attempts] starting at col and its plugin version at
+ * version_col; NULL (logged) when that plugin version is unknown. It is
+ * bound to the version its key was computed with, so it goes only to
+ * workers carrying that version, whatever a constraint would pick today. */
+static broker_eval_t *s_new_eval(broker_t *b, sqlite3_stmt *st, int col, int version_col)
 {
     const uint8_t *key = sqlite3_column_blob(st, col);
     const char *plugin_name = (const char *)sqlite3_column_text(st, col + 1);
     const char *params = (const char *)sqlite3_column_text(st, col + 2);
-    if (sqlite3_column_bytes(st, col) != PROTO_KEY_BYTES || !plugin_name || !params)
+    const char *version = (const char *)sqlite3_column_text(st, version_col);
+    if (sqlite3_column_bytes(st, col) != PROTO_KEY_BYTES || !plugin_name || !params || !version)
         return NULL;
-    broker_plugin_t *plugin = broker_catalog_get(&b->catalog, plugin_name);
+    broker_plugin_t *plugin = broker_catalog_get(&b->catalog, plugin_name, version);
     if (!plugin) {
-        LOG_WARN("store: an evaluation for plugin %s, which the store does not list; skipped",
-                 plugin_name);
+        LOG_WARN("store: an evaluation for plugin %.128s version %.128s, which the store does "
+                 "not list; skipped",
+                 plugin_name, version);
         return NULL;
     }
     const uint8_t *genome = sqlite3_column_blob(st, col + 3);
@@ -204,7 +208,7 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
     /* Creation order, so a run's queue comes back oldest first. */
     if (sqlite3_prepare_v2(db,
                            "SELECT r.run_id, r.tag, r.cached, r.acked, e.key, e.plugin, e.params,"
-                           " e.genome, e.seed, e.timeout_ms, e.max_attempts, r.replicate"
+                           " e.genome, e.seed, e.timeout_ms, e.max_attempts, r.replicate, e.version"
                            " FROM requests r INDEXED BY requests_unacked"
                            " JOIN evaluations e ON e.key = r.key"
                            " WHERE r.acked = 0 AND r.fresh = 0 AND e.status IS NULL"
@@ -221,7 +225,7 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
         uint64_t tag = s_u64(st, 1);
         broker_eval_t *e = broker_evals_get(&b->evals, key);
         if (!e) {
-            e = s_new_eval(b, st, 4);
+            e = s_new_eval(b, st, 4, 12);
             if (!e)
                 continue;
         }

@@ -85,19 +85,18 @@ broker_worker_t *broker_worker_on_hello(broker_t *b, const uint8_t *rid, size_t 
     char list[1024] = "";
     size_t used = 0;
     for (uint32_t i = 0; i < h->n_plugins; i++) {
-        broker_plugin_t *p = broker_catalog_report(&b->catalog, &h->plugins[i]);
+        broker_plugin_t *known = NULL;
+        broker_plugin_t *p = broker_catalog_report(&b->catalog, &h->plugins[i], &known);
         if (p)
             broker_worker_carry(w, p);
         /* Remembered, so a restarted broker accepts work for it at once. */
-        broker_plugin_t *known = broker_catalog_get(&b->catalog, h->plugins[i].name);
-        if (known)
-            broker_store_note_plugin(b->store, known);
-        if (!p && known)
+        broker_store_note_plugin(b->store, known);
+        if (!p)
             broker_worker_block(w, known); /* STATUS says why its jobs wait */
         if (used < sizeof list) {
             int k = snprintf(list + used, sizeof list - used, "%s%s %s%s", i ? ", " : "",
                              h->plugins[i].name, h->plugins[i].version,
-                             p ? "" : " (another version or build: no jobs)");
+                             p ? "" : " (another build than the pinned one: no jobs)");
             if (k > 0)
                 used += (size_t)k;
         }

@@ -1,7 +1,8 @@
 /* registry.c: loading and validating plugins, and the default plugin folders.
  *
  * Owns: scanning plugin directories, dlopen/dlsym, checking each descriptor
- * before anything calls it, first-wins on duplicate names, the BLAKE2b build
+ * before anything calls it, first-wins on duplicate names (so at most one
+ * version of each plugin per worker, said when a second one is skipped), the BLAKE2b build
  * digest of every file, and exec plugin registration. Not owned: running
  * plugins (child.c), reporting them (loop.c). */
 #include "registry.h"
@@ -244,6 +245,17 @@ int worker_registry_load_file(worker_registry_t *self, const char *path, char *e
     if (worker_registry_check_descriptor(plugin, err, errlen) != 0)
         goto cleanup;
     const worker_plugin_t *dup = worker_registry_find(self, plugin->name);
+    if (dup && strcmp(dup->plugin->version, plugin->version) != 0) {
+        /* One version per name and worker (broker/catalog.h): a second
+         * worker carries the other one. */
+        snprintf(err, errlen,
+                 "plugin %s version %s is not loaded: this worker already carries version %s "
+                 "from %s, and a worker carries one version of each plugin (the first wins); "
+                 "start another worker with --plugin-dir for version %s",
+                 plugin->name, plugin->version, dup->plugin->version, dup->origin,
+                 plugin->version);
+        goto cleanup;
+    }
     if (dup) {
         snprintf(err, errlen, "plugin %s is already loaded from %s; the first wins",
                  plugin->name, dup->origin);

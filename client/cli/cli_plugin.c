@@ -13,6 +13,7 @@
 
 #include "cli_util.h"
 #include "limits.h"
+#include "version.h"
 
 #define CLI_PLUGIN_MAX_GENES (PROTO_MAX_GENOME_BYTES / 8u)
 
@@ -72,18 +73,32 @@ static int s_valid_name(const char *s)
     return 1;
 }
 
-const fitfarm_plugin_t *cli_plugin_open(const char *plugin, const char *const *dirs, void **dl,
+const fitfarm_plugin_t *cli_plugin_open(const char *ref, const char *const *dirs, void **dl,
                                         char *err, size_t errlen)
 {
     char path[4096];
     *dl = NULL;
-    if (strchr(plugin, '/')) {
-        *dl = dlopen(plugin, RTLD_NOW | RTLD_LOCAL);
+    /* NAME@VERSION as --plugin takes it elsewhere: the file is found by
+     * NAME (one file per name in a folder), the version only checked. */
+    char plugin[PROTO_MAX_NAME_BYTES + 1] = "";
+    const char *constraint = NULL;
+    if (strchr(ref, '/')) {
+        *dl = dlopen(ref, RTLD_NOW | RTLD_LOCAL);
         if (!*dl) {
-            snprintf(err, errlen, "cannot load %s: %s", plugin, dlerror());
+            snprintf(err, errlen, "cannot load %s: %s", ref, dlerror());
             return NULL;
         }
+        snprintf(plugin, sizeof plugin, "%s", ref); /* for the messages below */
+    } else if (strlen(ref) > PROTO_MAX_NAME_BYTES) {
+        snprintf(err, errlen, "'%.80s...' is longer than a plugin name (%u bytes)", ref,
+                 PROTO_MAX_NAME_BYTES);
+        return NULL;
+    } else if (strchr(ref, '@') &&
+               proto_plugin_ref_split(ref, plugin, sizeof plugin, &constraint, err, errlen) != 0) {
+        return NULL;
     } else {
+        if (!constraint)
+            snprintf(plugin, sizeof plugin, "%s", ref);
         if (!s_valid_name(plugin)) {
             snprintf(err, errlen, "'%.80s' is not a plugin name ([a-z0-9_-]+) nor a path", plugin);
             return NULL;
@@ -119,6 +134,9 @@ const fitfarm_plugin_t *cli_plugin_open(const char *plugin, const char *const *d
         snprintf(err, errlen, "%s has an incomplete descriptor", plugin);
         p = NULL;
     }
+    if (p && constraint && !proto_version_matches(p->version, constraint))
+        fprintf(stderr, "fitfarm: note: the plugin file found for %s is %s version %s, which "
+                "does not match %s; using it\n", ref, p->name, p->version, constraint);
     if (!p) {
         dlclose(*dl);
         *dl = NULL;

@@ -44,7 +44,9 @@ int cli_plugin_match(int argc, char **argv, int *i, unsigned which, cli_plugin_a
 size_t cli_plugin_dirs(const char **dirs, size_t n_given);
 
 /* Loads PLUGIN: a path as given (it has a '/'), or NAME.so from the first of
- * dirs (NULL-terminated) that has it. Returns the descriptor, borrowed from
+ * dirs (NULL-terminated) that has it; NAME@VERSION (as --plugin takes it for
+ * the pool) finds the file by NAME, and says on stderr when the file's
+ * version does not match VERSION (proto/version.h), using it anyway. Returns the descriptor, borrowed from
  * *dl (the caller dlcloses it), or NULL with a sentence in err. */
 const fitfarm_plugin_t *cli_plugin_open(const char *plugin, const char *const *dirs, void **dl,
                                         char *err, size_t errlen);

@@ -30,6 +30,7 @@
 #include "jsonl.h"
 #include "key.h"
 #include "params.h"
+#include "version.h"
 
 #define EVAL_BATCH_LINES 4096   /* submit once this many lines are waiting */
 #define EVAL_READ_BYTES 65536
@@ -83,6 +84,10 @@ typedef struct {
     fitfarm_batch_t *retry;
     int64_t retry_at, retry_noted_at;
     uint64_t retry_count;
+    /* 1 while no connected worker was seen carrying a version --plugin
+     * matches: after the first accepted batch, the broker's warning (if
+     * any) says why its jobs wait, once. */
+    int wait_hint;
 } eval_t;
 
 static volatile sig_atomic_t s_stop = 0;
@@ -242,9 +247,19 @@ static int s_parse_args(eval_t *e, int argc, char **argv, int *exit_code)
         *exit_code = s_usage("--replay and --no-cache contradict each other%s", NULL);
         return -1;
     }
-    if (!*e->plugin || strlen(e->plugin) > PROTO_MAX_NAME_BYTES) {
-        *exit_code = s_usage("--plugin '%s' is not a plugin name", e->plugin);
-        return -1;
+    {
+        char name[PROTO_MAX_NAME_BYTES + 1], why[300];
+        const char *constraint;
+        if (strlen(e->plugin) > PROTO_MAX_NAME_BYTES)
+            snprintf(why, sizeof why, "longer than %u bytes", PROTO_MAX_NAME_BYTES);
+        if (strlen(e->plugin) > PROTO_MAX_NAME_BYTES ||
+            proto_plugin_ref_split(e->plugin, name, sizeof name, &constraint, why,
+                                   sizeof why) != 0) {
+            fprintf(stderr, "fitfarm eval: --plugin '%.200s': %s (NAME or NAME@VERSION; see "
+                    "fitfarm eval --help)\n", e->plugin, why);
+            *exit_code = 2;
+            return -1;
+        }
     }
     if (e->run_id && (!*e->run_id || strlen(e->run_id) > PROTO_MAX_NAME_BYTES)) {
         *exit_code = s_usage("--run '%s' must have 1 to 128 bytes", e->run_id);
@@ -450,6 +465,12 @@ static int s_send_batch(eval_t *e, fitfarm_batch_t *b)
         return 1;
     }
     e->submitted += fitfarm_batch_size(b) * e->replicates;
+    if (e->wait_hint) {
+        char why[1024];
+        e->wait_hint = 0;
+        if (cli_pool_plugin_blocked(e->client, e->plugin, 5000, why, sizeof why))
+            fprintf(stderr, "fitfarm eval: waiting: %s\n", why);
+    }
     return 0;
 }
 
@@ -763,10 +784,21 @@ int cli_cmd_eval(int argc, char **argv)
              * plugin" or silence. */
             fprintf(stderr, "fitfarm eval: waiting: %s\n", why);
         } else if (n_workers > 0 && !has) {
-            fprintf(stderr, "fitfarm eval: the pool has no plugin \"%s\"; it has: %s\n",
-                    e.plugin, list[0] ? list : "(none)");
-            rc = 2;
-            goto cleanup;
+            char name[PROTO_MAX_NAME_BYTES + 1], versions[1024];
+            const char *constraint = NULL;
+            (void)proto_plugin_ref_split(e.plugin, name, sizeof name, &constraint, NULL, 0);
+            cli_pool_versions(e.client, name, versions, sizeof versions);
+            if (!versions[0]) {
+                fprintf(stderr, "fitfarm eval: the pool has no plugin \"%s\"; it has: %s\n",
+                        name, list[0] ? list : "(none)");
+                rc = 2;
+                goto cleanup;
+            }
+            /* Workers carry the name at other versions only. Which version
+             * --plugin means is the broker's to say (its store knows every
+             * version seen): it refuses a constraint that matches none, or
+             * takes the batch, whose jobs then wait for a worker with it. */
+            e.wait_hint = 1;
         }
     }
     fitfarm_run_options_t ropts = FITFARM_RUN_OPTIONS_INIT;

@@ -85,12 +85,15 @@ static int s_usage(const char *fmt, const char *arg)
     return 2;
 }
 
-/* Reads the run's distinct stored ok evaluations, in request order. */
+/* Reads the run's distinct stored ok evaluations, in request order. Each
+ * names its plugin as name@version, so the pool re-simulates it with the
+ * version its key was computed with (broker/catalog.h). */
 static int s_load(sqlite3 *db, const char *run, verify_item_t **items_p, size_t *n_p)
 {
     sqlite3_stmt *st = cli_store_prepare(
         db,
-        "SELECT e.key, e.plugin, e.params, e.genome, min(q.replicate), e.fitness, e.worker,"
+        "SELECT e.key, e.plugin || '@' || e.version, e.params, e.genome, min(q.replicate),"
+        " e.fitness, e.worker,"
         " e.host, e.arch, e.digest FROM requests q JOIN evaluations e ON e.key = q.key"
         " WHERE q.run_id = ?1 AND e.status = 0 GROUP BY e.key ORDER BY min(q.tag)",
         "fitfarm verify");

@@ -174,7 +174,13 @@ typedef struct {
 FITFARM_API int fitfarm_run_stats(const fitfarm_run_t *run, fitfarm_run_stats_t *out);
 
 /* A batch of genomes for one plugin, params and replicate count.
- * params_json NULL means "{}". Caller destroys *out. */
+ * plugin is "name", or "name@VERSION" for the highest version the broker
+ * knows that is VERSION or starts with VERSION and a dot ("granular@1":
+ * 1, 1.2, 1.10, never 10); the broker resolves it when it accepts the batch
+ * and sends its jobs only to workers carrying that version. "name" alone is
+ * the first version the broker's store saw. FITFARM_EINVAL for an empty
+ * VERSION or one with blanks or non-ASCII bytes. params_json NULL means "{}".
+ * Caller destroys *out. */
 FITFARM_API int fitfarm_batch_new(const char *plugin, const char *params_json, unsigned replicates,
                                   fitfarm_batch_t **out);
 /* Adds a genome of n doubles (copied). Returns its index (>= 0) or a code. */

@@ -10,6 +10,7 @@
 #include "batch.h"
 #include "sized.h"
 #include "params.h"
+#include "version.h"
 
 FITFARM_API int fitfarm_batch_new(const char *plugin, const char *params_json, unsigned replicates,
                                   fitfarm_batch_t **out)
@@ -19,6 +20,14 @@ FITFARM_API int fitfarm_batch_new(const char *plugin, const char *params_json, u
     *out = NULL;
     if (!plugin || !*plugin || strlen(plugin) > PROTO_MAX_NAME_BYTES || replicates == 0 ||
         replicates > PROTO_MAX_REPLICATES)
+        return FITFARM_EINVAL;
+    /* "name@constraint" goes to the broker as it is (it resolves the
+     * version); a malformed constraint is the caller's to fix now. The name
+     * itself is the broker's to judge: it lists the names it has. */
+    char name[PROTO_MAX_NAME_BYTES + 1];
+    const char *constraint;
+    if (strchr(plugin, '@') &&
+        proto_plugin_ref_split(plugin, name, sizeof name, &constraint, NULL, 0) != 0)
         return FITFARM_EINVAL;
     fitfarm_batch_t *self = calloc(1, sizeof *self);
     if (!self)

@@ -20,7 +20,7 @@
 #define S_MAX_REF 64u
 
 static const char s_help[] =
-    "usage: fitfarm-nsga2 --plugin NAME --genes N [options]\n"
+    "usage: fitfarm-nsga2 --plugin NAME[@VERSION] --genes N [options]\n"
     "\n"
     "NSGA-II (Deb, Pratap, Agarwal, Meyarivan, IEEE TEC 6(2), 2002) on a fitfarm\n"
     "pool: every objective is minimised, as fitfarm plugins report them. Each\n"
@@ -28,7 +28,9 @@ static const char s_help[] =
     "parents are answered from the store without being simulated again.\n"
     "\n"
     "options:\n"
-    "  --plugin NAME       plugin to evaluate with (required)\n"
+    "  --plugin NAME       plugin to evaluate with (required); NAME@VERSION: the\n"
+    "                      highest known version that is VERSION or starts with\n"
+    "                      VERSION and a dot, as in fitfarm eval\n"
     "  --params JSON       plugin parameters, a JSON object (default {})\n"
     "  --genes N           genes per genome (required unless --bounds lists each gene)\n"
     "  --bounds LO:HI[,LO:HI...]  one range for every gene, or one per gene (default 0:1)\n"

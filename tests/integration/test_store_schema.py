@@ -1,4 +1,11 @@
-"""The store's schema 2 and the move from schema 1.
+"""The store's schema 3 and the moves from schemas 1 and 2.
+
+Schema 3 keeps one `plugins` row per name and version (PRIMARY KEY(name,
+version), with first_seen: which version a plugin given without one
+means). A schema 2 store (plugins keyed by name alone, no first_seen) is
+made here from a schema 3 one with the sqlite3 module, as schema 2 had it:
+a broker started on it moves it once (log line, schema_version 3), keeps
+its plugin row, and still answers a resume from the store.
 
 Schema 2 writes a first evaluation once (its row in `evaluations`, with the
 run that paid for it in evaluations.run_id); the `results` history holds
@@ -6,8 +13,8 @@ re-evaluations only; the `simulations` view lists both. A store written by
 schema 1 (every first evaluation copied into `results`, no
 evaluations.run_id) is made here from a schema 2 one with the sqlite3
 module: the copies are put back and the column dropped, as schema 1 had
-it. A broker started on it must move it once (log line, schema_version 2),
-keep every result, and answer the run's resume from the store with the same
+it. A broker started on it must move it once (log lines for 2 and then 3,
+schema_version 3), keep every result, and answer the run's resume from the store with the same
 bits and no simulation.
 Run with /usr/bin/python3 (Debian's)."""
 import os
@@ -34,7 +41,12 @@ with fflib.Pool() as pool:
     db_path = os.path.join(pool.store, "fitfarm.db")
     db = sqlite3.connect(db_path)
     q = lambda sql: db.execute(sql).fetchone()[0]  # noqa: E731
-    check.ok(q("SELECT value FROM meta WHERE name = 'schema_version'") == "2", "schema 2")
+    check.ok(q("SELECT value FROM meta WHERE name = 'schema_version'") == "3", "schema 3")
+    pk = [r[1] for r in sorted((r for r in db.execute("PRAGMA table_info(plugins)") if r[5]),
+                               key=lambda r: r[5])]
+    check.ok(pk == ["name", "version"], f"plugins keyed by name and version: {pk}")
+    check.ok(q("SELECT count(*) FROM plugins WHERE name = 'sphere' AND first_seen > 0") == 1,
+             "the plugin row has first_seen")
     check.ok(q("SELECT count(*) FROM evaluations WHERE run_id = 'old'") == N,
              "first evaluations name their run in evaluations.run_id")
     check.ok(q("SELECT count(*) FROM results") == N and
@@ -46,10 +58,18 @@ with fflib.Pool() as pool:
     pool.kill(pool.broker, signal.SIGTERM)
     check.ok(pool.broker.returncode == 0, "clean stop")
 
-    # Back to schema 1's layout.
+    # Back to schema 2's plugins table, then to schema 1's layout.
     db = sqlite3.connect(db_path)
+    seen_before = db.execute("SELECT last_seen FROM plugins WHERE name = 'sphere'").fetchone()[0]
     db.executescript(
         "BEGIN;"
+        "CREATE TABLE plugins_v2(name TEXT PRIMARY KEY, version TEXT NOT NULL,"
+        " objectives INTEGER NOT NULL, flags INTEGER NOT NULL, digests BLOB NOT NULL,"
+        " last_seen REAL NOT NULL, seed_params TEXT, param_defaults TEXT);"
+        "INSERT INTO plugins_v2 SELECT name, version, objectives, flags, digests, last_seen,"
+        " seed_params, param_defaults FROM plugins;"
+        "DROP TABLE plugins;"
+        "ALTER TABLE plugins_v2 RENAME TO plugins;"
         "INSERT INTO results(key, run_id, fresh, status, status_name, fitness, fitness_json,"
         " error, attempts, worker, host, arch, digest, cpu_seconds, peak_rss_kb, finished_at)"
         " SELECT key, run_id, 0, status, status_name, fitness, fitness_json, error, attempts,"
@@ -62,10 +82,18 @@ with fflib.Pool() as pool:
 
     pool.start_broker()
     log = open(os.path.join(pool.tmp, "broker.log"), errors="replace").read()
-    check.ok("moved to schema 2" in log, "the broker says it moved the store")
+    check.ok("moved to schema 2" in log and "moved to schema 3" in log and
+             log.index("moved to schema 2") < log.index("moved to schema 3"),
+             "the broker says it moved the store from 1 to 2, then to 3")
     db = sqlite3.connect(f"file:{db_path}?mode=ro", uri=True)
     q = lambda sql: db.execute(sql).fetchone()[0]  # noqa: E731
-    check.ok(q("SELECT value FROM meta WHERE name = 'schema_version'") == "2", "schema 2 again")
+    check.ok(q("SELECT value FROM meta WHERE name = 'schema_version'") == "3", "schema 3 again")
+    pk = [r[1] for r in sorted((r for r in db.execute("PRAGMA table_info(plugins)") if r[5]),
+                               key=lambda r: r[5])]
+    check.ok(pk == ["name", "version"] and
+             db.execute("SELECT first_seen FROM plugins WHERE name = 'sphere'").fetchone()[0]
+             == seen_before,
+             f"plugins rebuilt by name and version, first_seen from last_seen: {pk}")
     check.ok(q("SELECT count(*) FROM evaluations WHERE run_id = 'old'") == N,
              "the paying run came back from the history into evaluations.run_id")
     check.ok(q("SELECT count(*) FROM results WHERE fresh = 0") == 0, "copies dropped")

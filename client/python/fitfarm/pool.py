@@ -315,6 +315,9 @@ class Run:
     def evaluate(self, plugin, genomes, params=None, replicates=1):
         """Evaluates genomes (a sequence of float sequences, a 2-D numpy array,
         or bytes objects) with plugin; blocks until every result is in.
+        plugin is "name" or "name@VERSION" (the highest version the broker
+        knows that is VERSION or starts with VERSION and a dot, e.g.
+        "granular@1"; jobs go only to workers carrying it).
         Returns the Results in order: genome 0 replicates 0..K-1, genome 1 ...
         Raises an Error (PluginError, NotRecordedError, ...) for a refusal."""
         st = self._submit(plugin, _params_json(params), int(replicates), genomes)
@@ -740,7 +743,8 @@ class Pool(concurrent.futures.Executor):
     def function(self, plugin, params=None, objective=None, run=None, seed=0, replicates=1,
                  seed_mode="genome", aggregate=None, on_failure="raise"):
         """A callable for optimizers: f(x) -> float (objective: an index) or a
-        tuple of floats (objective None). run: None (a new run with seed and
+        tuple of floats (objective None). plugin: "name" or "name@VERSION" as
+        for evaluate. run: None (a new run with seed and
         seed_mode), a run id (resumed), or a Run. replicates > 1 needs
         aggregate "mean" or "median" (over the replicates, per objective).
         on_failure: "raise" (EvaluationError) or a number returned for a
