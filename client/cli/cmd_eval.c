@@ -84,9 +84,9 @@ typedef struct {
     fitfarm_batch_t *retry;
     int64_t retry_at, retry_noted_at;
     uint64_t retry_count;
-    /* 1 while no connected worker was seen carrying a version --plugin
-     * matches: after the first accepted batch, the broker's warning (if
-     * any) says why its jobs wait, once. */
+    /* 1 until the first batch is accepted, unless the jobs were already
+     * said to wait: then the broker's warning (if any) says why they
+     * wait, once. */
     int wait_hint;
 } eval_t;
 
@@ -773,16 +773,20 @@ int cli_cmd_eval(int argc, char **argv)
     }
     /* Say "no such plugin" before reading any input, when the pool is known. */
     {
-        char list[4096];
+        char list[4096], why[1024];
         int has, n_workers;
         cli_pool_plugins(e.client, list, sizeof list, &has, e.plugin, &n_workers);
-        char why[1024];
+        /* Even when a connected worker matches --plugin, the broker may
+         * resolve it to a higher known version that nobody connected
+         * carries: its warning is read once the first batch is in. */
+        e.wait_hint = 1;
         if (n_workers > 0 && !has &&
             cli_pool_plugin_blocked(e.client, e.plugin, 5000, why, sizeof why)) {
-            /* Offered, but not with the build the store pinned: the jobs
+            /* Offered, but not with the build or version the jobs need: they
              * wait for a worker that has it. Say so rather than "no such
              * plugin" or silence. */
             fprintf(stderr, "fitfarm eval: waiting: %s\n", why);
+            e.wait_hint = 0;
         } else if (n_workers > 0 && !has) {
             char name[PROTO_MAX_NAME_BYTES + 1], versions[1024];
             const char *constraint = NULL;
@@ -798,7 +802,6 @@ int cli_cmd_eval(int argc, char **argv)
              * --plugin means is the broker's to say (its store knows every
              * version seen): it refuses a constraint that matches none, or
              * takes the batch, whose jobs then wait for a worker with it. */
-            e.wait_hint = 1;
         }
     }
     fitfarm_run_options_t ropts = FITFARM_RUN_OPTIONS_INIT;
