@@ -1,7 +1,8 @@
-/* store.c: the durable store (see store.h): opening the SQLite database, its
- * schema, the prepared statements for each note, and the group commit. Owns
- * the connection and the statements. Not here: rebuilding the broker's state
- * at start (store_load.c).
+/* store.c: the durable store (see store.h): opening the SQLite database, the
+ * prepared statements for each note, and the group commit. Owns the
+ * connection and the statements. Not here: the tables and the moves of
+ * older stores (store_schema.c), rebuilding the broker's state at start
+ * (store_load.c).
  *
  * Durability: journal_mode=WAL, synchronous=FULL. In WAL mode FULL fsyncs
  * the log at every COMMIT, so "accepted" survives a power cut as well as a
@@ -47,14 +48,9 @@
 #include "store_hook.h"
 #include "store_lock.h"
 #include "store_log.h"
+#include "store_schema.h"
 
 #define STORE_FILE "fitfarm.db"
-/* 2: the results history holds re-evaluations only; a first evaluation's
- * run is evaluations.run_id (s_migrate_history moves schema 1 stores).
- * 3: plugins has one row per name and version, with first_seen (which
- * version a plugin given without one means, catalog.h); s_migrate_versions
- * moves schema 2 stores. */
-#define STORE_SCHEMA_VERSION 3
 /* SQLite's page cache, in KiB (negative cache_size means KiB). Its default,
  * 2 MiB, holds a few thousand pages: past it every lookup of a cached
  * result and every update of a random-keyed b-tree page read the page back
@@ -64,59 +60,6 @@
  * this, in alternating runs of one session. */
 #define STORE_CACHE_KIB "65536"
 
-/* The plugins table of schema 3, here and in s_migrate_versions. */
-#define S_PLUGINS_COLUMNS                                                                      \
-    "(name TEXT NOT NULL, version TEXT NOT NULL, objectives INTEGER NOT NULL,"                 \
-    " flags INTEGER NOT NULL, digests BLOB NOT NULL, last_seen REAL NOT NULL,"                 \
-    " seed_params TEXT, param_defaults TEXT, first_seen REAL NOT NULL,"                        \
-    " PRIMARY KEY(name, version))"
-
-static const char s_schema[] =
-    "CREATE TABLE IF NOT EXISTS meta(name TEXT PRIMARY KEY, value TEXT NOT NULL);"
-    "CREATE TABLE IF NOT EXISTS runs("
-    " run_id TEXT PRIMARY KEY, seed INTEGER NOT NULL, seed_mode INTEGER NOT NULL,"
-    " created REAL NOT NULL, last_activity REAL NOT NULL, owner TEXT);"
-    "CREATE TABLE IF NOT EXISTS evaluations("
-    " key BLOB PRIMARY KEY, plugin TEXT NOT NULL, version TEXT NOT NULL,"
-    " params TEXT NOT NULL, genome BLOB NOT NULL, seed INTEGER NOT NULL,"
-    " timeout_ms INTEGER NOT NULL, max_attempts INTEGER NOT NULL, created REAL NOT NULL,"
-    " status INTEGER, status_name TEXT, fitness BLOB, fitness_json TEXT, error TEXT,"
-    " attempts INTEGER, worker TEXT, host TEXT, arch TEXT, digest BLOB,"
-    " cpu_seconds REAL, peak_rss_kb INTEGER, finished_at REAL, run_id TEXT);"
-    "CREATE TABLE IF NOT EXISTS requests("
-    " run_id TEXT NOT NULL, tag INTEGER NOT NULL, batch_tag INTEGER NOT NULL,"
-    " replicate INTEGER NOT NULL, key BLOB NOT NULL, cached INTEGER NOT NULL,"
-    " acked INTEGER NOT NULL DEFAULT 0, created REAL NOT NULL,"
-    " fresh INTEGER NOT NULL DEFAULT 0,"
-    " PRIMARY KEY(run_id, tag)) WITHOUT ROWID;"
-    /* Requests not yet acknowledged (a partial index stays as small as the
-     * work in flight and the results owed): the start finds pending work
-     * and owed results through it (store_load.c, backlog.c), never by a
-     * pass over every request ever made. Schema 2 dropped requests_by_key
-     * (on key): its only reader was that pass, and with random keys it
-     * cost a random b-tree insert and about 69 bytes per request. */
-    "CREATE INDEX IF NOT EXISTS requests_unacked ON requests(run_id, tag) WHERE acked = 0;"
-    "DROP INDEX IF EXISTS requests_by_key;"
-    "CREATE TABLE IF NOT EXISTS results("
-    " key BLOB NOT NULL, run_id TEXT NOT NULL, fresh INTEGER NOT NULL,"
-    " status INTEGER NOT NULL, status_name TEXT NOT NULL, fitness BLOB, fitness_json TEXT,"
-    " error TEXT, attempts INTEGER, worker TEXT, host TEXT, arch TEXT, digest BLOB,"
-    " cpu_seconds REAL, peak_rss_kb INTEGER, finished_at REAL NOT NULL);"
-    "CREATE INDEX IF NOT EXISTS results_by_run ON results(run_id, key);"
-    "CREATE TABLE IF NOT EXISTS plugins" S_PLUGINS_COLUMNS ";";
-
-/* Every simulation that finished: the first evaluation of each key (in
- * evaluations, with the run that paid for it) and every re-evaluation (in
- * results). Made after s_migrate_history, which adds evaluations.run_id to
- * older stores. */
-static const char s_simulations_view[] =
-    "CREATE VIEW IF NOT EXISTS simulations AS"
-    " SELECT key, run_id, 0 AS fresh, status, status_name, fitness, fitness_json, error,"
-    " attempts, worker, host, arch, digest, cpu_seconds, peak_rss_kb, finished_at"
-    " FROM evaluations WHERE status IS NOT NULL"
-    " UNION ALL SELECT key, run_id, 1 AS fresh, status, status_name, fitness, fitness_json,"
-    " error, attempts, worker, host, arch, digest, cpu_seconds, peak_rss_kb, finished_at"
-    " FROM results";
 
 enum {
     S_BEGIN,
@@ -248,128 +191,6 @@ void broker_store_report_damage(const char *path, const char *what, const char *
               path, what, msg, path, path, path, path, path, path, path, path);
 }
 
-/* SQLite's word for a file that is not a sound database. */
-static int s_is_damage(int rc)
-{
-    rc &= 0xff;
-    return rc == SQLITE_CORRUPT || rc == SQLITE_NOTADB;
-}
-
-static int s_exec(broker_store_t *self, const char *sql)
-{
-    char *msg = NULL;
-    int rc = sqlite3_exec(self->db, sql, NULL, NULL, &msg);
-    if (rc != SQLITE_OK) {
-        if (s_is_damage(rc))
-            broker_store_report_damage(self->path, sql, msg ? msg : sqlite3_errstr(rc));
-        else
-            LOG_ERROR("store %s: %s failed: %s", self->path, sql, msg ? msg : "?");
-        sqlite3_free(msg);
-        return -1;
-    }
-    return 0;
-}
-
-/* PRAGMA quick_check at start: every b-tree page and record header of the
- * file is read once (not the index-to-table cross-checks of integrity_check),
- * so a damaged page is found before the broker relies on it. Its cost,
- * measured on our 2-core machine, is in the README ("The store"). Returns 0
- * when the file is sound. */
-static int s_quick_check(broker_store_t *self)
-{
-    int64_t t0 = common_clock_ms();
-    sqlite3_stmt *st = NULL;
-    int rc = sqlite3_prepare_v2(self->db, "PRAGMA quick_check(5)", -1, &st, NULL);
-    char first[512] = "";
-    int rows = 0, ok = 0;
-    if (rc == SQLITE_OK)
-        rc = SQLITE_ROW;
-    while (rc == SQLITE_ROW && (rc = sqlite3_step(st)) == SQLITE_ROW) {
-        const char *line = (const char *)sqlite3_column_text(st, 0);
-        if (rows++ == 0) {
-            snprintf(first, sizeof first, "%s", line ? line : "");
-            ok = line && strcmp(line, "ok") == 0;
-        }
-    }
-    if (rc != SQLITE_DONE) {
-        snprintf(first, sizeof first, "%s", sqlite3_errmsg(self->db));
-        ok = 0;
-    }
-    sqlite3_finalize(st);
-    if (!ok) {
-        broker_store_report_damage(self->path, "PRAGMA quick_check", first);
-        return -1;
-    }
-    int64_t took = common_clock_ms() - t0;
-    if (took >= 1000)
-        LOG_INFO("store %s checked (PRAGMA quick_check: ok) in %.1f s", self->path,
-                 (double)took / 1000.0);
-    return 0;
-}
-
-/* Schema 1 stores kept a copy of every first evaluation in the results
- * history and had no evaluations.run_id. Moves the paying run into
- * evaluations and drops the copies, in one transaction, once per store; a
- * store of a million evaluations takes seconds, logged. */
-static int s_migrate_history(broker_store_t *self)
-{
-    if (sqlite3_exec(self->db, "SELECT run_id FROM evaluations LIMIT 0", NULL, NULL, NULL) ==
-        SQLITE_OK)
-        return 0;
-    int64_t t0 = common_clock_ms();
-    if (s_exec(self, "BEGIN IMMEDIATE") != 0 ||
-        s_exec(self, "ALTER TABLE evaluations ADD COLUMN run_id TEXT") != 0 ||
-        s_exec(self, "UPDATE evaluations SET run_id = (SELECT y.run_id FROM results y"
-                     " WHERE y.key = evaluations.key AND y.fresh = 0 ORDER BY y.rowid LIMIT 1)"
-                     " WHERE status IS NOT NULL") != 0 ||
-        s_exec(self, "DELETE FROM results WHERE fresh = 0") != 0 ||
-        s_exec(self, "UPDATE meta SET value = '2' WHERE name = 'schema_version'") != 0 ||
-        s_exec(self, "COMMIT") != 0) {
-        if (!sqlite3_get_autocommit(self->db))
-            sqlite3_exec(self->db, "ROLLBACK", NULL, NULL, NULL);
-        LOG_ERROR("store %s: cannot move it to schema 2 (nothing changed: the transaction "
-                  "rolled back)",
-                  self->path);
-        return -1;
-    }
-    LOG_INFO("store %s moved to schema 2 in %.1f s: the results history keeps re-evaluations "
-             "only; first evaluations name their run in evaluations.run_id",
-             self->path, (double)(common_clock_ms() - t0) / 1000.0);
-    return 0;
-}
-
-/* Schema 2 stores keyed plugins by name alone (one version per name, the
- * first one seen). Rebuilds the table keyed by name and version, its rows
- * first_seen = last_seen (one version each: nothing to order), and sets
- * schema_version 3, in one transaction, once per store. A table has a few
- * rows: this takes milliseconds. */
-static int s_migrate_versions(broker_store_t *self)
-{
-    if (sqlite3_exec(self->db, "SELECT first_seen FROM plugins LIMIT 0", NULL, NULL, NULL) ==
-        SQLITE_OK)
-        return 0;
-    if (s_exec(self, "BEGIN IMMEDIATE") != 0 ||
-        s_exec(self, "CREATE TABLE plugins_v3" S_PLUGINS_COLUMNS) != 0 ||
-        s_exec(self, "INSERT INTO plugins_v3(name, version, objectives, flags, digests,"
-                     " last_seen, seed_params, param_defaults, first_seen)"
-                     " SELECT name, version, objectives, flags, digests, last_seen, seed_params,"
-                     " param_defaults, last_seen FROM plugins ORDER BY rowid") != 0 ||
-        s_exec(self, "DROP TABLE plugins") != 0 ||
-        s_exec(self, "ALTER TABLE plugins_v3 RENAME TO plugins") != 0 ||
-        s_exec(self, "UPDATE meta SET value = '3' WHERE name = 'schema_version'") != 0 ||
-        s_exec(self, "COMMIT") != 0) {
-        if (!sqlite3_get_autocommit(self->db))
-            sqlite3_exec(self->db, "ROLLBACK", NULL, NULL, NULL);
-        LOG_ERROR("store %s: cannot move it to schema 3 (nothing changed: the transaction "
-                  "rolled back)",
-                  self->path);
-        return -1;
-    }
-    LOG_INFO("store %s moved to schema 3: plugins are kept per name and version (a plugin "
-             "given without a version still means the one this store saw first)",
-             self->path);
-    return 0;
-}
 
 broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms)
 {
@@ -399,46 +220,17 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
         goto fail;
     }
     sqlite3_busy_timeout(self->db, 2000); /* a reader checkpointing, at most */
-    if ((dir && s_quick_check(self) != 0) || s_exec(self, "PRAGMA journal_mode=WAL") != 0 ||
-        s_exec(self, scratch ? "PRAGMA synchronous=OFF" : "PRAGMA synchronous=FULL") != 0 ||
-        s_exec(self, s_schema) != 0 ||
-        s_exec(self, "PRAGMA cache_size=-" STORE_CACHE_KIB) != 0 ||
-        s_exec(self, "BEGIN IMMEDIATE") != 0)
-        goto fail;
-    char sql[128];
-    snprintf(sql, sizeof sql, "INSERT OR IGNORE INTO meta VALUES('schema_version', '%d')",
-             STORE_SCHEMA_VERSION);
-    if (s_exec(self, sql) != 0 || s_exec(self, "COMMIT") != 0)
-        goto fail;
-    /* Stores made before re-evaluations were kept apart lack requests.fresh. */
-    if (sqlite3_exec(self->db, "SELECT fresh FROM requests LIMIT 0", NULL, NULL, NULL) !=
-            SQLITE_OK &&
-        s_exec(self, "ALTER TABLE requests ADD COLUMN fresh INTEGER NOT NULL DEFAULT 0") != 0)
-        goto fail;
-    /* Stores made before plugins listed seed params lack plugins.seed_params
-     * (NULL there means "not recorded": the next HELLO fills it). */
-    if (sqlite3_exec(self->db, "SELECT seed_params FROM plugins LIMIT 0", NULL, NULL, NULL) !=
-            SQLITE_OK &&
-        s_exec(self, "ALTER TABLE plugins ADD COLUMN seed_params TEXT") != 0)
-        goto fail;
-    /* ... and plugins.param_defaults (NULL: not recorded, filled likewise). */
-    if (sqlite3_exec(self->db, "SELECT param_defaults FROM plugins LIMIT 0", NULL, NULL, NULL) !=
-            SQLITE_OK &&
-        s_exec(self, "ALTER TABLE plugins ADD COLUMN param_defaults TEXT") != 0)
-        goto fail;
-    /* Stores made before runs had owners lack runs.owner (NULL there means
-     * "not recorded": access.h says who may claim such a run). */
-    if (sqlite3_exec(self->db, "SELECT owner FROM runs LIMIT 0", NULL, NULL, NULL) !=
-            SQLITE_OK &&
-        s_exec(self, "ALTER TABLE runs ADD COLUMN owner TEXT") != 0)
-        goto fail;
-    if (s_migrate_history(self) != 0 || s_migrate_versions(self) != 0 ||
-        s_exec(self, s_simulations_view) != 0)
+    if ((dir && broker_store_quick_check(self->db, self->path) != 0) ||
+        broker_store_exec(self->db, self->path, "PRAGMA journal_mode=WAL") != 0 ||
+        broker_store_exec(self->db, self->path,
+                          scratch ? "PRAGMA synchronous=OFF" : "PRAGMA synchronous=FULL") != 0 ||
+        broker_store_exec(self->db, self->path, "PRAGMA cache_size=-" STORE_CACHE_KIB) != 0 ||
+        broker_store_schema_apply(self->db, self->path) != 0)
         goto fail;
     for (int i = 0; i < S_COUNT_; i++) {
         if (sqlite3_prepare_v3(self->db, s_sql[i], -1, SQLITE_PREPARE_PERSISTENT, &self->stmt[i],
                                NULL) != SQLITE_OK) {
-            if (s_is_damage(sqlite3_errcode(self->db)))
+            if (broker_store_is_damage(sqlite3_errcode(self->db)))
                 broker_store_report_damage(self->path, "preparing a statement",
                                          sqlite3_errmsg(self->db));
             else

@@ -1,0 +1,226 @@
+/* store_schema.c: the store's tables, the check of a file at open, and the
+ * moves of older stores to the current schema (see store_schema.h). Owns no
+ * state: store.c passes its connection in. */
+#include "store_schema.h"
+
+#include <stdio.h>
+#include <string.h>
+
+#include "common/clock.h"
+#include "common/log.h"
+#include "store.h"
+
+/* The plugins table of schema 3, here and in s_migrate_versions. */
+#define S_PLUGINS_COLUMNS                                                                      \
+    "(name TEXT NOT NULL, version TEXT NOT NULL, objectives INTEGER NOT NULL,"                 \
+    " flags INTEGER NOT NULL, digests BLOB NOT NULL, last_seen REAL NOT NULL,"                 \
+    " seed_params TEXT, param_defaults TEXT, first_seen REAL NOT NULL,"                        \
+    " PRIMARY KEY(name, version))"
+
+static const char s_schema[] =
+    "CREATE TABLE IF NOT EXISTS meta(name TEXT PRIMARY KEY, value TEXT NOT NULL);"
+    "CREATE TABLE IF NOT EXISTS runs("
+    " run_id TEXT PRIMARY KEY, seed INTEGER NOT NULL, seed_mode INTEGER NOT NULL,"
+    " created REAL NOT NULL, last_activity REAL NOT NULL, owner TEXT);"
+    "CREATE TABLE IF NOT EXISTS evaluations("
+    " key BLOB PRIMARY KEY, plugin TEXT NOT NULL, version TEXT NOT NULL,"
+    " params TEXT NOT NULL, genome BLOB NOT NULL, seed INTEGER NOT NULL,"
+    " timeout_ms INTEGER NOT NULL, max_attempts INTEGER NOT NULL, created REAL NOT NULL,"
+    " status INTEGER, status_name TEXT, fitness BLOB, fitness_json TEXT, error TEXT,"
+    " attempts INTEGER, worker TEXT, host TEXT, arch TEXT, digest BLOB,"
+    " cpu_seconds REAL, peak_rss_kb INTEGER, finished_at REAL, run_id TEXT);"
+    "CREATE TABLE IF NOT EXISTS requests("
+    " run_id TEXT NOT NULL, tag INTEGER NOT NULL, batch_tag INTEGER NOT NULL,"
+    " replicate INTEGER NOT NULL, key BLOB NOT NULL, cached INTEGER NOT NULL,"
+    " acked INTEGER NOT NULL DEFAULT 0, created REAL NOT NULL,"
+    " fresh INTEGER NOT NULL DEFAULT 0,"
+    " PRIMARY KEY(run_id, tag)) WITHOUT ROWID;"
+    /* Requests not yet acknowledged (a partial index stays as small as the
+     * work in flight and the results owed): the start finds pending work
+     * and owed results through it (store_load.c, backlog.c), never by a
+     * pass over every request ever made. Schema 2 dropped requests_by_key
+     * (on key): its only reader was that pass, and with random keys it
+     * cost a random b-tree insert and about 69 bytes per request. */
+    "CREATE INDEX IF NOT EXISTS requests_unacked ON requests(run_id, tag) WHERE acked = 0;"
+    "DROP INDEX IF EXISTS requests_by_key;"
+    "CREATE TABLE IF NOT EXISTS results("
+    " key BLOB NOT NULL, run_id TEXT NOT NULL, fresh INTEGER NOT NULL,"
+    " status INTEGER NOT NULL, status_name TEXT NOT NULL, fitness BLOB, fitness_json TEXT,"
+    " error TEXT, attempts INTEGER, worker TEXT, host TEXT, arch TEXT, digest BLOB,"
+    " cpu_seconds REAL, peak_rss_kb INTEGER, finished_at REAL NOT NULL);"
+    "CREATE INDEX IF NOT EXISTS results_by_run ON results(run_id, key);"
+    "CREATE TABLE IF NOT EXISTS plugins" S_PLUGINS_COLUMNS ";";
+
+/* Every simulation that finished: the first evaluation of each key (in
+ * evaluations, with the run that paid for it) and every re-evaluation (in
+ * results). Made after s_migrate_history, which adds evaluations.run_id to
+ * older stores. */
+static const char s_simulations_view[] =
+    "CREATE VIEW IF NOT EXISTS simulations AS"
+    " SELECT key, run_id, 0 AS fresh, status, status_name, fitness, fitness_json, error,"
+    " attempts, worker, host, arch, digest, cpu_seconds, peak_rss_kb, finished_at"
+    " FROM evaluations WHERE status IS NOT NULL"
+    " UNION ALL SELECT key, run_id, 1 AS fresh, status, status_name, fitness, fitness_json,"
+    " error, attempts, worker, host, arch, digest, cpu_seconds, peak_rss_kb, finished_at"
+    " FROM results";
+
+/* SQLite's word for a file that is not a sound database. */
+int broker_store_is_damage(int rc)
+{
+    rc &= 0xff;
+    return rc == SQLITE_CORRUPT || rc == SQLITE_NOTADB;
+}
+
+int broker_store_exec(sqlite3 *db, const char *path, const char *sql)
+{
+    char *msg = NULL;
+    int rc = sqlite3_exec(db, sql, NULL, NULL, &msg);
+    if (rc != SQLITE_OK) {
+        if (broker_store_is_damage(rc))
+            broker_store_report_damage(path, sql, msg ? msg : sqlite3_errstr(rc));
+        else
+            LOG_ERROR("store %s: %s failed: %s", path, sql, msg ? msg : "?");
+        sqlite3_free(msg);
+        return -1;
+    }
+    return 0;
+}
+
+/* PRAGMA quick_check at start: every b-tree page and record header of the
+ * file is read once (not the index-to-table cross-checks of integrity_check),
+ * so a damaged page is found before the broker relies on it. Its cost,
+ * measured on our 2-core machine, is in the README ("The store"). Returns 0
+ * when the file is sound. */
+int broker_store_quick_check(sqlite3 *db, const char *path)
+{
+    int64_t t0 = common_clock_ms();
+    sqlite3_stmt *st = NULL;
+    int rc = sqlite3_prepare_v2(db, "PRAGMA quick_check(5)", -1, &st, NULL);
+    char first[512] = "";
+    int rows = 0, ok = 0;
+    if (rc == SQLITE_OK)
+        rc = SQLITE_ROW;
+    while (rc == SQLITE_ROW && (rc = sqlite3_step(st)) == SQLITE_ROW) {
+        const char *line = (const char *)sqlite3_column_text(st, 0);
+        if (rows++ == 0) {
+            snprintf(first, sizeof first, "%s", line ? line : "");
+            ok = line && strcmp(line, "ok") == 0;
+        }
+    }
+    if (rc != SQLITE_DONE) {
+        snprintf(first, sizeof first, "%s", sqlite3_errmsg(db));
+        ok = 0;
+    }
+    sqlite3_finalize(st);
+    if (!ok) {
+        broker_store_report_damage(path, "PRAGMA quick_check", first);
+        return -1;
+    }
+    int64_t took = common_clock_ms() - t0;
+    if (took >= 1000)
+        LOG_INFO("store %s checked (PRAGMA quick_check: ok) in %.1f s", path,
+                 (double)took / 1000.0);
+    return 0;
+}
+
+/* Schema 1 stores kept a copy of every first evaluation in the results
+ * history and had no evaluations.run_id. Moves the paying run into
+ * evaluations and drops the copies, in one transaction, once per store; a
+ * store of a million evaluations takes seconds, logged. */
+static int s_migrate_history(sqlite3 *db, const char *path)
+{
+    if (sqlite3_exec(db, "SELECT run_id FROM evaluations LIMIT 0", NULL, NULL, NULL) ==
+        SQLITE_OK)
+        return 0;
+    int64_t t0 = common_clock_ms();
+    if (broker_store_exec(db, path, "BEGIN IMMEDIATE") != 0 ||
+        broker_store_exec(db, path, "ALTER TABLE evaluations ADD COLUMN run_id TEXT") != 0 ||
+        broker_store_exec(db, path, "UPDATE evaluations SET run_id = (SELECT y.run_id FROM results y"
+                     " WHERE y.key = evaluations.key AND y.fresh = 0 ORDER BY y.rowid LIMIT 1)"
+                     " WHERE status IS NOT NULL") != 0 ||
+        broker_store_exec(db, path, "DELETE FROM results WHERE fresh = 0") != 0 ||
+        broker_store_exec(db, path, "UPDATE meta SET value = '2' WHERE name = 'schema_version'") != 0 ||
+        broker_store_exec(db, path, "COMMIT") != 0) {
+        if (!sqlite3_get_autocommit(db))
+            sqlite3_exec(db, "ROLLBACK", NULL, NULL, NULL);
+        LOG_ERROR("store %s: cannot move it to schema 2 (nothing changed: the transaction "
+                  "rolled back)",
+                  path);
+        return -1;
+    }
+    LOG_INFO("store %s moved to schema 2 in %.1f s: the results history keeps re-evaluations "
+             "only; first evaluations name their run in evaluations.run_id",
+             path, (double)(common_clock_ms() - t0) / 1000.0);
+    return 0;
+}
+
+/* Schema 2 stores keyed plugins by name alone (one version per name, the
+ * first one seen). Rebuilds the table keyed by name and version, its rows
+ * first_seen = last_seen (one version each: nothing to order), and sets
+ * schema_version 3, in one transaction, once per store. A table has a few
+ * rows: this takes milliseconds. */
+static int s_migrate_versions(sqlite3 *db, const char *path)
+{
+    if (sqlite3_exec(db, "SELECT first_seen FROM plugins LIMIT 0", NULL, NULL, NULL) ==
+        SQLITE_OK)
+        return 0;
+    if (broker_store_exec(db, path, "BEGIN IMMEDIATE") != 0 ||
+        broker_store_exec(db, path, "CREATE TABLE plugins_v3" S_PLUGINS_COLUMNS) != 0 ||
+        broker_store_exec(db, path, "INSERT INTO plugins_v3(name, version, objectives, flags, digests,"
+                     " last_seen, seed_params, param_defaults, first_seen)"
+                     " SELECT name, version, objectives, flags, digests, last_seen, seed_params,"
+                     " param_defaults, last_seen FROM plugins ORDER BY rowid") != 0 ||
+        broker_store_exec(db, path, "DROP TABLE plugins") != 0 ||
+        broker_store_exec(db, path, "ALTER TABLE plugins_v3 RENAME TO plugins") != 0 ||
+        broker_store_exec(db, path, "UPDATE meta SET value = '3' WHERE name = 'schema_version'") != 0 ||
+        broker_store_exec(db, path, "COMMIT") != 0) {
+        if (!sqlite3_get_autocommit(db))
+            sqlite3_exec(db, "ROLLBACK", NULL, NULL, NULL);
+        LOG_ERROR("store %s: cannot move it to schema 3 (nothing changed: the transaction "
+                  "rolled back)",
+                  path);
+        return -1;
+    }
+    LOG_INFO("store %s moved to schema 3: plugins are kept per name and version (a plugin "
+             "given without a version still means the one this store saw first)",
+             path);
+    return 0;
+}
+
+int broker_store_schema_apply(sqlite3 *db, const char *path)
+{
+    if (broker_store_exec(db, path, s_schema) != 0 ||
+        broker_store_exec(db, path, "BEGIN IMMEDIATE") != 0)
+        return -1;
+    char sql[128];
+    snprintf(sql, sizeof sql, "INSERT OR IGNORE INTO meta VALUES('schema_version', '%d')",
+             STORE_SCHEMA_VERSION);
+    if (broker_store_exec(db, path, sql) != 0 || broker_store_exec(db, path, "COMMIT") != 0)
+        return -1;
+    /* Stores made before re-evaluations were kept apart lack requests.fresh. */
+    if (sqlite3_exec(db, "SELECT fresh FROM requests LIMIT 0", NULL, NULL, NULL) !=
+            SQLITE_OK &&
+        broker_store_exec(db, path, "ALTER TABLE requests ADD COLUMN fresh INTEGER NOT NULL DEFAULT 0") != 0)
+        return -1;
+    /* Stores made before plugins listed seed params lack plugins.seed_params
+     * (NULL there means "not recorded": the next HELLO fills it). */
+    if (sqlite3_exec(db, "SELECT seed_params FROM plugins LIMIT 0", NULL, NULL, NULL) !=
+            SQLITE_OK &&
+        broker_store_exec(db, path, "ALTER TABLE plugins ADD COLUMN seed_params TEXT") != 0)
+        return -1;
+    /* ... and plugins.param_defaults (NULL: not recorded, filled likewise). */
+    if (sqlite3_exec(db, "SELECT param_defaults FROM plugins LIMIT 0", NULL, NULL, NULL) !=
+            SQLITE_OK &&
+        broker_store_exec(db, path, "ALTER TABLE plugins ADD COLUMN param_defaults TEXT") != 0)
+        return -1;
+    /* Stores made before runs had owners lack runs.owner (NULL there means
+     * "not recorded": access.h says who may claim such a run). */
+    if (sqlite3_exec(db, "SELECT owner FROM runs LIMIT 0", NULL, NULL, NULL) !=
+            SQLITE_OK &&
+        broker_store_exec(db, path, "ALTER TABLE runs ADD COLUMN owner TEXT") != 0)
+        return -1;
+    if (s_migrate_history(db, path) != 0 || s_migrate_versions(db, path) != 0 ||
+        broker_store_exec(db, path, s_simulations_view) != 0)
+        return -1;
+    return 0;
+}

@@ -1,0 +1,30 @@
+/* store_schema.h: the store's tables and how a file made by an older
+ * broker is brought up to the current schema. Internal to the store
+ * (store.c opens the connection, sets WAL and synchronous, then calls
+ * these).
+ * Schema versions (meta.schema_version) below. */
+#ifndef BROKER_STORE_SCHEMA_H
+#define BROKER_STORE_SCHEMA_H
+
+#include <sqlite3.h>
+
+/* 1: the first layout.
+ * 2: the results history holds re-evaluations only; a first evaluation's
+ * run is evaluations.run_id (s_migrate_history moves schema 1 stores).
+ * 3: plugins has one row per name and version, with first_seen (which
+ * version a plugin given without one means, catalog.h); s_migrate_versions
+ * moves schema 2 stores. */
+#define STORE_SCHEMA_VERSION 3
+
+/* SQLite's word for a file that is not a sound database (CORRUPT, NOTADB). */
+int broker_store_is_damage(int rc);
+/* Runs sql; on failure logs it (a damaged file as such) and returns -1. */
+int broker_store_exec(sqlite3 *db, const char *path, const char *sql);
+/* PRAGMA quick_check of the whole file; 0 when sound, else -1 (reported). */
+int broker_store_quick_check(sqlite3 *db, const char *path);
+/* Creates what is missing, records the schema version, adds the columns
+ * older stores lack and moves schema 1 and 2 stores to 3 (each move one
+ * transaction: a failure leaves the file as it was). 0, or -1 (logged). */
+int broker_store_schema_apply(sqlite3 *db, const char *path);
+
+#endif
