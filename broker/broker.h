@@ -20,6 +20,10 @@ typedef struct {
     int liveness_ms;              /* a worker silent this long is dropped; 0 = 5000 */
     int heartbeat_ms;             /* 0 = 1000 */
     unsigned attempts;            /* tries of a job that crashes or times out; 0 = 3 */
+    /* Straggler copies (speculate.h): off when no_speculation; a job older
+     * than speculate_after x its plugin's median is copied (0 = 1.5). */
+    int no_speculation;
+    double speculate_after;
     /* Where to write the bound endpoints (after wildcard ports are resolved)
      * as two lines "clients ENDPOINT\nworkers ENDPOINT\n"; NULL = nowhere.
      * Written atomically (temp file + rename) once both are bound. */

@@ -38,6 +38,7 @@
 
 #include "msg.h"
 #include "table.h"
+#include "timing.h"
 
 #define BROKER_CATALOG_MAX_DIGESTS 8 /* distinct builds remembered per version */
 
@@ -66,6 +67,7 @@ typedef struct broker_plugin {
      * predates them, which the next HELLO of the pinned build then fills. */
     char *param_defaults;
     int param_defaults_known;
+    broker_timing_t timing;  /* wall seconds of its evaluations, any worker (timing.h) */
     uint32_t carriers;       /* connected workers that carry it */
     uint32_t blocked_offers; /* connected workers offering this name and version
                               * with another build: they get none of its jobs */

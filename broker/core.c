@@ -27,6 +27,7 @@ void broker_core_init_config(broker_t *b, const broker_config_t *config)
     b->liveness_ms = config->liveness_ms > 0 ? config->liveness_ms : 5000;
     b->heartbeat_ms = config->heartbeat_ms > 0 ? config->heartbeat_ms : 1000;
     b->attempts = config->attempts > 0 ? config->attempts : 3;
+    broker_speculate_init(&b->spec, !config->no_speculation, config->speculate_after);
     b->limits = proto_limits_default();
     b->max_queued_per_run = BROKER_DEFAULT_QUEUED_PER_RUN;
     b->max_queued_per_client = BROKER_DEFAULT_QUEUED_PER_CLIENT;

@@ -15,6 +15,7 @@
 #include "msg.h"
 #include "registry.h"
 #include "runs.h"
+#include "speculate.h"
 #include "stats.h"
 #include "store.h"
 #include "timers.h"
@@ -69,6 +70,7 @@ typedef struct broker {
     broker_store_t *store;
     broker_timer_t heartbeat_timer;
     broker_timer_t liveness_timer;
+    broker_speculate_t spec; /* straggler copies (speculate.h) */
     uint64_t next_job_id;
     int64_t now_ms;
     int stopping;

@@ -36,6 +36,7 @@ uint64_t broker_dispatch_turn(broker_t *b)
                 break;
             e->state = BROKER_EVAL_RUNNING;
             e->worker = w;
+            broker_eval_mark_sent(e, b->now_ms);
             broker_evals_bind_job(&b->evals, e, ++b->next_job_id);
             broker_worker_hold(w, e);
             broker_registry_spend(&b->registry, w);
@@ -64,6 +65,7 @@ uint64_t broker_dispatch_turn(broker_t *b)
 static void s_detach(broker_t *b, broker_eval_t *e)
 {
     if (e->state == BROKER_EVAL_RUNNING) {
+        broker_speculate_drop_for(b, e); /* its copy is no longer wanted */
         broker_worker_release(e->worker, e);
         broker_evals_unbind_job(&b->evals, e);
         e->worker = NULL;
@@ -117,6 +119,48 @@ static int s_retryable(uint32_t status)
     return status == PROTO_STATUS_CRASHED || status == PROTO_STATUS_TIMEOUT;
 }
 
+/* An evaluation that ran to its end (ok, or the plugin said it failed)
+ * counts in the medians of its plugin and of its worker (timing.h). */
+static void s_note_time(broker_worker_t *w, broker_plugin_t *plugin, const proto_outcome_t *o)
+{
+    if (o->status != PROTO_STATUS_OK && o->status != PROTO_STATUS_FAILED)
+        return;
+    broker_timing_add(&plugin->timing, o->wall_seconds);
+    broker_timing_t *t = w ? broker_worker_timing(w, plugin) : NULL;
+    if (t)
+        broker_timing_add(t, o->wall_seconds);
+}
+
+/* The outcome of a straggler copy (speculate.h), its record already taken. */
+static void s_copy_outcome(broker_t *b, broker_worker_t *w, const broker_copy_t *c,
+                           const proto_outcome_t *o)
+{
+    broker_eval_t *e = c->e;
+    if (w != c->w) {
+        LOG_WARN("ignored the result of job %" PRIu64 " from worker %s: it was sent to %s",
+                 o->job_id, w ? w->name : "(unregistered)", c->w->name);
+        return;
+    }
+    if (s_retryable(o->status)) {
+        b->spec.failed++;
+        LOG_INFO("copy job %" PRIu64 " of job %" PRIu64 " %s on worker %s: %s; the first "
+                 "keeps running on %s",
+                 o->job_id, e->job_id, proto_status_name((int)o->status), w->name,
+                 o->error ? o->error : "", e->worker->name);
+        return;
+    }
+    assert(e->state == BROKER_EVAL_RUNNING);
+    s_note_time(w, e->plugin, o);
+    b->spec.won++;
+    LOG_INFO("job %" PRIu64 ": its copy, job %" PRIu64 " on worker %s, finished first (%.3f s "
+             "after it was sent); the first, on worker %s, is cancelled",
+             e->job_id, o->job_id, w->name, (double)(b->now_ms - c->sent_ms) / 1000.0,
+             e->worker->name);
+    broker_speculate_cancel(b, e->worker, e->job_id);
+    s_detach(b, e);
+    broker_dispatch_complete(b, e, w, o);
+}
+
 void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcome_t *o)
 {
     if (w) {
@@ -125,6 +169,11 @@ void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcom
         if (isfinite(o->cpu_seconds) && o->cpu_seconds > 0 && o->cpu_seconds < 1e9)
             w->cpu_seconds += o->cpu_seconds;
     }
+    broker_copy_t copy;
+    if (broker_speculate_take(&b->spec, o->job_id, &copy)) {
+        s_copy_outcome(b, w, &copy, o);
+        return;
+    }
     broker_eval_t *e = broker_evals_by_job(&b->evals, o->job_id);
     if (e) {
         if (e->worker != w) {
@@ -132,6 +181,7 @@ void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcom
                      o->job_id, w ? w->name : "(unregistered)", e->worker->name);
             return;
         }
+        s_note_time(w, e->plugin, o);
         s_detach(b, e);
         if (s_retryable(o->status)) {
             e->attempts++;
@@ -193,6 +243,7 @@ uint32_t broker_dispatch_drop_worker(broker_t *b, broker_worker_t *w)
         assert(broker_eval_check(&b->evals, e));
         n++;
     }
+    broker_speculate_forget_worker(b, w);
     broker_registry_remove(&b->registry, w);
     return n;
 }
@@ -205,6 +256,9 @@ uint32_t broker_dispatch_hand_back(broker_t *b, broker_worker_t *w, const uint64
      * No avoid_worker: w takes nothing while paused, and when every other
      * carrier is paused too, w must be free to take its jobs again. */
     for (uint32_t i = n; i-- > 0;) {
+        broker_copy_t copy;
+        if (broker_speculate_take(&b->spec, job_ids[i], &copy))
+            continue; /* a copy: the first keeps running */
         broker_eval_t *e = broker_evals_by_job(&b->evals, job_ids[i]);
         if (!e || e->worker != w)
             continue;

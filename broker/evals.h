@@ -114,6 +114,19 @@ typedef struct broker_eval {
     uint8_t genome[]; /* copied in; the evaluation owns it */
 } broker_eval_t;
 
+/* While an evaluation is RUNNING its provenance is not set yet (the result
+ * sets all of it): prov.finished_at holds the broker's clock, in ms, at its
+ * dispatch instead, for the straggler copies (speculate.h), which saves a
+ * field in every cached evaluation. */
+static inline void broker_eval_mark_sent(broker_eval_t *e, int64_t now_ms)
+{
+    e->prov.finished_at = (double)now_ms;
+}
+static inline int64_t broker_eval_sent_ms(const broker_eval_t *e)
+{
+    return (int64_t)e->prov.finished_at;
+}
+
 typedef struct {
     broker_table_t *by_key;
     broker_table_t *by_job;    /* job id -> RUNNING evaluation */

@@ -147,8 +147,10 @@ static int s_before_sleep(broker_t *b, int may_hold)
 {
     /* A store that cannot write could not keep the results of new jobs:
      * the running ones finish and wait in memory, nothing more is sent. */
-    if (!b->stopping && !broker_store_failing(b->store))
+    if (!b->stopping && !broker_store_failing(b->store)) {
         broker_dispatch_turn(b);
+        broker_speculate_turn(b); /* spare credits take copies of stragglers */
+    }
     if (may_hold && !b->stopping && b->runs.total_running > 0 &&
         !broker_store_failing(b->store)) {
         int64_t waited = broker_store_waiting_us(b->store, common_clock_us());
@@ -279,6 +281,9 @@ int broker_main_run(const broker_config_t *config)
         long retry = broker_store_retry_in_ms(b.store);
         if (retry >= 0 && (timeout < 0 || retry < timeout))
             timeout = retry; /* wake for the store's next retry */
+        long spec = broker_speculate_timeout_ms(&b);
+        if (spec >= 0 && (timeout < 0 || spec < timeout))
+            timeout = spec; /* a running job may become a straggler then */
         int64_t reopen = broker_fdreserve_timeout_ms(b.now_ms);
         if (reopen >= 0 && (timeout < 0 || reopen < timeout))
             timeout = (long)reopen;

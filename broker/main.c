@@ -32,6 +32,11 @@ static void s_usage(FILE *out)
             "                        re-queued (default 5000; formerly --liveness)\n"
             "  --heartbeat MS        heartbeat interval to workers (default 1000)\n"
             "  --attempts N          tries of a job that crashes or times out (default 3)\n"
+            "  --speculate-after X   when nothing is queued and a worker is idle, a job\n"
+            "                        running longer than X times its plugin's median gets a\n"
+            "                        copy on a worker expected to finish sooner; the first\n"
+            "                        result wins, the other copy is cancelled (default 1.5)\n"
+            "  --no-speculation      never start such copies\n"
             "  --endpoints-file FILE write the bound endpoints there as\n"
             "                        \"clients EP\\nworkers EP\\n\" (atomically, once both are\n"
             "                        listening: a starter waits for this file to know the\n"
@@ -170,6 +175,10 @@ int main(int argc, char **argv)
             cfg.scratch_store = 1;
             continue;
         }
+        if (strcmp(a, "--no-speculation") == 0) {
+            cfg.no_speculation = 1;
+            continue;
+        }
         static const char *const with_value[] = {
             "--clients",          "--workers",          "--store",
             "--liveness",         "--lost-after",       "--heartbeat",        "--attempts",
@@ -180,7 +189,7 @@ int main(int argc, char **argv)
             "--max-unacked",      "--cache-entries",    "--cache-mb",
             "--max-queued-per-key", "--max-queued-bytes-per-run", "--max-queued-bytes-per-key",
             "--max-queued-bytes", "--max-runs-per-key", "--max-runs",
-            "--lock-wait",        "--lifeline-fd",      "--http"};
+            "--lock-wait",        "--lifeline-fd",      "--http",  "--speculate-after"};
         int known = 0;
         for (size_t k = 0; k < sizeof with_value / sizeof *with_value; k++)
             known |= strcmp(a, with_value[k]) == 0;
@@ -250,6 +259,13 @@ int main(int argc, char **argv)
                 return s_bad("--heartbeat wants milliseconds between 10 and 3600000, not '%s'",
                              v);
             cfg.heartbeat_ms = (int)n;
+        } else if (strcmp(a, "--speculate-after") == 0) {
+            char *end = NULL;
+            double x = strtod(v, &end);
+            if (!*v || *end || !(x >= 1.05 && x <= 1000))
+                return s_bad("--speculate-after wants a factor between 1.05 and 1000, not '%s'",
+                             v);
+            cfg.speculate_after = x;
         } else if (strcmp(a, "--attempts") == 0) {
             if (s_parse_int(v, 1, 1000, &n) != 0)
                 return s_bad("--attempts wants a count between 1 and 1000, not '%s'", v);

@@ -24,7 +24,8 @@ static void s_workers(broker_outbuf_t *o, broker_t *b, const char *name, int whi
         broker_outbuf_printf(o, "\",host=\"");
         broker_outbuf_label(o, w->host);
         broker_outbuf_printf(o, "\",registration=\"%" PRIu64 "\"} ", w->serial);
-        uint32_t busy = w->held < w->slots ? w->held : w->slots; /* as status.c */
+        uint32_t held = w->held + w->copies;
+        uint32_t busy = held < w->slots ? held : w->slots; /* as status.c */
         if (which == 0)
             broker_outbuf_printf(o, "%u\n", w->slots);
         else if (which == 1)

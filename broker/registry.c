@@ -23,6 +23,7 @@ static void s_free_worker(broker_worker_t *w)
     for (uint32_t i = 0; i < w->n_blocked; i++)
         w->blocked[i]->blocked_offers--;
     free(w->plugins);
+    free(w->timing);
     free(w->blocked);
     free(w->carries);
     free(w->name);
@@ -133,6 +134,8 @@ void broker_worker_carry(broker_worker_t *w, broker_plugin_t *plugin)
     }
     w->carries[plugin->id / 8] |= (uint8_t)(1u << (plugin->id % 8));
     w->plugins = common_xrealloc(w->plugins, (size_t)w->n_plugins + 1, sizeof *w->plugins);
+    w->timing = common_xrealloc(w->timing, (size_t)w->n_plugins + 1, sizeof *w->timing);
+    memset(&w->timing[w->n_plugins], 0, sizeof *w->timing);
     w->plugins[w->n_plugins++] = plugin;
     plugin->carriers++;
 }
@@ -150,6 +153,14 @@ void broker_worker_block(broker_worker_t *w, broker_plugin_t *plugin)
 int broker_worker_carries(const broker_worker_t *w, const broker_plugin_t *plugin)
 {
     return plugin->id < w->carries_bits && (w->carries[plugin->id / 8] >> (plugin->id % 8)) & 1u;
+}
+
+broker_timing_t *broker_worker_timing(broker_worker_t *w, const broker_plugin_t *plugin)
+{
+    for (uint32_t i = 0; i < w->n_plugins; i++)
+        if (w->plugins[i] == plugin)
+            return &w->timing[i];
+    return NULL;
 }
 
 void broker_registry_remove(broker_registry_t *self, broker_worker_t *w)

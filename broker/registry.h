@@ -39,6 +39,7 @@ typedef struct broker_worker {
     char *name, *host, *arch;
     uint32_t slots;
     broker_plugin_t **plugins; /* carried, borrowed from the catalog */
+    broker_timing_t *timing;   /* wall seconds of its evaluations, per plugins[i] */
     uint32_t n_plugins;
     broker_plugin_t **blocked; /* offered with another build than the pinned: no jobs */
     uint32_t n_blocked;
@@ -46,6 +47,7 @@ typedef struct broker_worker {
     uint32_t carries_bits;
     uint32_t credits;
     uint32_t held; /* jobs dispatched and not finished */
+    uint32_t copies; /* straggler copies running here (speculate.h), not in held */
     /* Outcomes this registration reported and the CPU seconds they say they
      * took (the metrics page); retried and ignored ones count too. */
     uint64_t outcomes;
@@ -88,6 +90,8 @@ void broker_worker_carry(broker_worker_t *w, broker_plugin_t *plugin);
  * does not give jobs to (counted in plugin->blocked_offers while w is here). */
 void broker_worker_block(broker_worker_t *w, broker_plugin_t *plugin);
 int broker_worker_carries(const broker_worker_t *w, const broker_plugin_t *plugin);
+/* w's timing for a plugin it carries; NULL when it does not carry it. */
+broker_timing_t *broker_worker_timing(broker_worker_t *w, const broker_plugin_t *plugin);
 /* Unlinks and frees w; the caller has emptied its job list first. */
 void broker_registry_remove(broker_registry_t *self, broker_worker_t *w);
 

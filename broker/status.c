@@ -24,7 +24,8 @@ void broker_status_fill(broker_t *b, const char *who, int every_run, proto_statu
         wi->slots = w->slots;
         /* Running, not prefetched: a worker starts a job as soon as a slot
          * is free, so at most slots of the jobs it holds are running. */
-        wi->busy = w->held < w->slots ? w->held : w->slots;
+        uint32_t busy = w->held + w->copies;
+        wi->busy = busy < w->slots ? busy : w->slots;
         wi->speed = w->speed;
         wi->state = w->state;
         wi->n_plugins = w->n_plugins;

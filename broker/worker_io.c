@@ -140,10 +140,17 @@ void broker_worker_on_message(broker_t *b, const uint8_t *rid, size_t rid_len, c
             const proto_hand_back_t *hb = &msg->u.hand_back;
             uint32_t n = broker_dispatch_hand_back(b, w, hb->job_ids, hb->n_jobs);
             broker_registry_clear_credits(&b->registry, w);
-            snprintf(w->state, sizeof w->state, "paused: %s", hb->reason);
-            LOG_INFO("worker %s paused: %s; re-queued the %u jobs it handed back, none sent "
-                     "until it asks again",
-                     w->name, hb->reason, n);
+            if (hb->draining) {
+                snprintf(w->state, sizeof w->state, "draining");
+                LOG_INFO("worker %s is draining (%s); re-queued the %u jobs it handed back, "
+                         "its running evaluations finish",
+                         w->name, hb->reason, n);
+            } else {
+                snprintf(w->state, sizeof w->state, "paused: %s", hb->reason);
+                LOG_INFO("worker %s paused: %s; re-queued the %u jobs it handed back, none "
+                         "sent until it asks again",
+                         w->name, hb->reason, n);
+            }
         }
         break;
     case PROTO_BYE:

@@ -9,7 +9,7 @@
 #include <stddef.h>
 #include <stdint.h>
 
-#define PROTO_VERSION 1
+#define PROTO_VERSION 2
 
 #define PROTO_MAX_MESSAGE_BYTES (64u * 1024u * 1024u) /* one ZeroMQ message */
 #define PROTO_MAX_GENOME_BYTES (1u * 1024u * 1024u)   /* one genome */

@@ -43,6 +43,7 @@ typedef enum {
     /* broker -> worker */
     PROTO_JOBS = 30,
     PROTO_REHELLO = 31,
+    PROTO_CANCEL = 32,
     /* both directions on the workers endpoint (and client <-> broker) */
     PROTO_HEARTBEAT = 40,
 } proto_type_t;
@@ -258,7 +259,9 @@ typedef struct {
 } proto_credit_t;
 
 /* One finished job: [job_id uint, status uint, fitness array of f64,
- *  cpu_seconds f64, peak_rss_kb uint, error str] */
+ *  cpu_seconds f64, peak_rss_kb uint, error str, wall_seconds f64]:
+ *  wall_seconds from the evaluation's start in its child to its answer (the
+ *  broker's per-plugin medians and straggler copies, speculate.h). */
 typedef struct {
     uint64_t job_id;
     uint32_t status; /* proto_job_status_t */
@@ -267,6 +270,7 @@ typedef struct {
     double cpu_seconds;
     uint64_t peak_rss_kb;
     char *error; /* "" when none */
+    double wall_seconds;
 } proto_outcome_t;
 
 /* [v, DONE, credits uint, outcomes array]: finished jobs, plus credits the
@@ -279,16 +283,19 @@ typedef struct {
 
 /* [v, BYE]: the worker leaves; its unfinished jobs go back to the queue. */
 
-/* [v, HAND_BACK, reason str, job_ids array of uint]: the worker's owner has
- * reclaimed the machine (reason says how, at most name_bytes, e.g. "outside
- * --hours 08:00-18:00"): it takes no jobs until its next CREDIT, so the broker
- * forgets the credits it holds; the listed jobs (at most batch_items), which
- * the worker held and will never report, go back to the queue with the same
- * seed, not counted as attempts. */
+/* [v, HAND_BACK, reason str, job_ids array of uint, draining bool]: the
+ * worker takes no jobs until its next CREDIT, so the broker forgets the
+ * credits it holds; the listed jobs (at most batch_items), which the worker
+ * held and will never report, go back to the queue with the same seed, not
+ * counted as attempts. Either its owner has reclaimed the machine (draining
+ * false; reason says how, at most name_bytes, e.g. "outside --hours
+ * 08:00-18:00") or it is stopping (draining true: it was asked to stop, its
+ * running evaluations finish and are reported, then it says BYE). */
 typedef struct {
     char *reason;
     uint32_t n_jobs;
     uint64_t *job_ids;
+    uint8_t draining;
 } proto_hand_back_t;
 
 /* ---- broker -> worker -------------------------------------------------- */
@@ -309,6 +316,16 @@ typedef struct {
     uint32_t n_jobs;
     proto_job_t *jobs;
 } proto_jobs_t;
+
+/* [v, CANCEL, job_ids array of uint]: the broker no longer wants these jobs
+ * (another copy of each finished first, speculate.h). The worker drops the
+ * ones it has not started and kills the children running the others, then
+ * grants their credits again; it reports none of them. An id it does not
+ * hold (finished and reported meanwhile) is ignored. At most batch_items. */
+typedef struct {
+    uint32_t n_jobs;
+    uint64_t *job_ids;
+} proto_cancel_t;
 
 /* [v, REHELLO]: the broker does not know this worker (it restarted, or dropped
  * the registration): send HELLO again and re-announce credits. */
@@ -331,6 +348,7 @@ typedef struct {
         proto_done_t done;
         proto_hand_back_t hand_back;
         proto_jobs_t jobs;
+        proto_cancel_t cancel;
     } u; /* STATUS_REQ, BYE, REHELLO, HEARTBEAT have no fields */
 } proto_msg_t;
 

@@ -705,7 +705,7 @@ cleanup:
 static int s_outcome(s_cursor_t *c, proto_outcome_t *o)
 {
     int rc;
-    if ((rc = s_read_tuple(c, 6)))
+    if ((rc = s_read_tuple(c, 7)))
         goto cleanup;
     FIELD("job_id", s_read_u64(c, &o->job_id));
     FIELD("status", s_read_status(c, &o->status));
@@ -713,6 +713,7 @@ static int s_outcome(s_cursor_t *c, proto_outcome_t *o)
     FIELD("cpu_seconds", s_read_f64_measure(c, &o->cpu_seconds));
     FIELD("peak_rss_kb", s_read_u64(c, &o->peak_rss_kb));
     FIELD("error", s_read_str(c, c->lim.error_bytes, &o->error));
+    FIELD("wall_seconds", s_read_f64_measure(c, &o->wall_seconds));
 cleanup:
     return rc;
 }
@@ -723,8 +724,8 @@ static int s_done(s_cursor_t *c, proto_done_t *d)
     uint32_t n = 0;
     FIELD("credits", s_read_u32(c, &d->credits));
     size_t old = s_path_push(c, ".outcomes");
-    /* an outcome is at least 1 + 1 + 1 + 1 + 9 + 1 + 1 bytes */
-    if ((rc = s_read_array(c, c->lim.batch_items, 15, &n)) ||
+    /* an outcome is at least 1 + 1 + 1 + 1 + 9 + 1 + 1 + 9 bytes */
+    if ((rc = s_read_array(c, c->lim.batch_items, 24, &n)) ||
         (rc = s_alloc(c, (void **)&d->outcomes, n, sizeof *d->outcomes)))
         goto cleanup;
     d->n_outcomes = n;
@@ -740,6 +741,7 @@ static int s_hand_back(s_cursor_t *c, proto_hand_back_t *hb)
     int rc;
     FIELD("reason", s_read_str(c, c->lim.name_bytes, &hb->reason));
     FIELD("job_ids", s_read_u64_array(c, c->lim.batch_items, &hb->n_jobs, &hb->job_ids));
+    FIELD("draining", s_read_bool(c, &hb->draining));
 cleanup:
     return rc;
 }
@@ -874,6 +876,10 @@ int proto_msg_decode(const uint8_t *buf, size_t len, const proto_limits_t *limit
     case PROTO_DONE: rc = s_done(c, &m->u.done); break;
     case PROTO_HAND_BACK: rc = s_hand_back(c, &m->u.hand_back); break;
     case PROTO_JOBS: rc = s_jobs(c, &m->u.jobs); break;
+    case PROTO_CANCEL:
+        FIELD("job_ids", s_read_u64_array(c, c->lim.batch_items, &m->u.cancel.n_jobs,
+                                          &m->u.cancel.job_ids));
+        break;
     default: rc = PROTO_OK; break; /* no fields */
     }
     if (rc)

@@ -219,13 +219,14 @@ static int s_pack_done(msgpack_packer *pk, const proto_done_t *d)
     for (uint32_t i = 0; i < d->n_outcomes; i++) {
         const proto_outcome_t *o = &d->outcomes[i];
         REQUIRE(o->status < PROTO_STATUS_COUNT_);
-        PACK(msgpack_pack_array(pk, 6));
+        PACK(msgpack_pack_array(pk, 7));
         U64(o->job_id);
         U64(o->status);
         F64S(o->fitness, o->n_fitness);
         PACK(msgpack_pack_double(pk, o->cpu_seconds));
         U64(o->peak_rss_kb);
         STR(o->error);
+        PACK(msgpack_pack_double(pk, o->wall_seconds));
     }
 cleanup:
     return rc;
@@ -324,6 +325,15 @@ int proto_msg_encode(const proto_msg_t *msg, uint8_t **out, size_t *out_len)
         PACK(msgpack_pack_array(pk, hb->n_jobs));
         for (uint32_t i = 0; i < hb->n_jobs; i++)
             U64(hb->job_ids[i]);
+        PACK(hb->draining ? msgpack_pack_true(pk) : msgpack_pack_false(pk));
+        break;
+    }
+    case PROTO_CANCEL: {
+        const proto_cancel_t *cn = &msg->u.cancel;
+        REQUIRE(cn->job_ids || cn->n_jobs == 0);
+        PACK(msgpack_pack_array(pk, cn->n_jobs));
+        for (uint32_t i = 0; i < cn->n_jobs; i++)
+            U64(cn->job_ids[i]);
         break;
     }
     case PROTO_JOBS:

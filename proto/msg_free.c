@@ -96,6 +96,9 @@ void proto_msg_destroy(proto_msg_t **msg_p)
         free(m->u.hand_back.reason);
         free(m->u.hand_back.job_ids);
         break;
+    case PROTO_CANCEL:
+        free(m->u.cancel.job_ids);
+        break;
     case PROTO_HELLO: {
         proto_hello_t *h = &m->u.hello;
         free(h->name);

@@ -16,7 +16,8 @@ int proto_msg_field_count(uint32_t type)
     case PROTO_HELLO: return 6;
     case PROTO_CREDIT: return 1;
     case PROTO_DONE: return 2;
-    case PROTO_HAND_BACK: return 2;
+    case PROTO_HAND_BACK: return 3;
+    case PROTO_CANCEL: return 1;
     case PROTO_JOBS: return 1;
     case PROTO_STATUS_REQ:
     case PROTO_BYE:
@@ -43,6 +44,7 @@ const char *proto_type_name(int type)
     case PROTO_HAND_BACK: return "HAND_BACK";
     case PROTO_JOBS: return "JOBS";
     case PROTO_REHELLO: return "REHELLO";
+    case PROTO_CANCEL: return "CANCEL";
     case PROTO_HEARTBEAT: return "HEARTBEAT";
     default: return "?";
     }

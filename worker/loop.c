@@ -215,6 +215,7 @@ static void s_flush_back(s_worker_t *self)
             n = S_MAX_OUTCOMES_PER_DONE;
         proto_msg_t msg = {.type = PROTO_HAND_BACK};
         msg.u.hand_back.reason = self->pause_reason;
+        msg.u.hand_back.draining = (uint8_t)(self->draining != 0);
         msg.u.hand_back.n_jobs = (uint32_t)n;
         msg.u.hand_back.job_ids = self->back + sent;
         if (s_send(self, &msg) != 0)
@@ -314,6 +315,35 @@ static void s_on_jobs(s_worker_t *self, proto_msg_t *msg)
         s_hand_back_queue(self);
 }
 
+/* The broker no longer wants these jobs (another copy finished first): the
+ * ones not started are dropped, the running ones' children are killed and
+ * replaced (pool.h); none is reported, and the credits come back with the
+ * next grant because we hold fewer jobs. */
+static void s_on_cancel(s_worker_t *self, const proto_cancel_t *cn)
+{
+    unsigned queued = 0, stopped = 0;
+    for (uint32_t i = 0; i < cn->n_jobs; i++) {
+        uint64_t id = cn->job_ids[i];
+        int found = 0;
+        for (size_t k = self->head; k < self->count && !found; k++) {
+            if (self->queue[k].job_id != id)
+                continue;
+            s_free_job(&self->queue[k]);
+            memmove(&self->queue[k], &self->queue[k + 1],
+                    (self->count - k - 1) * sizeof *self->queue);
+            self->count--;
+            found = 1;
+            queued++;
+        }
+        if (!found && worker_pool_cancel(self->pool, id) == 0)
+            stopped++;
+    }
+    LOG_INFO("the broker cancelled %u jobs (another copy finished first): %u not started, %u "
+             "stopped, %u already done",
+             cn->n_jobs, queued, stopped, cn->n_jobs - queued - stopped);
+    s_grant(self);
+}
+
 static void s_on_message(s_worker_t *self, const uint8_t *buf, size_t len)
 {
     proto_msg_t *msg = NULL;
@@ -335,6 +365,9 @@ static void s_on_message(s_worker_t *self, const uint8_t *buf, size_t len)
             break;
         LOG_INFO("broker does not know this worker; registering again");
         s_register(self);
+        break;
+    case PROTO_CANCEL:
+        s_on_cancel(self, &msg->u.cancel);
         break;
     case PROTO_HEARTBEAT:
         break;
@@ -379,6 +412,7 @@ static void s_collect(s_worker_t *self)
     worker_pool_result_t r;
     while (worker_pool_take(self->pool, &r)) {
         worker_credits_eval(&self->credits, r.wall_us);
+        r.outcome.wall_seconds = (double)r.wall_us / 1e6;
         if (self->n_done == self->cap_done) {
             self->cap_done = self->cap_done ? self->cap_done * 2 : 64;
             self->done = common_xrealloc(self->done, self->cap_done, sizeof *self->done);
@@ -631,6 +665,13 @@ static void s_run(s_worker_t *self)
             LOG_INFO("draining: %u running evaluations finish, %zu queued jobs go back to the "
                      "broker",
                      worker_pool_busy(self->pool), s_queued(self));
+            /* At once, not with BYE: other workers can start them now, and
+             * the broker shows this one as draining (msg.h HAND_BACK). */
+            snprintf(self->pause_reason, sizeof self->pause_reason,
+                     "stopping: running evaluations finish");
+            s_hand_back_queue(self);
+            self->back_due = 1;
+            s_flush_back(self);
         }
         if (self->draining && worker_pool_busy(self->pool) == 0) {
             if (self->n_done == 0)
@@ -701,10 +742,10 @@ static void s_run(s_worker_t *self)
     if (forced && self->n_done > 0)
         s_flush(self);
     s_send_simple(self, PROTO_BYE);
-    LOG_INFO("stopped after %llu evaluations; %zu queued jobs handed back (and %llu while "
-             "paused)",
-             (unsigned long long)self->evaluated, s_queued(self),
-             (unsigned long long)self->handed_back);
+    LOG_INFO("stopped after %llu evaluations; %llu jobs handed back while paused or draining, "
+             "%zu more with the goodbye",
+             (unsigned long long)self->evaluated, (unsigned long long)self->handed_back,
+             s_queued(self));
 }
 
 int worker_main_run(const worker_config_t *config)

@@ -153,16 +153,8 @@ static void s_output_end(worker_pool_t *self, unsigned i)
 
 static void s_push(worker_pool_t *self, const worker_pool_result_t *r)
 {
-    if (self->head > 0 && self->count == self->cap) {
-        memmove(self->results, self->results + self->head,
-                (self->count - self->head) * sizeof *self->results);
-        self->count -= self->head;
-        self->head = 0;
-    }
-    if (self->count == self->cap) {
-        self->cap = self->cap ? self->cap * 2 : 16;
-        self->results = common_xrealloc(self->results, self->cap, sizeof *self->results);
-    }
+    self->results = common_xfifo_room(self->results, &self->head, &self->count, &self->cap,
+                                sizeof *self->results, 16);
     self->results[self->count++] = *r;
 }
 
@@ -185,16 +177,8 @@ static void s_push_failure(worker_pool_t *self, uint64_t job_id, int64_t start_u
 
 static void s_backlog_push(worker_pool_t *self, const s_job_t *j)
 {
-    if (self->bhead > 0 && self->bcount == self->bcap) {
-        memmove(self->backlog, self->backlog + self->bhead,
-                (self->bcount - self->bhead) * sizeof *self->backlog);
-        self->bcount -= self->bhead;
-        self->bhead = 0;
-    }
-    if (self->bcount == self->bcap) {
-        self->bcap = self->bcap ? self->bcap * 2 : 64;
-        self->backlog = common_xrealloc(self->backlog, self->bcap, sizeof *self->backlog);
-    }
+    self->backlog = common_xfifo_room(self->backlog, &self->bhead, &self->bcount, &self->bcap,
+                                sizeof *self->backlog, 64);
     self->backlog[self->bcount] = *j;
     self->backlog[self->bcount].seq = 0;
     self->bcount++;
@@ -443,17 +427,26 @@ static void s_on_death(worker_pool_t *self, unsigned i, const char *why)
     s_respawn(self, i);
 }
 
+/* SIGKILLs child i and reaps it (its usage into ru, which may be NULL),
+ * logging what it printed, read before the kill so that it goes to the job
+ * it ran. The slot stays dead until s_respawn. */
+static void s_kill_reap(worker_pool_t *self, unsigned i, struct rusage *ru)
+{
+    s_child_t *c = &self->children[i];
+    s_output_drain(self, i);
+    s_kill(c);
+    int status = 0;
+    while (wait4(c->pid, &status, 0, ru) < 0 && errno == EINTR)
+        ;
+    s_output_end(self, i);
+}
+
 /* Kills child i, whose job k (started at start_us) overran. */
 static void s_on_overrun(worker_pool_t *self, unsigned i, int k, int64_t start_us)
 {
     s_child_t *c = &self->children[i];
-    s_output_drain(self, i); /* the overrunning job's output, before the kill */
-    s_kill(c);
     struct rusage ru = {0};
-    int status = 0;
-    while (wait4(c->pid, &status, 0, &ru) < 0 && errno == EINTR)
-        ;
-    s_output_end(self, i);
+    s_kill_reap(self, i, &ru);
     s_job_t *j = s_at(c, (unsigned)k);
     char text[128];
     snprintf(text, sizeof text, "evaluation exceeded %g s", j->timeout_ms / 1000.0);
@@ -470,11 +463,7 @@ static void s_on_overrun(worker_pool_t *self, unsigned i, int k, int64_t start_u
  * jobs go to another child, without a strike. */
 static void s_retire(worker_pool_t *self, unsigned i)
 {
-    s_child_t *c = &self->children[i];
-    s_kill(c);
-    while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
-        ;
-    s_output_end(self, i);
+    s_kill_reap(self, i, NULL);
     s_requeue_all(self, i, -1, 0, "replaced");
     s_respawn(self, i);
 }
@@ -621,10 +610,7 @@ void worker_pool_destroy(worker_pool_t **self_p)
     for (unsigned i = 0; i < self->config.slots; i++) {
         s_child_t *c = &self->children[i];
         if (c->pid > 0) {
-            s_kill(c);
-            while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
-                ;
-            s_output_end(self, i);
+            s_kill_reap(self, i, NULL);
             c->pid = 0;
         }
         if (c->fd >= 0)
@@ -809,6 +795,11 @@ long worker_pool_timeout_ms(const worker_pool_t *self)
     return left < 0 ? 0 : (long)left;
 }
 
+size_t worker_pool_ready(const worker_pool_t *self)
+{
+    return self->count - self->head;
+}
+
 int worker_pool_take(worker_pool_t *self, worker_pool_result_t *out)
 {
     if (self->head == self->count)
@@ -819,44 +810,13 @@ int worker_pool_take(worker_pool_t *self, worker_pool_result_t *out)
     return 1;
 }
 
-void worker_pool_result_clear(worker_pool_result_t *r)
-{
-    free(r->outcome.fitness);
-    free(r->outcome.error);
-    r->outcome.fitness = NULL;
-    r->outcome.error = NULL;
-    r->outcome.n_fitness = 0;
-}
-
-size_t worker_pool_wait(worker_pool_t *self, int timeout_ms)
-{
-    zmq_pollitem_t items[WORKER_POOL_ITEMS];
-    int64_t until = common_clock_ms() + timeout_ms;
-    while (self->count == self->head) {
-        int64_t left = until - common_clock_ms();
-        if (left < 0)
-            break;
-        long pt = worker_pool_timeout_ms(self);
-        if (pt < 0 || pt > left)
-            pt = (long)left;
-        size_t n = worker_pool_pollitems(self, items, WORKER_POOL_ITEMS);
-        int rc = zmq_poll(items, (int)n, pt);
-        worker_pool_handle(self, items, rc > 0 ? n : 0);
-        if (left == 0)
-            break;
-    }
-    return self->count - self->head;
-}
 
 /* SIGKILLs and reaps child i and forgets the jobs it held, appending their
  * ids to ids (while n < max; ids may be NULL). Its slot is left dead. */
 static void s_stop_child(worker_pool_t *self, unsigned i, uint64_t *ids, size_t max, size_t *n)
 {
     s_child_t *c = &self->children[i];
-    s_kill(c);
-    while (waitpid(c->pid, NULL, 0) < 0 && errno == EINTR)
-        ;
-    s_output_end(self, i);
+    s_kill_reap(self, i, NULL);
     for (unsigned k = 0; ids && k < c->qn && *n < max; k++)
         ids[(*n)++] = s_at(c, k)->job_id;
     s_drop_jobs(c);
@@ -894,4 +854,35 @@ void worker_pool_kill_busy(worker_pool_t *self)
 size_t worker_pool_reclaim(worker_pool_t *self, uint64_t *ids, size_t max)
 {
     return s_stop_busy(self, ids, max, 1);
+}
+
+int worker_pool_cancel(worker_pool_t *self, uint64_t job_id)
+{
+    for (size_t b = self->bhead; b < self->bcount; b++) {
+        if (self->backlog[b].job_id != job_id)
+            continue;
+        free(self->backlog[b].frame);
+        memmove(&self->backlog[b], &self->backlog[b + 1],
+                (self->bcount - b - 1) * sizeof *self->backlog);
+        self->bcount--;
+        return 0;
+    }
+    for (unsigned i = 0; i < self->config.slots; i++) {
+        s_child_t *c = &self->children[i];
+        for (unsigned k = 0; c->pid > 0 && k < c->qn; k++) {
+            s_job_t *j = s_at(c, k);
+            if (j->job_id != job_id)
+                continue;
+            /* Its frame may be in the child's socket already: only a kill
+             * takes it back. The child's other jobs go on elsewhere. */
+            s_kill_reap(self, i, NULL);
+            LOG_INFO("job %llu cancelled: child pid %d killed, respawning",
+                     (unsigned long long)job_id, (int)c->pid);
+            free(j->frame);
+            s_requeue_all(self, i, (int)k, 0, "cancelled");
+            s_respawn(self, i);
+            return 0;
+        }
+    }
+    return -1;
 }

@@ -91,6 +91,9 @@ void worker_pool_handle(worker_pool_t *self, const zmq_pollitem_t *items, size_t
  * callers wake up, call worker_pool_handle and ask again. */
 long worker_pool_timeout_ms(const worker_pool_t *self);
 
+/* Finished results not yet taken. */
+size_t worker_pool_ready(const worker_pool_t *self);
+
 /* Pops one finished result into *out. Returns 1, or 0 if none is ready. */
 int worker_pool_take(worker_pool_t *self, worker_pool_result_t *out);
 
@@ -112,5 +115,11 @@ void worker_pool_kill_busy(worker_pool_t *self);
  * enough) into ids and returns the count: those jobs produce no results,
  * while results finished before the call are still taken as usual. */
 size_t worker_pool_reclaim(worker_pool_t *self, uint64_t *ids, size_t max);
+
+/* Forgets job_id: dropped if it waits for a child; if a child holds it, that
+ * child is killed (with its process group) and replaced, and the other jobs
+ * it held start again elsewhere. Reports nothing for it. 0, or -1 when the
+ * pool does not hold it (finished: its result may still be unread). */
+int worker_pool_cancel(worker_pool_t *self, uint64_t job_id);
 
 #endif

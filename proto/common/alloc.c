@@ -68,3 +68,18 @@ void *common_xmemdup(const void *p, size_t n)
         memcpy(q, p, n);
     return q;
 }
+
+void *common_xfifo_room(void *buf, size_t *head, size_t *count, size_t *cap, size_t elem,
+                        size_t first)
+{
+    if (*head > 0 && *count == *cap) {
+        memmove(buf, (char *)buf + *head * elem, (*count - *head) * elem);
+        *count -= *head;
+        *head = 0;
+    }
+    if (*count == *cap) {
+        *cap = *cap ? *cap * 2 : first;
+        buf = common_xrealloc(buf, *cap, elem);
+    }
+    return buf;
+}

@@ -99,14 +99,15 @@ class Pool:
             time.sleep(0.02)
         raise RuntimeError("broker did not write its endpoints file")
 
-    def start_worker(self, slots=1, extra=(), name=None):
+    def start_worker(self, slots=1, extra=(), name=None, env=None):
         name = name or f"w{len(self.workers)}"
         args = [exe("fitfarm-worker"), "--broker", self.workers_ep, "--slots", str(slots),
                 "--name", name] + list(extra)
         if "--key" not in args and "--insecure" not in args:
             args += (["--key", self.key("worker.secret"), "--broker-key", self.key("broker.public")]
                      if self.secure else ["--insecure"])
-        p = subprocess.Popen(args, stdout=subprocess.DEVNULL, stderr=self._log(name))
+        p = subprocess.Popen(args, stdout=subprocess.DEVNULL, stderr=self._log(name),
+                             env=dict(os.environ, **env) if env else None)
         self.procs.append(p)
         self.workers.append(p)
         return p

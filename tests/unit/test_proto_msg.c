@@ -163,6 +163,14 @@ static void test_decoded_fields(void **state)
     assert_int_equal(d->u.hand_back.n_jobs, FX_N_TAGS);
     for (uint32_t i = 0; i < d->u.hand_back.n_jobs; i++)
         assert_int_equal(d->u.hand_back.job_ids[i], fx_tags[i]);
+    assert_int_equal(d->u.hand_back.draining, 1);
+    proto_msg_destroy(&d);
+
+    m = fx_sample(PROTO_CANCEL);
+    d = fx_round_trip(&m);
+    assert_int_equal(d->u.cancel.n_jobs, FX_N_TAGS);
+    for (uint32_t i = 0; i < d->u.cancel.n_jobs; i++)
+        assert_int_equal(d->u.cancel.job_ids[i], fx_tags[i]);
     proto_msg_destroy(&d);
 
     m = fx_sample(PROTO_HELLO);
@@ -195,7 +203,7 @@ static void test_golden_heartbeat_and_credit(void **state)
     (void)state;
     static const uint8_t heartbeat[] = {
         0x92, /* fixarray (1001xxxx) with 2 elements */
-        0x01, /* positive fixint (0xxxxxxx): version 1 */
+        0x02, /* positive fixint (0xxxxxxx): version 2 */
         0x28, /* positive fixint: type 40 = HEARTBEAT */
     };
     proto_msg_t hb = {.type = PROTO_HEARTBEAT};
@@ -203,7 +211,7 @@ static void test_golden_heartbeat_and_credit(void **state)
 
     static const uint8_t credit[] = {
         0x93,             /* fixarray, 3 elements */
-        0x01,             /* positive fixint: version 1 */
+        0x02,             /* positive fixint: version 2 */
         0x15,             /* positive fixint: type 21 = CREDIT */
         0xcd, 0x01, 0x00, /* uint 16 (0xcd) + 2 bytes big-endian: 256 (> 255, so not uint 8) */
     };
@@ -216,6 +224,19 @@ static void test_golden_heartbeat_and_credit(void **state)
     assert_int_equal(proto_msg_decode(credit, sizeof credit, NULL, &d, NULL), PROTO_OK);
     assert_int_equal(d->u.credit.credits, 256);
     proto_msg_destroy(&d);
+
+    static const uint8_t cancel[] = {
+        0x93,             /* fixarray, 3 elements: version, type, job_ids */
+        0x02,             /* positive fixint: version 2 */
+        0x20,             /* positive fixint: type 32 = CANCEL */
+        0x92,             /* fixarray, 2 job ids */
+        0x05,             /* positive fixint: 5 */
+        0xcd, 0x01, 0x00, /* uint 16: 256 */
+    };
+    uint64_t ids[] = {5, 256};
+    proto_msg_t cn = {.type = PROTO_CANCEL};
+    cn.u.cancel = (proto_cancel_t){.n_jobs = 2, .job_ids = ids};
+    s_expect_bytes(&cn, cancel, sizeof cancel);
 }
 
 static void test_golden_done(void **state)
@@ -223,11 +244,11 @@ static void test_golden_done(void **state)
     (void)state;
     static const uint8_t done[] = {
         0x94,       /* fixarray, 4 elements: version, type, credits, outcomes */
-        0x01,       /* positive fixint: version 1 */
+        0x02,       /* positive fixint: version 2 */
         0x16,       /* positive fixint: type 22 = DONE */
         0x02,       /* positive fixint: credits 2 */
         0x91,       /* fixarray, 1 outcome */
-        0x96,       /* fixarray, 6 fields of the outcome */
+        0x97,       /* fixarray, 7 fields of the outcome */
         0x07,       /* positive fixint: job_id 7 */
         0x00,       /* positive fixint: status 0 = ok */
         0x91,       /* fixarray, 1 fitness value */
@@ -235,10 +256,12 @@ static void test_golden_done(void **state)
         0xcb, 0x3f, 0xf8, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, /* float 64: cpu_seconds 1.5 */
         0xcc, 0xc8, /* uint 8 (0xcc) + 1 byte: peak_rss_kb 200 (> 127, so not fixint) */
         0xa2, 'o', 'k', /* fixstr (101xxxxx) of 2 bytes: error "ok" */
+        0xcb, 0x40, 0x04, 0x00, 0x00, 0x00, 0x00, 0x00, 0x00, /* float 64: wall_seconds 2.5 */
     };
     double fit = 0.5;
     proto_outcome_t o = {.job_id = 7, .status = 0, .n_fitness = 1, .fitness = &fit,
-                         .cpu_seconds = 1.5, .peak_rss_kb = 200, .error = "ok"};
+                         .cpu_seconds = 1.5, .peak_rss_kb = 200, .error = "ok",
+                         .wall_seconds = 2.5};
     proto_msg_t m = {.type = PROTO_DONE};
     m.u.done = (proto_done_t){.credits = 2, .n_outcomes = 1, .outcomes = &o};
     s_expect_bytes(&m, done, sizeof done);
@@ -250,7 +273,7 @@ static void test_golden_results_key_bin8(void **state)
     uint8_t want[96];
     size_t n = 0;
     want[n++] = 0x94; /* fixarray, 4 elements: version, type, run_id, results */
-    want[n++] = 0x01; /* version 1 */
+    want[n++] = 0x02; /* version 2 */
     want[n++] = 0x0b; /* type 11 = RESULTS */
     want[n++] = 0xa1; /* fixstr, 1 byte */
     want[n++] = 'r';  /* run_id "r" */

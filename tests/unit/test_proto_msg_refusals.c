@@ -106,24 +106,24 @@ static void test_huge_declared_counts(void **state)
 {
     (void)state;
     /* top level: array 32 (0xdd) of 0xffffffff elements */
-    static const uint8_t top[] = {0xdd, 0xff, 0xff, 0xff, 0xff, 0x01, 0x28};
+    static const uint8_t top[] = {0xdd, 0xff, 0xff, 0xff, 0xff, 0x02, 0x28};
     fx_expect_refused(top, sizeof top, NULL, PROTO_ECOUNT, "HEARTBEAT");
     /* ACK tags: array 32 of 0xffffffff: past PROTO_MAX_LIST */
-    static const uint8_t ack[] = {0x94, 0x01, 0x02, 0xa1, 'r', 0xdd, 0xff, 0xff, 0xff, 0xff, 0x01};
+    static const uint8_t ack[] = {0x94, 0x02, 0x02, 0xa1, 'r', 0xdd, 0xff, 0xff, 0xff, 0xff, 0x01};
     fx_expect_refused(ack, sizeof ack, NULL, PROTO_ELIMIT, "ACK.tags: 4294967295 elements");
     /* ACK tags: 1000 declared (within the limit), 1 byte present */
-    static const uint8_t ack2[] = {0x94, 0x01, 0x02, 0xa1, 'r', 0xdc, 0x03, 0xe8, 0x01};
+    static const uint8_t ack2[] = {0x94, 0x02, 0x02, 0xa1, 'r', 0xdc, 0x03, 0xe8, 0x01};
     fx_expect_refused(ack2, sizeof ack2, NULL, PROTO_ETRUNCATED, "ACK.tags: 1000 elements declared");
     /* SUBMIT (fixarray of 13) params: str 32 (0xdb) of 0xffffffff bytes */
-    static const uint8_t sub[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t sub[] = {0x9d, 0x02, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                   0xa1, 'p', 0xdb, 0xff, 0xff, 0xff, 0xff, 'x'};
     fx_expect_refused(sub, sizeof sub, NULL, PROTO_ELIMIT, "SUBMIT.params: 4294967295 bytes");
     /* JOBS genome: bin 32 (0xc6) of 1000 bytes, 2 present */
-    static const uint8_t jobs[] = {0x93, 0x01, 0x1e, 0x91, 0x96, 0x01, 0xa1, 'p', 0xa2, '{', '}',
+    static const uint8_t jobs[] = {0x93, 0x02, 0x1e, 0x91, 0x96, 0x01, 0xa1, 'p', 0xa2, '{', '}',
                                    0x00, 0x00, 0xc6, 0x00, 0x00, 0x03, 0xe8, 0xaa, 0xbb};
     fx_expect_refused(jobs, sizeof jobs, NULL, PROTO_ETRUNCATED, "JOBS.jobs[0].genome");
     /* DONE fitness: 10 doubles declared, 2 present (each needs 9 bytes) */
-    static const uint8_t done[] = {0x94, 0x01, 0x16, 0x00, 0x91, 0x96, 0x00, 0x00, 0x9a,
+    static const uint8_t done[] = {0x94, 0x02, 0x16, 0x00, 0x91, 0x97, 0x00, 0x00, 0x9a,
                                    0xcb, 0, 0, 0, 0, 0, 0, 0, 0,
                                    0xcb, 0, 0, 0, 0, 0, 0, 0, 0,
                                    0xcb, 0, 0, 0, 0, 0, 0, 0, 0, 0x00, 0xa0};
@@ -134,25 +134,25 @@ static void test_mistyped_fields(void **state)
 {
     (void)state;
     /* CREDIT with credits as float 64 */
-    static const uint8_t c1[] = {0x93, 0x01, 0x15, 0xcb, 0x3f, 0xf0, 0, 0, 0, 0, 0, 0};
+    static const uint8_t c1[] = {0x93, 0x02, 0x15, 0xcb, 0x3f, 0xf0, 0, 0, 0, 0, 0, 0};
     fx_expect_refused(c1, sizeof c1, NULL, PROTO_ETYPE, "CREDIT.credits: float 64, expected uint");
     /* negative fixint (111xxxxx) -1 */
-    static const uint8_t c2[] = {0x93, 0x01, 0x15, 0xff};
+    static const uint8_t c2[] = {0x93, 0x02, 0x15, 0xff};
     fx_expect_refused(c2, sizeof c2, NULL, PROTO_ETYPE, "CREDIT.credits: negative int");
     /* int 8 (0xd0) of -1 */
-    static const uint8_t c3[] = {0x93, 0x01, 0x15, 0xd0, 0xff};
+    static const uint8_t c3[] = {0x93, 0x02, 0x15, 0xd0, 0xff};
     fx_expect_refused(c3, sizeof c3, NULL, PROTO_ETYPE, "CREDIT.credits: negative int");
     /* 2^32 does not fit the 32-bit credits */
-    static const uint8_t c4[] = {0x93, 0x01, 0x15, 0xcf, 0, 0, 0, 1, 0, 0, 0, 0};
+    static const uint8_t c4[] = {0x93, 0x02, 0x15, 0xcf, 0, 0, 0, 1, 0, 0, 0, 0};
     fx_expect_refused(c4, sizeof c4, NULL, PROTO_EVALUE, "CREDIT.credits: 4294967296 does not fit");
     /* nil where uint */
-    static const uint8_t c5[] = {0x93, 0x01, 0x15, 0xc0};
+    static const uint8_t c5[] = {0x93, 0x02, 0x15, 0xc0};
     fx_expect_refused(c5, sizeof c5, NULL, PROTO_ETYPE, "CREDIT.credits: nil");
 
     /* any width of positive int is accepted: uint 64 (0xcf) and int 16 (0xd1) of 5 */
-    static const uint8_t ok1[] = {0x93, 0x01, 0x15, 0xcf, 0, 0, 0, 0, 0, 0, 0, 5};
-    static const uint8_t ok2[] = {0x93, 0x01, 0x15, 0xd1, 0x00, 0x05};
-    static const uint8_t ok3[] = {0x93, 0xcc, 0x01, 0xcd, 0x00, 0x15, 0xce, 0, 0, 0, 5};
+    static const uint8_t ok1[] = {0x93, 0x02, 0x15, 0xcf, 0, 0, 0, 0, 0, 0, 0, 5};
+    static const uint8_t ok2[] = {0x93, 0x02, 0x15, 0xd1, 0x00, 0x05};
+    static const uint8_t ok3[] = {0x93, 0xcc, 0x02, 0xcd, 0x00, 0x15, 0xce, 0, 0, 0, 5};
     const uint8_t *oks[] = {ok1, ok2, ok3};
     size_t ok_lens[] = {sizeof ok1, sizeof ok2, sizeof ok3};
     for (int i = 0; i < 3; i++) {
@@ -166,29 +166,34 @@ static void test_mistyped_fields(void **state)
     }
 
     /* DONE outcome: float 32 (0xca) where float 64 is required */
-    static const uint8_t d1[] = {0x94, 0x01, 0x16, 0x00, 0x91, 0x96, 0x00, 0x00, 0x91,
+    static const uint8_t d1[] = {0x94, 0x02, 0x16, 0x00, 0x91, 0x97, 0x00, 0x00, 0x91,
                                  0xca, 0x3f, 0x00, 0x00, 0x00,
-                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0, 0x00, 0xa0};
+                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0, 0x00, 0xa0,
+                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0}; /* wall_seconds */
     fx_expect_refused(d1, sizeof d1, NULL, PROTO_ETYPE,
                      "DONE.outcomes[0].fitness[0]: float 32, expected float 64");
     /* DONE outcome: status 5 is past PROTO_STATUS_COUNT_ */
-    static const uint8_t d2[] = {0x94, 0x01, 0x16, 0x00, 0x91, 0x96, 0x00, 0x05, 0x90,
-                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0, 0x00, 0xa0};
+    static const uint8_t d2[] = {0x94, 0x02, 0x16, 0x00, 0x91, 0x97, 0x00, 0x05, 0x90,
+                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0, 0x00, 0xa0,
+                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0}; /* wall_seconds */
     fx_expect_refused(d2, sizeof d2, NULL, PROTO_EVALUE, "DONE.outcomes[0].status: status 5");
     /* DONE outcome: error text with a NUL byte */
-    static const uint8_t d3[] = {0x94, 0x01, 0x16, 0x00, 0x91, 0x96, 0x00, 0x00, 0x90,
-                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0, 0x00, 0xa3, 'a', 0, 'b'};
+    static const uint8_t d3[] = {0x94, 0x02, 0x16, 0x00, 0x91, 0x97, 0x00, 0x00, 0x90,
+                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0, 0x00, 0xa3, 'a', 0, 'b',
+                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0}; /* wall_seconds */
     fx_expect_refused(d3, sizeof d3, NULL, PROTO_EVALUE, "DONE.outcomes[0].error: NUL");
-    /* DONE outcome with 5 fields instead of 6 (and a spare byte, so the
-     * array is not refused earlier for having too few bytes left) */
-    static const uint8_t d4[] = {0x94, 0x01, 0x16, 0x00, 0x91, 0x95, 0x00, 0x00, 0x90,
-                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0, 0x00, 0xa0};
-    fx_expect_refused(d4, sizeof d4, NULL, PROTO_ECOUNT, "DONE.outcomes[0]: 5 elements, expected 6");
+    /* DONE outcome with 6 fields instead of 7 (protocol 1's, without
+     * wall_seconds; spare bytes, so the array is not refused earlier for
+     * having too few bytes left) */
+    static const uint8_t d4[] = {0x94, 0x02, 0x16, 0x00, 0x91, 0x96, 0x00, 0x00, 0x90,
+                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0, 0x00, 0xa0,
+                                 0xcb, 0, 0, 0, 0, 0, 0, 0, 0}; /* wall_seconds */
+    fx_expect_refused(d4, sizeof d4, NULL, PROTO_ECOUNT, "DONE.outcomes[0]: 6 elements, expected 7");
 
     /* RESULTS: cached as int 1 instead of true; key of 31 bytes; key as str */
     uint8_t r[96];
     size_t n = 0;
-    r[n++] = 0x94, r[n++] = 0x01, r[n++] = 0x0b, r[n++] = 0xa0, r[n++] = 0x91, r[n++] = 0x9c;
+    r[n++] = 0x94, r[n++] = 0x02, r[n++] = 0x0b, r[n++] = 0xa0, r[n++] = 0x91, r[n++] = 0x9c;
     r[n++] = 0x00, r[n++] = 0x00;
     size_t at_cached = n;
     r[n++] = 0xc3, r[n++] = 0x00;
@@ -230,26 +235,26 @@ static void test_mistyped_fields(void **state)
                      "RESULTS.results[0].finished_at: -1, expected a finite value >= 0");
 
     /* SUBMIT: seed_mode 2; genome as str instead of bin */
-    static const uint8_t s1[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x02, 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s1[] = {0x9d, 0x02, 0x01, 0xa1, 'r', 0x00, 0x02, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x90};
     fx_expect_refused(s1, sizeof s1, NULL, PROTO_EVALUE, "SUBMIT.seed_mode: 2");
-    static const uint8_t s2[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s2[] = {0x9d, 0x02, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x91, 0x93, 0x00, 0x00, 0xa1, 'g'};
     fx_expect_refused(s2, sizeof s2, NULL, PROTO_ETYPE, "SUBMIT.items[0].genome: str, expected bin");
     /* replicate index at PROTO_MAX_REPLICATES (0x2710 = 10000) */
-    static const uint8_t s3[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s3[] = {0x9d, 0x02, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x91, 0x93, 0x00, 0xcd, 0x27, 0x10,
                                  0xc4, 0x00};
     fx_expect_refused(s3, sizeof s3, NULL, PROTO_ELIMIT, "SUBMIT.items[0].replicate: 10000");
     /* a map where the items array belongs */
-    static const uint8_t s4[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s4[] = {0x9d, 0x02, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x80};
     fx_expect_refused(s4, sizeof s4, NULL, PROTO_ETYPE, "SUBMIT.items: map, expected array");
     /* weight 0 and 1001: a run's share is 1 to PROTO_MAX_WEIGHT (1000) */
-    static const uint8_t s5[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s5[] = {0x9d, 0x02, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x90, 0x00};
     fx_expect_refused(s5, sizeof s5, NULL, PROTO_EVALUE, "SUBMIT.weight: 0, expected 1 to 1000");
-    static const uint8_t s6[] = {0x9d, 0x01, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
+    static const uint8_t s6[] = {0x9d, 0x02, 0x01, 0xa1, 'r', 0x00, 0x00, 0x00, 0x00, 0x00, 0x00,
                                  0xa1, 'p', 0xa2, '{', '}', 0x90, 0xcd, 0x03, 0xe9};
     fx_expect_refused(s6, sizeof s6, NULL, PROTO_EVALUE, "SUBMIT.weight: 1001, expected 1 to 1000");
 }
@@ -261,7 +266,7 @@ static size_t s_hello_head(uint8_t *b, uint8_t info_header)
 {
     size_t n = 0;
     b[n++] = 0x98; /* fixarray, 8: version, type, name, host, arch, slots, plugins, speed */
-    b[n++] = 0x01, b[n++] = 0x14; /* version 1, type 20 = HELLO */
+    b[n++] = 0x02, b[n++] = 0x14; /* version 2, type 20 = HELLO */
     b[n++] = 0xa1, b[n++] = 'w', b[n++] = 0xa1, b[n++] = 'h', b[n++] = 0xa1, b[n++] = 'a';
     b[n++] = 0x01; /* slots 1 */
     b[n++] = 0x91; /* fixarray, 1 plugin */
@@ -349,28 +354,30 @@ static void test_hello_seed_params(void **state)
 static void test_envelope_errors(void **state)
 {
     (void)state;
-    static const uint8_t trailing[] = {0x92, 0x01, 0x28, 0x00};
+    static const uint8_t trailing[] = {0x92, 0x02, 0x28, 0x00};
     fx_expect_refused(trailing, sizeof trailing, NULL, PROTO_ETRAILING, "HEARTBEAT: 1 bytes after");
-    static const uint8_t v2[] = {0x92, 0x02, 0x28};
-    fx_expect_refused(v2, sizeof v2, NULL, PROTO_EVERSION, "version 2");
+    static const uint8_t v1[] = {0x92, 0x01, 0x28}; /* before CANCEL and wall_seconds */
+    fx_expect_refused(v1, sizeof v1, NULL, PROTO_EVERSION, "version 1");
+    static const uint8_t v3[] = {0x92, 0x03, 0x28};
+    fx_expect_refused(v3, sizeof v3, NULL, PROTO_EVERSION, "version 3");
     static const uint8_t v0[] = {0x92, 0x00, 0x28};
     fx_expect_refused(v0, sizeof v0, NULL, PROTO_EVERSION, "version 0");
-    static const uint8_t unknown[] = {0x92, 0x01, 0x63};
+    static const uint8_t unknown[] = {0x92, 0x02, 0x63};
     fx_expect_refused(unknown, sizeof unknown, NULL, PROTO_EUNKNOWN, "type 99");
-    static const uint8_t huge_type[] = {0x92, 0x01, 0xcf, 0, 0, 0, 1, 0, 0, 0, 0x28};
+    static const uint8_t huge_type[] = {0x92, 0x02, 0xcf, 0, 0, 0, 1, 0, 0, 0, 0x28};
     fx_expect_refused(huge_type, sizeof huge_type, NULL, PROTO_EUNKNOWN, "type 4294967336");
     static const uint8_t not_array[] = {0x81, 0x01, 0x28};
     fx_expect_refused(not_array, sizeof not_array, NULL, PROTO_ETYPE, "map, expected array");
     static const uint8_t one[] = {0x91, 0x01};
     fx_expect_refused(one, sizeof one, NULL, PROTO_ECOUNT, "expected at least 2");
-    static const uint8_t count[] = {0x93, 0x01, 0x28, 0x00}; /* HEARTBEAT with a field */
+    static const uint8_t count[] = {0x93, 0x02, 0x28, 0x00}; /* HEARTBEAT with a field */
     fx_expect_refused(count, sizeof count, NULL, PROTO_ECOUNT, "HEARTBEAT: 3 elements, expected 2");
     fx_expect_refused(NULL, 0, NULL, PROTO_ETRUNCATED, NULL);
     static const uint8_t empty[1] = {0};
     fx_expect_refused(empty, 0, NULL, PROTO_ETRUNCATED, NULL);
     /* err may be NULL */
     proto_msg_t *d = NULL;
-    assert_int_equal(proto_msg_decode(v2, sizeof v2, NULL, &d, NULL), PROTO_EVERSION);
+    assert_int_equal(proto_msg_decode(v3, sizeof v3, NULL, &d, NULL), PROTO_EVERSION);
     assert_null(d);
 }
 

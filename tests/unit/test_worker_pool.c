@@ -391,6 +391,53 @@ static void test_queue_hang_times_out_only_the_hung_job(void **state)
     worker_pool_destroy(&pool);
 }
 
+/* Cancel (the broker's CANCEL, a copy finished first): job 2 hangs in a
+ * child that holds jobs 1, 3 and 4 too (its answer to job 1 may still be
+ * batched inside it). Cancelling job 2 kills that child at once (long
+ * before the 30 s deadline); job 2 is never reported, jobs 1, 3 and 4 are
+ * answered once each (an unanswered one again by the new child); an id
+ * the pool does not hold is refused. */
+static void test_cancel_running_job(void **state)
+{
+    (void)state;
+    worker_pool_config_t config = {.slots = 1, .registry = s_registry, .queue_depth = 8};
+    worker_pool_t *pool = worker_pool_new(&config);
+    assert_non_null(pool);
+    const double x0[5] = {0, 0.125, 3.0, 0.25, 0.375};
+    for (uint64_t id = 1; id <= 4; id++)
+        s_hand(pool, id, x0[id], 30000);
+    worker_pool_wait(pool, 300); /* job 1 is done by now and job 2 hangs */
+    int64_t t0 = common_clock_ms();
+    assert_int_equal(worker_pool_cancel(pool, 2), 0);
+    assert_int_equal(worker_pool_cancel(pool, 99), -1);
+    worker_pool_result_t by_id[5];
+    memset(by_id, 0, sizeof by_id);
+    unsigned got = 0;
+    while (got < 3) {
+        worker_pool_result_t r;
+        while (worker_pool_take(pool, &r)) {
+            uint64_t id = r.outcome.job_id;
+            assert_true(id == 1 || id == 3 || id == 4);
+            assert_null(by_id[id].outcome.error); /* once */
+            by_id[id] = r;
+            got++;
+        }
+        assert_true(common_clock_ms() - t0 < 5000);
+        if (got < 3)
+            worker_pool_wait(pool, 1000);
+    }
+    for (uint64_t id = 1; id <= 4; id++)
+        if (id != 2) {
+            s_assert_ok(&by_id[id], x0[id]);
+            worker_pool_result_clear(&by_id[id]);
+        }
+    worker_pool_result_t extra;
+    worker_pool_wait(pool, 100);
+    assert_int_equal(worker_pool_take(pool, &extra), 0); /* job 2: nothing */
+    s_assert_serves(pool, 5);
+    worker_pool_destroy(&pool);
+}
+
 /* Adaptive depth: one job per child until an evaluation is measured, then
  * deep for a trivial plugin; jobs spread over both children. */
 static void test_adaptive_depth(void **state)
@@ -433,6 +480,7 @@ int main(void)
         cmocka_unit_test(test_queue_crash_blames_only_the_running_job),
         cmocka_unit_test(test_queue_hang_times_out_only_the_hung_job),
         cmocka_unit_test(test_adaptive_depth),
+        cmocka_unit_test(test_cancel_running_job),
     };
     return cmocka_run_group_tests(tests, s_setup, s_teardown);
 }

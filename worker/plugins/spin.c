@@ -6,7 +6,14 @@
  * work, not the same wall time. Returns two objectives: the sum of the genome's
  * doubles (any number, including none) and u, the first fitfarm_rng_uniform()
  * draw after fitfarm_rng_seed(seed), so equal seeds give equal bits and the
- * broker's seed derivation is visible in the results. Not deterministic. */
+ * broker's seed derivation is visible in the results. Not deterministic.
+ *
+ * Test knob: FITFARM_SPIN_SLOWDOWN=F (a number from 1 to 100) in the
+ * worker's environment makes each evaluation take F times its wall time:
+ * after the CPU work it sleeps (F - 1) x ms. A machine F times slower, for
+ * the straggler benchmark (tests/bench/stragglers) and tests; the fitness
+ * never depends on it. */
+#include <errno.h>
 #include <math.h>
 #include <stdlib.h>
 #include <time.h>
@@ -15,6 +22,7 @@
 
 typedef struct {
     long long ms;
+    double slowdown; /* FITFARM_SPIN_SLOWDOWN, 1 when unset */
 } spin_ctx_t;
 
 static int s_create(const char *params_json, void **ctx, fitfarm_plugin_info_t *info, char *err,
@@ -35,6 +43,19 @@ static int s_create(const char *params_json, void **ctx, fitfarm_plugin_info_t *
         return FITFARM_PLUGIN_EFAIL;
     }
     self->ms = ms;
+    self->slowdown = 1.0;
+    const char *slow = getenv("FITFARM_SPIN_SLOWDOWN");
+    if (slow && *slow) {
+        char *end = NULL;
+        double f = strtod(slow, &end);
+        if (*end || !(f >= 1.0 && f <= 100.0)) {
+            bench_errf(err, errlen,
+                       "spin: FITFARM_SPIN_SLOWDOWN is '%s', not a number from 1 to 100", slow);
+            free(self);
+            return FITFARM_PLUGIN_EINVAL;
+        }
+        self->slowdown = f;
+    }
     info->objectives = 2;
     info->genome_bytes = 0;
     *ctx = self;
@@ -72,6 +93,13 @@ static int s_evaluate(void *ctx, const uint8_t *genome, size_t genome_len, uint6
     while (s_thread_cpu_ns() < until)
         for (int i = 0; i < 1000; i++)
             sink = sink * 6364136223846793005ULL + 1442695040888963407ULL;
+    if (self->slowdown > 1.0) {
+        double extra_ns = (self->slowdown - 1.0) * (double)self->ms * 1e6;
+        struct timespec ts = {.tv_sec = (time_t)(extra_ns / 1e9),
+                              .tv_nsec = (long)fmod(extra_ns, 1e9)};
+        while (nanosleep(&ts, &ts) != 0 && errno == EINTR)
+            ;
+    }
     fitfarm_rng_t rng;
     fitfarm_rng_seed(&rng, seed);
     fitness[0] = sum;

@@ -169,7 +169,11 @@ proto_msg_t fx_sample(uint32_t type)
     case PROTO_HAND_BACK:
         m.u.hand_back = (proto_hand_back_t){.reason = "load 3.10 above --max-load 2",
                                             .n_jobs = sizeof fx_tags / sizeof fx_tags[0],
-                                            .job_ids = fx_tags};
+                                            .job_ids = fx_tags, .draining = 1};
+        break;
+    case PROTO_CANCEL:
+        m.u.cancel = (proto_cancel_t){.n_jobs = sizeof fx_tags / sizeof fx_tags[0],
+                                      .job_ids = fx_tags};
         break;
     case PROTO_CREDIT:
         m.u.credit.credits = 256;
@@ -177,7 +181,8 @@ proto_msg_t fx_sample(uint32_t type)
     case PROTO_DONE:
         outcomes[0] = (proto_outcome_t){.job_id = 1, .status = PROTO_STATUS_OK, .n_fitness = 5,
                                         .fitness = s_fit, .cpu_seconds = -0.0,
-                                        .peak_rss_kb = UINT64_MAX, .error = ""};
+                                        .peak_rss_kb = UINT64_MAX, .error = "",
+                                        .wall_seconds = 3600.5};
         outcomes[1] = (proto_outcome_t){.job_id = UINT64_MAX, .status = PROTO_STATUS_CRASHED,
                                         .n_fitness = 0, .fitness = NULL, .cpu_seconds = 0.25,
                                         .peak_rss_kb = 0, .error = "signal 11"};
@@ -202,5 +207,6 @@ const uint32_t fx_all_types[] = {
     PROTO_SUBMIT, PROTO_ACK,    PROTO_STATUS_REQ, PROTO_ACCEPTED, PROTO_RESULTS,
     PROTO_REFUSED, PROTO_STATUS, PROTO_HELLO,     PROTO_CREDIT,   PROTO_DONE,
     PROTO_BYE,    PROTO_JOBS,   PROTO_REHELLO,    PROTO_HEARTBEAT, PROTO_HAND_BACK,
+    PROTO_CANCEL,
 };
 const size_t fx_n_types = sizeof fx_all_types / sizeof fx_all_types[0];
