@@ -30,7 +30,10 @@ void broker_status_fill(broker_t *b, const char *who, int every_run, proto_statu
         wi->state = w->state;
         wi->n_plugins = w->n_plugins;
         wi->plugins = common_xcalloc(w->n_plugins ? w->n_plugins : 1, sizeof *wi->plugins);
+        wi->medians = common_xcalloc(w->n_plugins ? w->n_plugins : 1, sizeof *wi->medians);
         for (uint32_t k = 0; k < w->n_plugins; k++) {
+            double m = broker_timing_median(&w->timing[k], 1);
+            wi->medians[k] = m > 0 ? m : 0;
             size_t n = strlen(w->plugins[k]->name) + strlen(w->plugins[k]->version) + 2;
             wi->plugins[k] = common_xmalloc(n);
             snprintf(wi->plugins[k], n, "%s@%s", w->plugins[k]->name, w->plugins[k]->version);
@@ -84,6 +87,7 @@ void broker_status_clear(proto_status_t *st)
         for (uint32_t k = 0; k < st->workers[i].n_plugins; k++)
             free(st->workers[i].plugins[k]);
         free(st->workers[i].plugins);
+        free(st->workers[i].medians);
     }
     free(st->workers);
     free(st->runs);

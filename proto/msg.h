@@ -178,7 +178,9 @@ typedef struct {
 } proto_refused_t;
 
 /* Worker as listed by STATUS: [name str, host str, arch str, slots uint,
- *  busy uint, plugins array of str, speed f64, state str] */
+ *  busy uint, plugins array of str, speed f64, state str, medians array of
+ *  f64]: medians[i] is the median wall seconds of plugins[i]'s evaluations on
+ *  this worker (broker/timing.h), 0 when not measured; one per plugin. */
 typedef struct {
     char *name;
     char *host;
@@ -188,7 +190,9 @@ typedef struct {
     uint32_t n_plugins;
     char **plugins; /* "name@version" */
     double speed;   /* its HELLO's calibration score; 0 = not measured */
-    char *state;    /* "active", or "paused: " and the worker's reason (HAND_BACK) */
+    char *state;    /* "active", "draining", or "paused: " and the worker's reason
+                     * (HAND_BACK) */
+    double *medians; /* n_plugins of them */
 } proto_worker_info_t;
 
 /* Run as listed by STATUS: [run_id str, queued uint, running uint, done uint,

@@ -601,7 +601,8 @@ cleanup:
 static int s_worker_info(s_cursor_t *c, proto_worker_info_t *w)
 {
     int rc;
-    if ((rc = s_read_tuple(c, 8)))
+    uint32_t n_medians = 0;
+    if ((rc = s_read_tuple(c, 9)))
         goto cleanup;
     FIELD("name", s_read_str(c, c->lim.name_bytes, &w->name));
     FIELD("host", s_read_str(c, c->lim.name_bytes, &w->host));
@@ -613,6 +614,13 @@ static int s_worker_info(s_cursor_t *c, proto_worker_info_t *w)
     FIELD("speed", s_read_speed(c, &w->speed));
     /* "paused: " and a reason of at most name_bytes */
     FIELD("state", s_read_str(c, c->lim.name_bytes + 16, &w->state));
+    FIELD("medians", s_read_f64_array(c, PROTO_MAX_PLUGINS, &n_medians, &w->medians));
+    if (n_medians != w->n_plugins)
+        FIELD_FAIL("medians", PROTO_EVALUE, "%u values for %u plugins", n_medians, w->n_plugins);
+    for (uint32_t i = 0; i < n_medians; i++)
+        if (!(isfinite(w->medians[i]) && w->medians[i] >= 0))
+            FIELD_FAIL("medians", PROTO_EVALUE, "[%u] is %g, expected a finite value >= 0", i,
+                       w->medians[i]);
 cleanup:
     return rc;
 }
@@ -638,8 +646,8 @@ static int s_status(s_cursor_t *c, proto_status_t *st)
     int rc;
     uint32_t n = 0;
     size_t old = s_path_push(c, ".workers");
-    /* a worker info is at least 1 + 5 + 1 + 9 + 1 bytes, a run info 5 */
-    if ((rc = s_read_array(c, PROTO_MAX_LIST, 17, &n)) ||
+    /* a worker info is at least 1 + 5 + 1 + 9 + 1 + 1 bytes, a run info 5 */
+    if ((rc = s_read_array(c, PROTO_MAX_LIST, 18, &n)) ||
         (rc = s_alloc(c, (void **)&st->workers, n, sizeof *st->workers)))
         goto cleanup;
     st->n_workers = n;

@@ -149,8 +149,9 @@ static int s_pack_status(msgpack_packer *pk, const proto_status_t *st)
     for (uint32_t i = 0; i < st->n_workers; i++) {
         const proto_worker_info_t *w = &st->workers[i];
         REQUIRE(w->plugins || w->n_plugins == 0);
+        REQUIRE(w->medians || w->n_plugins == 0);
         REQUIRE(isfinite(w->speed) && w->speed >= 0 && w->speed <= PROTO_MAX_SPEED);
-        PACK(msgpack_pack_array(pk, 8));
+        PACK(msgpack_pack_array(pk, 9));
         STR(w->name);
         STR(w->host);
         STR(w->arch);
@@ -161,6 +162,11 @@ static int s_pack_status(msgpack_packer *pk, const proto_status_t *st)
             STR(w->plugins[j]);
         PACK(msgpack_pack_double(pk, w->speed));
         STR(w->state);
+        PACK(msgpack_pack_array(pk, w->n_plugins));
+        for (uint32_t j = 0; j < w->n_plugins; j++) {
+            REQUIRE(isfinite(w->medians[j]) && w->medians[j] >= 0);
+            PACK(msgpack_pack_double(pk, w->medians[j]));
+        }
     }
     PACK(msgpack_pack_array(pk, st->n_runs));
     for (uint32_t i = 0; i < st->n_runs; i++) {

@@ -20,6 +20,7 @@ static void s_free_worker_info(proto_worker_info_t *w)
     free(w->host);
     free(w->arch);
     free(w->state);
+    free(w->medians);
     if (w->plugins)
         for (uint32_t i = 0; i < w->n_plugins; i++)
             free(w->plugins[i]);

@@ -39,7 +39,10 @@ static const char s_help[] =
     "                     (evaluations running, never prefetched jobs), \"plugins\":\n"
     "                     [\"name@version\"], \"speed\" (calibration score at start:\n"
     "                     million rounds/s of a fixed loop on one core; 0 = unknown),\n"
-    "                     \"state\" (\"active\" or \"paused: WHY\")}], \"runs\": [{\"run\",\n"
+    "                     \"state\" (\"active\", \"draining\" or \"paused: WHY\"),\n"
+    "                     \"median_seconds\" (per plugin: median wall seconds of\n"
+    "                     its last evaluations there; null = none yet)}],\n"
+    "                     \"runs\": [{\"run\",\n"
     "                     \"queued\" (waiting for a worker), \"running\" (sent to a\n"
     "                     worker: running or\n"
     "                     prefetched there), \"done\" (requests answered),\n"
@@ -136,13 +139,18 @@ static int s_print_json(const fitfarm_status_t *st, const s_filter_t *filter)
         fitfarm_worker_info_t wi = FITFARM_WORKER_INFO_INIT, *w = &wi;
         fitfarm_status_worker(st, i, w);
         json_t *plugins = json_array();
-        for (size_t p = 0; plugins && p < w->n_plugins; p++)
+        json_t *medians = json_array();
+        for (size_t p = 0; plugins && medians && p < w->n_plugins; p++) {
             json_array_append_new(plugins, json_string(w->plugins[p]));
+            double m = w->median_seconds ? w->median_seconds[p] : 0;
+            json_array_append_new(medians, m > 0 ? json_real(m) : json_null());
+        }
         json_array_append_new(
-            workers, json_pack("{s:s?, s:s?, s:s?, s:I, s:I, s:o?, s:f, s:s?}", "name", w->name,
-                               "host", w->host, "arch", w->arch, "slots", (json_int_t)w->slots,
-                               "busy", (json_int_t)w->busy, "plugins", plugins, "speed",
-                               w->speed, "state", w->state));
+            workers, json_pack("{s:s?, s:s?, s:s?, s:I, s:I, s:o?, s:f, s:s?, s:o?}", "name",
+                               w->name, "host", w->host, "arch", w->arch, "slots",
+                               (json_int_t)w->slots, "busy", (json_int_t)w->busy, "plugins",
+                               plugins, "speed", w->speed, "state", w->state,
+                               "median_seconds", medians));
     }
     for (size_t i = 0; i < fitfarm_status_n_runs(st); i++) {
         fitfarm_run_info_t ri = FITFARM_RUN_INFO_INIT, *r = &ri;
@@ -297,8 +305,12 @@ static void s_print_view(const fitfarm_status_t *st, const s_filter_t *filter,
                 continue;
             printf("      %-24s %u/%u  speed %-6.0f %s  ", ws[k].name, ws[k].busy, ws[k].slots,
                    ws[k].speed, ws[k].state ? ws[k].state : "");
-            for (size_t p = 0; p < ws[k].n_plugins; p++)
+            for (size_t p = 0; p < ws[k].n_plugins; p++) {
                 printf("%s%s", p ? " " : "", ws[k].plugins[p]);
+                double m = ws[k].median_seconds ? ws[k].median_seconds[p] : 0;
+                if (m > 0)
+                    printf(" (%.3g s)", m);
+            }
             printf("\n");
         }
     }

@@ -283,7 +283,11 @@ typedef struct {
     double speed;      /* its calibration score at start: millions of rounds per
                         * second of a fixed arithmetic loop on one core; 0 = not
                         * measured. Compares machines, not plugins. */
-    const char *state; /* "active", or "paused: " and why (its owner's hours or load) */
+    const char *state; /* "active", "draining" (stopping: its running evaluations
+                        * finish), or "paused: " and why (its owner's hours or load) */
+    /* n_plugins values: the median wall seconds of its last evaluations of
+     * plugins[i] (up to 31), 0 = none measured yet. */
+    const double *median_seconds;
 } fitfarm_worker_info_t;
 #define FITFARM_WORKER_INFO_INIT {.size = sizeof(fitfarm_worker_info_t)}
 

@@ -63,7 +63,8 @@ FITFARM_API int fitfarm_status_worker(const fitfarm_status_t *self, size_t i,
                                   .n_plugins = w->n_plugins,
                                   .plugins = (const char *const *)w->plugins,
                                   .speed = w->speed,
-                                  .state = w->state};
+                                  .state = w->state,
+                                  .median_seconds = w->medians};
     CLIENT_COPY_OUT(out, full);
     return FITFARM_OK;
 }

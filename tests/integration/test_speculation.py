@@ -12,7 +12,9 @@ test knob: it sleeps after the CPU work; the fitness does not depend on it).
    genome whose copy won is "fast" (the winner is recorded), and the bits
    equal those of the same run evaluated by a pool that never copies
    (--no-speculation): the seed is part of the job's content, so either
-   copy gives the same fitness (speculate.h).
+   copy gives the same fitness (speculate.h). `fitfarm status --json`
+   shows each worker's median seconds for spin (slow's several times
+   fast's).
 2. --no-speculation: the same batches, no copy in the broker's log.
 3. Draining: a worker sent SIGTERM while evaluating shows "draining" in
    `fitfarm status --json`, finishes its evaluation, and leaves.
@@ -64,17 +66,28 @@ def run_pool(extra):
             check.ok(rc == 0 and len(lines) == len(gs), f"batch {k}: {len(lines)} of {len(gs)} "
                      f"answers ({extra or 'copies on'})")
             outs.append(lines)
+        st = pool.status() or {}
+        medians = {w["name"]: dict(zip(w["plugins"], w["median_seconds"])).get("spin@1.0.0")
+                   for w in st.get("workers", [])}
         pool.stop_all()
         db = sqlite3.connect(os.path.join(pool.store, "fitfarm.db"))
         workers = {bytes(k).hex(): w for k, w in db.execute("SELECT key, worker FROM evaluations")}
         db.close()
         logs = {name: open(os.path.join(pool.tmp, f"{name}.log"), errors="replace").read()
                 for name in ("broker", "fast", "slow")}
-    return outs, logs, workers
+    return outs, logs, workers, medians
 
 
-copied, logs, stored = run_pool([])
-plain, plain_logs, _ = run_pool(["--no-speculation"])
+copied, logs, stored, medians = run_pool([])
+plain, plain_logs, _, _ = run_pool(["--no-speculation"])
+
+# Status shows each worker's median for spin: 40 ms of CPU on "fast", about
+# 10 times that on "slow" (the knob's sleep). Loose bounds: a loaded machine
+# stretches the CPU part.
+fast, slow = medians.get("fast"), medians.get("slow")
+check.ok(fast is not None and 0.035 <= fast <= 0.2, f"status: fast's median {fast} s")
+check.ok(slow is not None and fast and 0.35 <= slow <= 2.0 and slow > 4 * fast,
+         f"status: slow's median {slow} s, several times fast's")
 
 check.ok("a copy goes to worker fast" in logs["broker"],
          "the broker copied a straggler of the slow worker to the fast one")

@@ -68,7 +68,7 @@ with fflib.Pool() as pool:
     fields = set(st) | set(st["workers"][0]) | set(st["runs"][0])
     check.ok(fields <= documented | {"workers", "runs", "warnings"} and
              {"requested", "active", "busy", "queued", "running", "done", "evaluated",
-              "cached", "failed", "plugins", "speed", "state"} <= fields,
+              "cached", "failed", "plugins", "speed", "state", "median_seconds"} <= fields,
              f"--json fields are the documented ones: {sorted(fields - documented)}")
     check.ok(all(x["requested"] == x["done"] + x["queued"] + x["running"] for x in st["runs"]),
              "requested = done + queued + running")

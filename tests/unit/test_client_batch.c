@@ -172,8 +172,9 @@ static void *s_broker_main(void *arg)
                 proto_msg_t st;
                 memset(&st, 0, sizeof st);
                 st.type = PROTO_STATUS;
-                proto_worker_info_t w = {"w1", "localhost", "x86_64", 1, 0, 1, (char *[]){"echo@1"}, 0.0,
-                                         "active"};
+                proto_worker_info_t w = {"w1",   "localhost", "x86_64", 1, 0, 1,
+                                         (char *[]){"echo@1"}, 0.0, "active",
+                                         (double[]){0.0}};
                 st.u.status.n_workers = 1;
                 st.u.status.workers = &w;
                 s_send(sock, &id, &st);

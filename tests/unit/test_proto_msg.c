@@ -154,6 +154,9 @@ static void test_decoded_fields(void **state)
     assert_true(d->u.status.workers[0].speed == 812.5);
     assert_true(d->u.status.workers[1].speed == PROTO_MAX_SPEED);
     assert_string_equal(d->u.status.workers[0].state, "active");
+    assert_true(d->u.status.workers[0].medians[0] == 0.0);
+    assert_true(d->u.status.workers[0].medians[1] == 0.4625);
+    assert_int_equal(d->u.status.workers[1].n_plugins, 0);
     assert_string_equal(d->u.status.workers[1].state, "paused: outside --hours 08:00-18:00");
     proto_msg_destroy(&d);
 

@@ -351,6 +351,44 @@ static void test_hello_seed_params(void **state)
     assert_null(buf);
 }
 
+/* STATUS: a worker's medians must be one finite value >= 0 per plugin. */
+static void test_status_medians(void **state)
+{
+    (void)state;
+    uint8_t b[64];
+    size_t n = 0;
+    b[n++] = 0x95, b[n++] = 0x02, b[n++] = 0x0d; /* [v 2, STATUS, workers, runs, warnings] */
+    b[n++] = 0x91, b[n++] = 0x99;                 /* one worker of 9 fields */
+    b[n++] = 0xa0, b[n++] = 0xa0, b[n++] = 0xa0;  /* name, host, arch "" */
+    b[n++] = 0x00, b[n++] = 0x00;                 /* slots 0, busy 0 */
+    b[n++] = 0x91, b[n++] = 0xa1, b[n++] = 'a';   /* plugins ["a"] */
+    b[n++] = 0xcb;                                /* speed: float 64 0.0 */
+    for (int i = 0; i < 8; i++)
+        b[n++] = 0x00;
+    b[n++] = 0xa0; /* state "" */
+    size_t at = n;
+    b[n++] = 0x90;                   /* medians [] : one short */
+    b[n++] = 0x90, b[n++] = 0x90;    /* runs [], warnings [] */
+    fx_expect_refused(b, n, NULL, PROTO_EVALUE, "STATUS.workers[0].medians: 0 values for 1 plugins");
+    /* medians [-1.0]: float 64 0xbff0000000000000 */
+    uint8_t c[80];
+    memcpy(c, b, at);
+    size_t m = at;
+    c[m++] = 0x91, c[m++] = 0xcb, c[m++] = 0xbf, c[m++] = 0xf0;
+    for (int i = 0; i < 6; i++)
+        c[m++] = 0x00;
+    c[m++] = 0x90, c[m++] = 0x90;
+    fx_expect_refused(c, m, NULL, PROTO_EVALUE, "medians: [0] is -1");
+    /* medians [0.5] decodes */
+    c[at + 2] = 0x3f, c[at + 3] = 0xe0;
+    proto_msg_t *d = NULL;
+    proto_err_t err;
+    if (proto_msg_decode(c, m, NULL, &d, &err) != PROTO_OK)
+        fail_msg("%s", err.text);
+    assert_true(d->u.status.workers[0].medians[0] == 0.5);
+    proto_msg_destroy(&d);
+}
+
 static void test_envelope_errors(void **state)
 {
     (void)state;
@@ -419,6 +457,7 @@ int main(void)
         cmocka_unit_test(test_huge_declared_counts),
         cmocka_unit_test(test_mistyped_fields),
         cmocka_unit_test(test_hello_seed_params),
+        cmocka_unit_test(test_status_medians),
         cmocka_unit_test(test_envelope_errors),
         cmocka_unit_test(test_encode_refuses_invalid),
     };

@@ -114,7 +114,8 @@ class WorkerInfo(_Sized):
     _fields_ = [("size", c_size_t), ("name", c_char_p), ("host", c_char_p),
                 ("arch", c_char_p), ("slots", c_uint), ("busy", c_uint),
                 ("n_plugins", c_size_t), ("plugins", ctypes.POINTER(c_char_p)),
-                ("speed", ctypes.c_double), ("state", c_char_p)]
+                ("speed", ctypes.c_double), ("state", c_char_p),
+                ("median_seconds", ctypes.POINTER(ctypes.c_double))]
 
 
 class RunInfo(_Sized):

@@ -827,7 +827,9 @@ class Pool(concurrent.futures.Executor):
                             "name": L.text(w.name), "host": L.text(w.host),
                             "arch": L.text(w.arch), "slots": w.slots, "busy": w.busy,
                             "plugins": [L.text(w.plugins[j]) for j in range(w.n_plugins)],
-                            "speed": w.speed, "state": L.text(w.state)})
+                            "speed": w.speed, "state": L.text(w.state),
+                            "median_seconds": [w.median_seconds[j]
+                                               for j in range(w.n_plugins)]})
                 for i in range(L.status_n_runs(sh)):
                     r = L.RunInfo()
                     if L.status_run(sh, i, ctypes.byref(r)) == 0:

@@ -88,6 +88,7 @@ static proto_item_t s_items[] = {
 uint64_t fx_tags[FX_N_TAGS] = {0, 1, 127, 128, 255, 256, 65535, 65536, UINT32_MAX,
                             (uint64_t)UINT32_MAX + 1, UINT64_MAX};
 static char *s_plugins_a[] = {"zdt1@1.0", "granular@2.3"};
+static double s_medians_a[] = {0.0 /* not measured */, 0.4625};
 static char *s_warnings[] = {"two builds of zdt1@1.0 in the pool", ""};
 static char *s_seed_params[] = {"scatter_radius", "jitter"};
 
@@ -143,6 +144,7 @@ proto_msg_t fx_sample(uint32_t type)
         workers[0] = (proto_worker_info_t){.name = "w1", .host = "lab-3", .arch = "x86_64",
                                            .slots = 8, .busy = 3, .n_plugins = 2,
                                            .plugins = s_plugins_a, .speed = 812.5,
+                                           .medians = s_medians_a,
                                            .state = "active"};
         workers[1] = (proto_worker_info_t){.name = "", .host = "", .arch = "", .slots = 0,
                                            .busy = 0, .n_plugins = 0, .plugins = NULL,
