@@ -31,6 +31,7 @@
 #include "credits.h"
 #include "msg.h"
 #include "calibrate.h"
+#include "cgroup.h"
 #include "handshake.h"
 #include "harvest.h"
 #include "pool.h"
@@ -779,6 +780,21 @@ int worker_main_run(const worker_config_t *config)
     worker_credits_init(&self->credits, self->config.slots);
     s_stop_signals = 0;
     (void)common_fdlimit_raise("worker");
+    /* A cgroup per slot holds whatever a plugin starts, also past the
+     * worker's own death (its keeper, cgroup.h); first, so that the keeper
+     * is not a child of the subreaper below. */
+    worker_cgroup_t cgroup = {.keeper_fd = -1};
+    char why[WORKER_CGROUP_PATH_MAX + 256] = "";
+    if (self->config.no_cgroup)
+        LOG_INFO("no cgroups (--no-cgroup): plugins' processes are found by process group and "
+                 "the subreaper only");
+    else if (worker_cgroup_open(&cgroup, why, sizeof why) == 0)
+        LOG_INFO("each slot runs in a cgroup of its own under %s (keeper started)", cgroup.dir);
+    else
+        LOG_INFO("no cgroups: %s; plugins' processes are found by process group and the "
+                 "subreaper only, so one that calls setsid() may outlive a worker killed "
+                 "with SIGKILL (--no-cgroup silences this)",
+                 why);
     /* A plugin's process that leaves its group and loses its parent comes
      * to us instead of init, so it cannot outlive the worker (reaper.h). */
     int subreaper = worker_reaper_become() == 0;
@@ -807,6 +823,7 @@ int worker_main_run(const worker_config_t *config)
         .registry = self->registry,
         .mem_limit_mb = self->config.mem_limit_mb,
         .reap_orphans = subreaper,
+        .cgroup = cgroup.enabled ? &cgroup : NULL,
         .nice = self->config.nice,
         .default_timeout_ms = self->config.default_timeout_s > 4000000u
                                   ? 4000000000u
@@ -854,6 +871,7 @@ cleanup:
     if (self->ctx)
         zmq_ctx_term(self->ctx);
     worker_pool_destroy(&self->pool);
+    worker_cgroup_close(&cgroup); /* after the children: what they left goes too */
     for (size_t i = self->head; i < self->count; i++)
         s_free_job(&self->queue[i]);
     free(self->queue);

@@ -62,6 +62,10 @@ static void s_usage(FILE *out)
             "                      finish (default), or stop them at once and hand them\n"
             "                      back to the broker to run elsewhere (same seed); jobs\n"
             "                      not yet started are handed back either way\n"
+            "  --no-cgroup         do not put each slot's processes in a cgroup v2 of\n"
+            "                      their own (by default, where this user may create one:\n"
+            "                      then nothing a plugin starts outlives the worker, even\n"
+            "                      after SIGKILL; the log says whether it could)\n"
             "  --help, --version\n"
             "\n"
             "SIGTERM or SIGINT drains (running evaluations finish, queued jobs go back);\n"
@@ -96,7 +100,7 @@ int main(int argc, char **argv)
     enum {
         O_BROKER = 1, O_SLOTS, O_DIR, O_NAME, O_EXEC, O_TIMEOUT, O_MEM, O_HB, O_LIVE,
         O_KEY, O_BROKER_KEY, O_CONFIG, O_INSECURE, O_WITH_DEFAULTS, O_READY, O_LIFELINE,
-        O_NICE, O_MAX_LOAD, O_HOURS, O_ON_RECLAIM
+        O_NICE, O_MAX_LOAD, O_HOURS, O_ON_RECLAIM, O_NO_CGROUP
     };
     config.nice = -1;
     const char *config_path = NULL;
@@ -121,6 +125,7 @@ int main(int argc, char **argv)
         {"max-load", required_argument, NULL, O_MAX_LOAD},
         {"hours", required_argument, NULL, O_HOURS},
         {"on-reclaim", required_argument, NULL, O_ON_RECLAIM},
+        {"no-cgroup", no_argument, NULL, O_NO_CGROUP},
         {"help", no_argument, NULL, 'h'},
         {"version", no_argument, NULL, 'V'},
         {NULL, 0, NULL, 0},
@@ -182,6 +187,9 @@ int main(int argc, char **argv)
             break;
         case O_CONFIG:
             config_path = optarg;
+            break;
+        case O_NO_CGROUP:
+            config.no_cgroup = 1;
             break;
         case O_INSECURE:
             config.insecure = 1;

@@ -40,6 +40,7 @@
 #include <time.h>
 #include <unistd.h>
 
+#include "cgroup.h"
 #include "child.h"
 #include "common/alloc.h"
 #include "common/clock.h"
@@ -98,14 +99,16 @@ static s_job_t *s_at(s_child_t *c, unsigned k)
     return &c->q[(c->qhead + k) % S_MAX_DEPTH];
 }
 
-/* SIGKILLs child c and its process group: a plugin's helpers that stayed in
- * the group die with it; those that left it are orphans the sweep finds. */
-static void s_kill(const s_child_t *c)
+/* SIGKILLs child i, its process group and its slot's cgroup (cgroup.h);
+ * without cgroups, helpers that left the group are orphans the sweep finds. */
+static void s_kill(worker_pool_t *self, unsigned i)
 {
+    const s_child_t *c = &self->children[i];
     if (c->pid <= 0)
         return;
     kill(-c->pid, SIGKILL);
     kill(c->pid, SIGKILL);
+    (void)worker_cgroup_kill_slot(self->config.cgroup, i);
 }
 
 /* Kills and reaps every child of the worker that is not a live slot: what
@@ -272,6 +275,7 @@ static int s_spawn(worker_pool_t *self, unsigned i)
         close(sv[1]);
         goto fail;
     }
+    int cg_fd = worker_cgroup_slot_fd(self->config.cgroup, i);
     pid_t parent = getpid();
     pid_t pid = fork();
     if (pid < 0) {
@@ -280,6 +284,7 @@ static int s_spawn(worker_pool_t *self, unsigned i)
         close(sv[1]);
         close(op[0]);
         close(op[1]);
+        (void)(cg_fd >= 0 && close(cg_fd));
         goto fail;
     }
     if (pid == 0) {
@@ -290,12 +295,15 @@ static int s_spawn(worker_pool_t *self, unsigned i)
                 s_close_slot(&self->children[j]); /* this process's copies only */
         close(sv[0]);
         close(op[0]);
+        (void)worker_cgroup_enter(self->config.cgroup, cg_fd); /* before any plugin code */
         worker_child_enter(sv[1], op[1], self->config.nice, self->config.registry,
                            self->config.mem_limit_mb, parent, st);
     }
     /* The child does the same; whichever runs first, the group exists before
      * anything is killed through it. */
     (void)setpgid(pid, pid);
+    if (cg_fd >= 0)
+        close(cg_fd);
     close(sv[1]);
     close(op[1]);
     c->out_fd = op[0];
@@ -402,8 +410,10 @@ static void s_on_death(worker_pool_t *self, unsigned i, const char *why)
     struct rusage ru = {0};
     int status = worker_reaper_wait(c->pid, S_REAP_GRACE_MS, &ru);
     /* Its helpers in its group must not outlive it (the group id stays
-     * taken while any member lives, so this cannot hit a stranger). */
+     * taken while any member lives, so this cannot hit a stranger), nor
+     * anything in its cgroup. */
     kill(-c->pid, SIGKILL);
+    (void)worker_cgroup_kill_slot(self->config.cgroup, i);
     s_output_end(self, i);
     char text[PROTO_MAX_ERROR_BYTES];
     worker_reaper_describe(status, text, sizeof text);
@@ -434,7 +444,7 @@ static void s_kill_reap(worker_pool_t *self, unsigned i, struct rusage *ru)
 {
     s_child_t *c = &self->children[i];
     s_output_drain(self, i);
-    s_kill(c);
+    s_kill(self, i);
     int status = 0;
     while (wait4(c->pid, &status, 0, ru) < 0 && errno == EINTR)
         ;
@@ -538,7 +548,7 @@ static void s_on_readable(worker_pool_t *self, unsigned i)
         }
         if (rc < 0) {
             proto_msg_destroy(&msg);
-            s_kill(c);
+            s_kill(self, i);
             char why[300];
             snprintf(why, sizeof why, "bad answer from the child: %s", err);
             s_on_death(self, i, why);
@@ -756,7 +766,7 @@ void worker_pool_handle(worker_pool_t *self, const zmq_pollitem_t *items, size_t
         if (k >= 0) {
             s_on_overrun(self, i, k, start_us);
         } else {
-            s_kill(&self->children[i]);
+            s_kill(self, i);
             s_on_death(self, i, "stuck between evaluations");
         }
     }

@@ -35,6 +35,7 @@ typedef struct {
     unsigned queue_depth;          /* jobs per child; 0 = adaptive (credits.h) */
     int nice;                      /* added to each child's nice value (0..19): plugins
                                       yield the CPU to the machine's other users */
+    struct worker_cgroup_s *cgroup; /* slots' cgroups (cgroup.h); NULL = none */
     int reap_orphans;              /* the calling process is a child subreaper and starts
                                       no children of its own besides the pool's: kill
                                       and reap every other child after a child's death

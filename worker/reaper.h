@@ -13,8 +13,8 @@
  * Children are listed from /proc/PID/task/TID/children (Linux 3.5+, kernel
  * option CONFIG_PROC_CHILDREN); where that file is missing, from a scan of
  * every /proc/PID/stat for the parent field. Not owned here: the process
- * groups of children and co-processes (pool.c, exec_plugin.c), cgroups (not
- * used; README, Security, says why). Single-threaded use only. */
+ * groups of children and co-processes (pool.c, exec_plugin.c), the cgroups
+ * that also outlast a killed worker (cgroup.h). Single-threaded use only. */
 #ifndef WORKER_REAPER_H
 #define WORKER_REAPER_H
 

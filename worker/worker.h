@@ -39,6 +39,7 @@ typedef struct {
     int has_hours;      /* take jobs only in [hours_start_s, hours_end_s) local time */
     int hours_start_s, hours_end_s;
     int on_reclaim;     /* WORKER_RECLAIM_*: what a pause does to running evaluations */
+    int no_cgroup;      /* 1: no cgroup per slot (cgroup.h), process groups only */
 } worker_config_t;
 
 #define WORKER_DEFAULT_NICE 10
