@@ -428,8 +428,9 @@ static int s_alloc(s_cursor_t *c, void **p, uint32_t n, size_t size)
         goto cleanup;                            \
     } while (0)
 
-/* An array of f64 (fitness vectors): each needs 9 bytes. */
-static int s_read_f64_array(s_cursor_t *c, uint32_t limit, uint32_t *n_out, double **out)
+/* An array of f64 (fitness vectors; with measure, medians: finite, >= 0). */
+static int s_read_f64_array(s_cursor_t *c, uint32_t limit, uint32_t *n_out, double **out,
+                            int measure)
 {
     int rc;
     uint32_t n = 0;
@@ -437,7 +438,7 @@ static int s_read_f64_array(s_cursor_t *c, uint32_t limit, uint32_t *n_out, doub
         goto cleanup;
     *n_out = n;
     for (uint32_t i = 0; i < n; i++)
-        ELEM(i, s_read_f64(c, &(*out)[i]));
+        ELEM(i, measure ? s_read_f64_measure(c, &(*out)[i]) : s_read_f64(c, &(*out)[i]));
 cleanup:
     return rc;
 }
@@ -556,7 +557,7 @@ static int s_result(s_cursor_t *c, proto_result_t *r)
     FIELD("cached", s_read_bool(c, &r->cached));
     FIELD("seed", s_read_u64(c, &r->seed));
     FIELD("key", s_read_bin_fixed(c, r->key, PROTO_KEY_BYTES));
-    FIELD("fitness", s_read_f64_array(c, c->lim.objectives, &r->n_fitness, &r->fitness));
+    FIELD("fitness", s_read_f64_array(c, c->lim.objectives, &r->n_fitness, &r->fitness, 0));
     FIELD("error", s_read_str(c, c->lim.error_bytes, &r->error));
     FIELD("worker", s_read_str(c, c->lim.name_bytes, &r->worker));
     FIELD("host", s_read_str(c, c->lim.name_bytes, &r->host));
@@ -612,15 +613,10 @@ static int s_worker_info(s_cursor_t *c, proto_worker_info_t *w)
     FIELD("plugins", s_read_str_array(c, PROTO_MAX_PLUGINS, s_plugin_ref_limit(c), &w->n_plugins,
                                       &w->plugins));
     FIELD("speed", s_read_speed(c, &w->speed));
-    /* "paused: " and a reason of at most name_bytes */
-    FIELD("state", s_read_str(c, c->lim.name_bytes + 16, &w->state));
-    FIELD("medians", s_read_f64_array(c, PROTO_MAX_PLUGINS, &n_medians, &w->medians));
+    FIELD("state", s_read_str(c, c->lim.name_bytes + 16, &w->state)); /* "paused: " WHY */
+    FIELD("medians", s_read_f64_array(c, PROTO_MAX_PLUGINS, &n_medians, &w->medians, 1));
     if (n_medians != w->n_plugins)
         FIELD_FAIL("medians", PROTO_EVALUE, "%u values for %u plugins", n_medians, w->n_plugins);
-    for (uint32_t i = 0; i < n_medians; i++)
-        if (!(isfinite(w->medians[i]) && w->medians[i] >= 0))
-            FIELD_FAIL("medians", PROTO_EVALUE, "[%u] is %g, expected a finite value >= 0", i,
-                       w->medians[i]);
 cleanup:
     return rc;
 }
@@ -717,7 +713,7 @@ static int s_outcome(s_cursor_t *c, proto_outcome_t *o)
         goto cleanup;
     FIELD("job_id", s_read_u64(c, &o->job_id));
     FIELD("status", s_read_status(c, &o->status));
-    FIELD("fitness", s_read_f64_array(c, c->lim.objectives, &o->n_fitness, &o->fitness));
+    FIELD("fitness", s_read_f64_array(c, c->lim.objectives, &o->n_fitness, &o->fitness, 0));
     FIELD("cpu_seconds", s_read_f64_measure(c, &o->cpu_seconds));
     FIELD("peak_rss_kb", s_read_u64(c, &o->peak_rss_kb));
     FIELD("error", s_read_str(c, c->lim.error_bytes, &o->error));

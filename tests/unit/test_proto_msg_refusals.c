@@ -378,7 +378,7 @@ static void test_status_medians(void **state)
     for (int i = 0; i < 6; i++)
         c[m++] = 0x00;
     c[m++] = 0x90, c[m++] = 0x90;
-    fx_expect_refused(c, m, NULL, PROTO_EVALUE, "medians: [0] is -1");
+    fx_expect_refused(c, m, NULL, PROTO_EVALUE, "medians[0]: -1, expected a finite value >= 0");
     /* medians [0.5] decodes */
     c[at + 2] = 0x3f, c[at + 3] = 0xe0;
     proto_msg_t *d = NULL;
