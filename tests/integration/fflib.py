@@ -167,6 +167,28 @@ class Pool:
         return "\n".join(out)
 
 
+def wait_for(cond, timeout=30, step=0.05):
+    """Polls cond() until it returns something true or timeout seconds pass;
+    returns its last value."""
+    deadline = time.time() + timeout
+    while time.time() < deadline:
+        v = cond()
+        if v:
+            return v
+        time.sleep(step)
+    return cond()
+
+
+def alive(pid):
+    """True while pid is a process that has not ended (a zombie has ended)."""
+    try:
+        with open(f"/proc/{pid}/stat") as f:
+            state = f.read().rsplit(")", 1)[1].split()[0]
+    except (OSError, IndexError):
+        return False
+    return state not in ("Z", "X")
+
+
 def done_in_store(db_path):
     """Evaluations with a result in a broker's store (read-only; 0 while the
     file is missing or locked), for tests that act mid-run."""

@@ -28,6 +28,7 @@ import threading
 import time
 
 import fflib
+from fflib import alive, wait_for
 
 PYTHON = os.environ.get("PYTHON", sys.executable)
 CANTILEVER = os.path.join(fflib.SOURCE, "client", "examples", "cantilever.py")
@@ -84,13 +85,6 @@ def cmdline(pid):
         return ""
 
 
-def alive(pid):
-    try:
-        stat = open(f"/proc/{pid}/stat").read()
-    except OSError:
-        return False
-    return stat.rsplit(")", 1)[1].split()[0] not in ("Z", "X")
-
 
 def coprocesses(worker_pid, script):
     """Co-processes running script: grandchildren of the worker."""
@@ -101,15 +95,6 @@ def coprocesses(worker_pid, script):
                 out.append(g)
     return out
 
-
-def wait_for(cond, timeout):
-    deadline = time.time() + timeout
-    while time.time() < deadline:
-        v = cond()
-        if v:
-            return v
-        time.sleep(0.05)
-    return cond()
 
 
 with fflib.Pool() as pool:

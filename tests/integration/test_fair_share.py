@@ -16,10 +16,10 @@ import signal
 import sqlite3
 import subprocess
 import sys
-import time
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import fflib  # noqa: E402
+from fflib import wait_for  # noqa: E402
 
 SPIN = '{"ms": 2}'
 check = fflib.Check("test_fair_share")
@@ -46,14 +46,6 @@ def start_eval(pool, run, genomes, extra=()):
     pool.procs.append(p)
     return p
 
-
-def wait_for(cond, seconds):
-    deadline = time.time() + seconds
-    while time.time() < deadline:
-        if cond():
-            return True
-        time.sleep(0.05)
-    return cond()
 
 
 with fflib.Pool() as pool:

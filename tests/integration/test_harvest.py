@@ -15,6 +15,7 @@ import subprocess
 import time
 
 import fflib
+from fflib import wait_for
 
 check = fflib.Check("test_harvest")
 N = 12
@@ -29,15 +30,6 @@ def state_of(pool, name):
             return w
     return None
 
-
-def wait_for(cond, timeout=30, step=0.1):
-    deadline = time.time() + timeout
-    while time.time() < deadline:
-        v = cond()
-        if v:
-            return v
-        time.sleep(step)
-    return cond()
 
 
 def write_load(path, value):

@@ -18,26 +18,17 @@ it is gone:
 import os
 import re
 import signal
-import sys
 import tempfile
 import time
 
 import fflib
+from fflib import alive
 
 PYTHON = os.environ.get("PYTHON", "/usr/bin/python3")
 EXEC = os.path.join(fflib.SOURCE, "tests", "integration", "escape_exec.py")
 PLUGINS = os.path.join(fflib.BUILD, "test-plugins")
 check = fflib.Check("test_sandbox")
 
-
-def alive(pid):
-    """True while pid is a process that has not ended (a zombie has ended)."""
-    try:
-        with open(f"/proc/{pid}/stat") as f:
-            state = f.read().rsplit(")", 1)[1].split()[0]
-    except (FileNotFoundError, ProcessLookupError):
-        return False
-    return state != "Z"
 
 
 def pids(path):

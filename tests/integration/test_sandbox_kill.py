@@ -25,17 +25,11 @@ import time
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import fflib  # noqa: E402
+from fflib import alive, wait_for  # noqa: E402
 
 PLUGINS = os.path.join(fflib.BUILD, "test-plugins")
 check = fflib.Check("test_sandbox_kill")
 
-
-def alive(pid):
-    try:
-        with open(f"/proc/{pid}/stat") as f:
-            return f.read().rsplit(")", 1)[1].split()[0] != "Z"
-    except (FileNotFoundError, ProcessLookupError):
-        return False
 
 
 def pids(path):
@@ -44,14 +38,6 @@ def pids(path):
     except FileNotFoundError:
         return []
 
-
-def wait_until(cond, seconds):
-    deadline = time.time() + seconds
-    while time.time() < deadline:
-        if cond():
-            return True
-        time.sleep(0.05)
-    return cond()
 
 
 def hang_and_kill(pool, name, extra):
@@ -68,7 +54,7 @@ def hang_and_kill(pool, name, extra):
     pool.procs.append(ev)
     ev.stdin.write("[3, 7]\n")
     ev.stdin.close()
-    wait_until(lambda: pids(pf), 30)
+    wait_for(lambda: pids(pf), 30)
     ps = pids(pf)
     check.ok(len(ps) == 1 and alive(ps[0]), f"{name}: the evaluation's setsid() helper is up: {ps}")
     os.kill(w.pid, signal.SIGKILL)
@@ -89,13 +75,13 @@ try:
         if m:
             folder = m.group(1)
             check.ok(folder.endswith(f"/fitfarm-worker-{wpid}"), f"the worker's folder: {folder}")
-            check.ok(wait_until(lambda: not any(alive(p) for p in ps), 10),
+            check.ok(wait_for(lambda: not any(alive(p) for p in ps), 10),
                      f"the setsid() helper is gone within 10 s of the worker's SIGKILL: "
                      f"alive {[p for p in ps if alive(p)]}")
-            check.ok(wait_until(lambda: not os.path.exists(folder), 10),
+            check.ok(wait_for(lambda: not os.path.exists(folder), 10),
                      f"the keeper removed {folder}")
             check.ok(re.search(r"keeper: worker \d+ is gone; killed the \d+ processes", log) or
-                     wait_until(lambda: "keeper: worker" in open(
+                     wait_for(lambda: "keeper: worker" in open(
                          os.path.join(pool.tmp, "caged.log"), errors="replace").read(), 5),
                      "the keeper logged what it killed")
         else:

@@ -27,20 +27,12 @@ import time
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import fflib  # noqa: E402
+from fflib import wait_for  # noqa: E402
 
 check = fflib.Check("test_store_full")
 PARAMS = ["--plugin", "spin", "--params", '{"ms": 20}', "--seed", "11"]
 PARAMS_FAST = ["--plugin", "spin", "--params", '{"ms": 0}', "--seed", "11"]
 
-
-def wait_for(cond, timeout, step=0.1):
-    deadline = time.time() + timeout
-    while time.time() < deadline:
-        v = cond()
-        if v:
-            return v
-        time.sleep(step)
-    return cond()
 
 
 def log_text(pool):
