@@ -107,6 +107,15 @@ char *broker_metrics_text(broker_t *b, size_t *len)
     broker_outbuf_printf(&o, "fitfarm_cache_hits_total %" PRIu64 "\n", b->runs.cached_total);
     s_family(&o, "fitfarm_jobs_sent_total", "counter", "Jobs sent to workers.");
     broker_outbuf_printf(&o, "fitfarm_jobs_sent_total %" PRIu64 "\n", b->jobs_sent);
+    s_family(&o, "fitfarm_straggler_copies_total", "counter",
+             "Second copies of slow jobs (speculate.h), by how they ended: started, won (finished "
+             "first), beaten (the first finished first), failed (crashed or timed out).");
+    const broker_speculate_t *sp = &b->spec;
+    const uint64_t by_end[4] = {sp->started, sp->won, sp->beaten, sp->failed};
+    static const char *const ends[4] = {"started", "won", "beaten", "failed"};
+    for (int i = 0; i < 4; i++)
+        broker_outbuf_printf(&o, "fitfarm_straggler_copies_total{end=\"%s\"} %" PRIu64 "\n",
+                             ends[i], by_end[i]);
     s_family(&o, "fitfarm_messages_dropped_total", "counter",
              "Messages dropped as bad or not permitted.");
     broker_outbuf_printf(&o, "fitfarm_messages_dropped_total %" PRIu64 "\n", b->dropped_msgs);

@@ -21,6 +21,8 @@ test knob: it sleeps after the CPU work; the fitness does not depend on it).
 Run with /usr/bin/python3 (Debian's)."""
 import json
 import os
+import re
+import urllib.request
 import signal
 import sqlite3
 import sys
@@ -57,7 +59,7 @@ def run_pool(extra):
     stored worker by key, the pool's folder)."""
     outs = []
     with fflib.Pool(broker_args=extra) as pool:
-        pool.start_broker()
+        pool.start_broker(extra=["--http", "127.0.0.1:0"])
         two_workers(pool)
         rc, _ = evaluate(pool, "warm", fflib.genomes(30, 3, seed=1))
         check.ok(rc == 0, f"warm-up batch evaluated ({extra or 'copies on'})")
@@ -66,6 +68,10 @@ def run_pool(extra):
             check.ok(rc == 0 and len(lines) == len(gs), f"batch {k}: {len(lines)} of {len(gs)} "
                      f"answers ({extra or 'copies on'})")
             outs.append(lines)
+        with urllib.request.urlopen(pool.http_url + "/metrics", timeout=10) as r:
+            page = r.read().decode()
+        counts = {m.group(1): int(float(m.group(2))) for m in re.finditer(
+            r'^fitfarm_straggler_copies_total\{end="(\w+)"\} (\S+)$', page, re.M)}
         st = pool.status() or {}
         medians = {w["name"]: dict(zip(w["plugins"], w["median_seconds"])).get("spin@1.0.0")
                    for w in st.get("workers", [])}
@@ -75,11 +81,11 @@ def run_pool(extra):
         db.close()
         logs = {name: open(os.path.join(pool.tmp, f"{name}.log"), errors="replace").read()
                 for name in ("broker", "fast", "slow")}
-    return outs, logs, workers, medians
+    return outs, logs, workers, medians, counts
 
 
-copied, logs, stored, medians = run_pool([])
-plain, plain_logs, _, _ = run_pool(["--no-speculation"])
+copied, logs, stored, medians, counts = run_pool([])
+plain, plain_logs, _, _, plain_counts = run_pool(["--no-speculation"])
 
 # Status shows each worker's median for spin: 40 ms of CPU on "fast", about
 # 10 times that on "slow" (the knob's sleep). Loose bounds: a loaded machine
@@ -96,6 +102,12 @@ check.ok(len(won) >= 1, f"a copy finished first ({len(won)} times)")
 check.ok("cancelled: child pid" in logs["slow"],
          "the slow worker killed the child running the cancelled job")
 check.ok("a copy goes" not in plain_logs["broker"], "--no-speculation: no copy started")
+# The metrics page counts what the log says (its parser: test_metrics.py).
+check.ok(counts.get("started") == logs["broker"].count("a copy goes to") and
+         counts.get("won") == len(won) and
+         counts["started"] == counts["won"] + counts["beaten"] + counts["failed"],
+         f"fitfarm_straggler_copies_total matches the log: {counts}")
+check.ok(plain_counts.get("started") == 0, f"--no-speculation: metrics {plain_counts}")
 
 for k, (a, b) in enumerate(zip(copied, plain)):
     ids = [line["id"] for line in a]
