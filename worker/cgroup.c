@@ -160,6 +160,7 @@ static void s_empty_all(const char *dir, int has_kill, unsigned *killed)
 static void s_keeper(int rd, const char *dir, int has_kill, pid_t worker)
 {
     (void)prctl(PR_SET_NAME, "fitfarm-keeper", 0, 0, 0);
+    (void)setsid(); /* out of the worker's process group: a kill of the group spares it */
     signal(SIGTERM, SIG_IGN);
     signal(SIGINT, SIG_IGN);
     signal(SIGHUP, SIG_IGN);

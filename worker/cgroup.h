@@ -20,7 +20,8 @@
  * cancel, a stop: pool.c), and at the worker's exit every slot is killed and
  * the folders removed. The keeper is a grandchild of the worker, started
  * before the worker becomes a subreaper (so it is not the worker's child and
- * no sweep of the worker's children touches it), holding the read end of a
+ * no sweep of the worker's children touches it) in a session of its own (a
+ * kill of the worker's process group spares it), holding the read end of a
  * pipe of which only the worker holds the write end: when it reads end of
  * file (the worker exited or died) it kills every slot's cgroup, waits for
  * them to empty, removes the folders and exits.

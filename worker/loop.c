@@ -312,7 +312,7 @@ static void s_on_jobs(s_worker_t *self, proto_msg_t *msg)
     }
     LOG_DEBUG("%u jobs arrived; %zu queued, %u running", jobs->n_jobs, s_queued(self),
               worker_pool_busy(self->pool));
-    if (self->paused) /* sent before the broker read our HAND_BACK */
+    if (self->paused || self->draining) /* sent before the broker read our HAND_BACK */
         s_hand_back_queue(self);
 }
 
