@@ -787,11 +787,17 @@ int worker_main_run(const worker_config_t *config)
             return 1;
         }
     }
-    worker_calibration_t cal;
-    worker_calibrate(&cal);
-    self->speed = cal.score;
-    LOG_INFO("calibration: speed %.1f (million loop rounds per second, best of %d) in %.1f ms",
-             cal.score, WORKER_CALIBRATE_ROUNDS, (double)cal.elapsed_us / 1000.0);
+    if (self->config.no_calibration) {
+        self->speed = 0; /* "not measured" in HELLO (msg.h) */
+        LOG_INFO("calibration skipped (--no-calibration): speed reported as not measured");
+    } else {
+        worker_calibration_t cal;
+        worker_calibrate(&cal);
+        self->speed = cal.score;
+        LOG_INFO("calibration: speed %.1f (million loop rounds per second, best of %d) in "
+                 "%.1f ms",
+                 cal.score, WORKER_CALIBRATE_ROUNDS, (double)cal.elapsed_us / 1000.0);
+    }
     worker_credits_init(&self->credits, self->config.slots);
     s_stop_signals = 0;
     (void)common_fdlimit_raise("worker");

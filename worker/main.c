@@ -62,6 +62,9 @@ static void s_usage(FILE *out)
             "                      finish (default), or stop them at once and hand them\n"
             "                      back to the broker to run elsewhere (same seed); jobs\n"
             "                      not yet started are handed back either way\n"
+            "  --no-calibration    skip the speed measurement at start (about 0.1 s); the\n"
+            "                      broker then shows speed 0, not measured (the embedded\n"
+            "                      pool, one machine, uses this)\n"
             "  --no-cgroup         do not put each slot's processes in a cgroup v2 of\n"
             "                      their own (by default, where this user may create one:\n"
             "                      then nothing a plugin starts outlives the worker, even\n"
@@ -100,7 +103,7 @@ int main(int argc, char **argv)
     enum {
         O_BROKER = 1, O_SLOTS, O_DIR, O_NAME, O_EXEC, O_TIMEOUT, O_MEM, O_HB, O_LIVE,
         O_KEY, O_BROKER_KEY, O_CONFIG, O_INSECURE, O_WITH_DEFAULTS, O_READY, O_LIFELINE,
-        O_NICE, O_MAX_LOAD, O_HOURS, O_ON_RECLAIM, O_NO_CGROUP
+        O_NICE, O_MAX_LOAD, O_HOURS, O_ON_RECLAIM, O_NO_CGROUP, O_NO_CALIBRATION
     };
     config.nice = -1;
     const char *config_path = NULL;
@@ -126,6 +129,7 @@ int main(int argc, char **argv)
         {"hours", required_argument, NULL, O_HOURS},
         {"on-reclaim", required_argument, NULL, O_ON_RECLAIM},
         {"no-cgroup", no_argument, NULL, O_NO_CGROUP},
+        {"no-calibration", no_argument, NULL, O_NO_CALIBRATION},
         {"help", no_argument, NULL, 'h'},
         {"version", no_argument, NULL, 'V'},
         {NULL, 0, NULL, 0},
@@ -187,6 +191,9 @@ int main(int argc, char **argv)
             break;
         case O_CONFIG:
             config_path = optarg;
+            break;
+        case O_NO_CALIBRATION:
+            config.no_calibration = 1;
             break;
         case O_NO_CGROUP:
             config.no_cgroup = 1;

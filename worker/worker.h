@@ -40,6 +40,7 @@ typedef struct {
     int hours_start_s, hours_end_s;
     int on_reclaim;     /* WORKER_RECLAIM_*: what a pause does to running evaluations */
     int no_cgroup;      /* 1: no cgroup per slot (cgroup.h), process groups only */
+    int no_calibration; /* 1: report speed 0 (not measured) instead of calibrating */
 } worker_config_t;
 
 #define WORKER_DEFAULT_NICE 10
