@@ -1,10 +1,11 @@
 /* calibrate.c: the worker's speed score (calibrate.h). Owns only the timed
- * loop; reporting it is loop.c's. */
+ * loop; sending it in HELLO is loop.c's. */
 #include "calibrate.h"
 
 #include <string.h>
 
 #include "common/clock.h"
+#include "common/log.h"
 
 uint64_t worker_calibrate_kernel(uint64_t n)
 {
@@ -57,4 +58,17 @@ void worker_calibrate(worker_calibration_t *out)
     }
     out->score = best > 1e9 ? 1e9 : best;
     out->elapsed_us = common_clock_us() - start;
+}
+
+double worker_calibrate_at_start(int skip)
+{
+    if (skip) {
+        LOG_INFO("calibration skipped (--no-calibration): speed reported as not measured");
+        return 0;
+    }
+    worker_calibration_t cal;
+    worker_calibrate(&cal);
+    LOG_INFO("calibration: speed %.1f (million loop rounds per second, best of %d) in %.1f ms",
+             cal.score, WORKER_CALIBRATE_ROUNDS, (double)cal.elapsed_us / 1000.0);
+    return cal.score;
 }

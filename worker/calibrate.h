@@ -29,6 +29,10 @@ typedef struct {
 /* Runs the calibration (blocks for well under a second). */
 void worker_calibrate(worker_calibration_t *out);
 
+/* The score HELLO reports: calibrated and logged, or with skip
+ * (--no-calibration) 0, "not measured" (msg.h), logged as skipped. */
+double worker_calibrate_at_start(int skip);
+
 /* The fixed loop itself: n rounds from a fixed start. Its result depends on n
  * only, so a test can check that the compiler did not drop the work. */
 uint64_t worker_calibrate_kernel(uint64_t n);

@@ -263,6 +263,24 @@ int worker_cgroup_open(worker_cgroup_t *cg, char *why, size_t whylen)
     return 0;
 }
 
+void worker_cgroup_setup(worker_cgroup_t *cg, int disabled)
+{
+    char why[WORKER_CGROUP_PATH_MAX + 256] = "";
+    if (disabled) {
+        memset(cg, 0, sizeof *cg);
+        cg->keeper_fd = -1;
+        LOG_INFO("no cgroups (--no-cgroup): plugins' processes are found by process group and "
+                 "the subreaper only");
+    } else if (worker_cgroup_open(cg, why, sizeof why) == 0) {
+        LOG_INFO("each slot runs in a cgroup of its own under %s (keeper started)", cg->dir);
+    } else {
+        LOG_INFO("no cgroups: %s; plugins' processes are found by process group and the "
+                 "subreaper only, so one that calls setsid() may outlive a worker killed "
+                 "with SIGKILL (--no-cgroup silences this)",
+                 why);
+    }
+}
+
 int worker_cgroup_slot_fd(worker_cgroup_t *cg, unsigned slot)
 {
     if (!cg || !cg->enabled)

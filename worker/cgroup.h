@@ -52,6 +52,10 @@ typedef struct worker_cgroup_s {
  * subreaper and before it opens sockets. */
 int worker_cgroup_open(worker_cgroup_t *cg, char *why, size_t whylen);
 
+/* worker_cgroup_open unless disabled (--no-cgroup), logging which way it
+ * went and, without cgroups, why and what that leaves. */
+void worker_cgroup_setup(worker_cgroup_t *cg, int disabled);
+
 /* A descriptor open for writing slot's cgroup.procs (the folder is made on
  * first use), for the child to enter with worker_cgroup_enter; -1 when
  * disabled or on an error (logged). The caller closes it. */

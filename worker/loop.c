@@ -787,17 +787,7 @@ int worker_main_run(const worker_config_t *config)
             return 1;
         }
     }
-    if (self->config.no_calibration) {
-        self->speed = 0; /* "not measured" in HELLO (msg.h) */
-        LOG_INFO("calibration skipped (--no-calibration): speed reported as not measured");
-    } else {
-        worker_calibration_t cal;
-        worker_calibrate(&cal);
-        self->speed = cal.score;
-        LOG_INFO("calibration: speed %.1f (million loop rounds per second, best of %d) in "
-                 "%.1f ms",
-                 cal.score, WORKER_CALIBRATE_ROUNDS, (double)cal.elapsed_us / 1000.0);
-    }
+    self->speed = worker_calibrate_at_start(self->config.no_calibration);
     worker_credits_init(&self->credits, self->config.slots);
     s_stop_signals = 0;
     (void)common_fdlimit_raise("worker");
@@ -805,17 +795,7 @@ int worker_main_run(const worker_config_t *config)
      * worker's own death (its keeper, cgroup.h); first, so that the keeper
      * is not a child of the subreaper below. */
     worker_cgroup_t cgroup = {.keeper_fd = -1};
-    char why[WORKER_CGROUP_PATH_MAX + 256] = "";
-    if (self->config.no_cgroup)
-        LOG_INFO("no cgroups (--no-cgroup): plugins' processes are found by process group and "
-                 "the subreaper only");
-    else if (worker_cgroup_open(&cgroup, why, sizeof why) == 0)
-        LOG_INFO("each slot runs in a cgroup of its own under %s (keeper started)", cgroup.dir);
-    else
-        LOG_INFO("no cgroups: %s; plugins' processes are found by process group and the "
-                 "subreaper only, so one that calls setsid() may outlive a worker killed "
-                 "with SIGKILL (--no-cgroup silences this)",
-                 why);
+    worker_cgroup_setup(&cgroup, self->config.no_cgroup);
     /* A plugin's process that leaves its group and loses its parent comes
      * to us instead of init, so it cannot outlive the worker (reaper.h). */
     int subreaper = worker_reaper_become() == 0;
