@@ -183,6 +183,37 @@ static void s_keeper(int rd, const char *dir, int has_kill, pid_t worker)
     _exit(0);
 }
 
+/* Folders of workers that are gone, keeper and all (a kill of every process
+ * by name, a machine's hard stop), in parent: removed when they hold
+ * nothing (rmdir refuses a cgroup with processes, which are left alone). */
+static void s_remove_stale(const char *parent)
+{
+    DIR *d = opendir(parent);
+    if (!d)
+        return;
+    struct dirent *de;
+    while ((de = readdir(d))) {
+        int pid = 0;
+        if (sscanf(de->d_name, "fitfarm-worker-%d", &pid) != 1 || pid <= 0 ||
+            kill(pid, 0) == 0 || errno != ESRCH)
+            continue;
+        char dir[2 * WORKER_CGROUP_PATH_MAX + 300], sub[sizeof dir + 300];
+        snprintf(dir, sizeof dir, "%s/%s", parent, de->d_name);
+        DIR *sd = opendir(dir);
+        struct dirent *se;
+        while (sd && (se = readdir(sd)))
+            if (strncmp(se->d_name, "slot-", 5) == 0) {
+                snprintf(sub, sizeof sub, "%s/%s", dir, se->d_name);
+                (void)rmdir(sub);
+            }
+        if (sd)
+            closedir(sd);
+        if (rmdir(dir) == 0)
+            LOG_INFO("removed %s, left by a worker that is gone", dir);
+    }
+    closedir(d);
+}
+
 int worker_cgroup_open(worker_cgroup_t *cg, char *why, size_t whylen)
 {
     memset(cg, 0, sizeof *cg);
@@ -203,6 +234,9 @@ int worker_cgroup_open(worker_cgroup_t *cg, char *why, size_t whylen)
         rel = own + rl;
     if (strcmp(rel, "/") == 0)
         rel = "";
+    char parent[2 * WORKER_CGROUP_PATH_MAX + 8];
+    snprintf(parent, sizeof parent, "%s%s", mount, rel);
+    s_remove_stale(parent);
     int n = snprintf(cg->dir, sizeof cg->dir, "%s%s/fitfarm-worker-%d", mount, rel, (int)getpid());
     if (n < 0 || (size_t)n >= sizeof cg->dir) {
         s_why(why, whylen, "the cgroup path under %s is too long%s", mount, NULL);

@@ -25,6 +25,8 @@
  * pipe of which only the worker holds the write end: when it reads end of
  * file (the worker exited or died) it kills every slot's cgroup, waits for
  * them to empty, removes the folders and exits.
+ * Folders whose worker and keeper are both gone (a kill of every process by
+ * name) are removed by the next worker's open when they hold nothing.
  *
  * Where the machine does not offer it (no cgroup2 mount, our cgroup not
  * writable by this user, e.g. without systemd's Delegate=yes), or with

@@ -93,6 +93,63 @@ static void test_slot_kill_reaches_a_setsid_grandchild(void **state)
     assert_int_equal(errno, ENOENT);
 }
 
+static pid_t s_dead_pid(void)
+{
+    pid_t p = fork();
+    if (p == 0)
+        _exit(0);
+    waitpid(p, NULL, 0);
+    return p; /* reaped: no such process now (reuse this soon is unlikely) */
+}
+
+/* A worker that died with its keeper (killed by name, say) leaves empty
+ * folders; the next worker's open removes them, but never a folder that
+ * still holds a process. */
+static void test_stale_folders_removed(void **state)
+{
+    (void)state;
+    worker_cgroup_t cg;
+    char why[512] = "";
+    if (worker_cgroup_open(&cg, why, sizeof why) != 0)
+        skip();
+    char parent[WORKER_CGROUP_PATH_MAX];
+    snprintf(parent, sizeof parent, "%s", cg.dir);
+    *strrchr(parent, '/') = '\0';
+    worker_cgroup_close(&cg);
+    char empty[WORKER_CGROUP_PATH_MAX + 64], busy[WORKER_CGROUP_PATH_MAX + 64];
+    char sub[WORKER_CGROUP_PATH_MAX + 128];
+    snprintf(empty, sizeof empty, "%s/fitfarm-worker-%d", parent, (int)s_dead_pid());
+    snprintf(busy, sizeof busy, "%s/fitfarm-worker-%d", parent, (int)s_dead_pid());
+    assert_int_equal(mkdir(empty, 0755), 0);
+    snprintf(sub, sizeof sub, "%s/slot-0", empty);
+    assert_int_equal(mkdir(sub, 0755), 0);
+    assert_int_equal(mkdir(busy, 0755), 0);
+    snprintf(sub, sizeof sub, "%s/slot-0", busy);
+    assert_int_equal(mkdir(sub, 0755), 0);
+    char procs[WORKER_CGROUP_PATH_MAX + 160];
+    snprintf(procs, sizeof procs, "%s/cgroup.procs", sub);
+    pid_t child = fork();
+    if (child == 0) {
+        FILE *f = fopen(procs, "w");
+        if (!f || fputs("0", f) < 0 || fclose(f) != 0)
+            _exit(2);
+        for (;;)
+            pause();
+    }
+    struct timespec ts = {0, 100000000L};
+    nanosleep(&ts, NULL); /* it has moved itself in */
+    assert_int_equal(worker_cgroup_open(&cg, why, sizeof why), 0);
+    struct stat st;
+    assert_int_equal(stat(empty, &st), -1); /* removed */
+    assert_int_equal(stat(busy, &st), 0);   /* holds a process: kept */
+    worker_cgroup_close(&cg);
+    kill(child, SIGKILL);
+    waitpid(child, NULL, 0);
+    for (int i = 0; i < 100 && rmdir(sub) != 0; i++)
+        nanosleep(&ts, NULL);
+    assert_int_equal(rmdir(busy), 0);
+}
+
 /* Disabled (or never opened) cgroups do nothing and fail nothing. */
 static void test_disabled_is_inert(void **state)
 {
@@ -110,6 +167,7 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_slot_kill_reaches_a_setsid_grandchild),
+        cmocka_unit_test(test_stale_folders_removed),
         cmocka_unit_test(test_disabled_is_inert),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
