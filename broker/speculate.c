@@ -1,6 +1,7 @@
 /* speculate.c: straggler copies (see speculate.h). */
 #include "speculate.h"
 
+#include <assert.h>
 #include <inttypes.h>
 #include <string.h>
 
@@ -64,6 +65,7 @@ static void s_start(broker_t *b, broker_eval_t *e, broker_worker_t *t, double ag
                     double median)
 {
     broker_speculate_t *self = &b->spec;
+    assert(self->n < BROKER_SPECULATE_MAX);
     broker_copy_t *c = &self->copies[self->n++];
     *c = (broker_copy_t){.job_id = ++b->next_job_id, .e = e, .w = t, .sent_ms = b->now_ms};
     proto_job_t job = {.job_id = c->job_id,
@@ -99,12 +101,14 @@ void broker_speculate_turn(broker_t *b)
     int64_t next = b->now_ms + 1000;
     for (broker_worker_t *w = b->registry.seen_head; w && self->n < BROKER_SPECULATE_MAX;
          w = w->seen_next) {
+        /* Its oldest slots' worth of jobs: those run; the ones behind them
+         * wait in its prefetch queue, and their age says nothing of it. */
         unsigned k = 0;
-        for (broker_eval_t *e = w->jobs_head; e && k < BROKER_SPECULATE_JOBS_PER_WORKER;
+        for (broker_eval_t *e = w->jobs_head; e && k < w->slots && self->n < BROKER_SPECULATE_MAX;
              e = e->next, k++) {
             double median =
                 broker_timing_median(&e->plugin->timing, BROKER_SPECULATE_MIN_SAMPLES);
-            if (median < 0 || s_find_eval(self, e) >= 0)
+            if (median < BROKER_SPECULATE_MIN_MEDIAN_MS / 1000.0 || s_find_eval(self, e) >= 0)
                 continue;
             int64_t sent = broker_eval_sent_ms(e);
             double limit_ms = self->factor * median * 1000.0;
@@ -118,12 +122,14 @@ void broker_speculate_turn(broker_t *b)
             }
             double age = (double)(b->now_ms - sent) / 1000.0;
             /* What the first copy still needs: the rest of its worker's
-             * usual time, or as long again once it is overdue. */
+             * usual time, or, once it is past that, as long again as it has
+             * run (its worker's usual time says nothing any more). */
             double own = s_expected(w, e->plugin, median);
-            double left = own > age ? own - age : own;
+            double left = own > age ? own - age : age;
             double expected = 0;
             broker_worker_t *t = s_target(b, e, median, &expected);
-            if (t && expected < left)
+            /* Only for a real gain (at least BROKER_SPECULATE_MIN_AGE_MS). */
+            if (t && expected + BROKER_SPECULATE_MIN_AGE_MS / 1000.0 < left)
                 s_start(b, e, t, age, median);
         }
     }

@@ -1,8 +1,8 @@
 /* speculate.h: straggler copies. A generational optimizer waits for the
  * slowest evaluation of each batch, so one slow machine holding the last
  * jobs of a batch sets the pace of the whole search. When nothing is queued
- * and some worker has credits to spare, a job that has run much longer than
- * its plugin's median (BROKER_SPECULATE_DEFAULT_FACTOR, --speculate-after)
+ * and some worker has credits to spare, a job that has run (it is among the
+ * oldest `slots` its worker holds) much longer than its plugin's median (BROKER_SPECULATE_DEFAULT_FACTOR, --speculate-after)
  * gets a second copy on the worker expected to finish it soonest, if that
  * is sooner than the first is expected to. Whichever finishes first is the
  * result (its worker is the one the provenance names); the other is
@@ -30,9 +30,14 @@
 #define BROKER_SPECULATE_DEFAULT_FACTOR 1.5
 #define BROKER_SPECULATE_MIN_SAMPLES 5    /* a plugin's median counts from this many results */
 #define BROKER_SPECULATE_WORKER_SAMPLES 3 /* and a worker's own median for it */
-#define BROKER_SPECULATE_MIN_AGE_MS 20    /* younger jobs are never copied: below this a
-                                             copy costs more than waiting */
-#define BROKER_SPECULATE_JOBS_PER_WORKER 64 /* jobs looked at per worker per scan */
+#define BROKER_SPECULATE_MIN_AGE_MS 20    /* younger jobs are never copied, nor is one
+                                             whose copy would finish less than this
+                                             sooner than the first: below it a copy
+                                             costs more than waiting */
+/* A plugin whose median is under this is never copied: its jobs' ages are
+ * scheduling noise (a busy machine, a deep prefetch queue), and a copy would
+ * cost as much as it saves. */
+#define BROKER_SPECULATE_MIN_MEDIAN_MS 5
 
 struct broker;
 struct broker_eval;
