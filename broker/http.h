@@ -15,7 +15,8 @@ typedef struct broker_http broker_http_t;
 
 #define BROKER_HTTP_DEFAULT_HOST "127.0.0.1"
 #define BROKER_HTTP_CONNECTIONS 16   /* open at once; more wait in the kernel's queue */
-#define BROKER_HTTP_TIMEOUT_S 10     /* an idle or slow connection is closed */
+#define BROKER_HTTP_TIMEOUT_S 10     /* an idle or slow connection is closed (also one
+                                      * whose close libmicrohttpd missed: http.c) */
 #define BROKER_HTTP_REQUEST_BYTES (32u * 1024u) /* request line and headers */
 
 /* Parses "PORT", "HOST:PORT" (IPv4 literal or localhost) or "[IPv6]:PORT"
