@@ -318,10 +318,14 @@ void worker_child_run(int fd, const worker_registry_t *registry, size_t mem_limi
         atomic_store_explicit(&status->start_us, t0, memory_order_relaxed);
         atomic_store_explicit(&status->running, ++seq, memory_order_release);
         double fitness[PROTO_MAX_OBJECTIVES];
-        proto_outcome_t outcome;
+        proto_outcome_t outcome = {0};
         s_evaluate(registry, job, &outcome, fitness, err);
         s_sweep(job->job_id);
         int64_t wall = common_clock_us() - t0;
+        /* Every field is encoded and checked by the parent's decoder: one
+         * left as stack garbage (a NaN here once) made the parent kill this
+         * child for a bad answer and run the job again. */
+        outcome.wall_seconds = wall < 0 ? 0.0 : (double)wall / 1e6;
         proto_msg_t reply = {.type = PROTO_DONE};
         reply.u.done.n_outcomes = 1;
         reply.u.done.outcomes = &outcome;
