@@ -2,7 +2,8 @@
  * Internal to the worker.
  *
  * The aim is slots x (1 + rtt / median evaluation time) jobs in hand (queued
- * here plus running plus granted but not yet sent), bounded to [slots,
+ * here plus running plus granted but not yet sent), the extra part rounded
+ * up (none where round trips cost under 1 % of the slots' time), bounded to [slots,
  * slots x 64]: deep enough that no slot waits a network round trip for
  * trivial plugins, shallow enough that long jobs do not pile up on one
  * machine while others idle. Until both times are measured the aim is

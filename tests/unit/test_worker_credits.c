@@ -36,6 +36,15 @@ static void test_depth_follows_times(void **state)
     for (int i = 0; i < 31; i++)
         worker_credits_eval(&c, 1000);
     assert_int_equal(worker_credits_target(&c), 8);
+    /* Evaluations of 5 ms: 4 x 1/5 of a job rounds up to one in reserve. */
+    for (int i = 0; i < 31; i++)
+        worker_credits_eval(&c, 5000);
+    assert_int_equal(worker_credits_target(&c), 5);
+    /* Evaluations of 0.5 s: the round trips cost under 1 % (4 ms of 500),
+     * so no reserve. */
+    for (int i = 0; i < 31; i++)
+        worker_credits_eval(&c, 500000);
+    assert_int_equal(worker_credits_target(&c), 4);
     /* Evaluations of 10 s: one per slot. */
     for (int i = 0; i < 31; i++)
         worker_credits_eval(&c, 10000000);
@@ -64,8 +73,8 @@ static void test_robust_estimates(void **state)
     worker_credits_granted(&c, 1, 1000);
     worker_credits_jobs(&c, 1, 9001000); /* the broker had nothing for 9 s */
     assert_int_equal(worker_credits_rtt_us(&c), 500);
-    /* 1 x (1 + 500/2000) rounds to 1. */
-    assert_int_equal(worker_credits_target(&c), 1);
+    /* 1 x (1 + 500/2000): the extra part rounds up, one job in reserve. */
+    assert_int_equal(worker_credits_target(&c), 2);
 }
 
 /* After REHELLO the broker holds no credits of ours: grant the capacity not
