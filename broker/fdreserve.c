@@ -366,11 +366,11 @@ static void s_read_monitor(int role)
     }
 }
 
-void broker_fdreserve_handle(int64_t now_ms)
+void broker_fdreserve_handle(int64_t now_ms, int monitors_ready)
 {
     if (!s.started)
         return;
-    for (int r = 0; r < 2; r++)
+    for (int r = 0; r < 2 && monitors_ready; r++)
         if (s.monitor[r])
             s_read_monitor(r);
     s_act(now_ms);

@@ -53,9 +53,9 @@ void broker_fdreserve_watch(void *ctx, void *router, int role, const char *bound
 /* Poll items for the monitors this module owns (0 to 2), at most max. */
 int broker_fdreserve_pollitems(zmq_pollitem_t *items, int max);
 
-/* Reads this module's monitors (if any), takes back freed reserves, logs.
- * Call once per loop turn. */
-void broker_fdreserve_handle(int64_t now_ms);
+/* Reads this module's monitors (if any) when monitors_ready (the poll found
+ * one readable), takes back freed reserves, logs. Call once per loop turn. */
+void broker_fdreserve_handle(int64_t now_ms, int monitors_ready);
 
 /* Milliseconds until the workers endpoint opens again, or -1: the loop's
  * poll must wake up for it. */
