@@ -1,6 +1,7 @@
 /* test_worker_credits.c: the worker's prefetch depth (worker/credits.h).
  * The expected depths follow the rule in DEVELOPERS.md ("Prefetch"):
- * slots x (1 + rtt / median evaluation time), at least slots, at most
+ * slots x (1 + rtt / median evaluation time), the extra part rounded up
+ * (none where round trips cost under 1 %), at least slots, at most
  * slots x 64, slots x 4 until measured. */
 #include <setjmp.h>
 #include <stdarg.h>
@@ -25,6 +26,14 @@ static void test_usage_example(void **state)
     assert_int_equal(worker_credits_want(&c, 8), 0); /* 8 in hand */
 }
 
+/* The depth once a full window of evaluations took wall_us each. */
+static uint32_t s_target_after(worker_credits_t *c, int64_t wall_us)
+{
+    for (int i = 0; i < WORKER_CREDITS_SAMPLES; i++)
+        worker_credits_eval(c, wall_us);
+    return worker_credits_target(c);
+}
+
 static void test_depth_follows_times(void **state)
 {
     (void)state;
@@ -33,26 +42,16 @@ static void test_depth_follows_times(void **state)
     worker_credits_granted(&c, 16, 0);
     worker_credits_jobs(&c, 16, 1000); /* rtt 1 ms */
     /* Evaluations of 1 ms: 4 x (1 + 1) = 8. */
-    for (int i = 0; i < 31; i++)
-        worker_credits_eval(&c, 1000);
-    assert_int_equal(worker_credits_target(&c), 8);
+    assert_int_equal(s_target_after(&c, 1000), 8);
     /* Evaluations of 5 ms: 4 x 1/5 of a job rounds up to one in reserve. */
-    for (int i = 0; i < 31; i++)
-        worker_credits_eval(&c, 5000);
-    assert_int_equal(worker_credits_target(&c), 5);
+    assert_int_equal(s_target_after(&c, 5000), 5);
     /* Evaluations of 0.5 s: the round trips cost under 1 % (4 ms of 500),
      * so no reserve. */
-    for (int i = 0; i < 31; i++)
-        worker_credits_eval(&c, 500000);
-    assert_int_equal(worker_credits_target(&c), 4);
+    assert_int_equal(s_target_after(&c, 500000), 4);
     /* Evaluations of 10 s: one per slot. */
-    for (int i = 0; i < 31; i++)
-        worker_credits_eval(&c, 10000000);
-    assert_int_equal(worker_credits_target(&c), 4);
+    assert_int_equal(s_target_after(&c, 10000000), 4);
     /* Trivial evaluations (1 us): bounded at 4 x 64. */
-    for (int i = 0; i < 31; i++)
-        worker_credits_eval(&c, 1);
-    assert_int_equal(worker_credits_target(&c), 256);
+    assert_int_equal(s_target_after(&c, 1), 256);
     assert_int_equal(worker_credits_want(&c, 100), 156);
 }
 
