@@ -158,6 +158,24 @@ static int s_retry_recorded(const proto_submit_t *s, const broker_eval_t *e)
            (e->timeout_ms == 0 || s->timeout_ms > e->timeout_ms);
 }
 
+/* 0 when the store certainly records no request tag of run (runs.h,
+ * tags_end): a new tag past the run's last needs no lookup. */
+static int s_tag_may_be_recorded(broker_t *b, broker_run_t *run, uint64_t tag)
+{
+    if (!run->tags_known) {
+        run->tags_end = broker_store_request_tags_end(b->store, run->id);
+        run->tags_known = 1;
+    }
+    return run->tags_end == UINT64_MAX || tag < run->tags_end;
+}
+
+/* Request tag of run was just noted in the store. */
+static void s_tag_recorded(broker_run_t *run, uint64_t tag)
+{
+    if (run->tags_known && tag >= run->tags_end)
+        run->tags_end = tag == UINT64_MAX ? UINT64_MAX : tag + 1;
+}
+
 /* 1 when request (run, tag) already waits on e. */
 static int s_waits(broker_eval_t *e, const broker_run_t *run, uint64_t tag)
 {
@@ -392,7 +410,8 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     for (uint32_t i = 0; run && i < s->n_items; i++) {
         uint8_t old[PROTO_KEY_BYTES];
         int cached = 0, fresh = 0;
-        if (!broker_store_find_request(b->store, run->id, s->items[i].tag, old, &cached, &fresh)) {
+        if (!s_tag_may_be_recorded(b, run, s->items[i].tag) ||
+            !broker_store_find_request(b->store, run->id, s->items[i].tag, old, &cached, &fresh)) {
             if (s->flags & PROTO_SUBMIT_REPLAY)
                 break; /* refused below, naming this request */
             continue;
@@ -454,6 +473,10 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
     char name[COMMON_KEY_FINGERPRINT + 8];
     if (!run) {
         run = broker_runs_new(&b->runs, s->run_id, s->run_seed, s->seed_mode, who);
+        /* Neither RAM nor the store knows it (broker_quota_find_run looked):
+         * it has no recorded requests. */
+        run->tags_known = 1;
+        run->tags_end = 0;
         broker_quota_attach(b, run);
         LOG_INFO("run %s started by client %s (%s): seed %" PRIu64 ", plugin %s %s%s%s", run->id,
                  broker_rid_hex(rid, rid_len, hex), broker_access_name(who, name), run->seed,
@@ -540,6 +563,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                         (e->status == PROTO_STATUS_CRASHED || e->status == PROTO_STATUS_TIMEOUT);
         if (e && e->state == BROKER_EVAL_DONE && !no_cache && !transient) {
             broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, 1);
+            s_tag_recorded(run, it->tag);
             broker_runs_answer(&b->runs, run, it->tag, seeds[i], e, 1);
             continue;
         }
@@ -572,6 +596,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             broker_runs_adopt(&b->runs, run, e);
         }
         broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, 0);
+        s_tag_recorded(run, it->tag);
         assert(broker_eval_check(&b->evals, e));
     }
     broker_runs_take_end(&b->runs, run);

@@ -97,6 +97,11 @@ typedef struct broker {
     uint64_t runs_dropped, runs_reloaded;
     /* prepared statements of cache.c and backlog.c on the store's connection */
     struct sqlite3_stmt *cache_lookup, *backlog_page;
+    /* 1 while every finished evaluation the store holds is also in RAM: the
+     * store held none at start and nothing has been evicted since
+     * (evals.evictions 0). A key missing from RAM is then new, and the
+     * cache does not ask the store (cache.c). */
+    int store_in_ram;
     int backlog_more; /* the backlog could page more at once: do not sleep */
 } broker_t;
 

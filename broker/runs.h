@@ -91,6 +91,13 @@ typedef struct broker_run {
     /* since the run last went idle, for the idle log line */
     uint64_t p_answered, p_evaluated, p_cached, p_failed;
     int idle_deferred; /* went idle inside a SUBMIT being taken */
+    /* Every request tag the store records for this run is below tags_end
+     * (UINT64_MAX: saturated, every tag is looked up), so a SUBMIT's new
+     * tags, always past the last ones, cost no store lookup. tags_known 0:
+     * not read yet (a run loaded from the store reads it on its first
+     * SUBMIT); a run this broker created starts known and empty. */
+    uint64_t tags_end;
+    int tags_known;
     struct broker_run *rr_prev, *rr_next;
     int in_rr;
     uint32_t weight;    /* fair-share weight from its latest SUBMIT (1..PROTO_MAX_WEIGHT) */

@@ -77,6 +77,7 @@ enum {
     S_HISTORY,
     S_REQUEST,
     S_FIND_REQUEST,
+    S_TAG_END,
     S_FIND_FRESH,
     S_RESULT,
     S_ACK,
@@ -103,6 +104,10 @@ static const char *const s_sql[S_COUNT_] = {
     [S_REQUEST] = "INSERT OR IGNORE INTO requests(run_id, tag, batch_tag, replicate, key, cached,"
                   " created, fresh) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
     [S_FIND_REQUEST] = "SELECT key, cached, fresh FROM requests WHERE run_id = ?1 AND tag = ?2",
+    /* Two subqueries, so each is one b-tree descent (SQLite's min/max
+     * optimisation takes one aggregate per query). */
+    [S_TAG_END] = "SELECT (SELECT max(tag) FROM requests WHERE run_id = ?1),"
+                  " (SELECT min(tag) FROM requests WHERE run_id = ?1)",
     [S_FIND_FRESH] = "SELECT status, fitness, error FROM results WHERE run_id = ?1 AND key = ?2"
                      " AND fresh = 1 ORDER BY rowid DESC LIMIT 1",
     [S_RESULT] = "UPDATE evaluations SET status = ?2, status_name = ?3, fitness = ?4,"
@@ -488,6 +493,24 @@ int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t
     sqlite3_reset(st);
     sqlite3_clear_bindings(st);
     return found;
+}
+
+uint64_t broker_store_request_tags_end(broker_store_t *self, const char *run_id)
+{
+    sqlite3_stmt *st = self->stmt[S_TAG_END];
+    sqlite3_bind_text(st, 1, run_id, -1, SQLITE_STATIC);
+    /* Tags are written as int64 bit patterns (s_bind_u64): a tag past
+     * INT64_MAX reads negative (the smallest), and then no bound is given. */
+    uint64_t end = UINT64_MAX;
+    if (sqlite3_step(st) == SQLITE_ROW) {
+        if (sqlite3_column_type(st, 0) == SQLITE_NULL)
+            end = 0;
+        else if (sqlite3_column_int64(st, 1) >= 0)
+            end = (uint64_t)sqlite3_column_int64(st, 0) + 1;
+    }
+    sqlite3_reset(st);
+    sqlite3_clear_bindings(st);
+    return end;
 }
 
 int broker_store_find_fresh_result(broker_store_t *self, const char *run_id,

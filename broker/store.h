@@ -66,6 +66,10 @@ int broker_store_find_run(broker_store_t *self, const char *run_id, uint64_t *se
  * (1: a no-cache request) when it is recorded, 0 when not. */
 int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t tag,
                               uint8_t key[PROTO_KEY_BYTES], int *cached, int *fresh);
+/* One past the highest request tag recorded for run_id: 0 when none,
+ * UINT64_MAX when no bound can be given (a tag past INT64_MAX, or the
+ * store could not be read), which makes every tag worth looking up. */
+uint64_t broker_store_request_tags_end(broker_store_t *self, const char *run_id);
 /* The latest re-evaluation result of key paid for by run_id (results history,
  * fresh = 1). Returns 1 and fills *status, fitness[0..*n_fitness) (at most
  * PROTO_MAX_OBJECTIVES) and err (NUL-terminated, truncated to errlen) when

@@ -294,13 +294,28 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
     return s_end(db, st, rc, "no-cache requests");
 }
 
+/* Sets b->store_in_ram: 1 when the store holds no finished evaluation (a
+ * new store, or one whose work never finished), which RAM then mirrors
+ * until the first eviction. The scan stops at the first finished row. */
+static int s_load_in_ram(broker_t *b, sqlite3 *db)
+{
+    sqlite3_stmt *st = NULL;
+    if (sqlite3_prepare_v2(db, "SELECT 1 FROM evaluations WHERE status IS NOT NULL LIMIT 1", -1,
+                           &st, NULL) != SQLITE_OK)
+        return s_fail(db, "finished evaluations");
+    int rc = sqlite3_step(st);
+    b->store_in_ram = rc == SQLITE_DONE;
+    return s_end(db, st, rc == SQLITE_ROW ? SQLITE_DONE : rc, "finished evaluations");
+}
+
 int broker_store_load(broker_t *b)
 {
     sqlite3 *db = broker_store_db(b->store);
     s_path = broker_store_path(b->store);
     uint32_t n_plugins = 0, n_runs = 0;
     uint64_t n_pending = 0;
-    if (s_load_plugins(b, db, &n_plugins) != 0 || s_load_runs(b, db, &n_runs) != 0 ||
+    if (s_load_in_ram(b, db) != 0 || s_load_plugins(b, db, &n_plugins) != 0 ||
+        s_load_runs(b, db, &n_runs) != 0 ||
         s_load_requests(b, db, &n_pending) != 0 || s_load_fresh(b, db, &n_pending) != 0 ||
         broker_backlog_load(b) != 0)
         return -1;

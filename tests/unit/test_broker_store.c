@@ -13,6 +13,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include <cmocka.h>
 #include <sqlite3.h>
@@ -204,12 +205,134 @@ static void test_nothing_partial_after_many_turns(void **state)
     s_broker_destroy(&b);
 }
 
+/* Completes the worker's first n held jobs as OK with fitness 1. */
+static void s_complete_ok(broker_t *b, broker_worker_t *w, uint32_t n)
+{
+    double fit = 1.0;
+    for (uint32_t i = 0; i < n && w->jobs_head; i++) {
+        proto_outcome_t o = {.job_id = w->jobs_head->job_id,
+                             .status = PROTO_STATUS_OK,
+                             .n_fitness = 1,
+                             .fitness = &fit,
+                             .error = (char *)""};
+        broker_dispatch_outcome(b, w, &o);
+    }
+}
+
+/* The bound on a run's recorded request tags, read from the store for a run
+ * that comes back from it: none, one past the highest, and no bound at all
+ * for a tag past INT64_MAX (stored as a negative int64). */
+static void test_request_tags_end(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker();
+    (void)s_worker(b, 100);
+    assert_int_equal(broker_store_request_tags_end(b->store, "r1"), 0);
+    assert_int_equal(s_submit(b, "r1", 0.0, 20, 5), 0);
+    assert_int_equal(broker_store_request_tags_end(b->store, "r1"), 25);
+    assert_int_equal(broker_store_request_tags_end(b->store, "other"), 0);
+    assert_int_equal(s_submit(b, "r1", 100.0, 1, (UINT64_C(1) << 63) + 5), 0);
+    assert_true(broker_store_request_tags_end(b->store, "r1") == UINT64_MAX);
+    s_broker_destroy(&b);
+}
+
+/* A tag the run already recorded is still checked against the store, both
+ * for a run this broker made (its bound kept in RAM) and for one whose bound
+ * is not known yet (as for a run loaded from the store): the same tag with
+ * another genome is refused, the same tag with the same genome is answered
+ * from the record without a new evaluation. */
+static void test_recorded_tags_are_checked(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker();
+    broker_worker_t *w = s_worker(b, 100);
+    assert_int_equal(s_submit(b, "r1", 0.0, 10, 1), 0);
+    assert_int_equal(broker_dispatch_turn(b), 10);
+    s_complete_ok(b, w, 10);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    broker_run_t *run = broker_runs_get(&b->runs, "r1");
+    assert_non_null(run);
+    assert_true(run->tags_known);
+    assert_int_equal(run->tags_end, 11);
+    for (int pass = 0; pass < 2; pass++) {
+        if (pass == 1)
+            run->tags_known = 0; /* as a run read back from the store starts */
+        assert_int_equal(s_submit(b, "r1", 50.0, 1, 10), PROTO_REFUSE_RUN_MISMATCH);
+        assert_int_equal(s_submit(b, "r1", 9.0, 1, 10), 0);
+        assert_int_equal(broker_dispatch_turn(b), 0);
+    }
+    assert_int_equal(run->tags_end, 11);
+    /* New tags past the bound are new requests, and move it. */
+    assert_int_equal(s_submit(b, "r1", 20.0, 5, 11), 0);
+    assert_int_equal(run->tags_end, 16);
+    assert_int_equal(broker_dispatch_turn(b), 5);
+    s_broker_destroy(&b);
+}
+
+/* A store with no finished evaluation is mirrored in RAM, so a new key is
+ * not looked up in it; once a result is evicted from RAM the store is asked
+ * again, and the evicted result is answered from it, not evaluated again. */
+static void test_cache_asks_the_store_after_an_eviction(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker();
+    broker_worker_t *w = s_worker(b, 100);
+    assert_true(b->store_in_ram);
+    broker_evals_set_caps(&b->evals, 5, 0);
+    assert_int_equal(s_submit(b, "r1", 0.0, 10, 1), 0);
+    assert_int_equal(broker_dispatch_turn(b), 10);
+    s_complete_ok(b, w, 10);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    assert_true(b->evals.evictions > 0);
+    uint64_t hits = b->evals.store_hits;
+    /* Genome 0.0 was the first evaluated, so it left RAM. */
+    assert_int_equal(s_submit(b, "r2", 0.0, 1, 1), 0);
+    assert_int_equal(broker_dispatch_turn(b), 0);
+    assert_int_equal(b->evals.store_hits, hits + 1);
+    s_broker_destroy(&b);
+}
+
+/* A broker started on a store that holds finished evaluations asks it. */
+static void test_store_with_results_is_not_mirrored(void **state)
+{
+    (void)state;
+    char dir[] = "/tmp/fitfarm-store-test-XXXXXX";
+    assert_non_null(mkdtemp(dir));
+    for (int start = 0; start < 2; start++) {
+        broker_t *b = calloc(1, sizeof *b);
+        broker_core_init(b, 5000, 1000, 3, dir);
+        assert_non_null(b->store);
+        broker_worker_timers_start(b);
+        broker_worker_t *w = s_worker(b, 100);
+        if (start == 0) {
+            assert_true(b->store_in_ram);
+            assert_int_equal(s_submit(b, "r1", 0.0, 3, 1), 0);
+            assert_int_equal(broker_dispatch_turn(b), 3);
+            s_complete_ok(b, w, 3);
+            assert_int_equal(broker_store_commit(b->store), 0);
+        } else {
+            assert_false(b->store_in_ram);
+            assert_int_equal(s_submit(b, "r2", 0.0, 3, 1), 0);
+            assert_int_equal(broker_dispatch_turn(b), 0); /* all three from the store */
+            assert_int_equal(b->evals.store_hits, 3);
+        }
+        s_broker_destroy(&b);
+    }
+    char cmd[128];
+    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
+    assert_int_equal(system(cmd), 0);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_usage_example),
         cmocka_unit_test(test_full_store_fails_the_turn_and_recovers),
         cmocka_unit_test(test_nothing_partial_after_many_turns),
+        cmocka_unit_test(test_request_tags_end),
+        cmocka_unit_test(test_recorded_tags_are_checked),
+        cmocka_unit_test(test_cache_asks_the_store_after_an_eviction),
+        cmocka_unit_test(test_store_with_results_is_not_mirrored),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
