@@ -57,7 +57,7 @@ broker_eval_t *broker_cache_lookup(broker_t *b, const uint8_t key[PROTO_KEY_BYTE
     }
     /* Nothing finished leaves RAM but by eviction: until the first one, a
      * store that started without results holds none RAM lacks. */
-    if (!b->store || (b->store_in_ram && b->evals.evictions == 0))
+    if (!b->store || (b->ram_holds_all_results && b->evals.evictions == 0))
         return NULL;
     sqlite3 *db = broker_store_db(b->store);
     if (!b->cache_lookup &&

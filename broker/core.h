@@ -101,7 +101,7 @@ typedef struct broker {
      * store held none at start and nothing has been evicted since
      * (evals.evictions 0). A key missing from RAM is then new, and the
      * cache does not ask the store (cache.c). */
-    int store_in_ram;
+    int ram_holds_all_results;
     int backlog_more; /* the backlog could page more at once: do not sleep */
 } broker_t;
 

@@ -294,7 +294,7 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
     return s_end(db, st, rc, "no-cache requests");
 }
 
-/* Sets b->store_in_ram: 1 when the store holds no finished evaluation (a
+/* Sets b->ram_holds_all_results: 1 when the store holds no finished evaluation (a
  * new store, or one whose work never finished), which RAM then mirrors
  * until the first eviction. The scan stops at the first finished row. */
 static int s_load_in_ram(broker_t *b, sqlite3 *db)
@@ -304,7 +304,7 @@ static int s_load_in_ram(broker_t *b, sqlite3 *db)
                            &st, NULL) != SQLITE_OK)
         return s_fail(db, "finished evaluations");
     int rc = sqlite3_step(st);
-    b->store_in_ram = rc == SQLITE_DONE;
+    b->ram_holds_all_results = rc == SQLITE_DONE;
     return s_end(db, st, rc == SQLITE_ROW ? SQLITE_DONE : rc, "finished evaluations");
 }
 

@@ -77,17 +77,23 @@ static int s_submit(broker_t *b, const char *run_id, double x0, uint32_t n, uint
     return rc;
 }
 
+/* Completes the worker's first n held jobs, each with outcome like (its
+ * job id set). */
+static void s_finish(broker_t *b, broker_worker_t *w, uint32_t n, proto_outcome_t like)
+{
+    for (uint32_t i = 0; i < n && w->jobs_head; i++) {
+        like.job_id = w->jobs_head->job_id;
+        broker_dispatch_outcome(b, w, &like);
+    }
+}
+
 /* Completes the worker's first n held jobs as failed with a long error, so
  * every result needs pages of its own. */
 static void s_complete(broker_t *b, broker_worker_t *w, uint32_t n)
 {
     static char err[3000];
     memset(err, 'e', sizeof err - 1);
-    for (uint32_t i = 0; i < n && w->jobs_head; i++) {
-        proto_outcome_t o = {
-            .job_id = w->jobs_head->job_id, .status = PROTO_STATUS_FAILED, .error = err};
-        broker_dispatch_outcome(b, w, &o);
-    }
+    s_finish(b, w, n, (proto_outcome_t){.status = PROTO_STATUS_FAILED, .error = err});
 }
 
 static long long s_count(broker_t *b, const char *sql)
@@ -209,14 +215,9 @@ static void test_nothing_partial_after_many_turns(void **state)
 static void s_complete_ok(broker_t *b, broker_worker_t *w, uint32_t n)
 {
     double fit = 1.0;
-    for (uint32_t i = 0; i < n && w->jobs_head; i++) {
-        proto_outcome_t o = {.job_id = w->jobs_head->job_id,
-                             .status = PROTO_STATUS_OK,
-                             .n_fitness = 1,
-                             .fitness = &fit,
-                             .error = (char *)""};
-        broker_dispatch_outcome(b, w, &o);
-    }
+    s_finish(b, w, n,
+             (proto_outcome_t){
+                 .status = PROTO_STATUS_OK, .n_fitness = 1, .fitness = &fit, .error = (char *)""});
 }
 
 /* The bound on a run's recorded request tags, read from the store for a run
@@ -277,7 +278,7 @@ static void test_cache_asks_the_store_after_an_eviction(void **state)
     (void)state;
     broker_t *b = s_broker();
     broker_worker_t *w = s_worker(b, 100);
-    assert_true(b->store_in_ram);
+    assert_true(b->ram_holds_all_results);
     broker_evals_set_caps(&b->evals, 5, 0);
     assert_int_equal(s_submit(b, "r1", 0.0, 10, 1), 0);
     assert_int_equal(broker_dispatch_turn(b), 10);
@@ -305,13 +306,13 @@ static void test_store_with_results_is_not_mirrored(void **state)
         broker_worker_timers_start(b);
         broker_worker_t *w = s_worker(b, 100);
         if (start == 0) {
-            assert_true(b->store_in_ram);
+            assert_true(b->ram_holds_all_results);
             assert_int_equal(s_submit(b, "r1", 0.0, 3, 1), 0);
             assert_int_equal(broker_dispatch_turn(b), 3);
             s_complete_ok(b, w, 3);
             assert_int_equal(broker_store_commit(b->store), 0);
         } else {
-            assert_false(b->store_in_ram);
+            assert_false(b->ram_holds_all_results);
             assert_int_equal(s_submit(b, "r2", 0.0, 3, 1), 0);
             assert_int_equal(broker_dispatch_turn(b), 0); /* all three from the store */
             assert_int_equal(b->evals.store_hits, 3);
