@@ -16,6 +16,7 @@
 #include <time.h>
 #include <unistd.h>
 
+#include "common/fdlimit.h"
 #include "common/log.h"
 
 #define S_EMPTY_WAIT_MS 5000 /* how long a kill waits for a cgroup to empty */
@@ -157,7 +158,7 @@ static void s_empty_all(const char *dir, int has_kill, unsigned *killed)
 /* The keeper: waits for end of file on rd (the worker is gone), then
  * empties the folders. Ignores the signals a terminal or a batch system
  * sends a whole job, so that it outlives a worker killed by them. */
-static void s_keeper(int rd, const char *dir, int has_kill, pid_t worker)
+static void s_keeper(int rd, const char *dir, int has_kill, pid_t worker, long max_fd)
 {
     (void)prctl(PR_SET_NAME, "fitfarm-keeper", 0, 0, 0);
     (void)setsid(); /* out of the worker's process group: a kill of the group spares it */
@@ -166,10 +167,7 @@ static void s_keeper(int rd, const char *dir, int has_kill, pid_t worker)
     signal(SIGHUP, SIG_IGN);
     signal(SIGPIPE, SIG_IGN);
     /* Nothing of the worker's but the pipe and the log stays open here. */
-    long max = sysconf(_SC_OPEN_MAX);
-    for (long fd = 3; fd < (max > 0 && max < 65536 ? max : 65536); fd++)
-        if (fd != rd)
-            close((int)fd);
+    common_fdlimit_close_from(3, rd, max_fd);
     char b;
     ssize_t r;
     while ((r = read(rd, &b, 1)) != 0)
@@ -274,12 +272,13 @@ int worker_cgroup_open(worker_cgroup_t *cg, char *why, size_t whylen)
         return -1;
     }
     pid_t worker = getpid();
+    long max_fd = common_fdlimit_close_max(); /* not async-signal-safe: ask before fork */
     pid_t mid = fork();
     if (mid == 0) {
         close(fds[1]);
         pid_t k = fork();
         if (k == 0)
-            s_keeper(fds[0], cg->dir, cg->has_kill, worker);
+            s_keeper(fds[0], cg->dir, cg->has_kill, worker, max_fd);
         _exit(k < 0 ? 1 : 0); /* the keeper is reparented away from the worker */
     }
     close(fds[0]);

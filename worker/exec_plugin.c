@@ -33,6 +33,7 @@
 
 #include "common/alloc.h"
 #include "common/clock.h"
+#include "common/fdlimit.h"
 #include "common/log.h"
 #include "exec_protocol.h"
 #include "limits.h"
@@ -274,9 +275,7 @@ static int s_coproc_spawn(const s_exec_t *x, s_coproc_t *cp, char *err, size_t e
         goto cleanup;
     }
     pid_t parent = getpid();
-    long max_fd = sysconf(_SC_OPEN_MAX); /* sysconf is not async-signal-safe: ask before fork */
-    if (max_fd < 0 || max_fd > 65536)
-        max_fd = 65536;
+    long max_fd = common_fdlimit_close_max(); /* not async-signal-safe: ask before fork */
     pid_t pid = fork();
     if (pid < 0) {
         s_errf(err, errlen, "cannot fork: %s", strerror(errno));
@@ -306,13 +305,7 @@ static int s_coproc_spawn(const s_exec_t *x, s_coproc_t *cp, char *err, size_t e
         }
         /* No inherited descriptors (the worker's broker connection, other
          * co-processes' pipes) except the close-on-exec status pipe. */
-        int keep = status[1];
-        if ((keep > 3 && close_range(3, (unsigned)keep - 1u, 0) != 0) ||
-            close_range((unsigned)keep + 1u, ~0u, 0) != 0) {
-            for (long fd = 3; fd < max_fd; fd++)
-                if (fd != keep)
-                    close((int)fd);
-        }
+        common_fdlimit_close_from(3, status[1], max_fd);
         execve(x->path, x->argv, environ);
         int e = errno;
         ssize_t w = write(status[1], &e, sizeof e);

@@ -1,9 +1,11 @@
-/* fdlimit.c: raising and reading RLIMIT_NOFILE (fdlimit.h). */
+/* fdlimit.c: raising and reading RLIMIT_NOFILE, and closing inherited
+ * descriptors (fdlimit.h). */
 #include "fdlimit.h"
 
 #include <errno.h>
 #include <string.h>
 #include <sys/resource.h>
+#include <unistd.h>
 
 #include "log.h"
 
@@ -40,4 +42,24 @@ uint64_t common_fdlimit_raise(const char *who)
                  who, (unsigned long long)before);
     }
     return (uint64_t)rl.rlim_cur;
+}
+
+long common_fdlimit_close_max(void)
+{
+    long max_fd = sysconf(_SC_OPEN_MAX);
+    return max_fd < 0 || max_fd > 65536 ? 65536 : max_fd;
+}
+
+void common_fdlimit_close_from(int from, int keep, long max_fd)
+{
+    if (keep < from) {
+        if (close_range((unsigned)from, ~0u, 0) == 0)
+            return;
+    } else if ((keep == from || close_range((unsigned)from, (unsigned)keep - 1u, 0) == 0) &&
+               close_range((unsigned)keep + 1u, ~0u, 0) == 0) {
+        return;
+    }
+    for (long fd = from; fd < max_fd; fd++) /* a kernel before 5.9 */
+        if (fd != keep)
+            close((int)fd);
 }

@@ -20,6 +20,7 @@
 
 #include "proto/common/alloc.h"
 #include "proto/common/clock.h"
+#include "proto/common/fdlimit.h"
 #include "proto/common/lifeline.h"
 #include "proto/common/log.h"
 
@@ -193,6 +194,47 @@ static void test_lifeline(void **state)
     assert_int_equal(common_lifeline_open(text, err, sizeof err), -1);
 }
 
+/* In a child: opens descriptors at 20, 21, 22 and 1000, calls
+ * common_fdlimit_close_from(3, keep), and exits with a bit per descriptor
+ * of {0, 1, 2, 3, 20, 21, 22, 1000} still open (3 is /dev/null, opened
+ * first). */
+static int s_open_after_close_from(int keep)
+{
+    pid_t pid = fork();
+    if (pid == 0) {
+        int fd = open("/dev/null", O_RDONLY);
+        if (fd != 3 && (fd < 0 || dup2(fd, 3) != 3))
+            _exit(255);
+        const int at[] = {20, 21, 22, 1000};
+        for (int i = 0; i < 4; i++)
+            if (fd < 0 || fcntl(fd, F_DUPFD, at[i]) != at[i])
+                _exit(255);
+        common_fdlimit_close_from(3, keep, common_fdlimit_close_max());
+        const int check[] = {0, 1, 2, 3, 20, 21, 22, 1000};
+        int bits = 0;
+        for (int i = 0; i < 8; i++)
+            if (fcntl(check[i], F_GETFD) != -1)
+                bits |= 1 << i;
+        _exit(bits);
+    }
+    int st = 0;
+    assert_true(pid > 0 && waitpid(pid, &st, 0) == pid && WIFEXITED(st));
+    return WEXITSTATUS(st);
+}
+
+/* Closing inherited descriptors before a child runs other code: stdio and
+ * the one kept stay, every other from 3 up goes, including one far above the
+ * others (close_range(2) takes a range, not a list of open ones). */
+static void test_close_from(void **state)
+{
+    (void)state;
+    const int stdio = 1 | 2 | 4;
+    assert_int_equal(s_open_after_close_from(-1), stdio);
+    assert_int_equal(s_open_after_close_from(21), stdio | 32);
+    assert_int_equal(s_open_after_close_from(1000), stdio | 128);
+    assert_int_equal(s_open_after_close_from(3), stdio | 8); /* keep == from */
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -202,6 +244,7 @@ int main(void)
         cmocka_unit_test(test_alloc_works),
         cmocka_unit_test(test_clocks),
         cmocka_unit_test(test_lifeline),
+        cmocka_unit_test(test_close_from),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
