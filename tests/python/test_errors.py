@@ -51,3 +51,15 @@ def test_replicates_aggregate(pool):
     draws = sorted(r.fitness[1] for r in res)
     assert len({r.seed for r in res}) == 5
     assert f([1.0, 2.0]) == (3.0, draws[2])
+
+
+def test_objective_out_of_range_and_the_whole_vector(pool):
+    # sphere has one objective, the sum of squares (De Jong 1975).
+    with pytest.raises(IndexError) as e:
+        pool.function("sphere", objective=1)([3.0])
+    assert "objective 1 out of range" in str(e.value)
+    whole = pool.function("sphere")
+    assert whole([3.0]) == (9.0,)
+    np = pytest.importorskip("numpy")
+    got = pool.map(whole, np.array([[1.0, 2.0], [0.5, 0.0]]))
+    assert got == [(5.0,), (0.25,)] and all(type(v[0]) is float for v in got)

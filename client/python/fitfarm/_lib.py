@@ -151,6 +151,9 @@ run_destroy = _decl("fitfarm_run_destroy", None, PP)
 run_stats = _decl("fitfarm_run_stats", c_int, c_void_p, P(RunStats))
 batch_new = _decl("fitfarm_batch_new", c_int, c_char_p, c_char_p, c_uint, PP)
 batch_add_f64 = _decl("fitfarm_batch_add_f64", ctypes.c_long, c_void_p, P(c_double), c_size_t)
+# The same function, taking the genome's address as an int: a numpy row is
+# passed without building a ctypes pointer object per row.
+batch_add_f64_at = _decl("fitfarm_batch_add_f64", ctypes.c_long, c_void_p, c_void_p, c_size_t)
 batch_add_bytes = _decl("fitfarm_batch_add_bytes", ctypes.c_long, c_void_p, c_char_p, c_size_t)
 batch_size = _decl("fitfarm_batch_size", c_size_t, c_void_p)
 batch_replicates = _decl("fitfarm_batch_replicates", c_uint, c_void_p)

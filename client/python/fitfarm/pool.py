@@ -272,8 +272,12 @@ class Run:
         st = self._pending.get(r.batch)
         if st is None:
             return
-        k = (r.index, r.replicate)
-        if k in st.results:
+        # Each field of r is read once: a ctypes field read costs about as
+        # much as a Python call, and this runs once per result.
+        index, replicate = r.index, r.replicate
+        k = (index, replicate)
+        results = st.results
+        if k in results:
             st.duplicates += 1
             return
         nf = r.n_fitness
@@ -281,13 +285,13 @@ class Run:
             fit = _np.ctypeslib.as_array(r.fitness, shape=(nf,)).copy() if nf else _np.empty(0)
         else:
             fit = tuple(r.fitness[:nf]) if nf else ()
-        err = r.error
-        prov = Provenance((r.worker or b"").decode("utf-8", "replace"),
-                          (r.host or b"").decode("utf-8", "replace"),
+        err, worker, host = r.error, r.worker, r.host
+        prov = Provenance(worker.decode("utf-8", "replace") if worker else "",
+                          host.decode("utf-8", "replace") if host else "",
                           r.cpu_seconds, r.peak_rss_kb, r.finished_at)
-        res = Result(r.index, r.replicate, r.status, fit, bool(r.cached), r.seed, bytes(r.key),
+        res = Result(index, replicate, r.status, fit, bool(r.cached), r.seed, bytes(r.key),
                      err.decode("utf-8", "replace") if err else "", prov)
-        st.results[k] = res
+        results[k] = res
         if st.on_result is not None:  # a stream: wake its reader
             st.on_result(res)
             st.progress.set()
@@ -409,9 +413,9 @@ def _add_genomes(bh, genomes):
         rows, dim = arr.shape
         base = arr.ctypes.data
         stride = dim * 8
-        dp = ctypes.POINTER(ctypes.c_double)
+        add = L.batch_add_f64_at
         for i in range(rows):
-            rc = L.batch_add_f64(bh, ctypes.cast(base + i * stride, dp), dim)
+            rc = add(bh, base + i * stride, dim)
             if rc < 0:
                 raise E.error_for(int(rc), f"genome {i} was refused: {L.text(L.strerror(int(rc)))}")
         return rows
@@ -493,7 +497,24 @@ class Function:
         self.pool._wait(st)
         if st.error is not None:
             raise st.error
+        if st.replicates == 1:
+            return [self._value_one(st.results[(i, 0)], i) for i in range(st.n)]
         return [self._value(st, i) for i in range(st.n)]
+
+    def _value_one(self, r, i):
+        """_value for one replicate, the common case, without the combining."""
+        if r.status_code != 0:
+            if self.on_failure == "raise":
+                raise E.EvaluationError(r.status, r.error, i, r.replicate)
+            return float(self.on_failure)
+        fit = r.fitness
+        obj = self.objective
+        if obj is None:
+            return tuple(map(float, fit))
+        if obj >= len(fit):
+            raise IndexError(f"objective {obj} out of range: {self.plugin} returned "
+                             f"{len(fit)} objective(s)")
+        return float(fit[obj])
 
     def _value(self, st, i):
         reps = [st.results[(i, k)] for k in range(st.replicates)]
