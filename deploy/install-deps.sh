@@ -6,7 +6,7 @@ set -eu
 
 PACKAGES="build-essential cmake pkg-config libzmq3-dev libmsgpack-dev libsodium-dev
 libcmocka-dev libsqlite3-dev sqlite3 libjansson-dev libcairo2-dev libfontconfig-dev python3 python3-numpy python3-scipy python3-pytest
-clang libclang-rt-14-dev
+clang libclang-rt-14-dev valgrind
 libmicrohttpd-dev python3-prometheus-client chromium
 slurmctld slurmd slurm-client munge
 systemd groff-base dpkg-dev"

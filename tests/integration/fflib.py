@@ -67,7 +67,9 @@ class Pool:
     def _log(self, name):
         return open(os.path.join(self.tmp, f"{name}.log"), "ab")
 
-    def start_broker(self, clients="tcp://127.0.0.1:*", workers="tcp://127.0.0.1:*", extra=()):
+    def start_broker(self, clients="tcp://127.0.0.1:*", workers="tcp://127.0.0.1:*", extra=(),
+                     prefix=(), start_timeout=20):
+        """prefix: a command the broker runs under (valgrind and its options)."""
         epfile = os.path.join(self.tmp, "endpoints")
         if os.path.exists(epfile):
             os.unlink(epfile)
@@ -78,7 +80,7 @@ class Pool:
         # Each pool keeps its durable store in its own folder (the daemon's
         # default, ./fitfarm-store, would be shared by tests running at once).
         store = [] if "--store" in self.broker_args + list(extra) else ["--store", self.store]
-        args = [exe(self.broker_exe), "--clients", clients, "--workers", workers,
+        args = list(prefix) + [exe(self.broker_exe), "--clients", clients, "--workers", workers,
                 "--endpoints-file", epfile] + store + self.broker_args + list(extra)
         if "--key" not in args and "--insecure" not in args:
             args += (["--key", self.key("broker.secret"), "--keys", self.keys] if self.secure
@@ -87,7 +89,7 @@ class Pool:
         p = subprocess.Popen(args, stdout=subprocess.DEVNULL, stderr=self._log("broker"), env=env)
         self.procs.append(p)
         self.broker = p
-        deadline = time.time() + 20
+        deadline = time.time() + start_timeout
         while time.time() < deadline:
             if p.poll() is not None:
                 raise RuntimeError(f"broker exited with {p.returncode}; see {self.tmp}/broker.log")
@@ -99,9 +101,10 @@ class Pool:
             time.sleep(0.02)
         raise RuntimeError("broker did not write its endpoints file")
 
-    def start_worker(self, slots=1, extra=(), name=None, env=None):
+    def start_worker(self, slots=1, extra=(), name=None, env=None, prefix=()):
+        """prefix: a command the worker runs under (valgrind and its options)."""
         name = name or f"w{len(self.workers)}"
-        args = [exe("fitfarm-worker"), "--broker", self.workers_ep, "--slots", str(slots),
+        args = list(prefix) + [exe("fitfarm-worker"), "--broker", self.workers_ep, "--slots", str(slots),
                 "--name", name] + list(extra)
         if "--key" not in args and "--insecure" not in args:
             args += (["--key", self.key("worker.secret"), "--broker-key", self.key("broker.public")]
