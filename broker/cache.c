@@ -11,7 +11,7 @@
 #include "common/log.h"
 
 static const char s_lookup_sql[] =
-    "SELECT plugin, params, genome, seed, timeout_ms, max_attempts, status, fitness, error,"
+    "SELECT plugin, params, NULL, seed, timeout_ms, max_attempts, status, fitness, error,"
     " attempts, " BROKER_CACHE_PROVENANCE_COLUMNS ", version"
     " FROM evaluations WHERE key = ?1 AND status IS NOT NULL";
 
@@ -78,10 +78,10 @@ broker_eval_t *broker_cache_lookup(broker_t *b, const uint8_t key[PROTO_KEY_BYTE
             name && version ? broker_catalog_get(&b->catalog, name, version) : NULL;
         if (plugin && params) {
             double fit[PROTO_MAX_OBJECTIVES];
+            /* No genome: a finished evaluation keeps none (evals.h), so
+             * column 2 is a NULL placeholder. */
             e = broker_evals_new(&b->evals, key, plugin, broker_intern(&b->intern, params),
-                                 (uint64_t)sqlite3_column_int64(st, 3),
-                                 sqlite3_column_blob(st, 2),
-                                 (uint32_t)sqlite3_column_bytes(st, 2));
+                                 (uint64_t)sqlite3_column_int64(st, 3), NULL, 0);
             e->timeout_ms = (uint32_t)sqlite3_column_int64(st, 4);
             e->max_attempts = (uint16_t)sqlite3_column_int(st, 5);
             e->attempts = (uint16_t)sqlite3_column_int(st, 9);

@@ -533,7 +533,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                 broker_store_note_request_fresh(b->store, run, it->tag);
                 broker_run_count_request(run);
                 if (!e->again) {
-                    broker_eval_t *f = broker_evals_new_fresh(&b->evals, e);
+                    broker_eval_t *f = broker_evals_new_fresh(&b->evals, e, it->genome, it->genome_len);
                     broker_quota_charge(b, run, f);
                     f->timeout_ms = s->timeout_ms;
                     f->max_attempts =
@@ -580,7 +580,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             /* No-cache: evaluate again, keeping the cached result (evals.h,
              * "Re-evaluations"); no-cache requests for the key share one. */
             if (!e->again) {
-                broker_eval_t *f = broker_evals_new_fresh(&b->evals, e);
+                broker_eval_t *f = broker_evals_new_fresh(&b->evals, e, it->genome, it->genome_len);
                 broker_quota_charge(b, run, f);
                 f->timeout_ms = s->timeout_ms;
                 f->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);

@@ -1,5 +1,5 @@
 /* evals.c: the evaluation table (see evals.h for the job lifecycle and the
- * memory bound). Owns the evaluations (one allocation each, genome inline),
+ * memory bound). Owns the evaluations, their genomes until DONE (evals.h),
  * their waiter arrays and results, the LRU list of DONE ones, and the orphan
  * records. Does not own plugins, params or runs; does not read the store
  * (cache.c does, on a miss). */
@@ -31,8 +31,27 @@ void broker_evals_init(broker_evals_t *self)
     broker_evals_set_caps(self, 0, 0);
 }
 
+/* Where an empty genome points: never NULL while QUEUED or RUNNING (the
+ * encoder copies from it), never freed. */
+static uint8_t s_empty_genome[1];
+
+static void s_set_genome(broker_eval_t *e, const uint8_t *genome, uint32_t genome_len)
+{
+    e->genome_len = genome_len;
+    e->genome = genome_len ? common_xmemdup(genome, genome_len) : s_empty_genome;
+}
+
+static void s_drop_genome(broker_eval_t *e)
+{
+    if (e->genome != s_empty_genome)
+        free(e->genome);
+    e->genome = NULL;
+    e->genome_len = 0;
+}
+
 static void s_free(broker_eval_t *e)
 {
+    s_drop_genome(e);
     free(e->more);
     free(e->fitness);
     free(e->error);
@@ -67,33 +86,30 @@ broker_eval_t *broker_evals_new(broker_evals_t *self, const uint8_t key[PROTO_KE
                                 broker_plugin_t *plugin, const char *params, uint64_t seed,
                                 const uint8_t *genome, uint32_t genome_len)
 {
-    broker_eval_t *e = common_xcalloc(1, sizeof *e + genome_len);
+    broker_eval_t *e = common_xcalloc(1, sizeof *e);
     memcpy(e->key, key, PROTO_KEY_BYTES);
     e->state = BROKER_EVAL_QUEUED;
     e->plugin = plugin;
     e->params = params;
     e->seed = seed;
-    e->genome_len = genome_len;
-    if (genome_len)
-        memcpy(e->genome, genome, genome_len);
+    s_set_genome(e, genome, genome_len);
     void *prev = broker_table_put(self->by_key, e->key, PROTO_KEY_BYTES, e);
     assert(prev == NULL);
     (void)prev;
     return e;
 }
 
-static broker_eval_t *s_fresh_copy(broker_evals_t *self, const broker_eval_t *like)
+static broker_eval_t *s_fresh_copy(broker_evals_t *self, const broker_eval_t *like,
+                                   const uint8_t *genome, uint32_t genome_len)
 {
-    broker_eval_t *e = common_xcalloc(1, sizeof *e + like->genome_len);
+    broker_eval_t *e = common_xcalloc(1, sizeof *e);
     memcpy(e->key, like->key, PROTO_KEY_BYTES);
     e->state = BROKER_EVAL_QUEUED;
     e->fresh = 1;
     e->plugin = like->plugin;
     e->params = like->params;
     e->seed = like->seed;
-    e->genome_len = like->genome_len;
-    if (like->genome_len)
-        memcpy(e->genome, like->genome, like->genome_len);
+    s_set_genome(e, genome, genome_len);
     e->fresh_next = self->fresh_head;
     if (self->fresh_head)
         self->fresh_head->fresh_prev = e;
@@ -101,10 +117,11 @@ static broker_eval_t *s_fresh_copy(broker_evals_t *self, const broker_eval_t *li
     return e;
 }
 
-broker_eval_t *broker_evals_new_fresh(broker_evals_t *self, broker_eval_t *origin)
+broker_eval_t *broker_evals_new_fresh(broker_evals_t *self, broker_eval_t *origin,
+                                      const uint8_t *genome, uint32_t genome_len)
 {
     assert(origin->state == BROKER_EVAL_DONE && origin->again == NULL && !origin->fresh);
-    broker_eval_t *e = s_fresh_copy(self, origin);
+    broker_eval_t *e = s_fresh_copy(self, origin, genome, genome_len);
     e->origin = origin;
     origin->again = e;
     broker_evals_settle(self, origin); /* pinned while e is in flight */
@@ -319,6 +336,8 @@ void broker_eval_set_result(broker_evals_t *self, broker_eval_t *e, uint32_t sta
                             const broker_provenance_t *prov)
 {
     assert(e->state != BROKER_EVAL_DONE && e->job_id == 0 && e->worker == NULL);
+    assert(e->charged == NULL); /* quota.c charged the genome's length; released first */
+    s_drop_genome(e);
     free(e->fitness);
     free(e->error);
     e->fitness = NULL;
@@ -348,6 +367,9 @@ int broker_eval_check(const broker_evals_t *self, const broker_eval_t *e)
     } else if (broker_evals_get(self, e->key) != e) {
         return 0;
     }
+    if ((e->state == BROKER_EVAL_DONE) != (e->genome == NULL) ||
+        (e->genome == NULL && e->genome_len != 0))
+        return 0; /* a genome exactly while it may be sent */
     switch (e->state) {
     case BROKER_EVAL_QUEUED:
         return e->job_id == 0 && e->worker == NULL && e->n_waiters >= 1 && e->home != NULL;

@@ -110,8 +110,13 @@ typedef struct broker_eval {
     double *fitness;
     char *error; /* NULL = "" */
     broker_provenance_t prov;
+    /* Copied in and owned while QUEUED or RUNNING (dispatch and straggler
+     * copies send it); freed, NULL and 0, once DONE: a finished evaluation
+     * answers by key, the store keeps the genome, and a re-evaluation takes
+     * it from the request that asks for one. A cached result then costs RAM
+     * for its result only, whatever the genome's size. */
     uint32_t genome_len;
-    uint8_t genome[]; /* copied in; the evaluation owns it */
+    uint8_t *genome;
 } broker_eval_t;
 
 /* While an evaluation is RUNNING its provenance is not set yet (the result
@@ -155,9 +160,11 @@ broker_eval_t *broker_evals_new(broker_evals_t *self, const uint8_t key[PROTO_KE
                                 const uint8_t *genome, uint32_t genome_len);
 
 /* New QUEUED fresh evaluation of DONE origin's content (key, plugin, params,
- * seed, genome), not indexed by key, linked as origin->again; not yet in any
- * queue. Borrowed, valid until fini. */
-broker_eval_t *broker_evals_new_fresh(broker_evals_t *self, broker_eval_t *origin);
+ * seed) and genome, which the caller gives (the request's own, or the
+ * store's: origin keeps none), not indexed by key, linked as origin->again;
+ * not yet in any queue. Borrowed, valid until fini. */
+broker_eval_t *broker_evals_new_fresh(broker_evals_t *self, broker_eval_t *origin,
+                                      const uint8_t *genome, uint32_t genome_len);
 /* Sets the cache caps (0 = the defaults in broker.h) and evicts down to them. */
 void broker_evals_set_caps(broker_evals_t *self, uint64_t entries, uint64_t bytes);
 /* After e changed state, pins or again: a DONE unpinned evaluation joins the

@@ -50,7 +50,7 @@ void broker_quota_detach(broker_t *b, broker_run_t *run)
     }
 }
 
-/* What a queued evaluation holds: its one allocation, genome inline (evals.c). */
+/* What a queued evaluation holds: its record and its genome (evals.c). */
 static uint64_t s_cost(uint32_t genome_len)
 {
     return (uint64_t)sizeof(broker_eval_t) + genome_len;

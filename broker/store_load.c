@@ -253,7 +253,7 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
     sqlite3_stmt *st = NULL;
     if (sqlite3_prepare_v2(db,
                            "SELECT r.run_id, r.tag, r.key, x.status, x.fitness, x.error,"
-                           " e.timeout_ms, e.max_attempts, r.replicate FROM requests r"
+                           " e.timeout_ms, e.max_attempts, r.replicate, e.genome FROM requests r"
                            " JOIN evaluations e ON e.key = r.key"
                            " LEFT JOIN results x ON x.rowid = (SELECT max(rowid) FROM results y"
                            "  WHERE y.run_id = r.run_id AND y.key = r.key AND y.fresh = 1)"
@@ -275,7 +275,9 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
         uint64_t tag = s_u64(st, 1);
         broker_eval_t *f = origin->again;
         if (!f) {
-            f = broker_evals_new_fresh(&b->evals, origin);
+            /* The cached origin keeps no genome (evals.h): the store's row. */
+            f = broker_evals_new_fresh(&b->evals, origin, sqlite3_column_blob(st, 9),
+                                       (uint32_t)sqlite3_column_bytes(st, 9));
             f->timeout_ms = (uint32_t)sqlite3_column_int64(st, 6);
             f->max_attempts = (uint16_t)sqlite3_column_int(st, 7);
         }

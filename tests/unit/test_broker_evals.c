@@ -151,10 +151,25 @@ static void test_single_flight_across_runs_and_no_cache(void **state)
     assert_int_equal(r1->n_outbox, 1);
     assert_int_equal(r2->n_outbox, 2);
     assert_int_equal(r2->outbox[1].cached, 0); /* attached while running: not a cache hit */
-    /* no-cache evaluates the same key again */
+    /* The finished evaluation keeps no genome: it answers by key. */
+    size_t cur = 0;
+    broker_eval_t *done = broker_table_next(b->evals.by_key, &cur);
+    assert_non_null(done);
+    assert_int_equal(done->state, BROKER_EVAL_DONE);
+    assert_null(done->genome);
+    assert_int_equal(done->genome_len, 0);
+    assert_true(broker_eval_check(&b->evals, done));
+    /* no-cache evaluates the same key again, with the request's genome */
     assert_int_equal(s_submit(b, "c1", "r1", 1, "det", g, 1, 9, PROTO_SUBMIT_NO_CACHE), 0);
     assert_int_equal(r1->n_queued, 1);
     assert_int_equal(broker_dispatch_turn(b), 1);
+    broker_eval_t *again = w->jobs_head;
+    assert_true(again->fresh && again->origin == done);
+    assert_int_equal(again->genome_len, sizeof(double));
+    double sent;
+    memcpy(&sent, again->genome, sizeof sent);
+    assert_true(sent == 2.0);
+    assert_true(broker_eval_check(&b->evals, again));
     s_broker_destroy(&b);
 }
 

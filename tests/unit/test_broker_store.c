@@ -324,6 +324,52 @@ static void test_store_with_results_is_not_mirrored(void **state)
     assert_int_equal(system(cmd), 0);
 }
 
+/* A no-cache request still waiting at a stop is evaluated again after the
+ * restart with the genome the store kept: the cached result it re-evaluates
+ * keeps none in RAM (evals.h), so the store's row is the only copy. */
+static void test_pending_no_cache_request_survives_a_restart(void **state)
+{
+    (void)state;
+    char dir[] = "/tmp/fitfarm-store-test-XXXXXX";
+    assert_non_null(mkdtemp(dir));
+    for (int start = 0; start < 2; start++) {
+        broker_t *b = calloc(1, sizeof *b);
+        broker_core_init(b, 5000, 1000, 3, dir);
+        assert_non_null(b->store);
+        broker_worker_timers_start(b);
+        broker_worker_t *w = s_worker(b, 100);
+        if (start == 0) {
+            assert_int_equal(s_submit(b, "r1", 6.5, 1, 1), 0);
+            assert_int_equal(broker_dispatch_turn(b), 1);
+            s_complete_ok(b, w, 1);
+            size_t cur = 0;
+            broker_eval_t *done = broker_table_next(b->evals.by_key, &cur);
+            assert_true(done && done->state == BROKER_EVAL_DONE && done->genome == NULL);
+            /* The same genome again, no-cache: queued, not yet sent. */
+            proto_item_t it = {.tag = 2, .genome_len = sizeof(double)};
+            double g = 6.5;
+            it.genome = (uint8_t *)&g;
+            proto_submit_t sub = {.run_id = (char *)"r1", .run_seed = 7, .batch_tag = 2,
+                                  .plugin = (char *)"spin", .params = (char *)"{}",
+                                  .flags = PROTO_SUBMIT_NO_CACHE, .n_items = 1, .items = &it};
+            assert_int_equal(broker_client_submit(b, (const uint8_t *)"c1", 2, "local", &sub), 0);
+            assert_int_equal(broker_store_commit(b->store), 0);
+        } else {
+            assert_int_equal(broker_dispatch_turn(b), 1); /* the re-evaluation, requeued */
+            broker_eval_t *again = w->jobs_head;
+            assert_true(again && again->fresh);
+            double sent = 0;
+            assert_int_equal(again->genome_len, sizeof sent);
+            memcpy(&sent, again->genome, sizeof sent);
+            assert_true(sent == 6.5);
+        }
+        s_broker_destroy(&b);
+    }
+    char cmd[128];
+    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
+    assert_int_equal(system(cmd), 0);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -334,6 +380,7 @@ int main(void)
         cmocka_unit_test(test_recorded_tags_are_checked),
         cmocka_unit_test(test_cache_asks_the_store_after_an_eviction),
         cmocka_unit_test(test_store_with_results_is_not_mirrored),
+        cmocka_unit_test(test_pending_no_cache_request_survives_a_restart),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
