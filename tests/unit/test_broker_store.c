@@ -23,12 +23,26 @@
 #include "broker/dispatch.h"
 #include "broker/worker_io.h"
 
-static broker_t *s_broker(void)
+/* A broker on the store in dir (NULL: a scratch store), its timers started. */
+static broker_t *s_broker_on(const char *dir)
 {
     broker_t *b = calloc(1, sizeof *b);
-    broker_core_init(b, 5000, 1000, 3, NULL);
+    broker_core_init(b, 5000, 1000, 3, dir);
+    assert_non_null(b->store);
     broker_worker_timers_start(b);
     return b;
+}
+
+static broker_t *s_broker(void)
+{
+    return s_broker_on(NULL);
+}
+
+static void s_remove_dir(const char *dir)
+{
+    char cmd[128];
+    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
+    assert_int_equal(system(cmd), 0);
 }
 
 static void s_broker_destroy(broker_t **b)
@@ -300,10 +314,7 @@ static void test_store_with_results_is_not_mirrored(void **state)
     char dir[] = "/tmp/fitfarm-store-test-XXXXXX";
     assert_non_null(mkdtemp(dir));
     for (int start = 0; start < 2; start++) {
-        broker_t *b = calloc(1, sizeof *b);
-        broker_core_init(b, 5000, 1000, 3, dir);
-        assert_non_null(b->store);
-        broker_worker_timers_start(b);
+        broker_t *b = s_broker_on(dir);
         broker_worker_t *w = s_worker(b, 100);
         if (start == 0) {
             assert_true(b->ram_holds_all_results);
@@ -319,9 +330,7 @@ static void test_store_with_results_is_not_mirrored(void **state)
         }
         s_broker_destroy(&b);
     }
-    char cmd[128];
-    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
-    assert_int_equal(system(cmd), 0);
+    s_remove_dir(dir);
 }
 
 /* A no-cache request still waiting at a stop is evaluated again after the
@@ -333,10 +342,7 @@ static void test_pending_no_cache_request_survives_a_restart(void **state)
     char dir[] = "/tmp/fitfarm-store-test-XXXXXX";
     assert_non_null(mkdtemp(dir));
     for (int start = 0; start < 2; start++) {
-        broker_t *b = calloc(1, sizeof *b);
-        broker_core_init(b, 5000, 1000, 3, dir);
-        assert_non_null(b->store);
-        broker_worker_timers_start(b);
+        broker_t *b = s_broker_on(dir);
         broker_worker_t *w = s_worker(b, 100);
         if (start == 0) {
             assert_int_equal(s_submit(b, "r1", 6.5, 1, 1), 0);
@@ -365,9 +371,7 @@ static void test_pending_no_cache_request_survives_a_restart(void **state)
         }
         s_broker_destroy(&b);
     }
-    char cmd[128];
-    snprintf(cmd, sizeof cmd, "rm -rf %s", dir);
-    assert_int_equal(system(cmd), 0);
+    s_remove_dir(dir);
 }
 
 int main(void)
