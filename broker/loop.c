@@ -28,6 +28,8 @@
 #include "guard.h"
 #include "http.h"
 #include "stats.h"
+#include "store.h"
+#include "store_check.h"
 #include "pidfile.h"
 #include "worker_io.h"
 
@@ -209,6 +211,7 @@ int broker_main_run(const broker_config_t *config)
     }
     broker_core_init_config(&b, config);
     b.now_ms = common_clock_ms();
+    broker_store_check_t *check = NULL;
 
     s_stop = 0;
     memset(&sa, 0, sizeof sa);
@@ -262,7 +265,8 @@ int broker_main_run(const broker_config_t *config)
              b.evals.cap_bytes >> 20, b.runs.max_per_run, b.runs.max_total);
 
     broker_worker_timers_start(&b);
-    /* clients, workers, ZAP's 3, the descriptor reserve's 2, http, lifeline */
+    /* clients, workers, ZAP's 3, the descriptor reserve's 2, http, lifeline,
+     * the store's check */
     zmq_pollitem_t items[10] = {
         {.socket = b.clients, .events = ZMQ_POLLIN},
         {.socket = b.workers, .events = ZMQ_POLLIN},
@@ -281,6 +285,19 @@ int broker_main_run(const broker_config_t *config)
         lifeline = n_items++;
         items[lifeline] = (zmq_pollitem_t){.fd = config->lifeline_fd, .events = ZMQ_POLLIN};
     }
+    /* The load read the pages of the pending work (store_check.h); the rest
+     * is checked while the broker serves. A scratch file is new. Started
+     * last, after the descriptor reserve's fork (fdreserve.c), so that no
+     * process forks while the check's thread runs. */
+    if (config->store_dir && !config->scratch_store)
+        check = broker_store_check_start(broker_store_path(b.store));
+    int checking = -1; /* its index in items while the store's check runs */
+    if (check) {
+        checking = n_items++;
+        items[checking] =
+            (zmq_pollitem_t){.fd = broker_store_check_fd(check), .events = ZMQ_POLLIN};
+    }
+    int damaged = 0; /* the check found the store damaged: stop, exit non-zero */
     int holding = 0; /* this turn's commit was left to the next (s_before_sleep) */
     while (!s_stop) {
         b.now_ms = common_clock_ms();
@@ -319,6 +336,16 @@ int broker_main_run(const broker_config_t *config)
             LOG_INFO("the lifeline closed (the process that started this broker let go or is gone); "
                      "stopping");
             s_stop = 1;
+        }
+        if (checking >= 0 && (items[checking].revents & ZMQ_POLLIN)) {
+            /* The last item: dropping it leaves the others where they are. */
+            n_items--;
+            checking = -1;
+            if (broker_store_check_finish(&check)) {
+                LOG_ERROR("stopping: the store's check found it damaged (above)");
+                damaged = 1;
+                s_stop = 1;
+            }
         }
         /* Only sockets the poll found readable are read: every call on a
          * ZeroMQ socket costs a poll of its mailbox (and a getpid), and with
@@ -360,6 +387,8 @@ int broker_main_run(const broker_config_t *config)
     } else {
         rc = 0;
     }
+    if (damaged)
+        rc = 1;
     uint64_t commits = broker_store_commits(b.store);
     LOG_INFO("broker stopping: %" PRIu64 " jobs sent, %" PRIu64 " results sent, %" PRIu64
              " messages dropped; %" PRIu64 " store commits taking %.1f s (%.0f us each)",
@@ -380,6 +409,7 @@ cleanup:
             zmq_close(b.workers);
         }
     }
+    (void)broker_store_check_finish(&check); /* interrupted if still running */
     broker_http_destroy(&b.http);
     broker_guard_stop(&b);
     broker_fdreserve_stop();

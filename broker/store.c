@@ -192,7 +192,7 @@ double broker_store_commit_seconds(const broker_store_t *self)
 
 void broker_store_report_damage(const char *path, const char *what, const char *msg)
 {
-    LOG_ERROR("store %s is damaged (%s: %s); the broker does not start on a damaged store, "
+    LOG_ERROR("store %s is damaged (%s: %s); the broker does not run on a damaged store, "
               "so that nothing it holds is half-read or overwritten. To recover: stop "
               "everything using the folder and keep a copy of it (cp -a); rebuild the file "
               "with the sqlite3 shell: sqlite3 %s .recover | sqlite3 %s.recovered (a shell "
@@ -233,8 +233,7 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
         goto fail;
     }
     sqlite3_busy_timeout(self->db, 2000); /* a reader checkpointing, at most */
-    if ((dir && broker_store_quick_check(self->db, self->path) != 0) ||
-        broker_store_exec(self->db, self->path,
+    if (broker_store_exec(self->db, self->path,
                           scratch ? "PRAGMA journal_mode=MEMORY" : "PRAGMA journal_mode=WAL") != 0 ||
         broker_store_exec(self->db, self->path,
                           scratch ? "PRAGMA synchronous=OFF" : "PRAGMA synchronous=FULL") != 0 ||

@@ -33,8 +33,9 @@
 typedef struct broker_store broker_store_t;
 struct broker;
 
-/* Opens (creating if needed) DIR/fitfarm.db, after PRAGMA quick_check on
- * it (a damaged file is refused with how to recover it); dir NULL: a private
+/* Opens (creating if needed) DIR/fitfarm.db (an error SQLite reports as
+ * damage refuses it with how to recover; the whole file is checked later,
+ * while the broker serves: store_check.h); dir NULL: a private
  * in-memory database (unit tests). scratch: commit without fsync (broker.h says when
  * that is right). lock_wait_ms: how long to wait for another broker's lock
  * on the folder (store_lock.h). Caller closes it. Returns NULL after logging why when the

@@ -1,6 +1,6 @@
-/* store_schema.c: the store's tables, the check of a file at open, and the
- * moves of older stores to the current schema (see store_schema.h). Owns no
- * state: store.c passes its connection in. */
+/* store_schema.c: the store's tables and the moves of older stores to the
+ * current schema (see store_schema.h). Owns no state: store.c passes its
+ * connection in. */
 #include "store_schema.h"
 
 #include <stdio.h>
@@ -83,43 +83,6 @@ int broker_store_exec(sqlite3 *db, const char *path, const char *sql)
         sqlite3_free(msg);
         return -1;
     }
-    return 0;
-}
-
-/* PRAGMA quick_check at start: every b-tree page and record header of the
- * file is read once (not the index-to-table cross-checks of integrity_check),
- * so a damaged page is found before the broker relies on it. Its cost,
- * measured on our 2-core machine, is in the README ("The store"). Returns 0
- * when the file is sound. */
-int broker_store_quick_check(sqlite3 *db, const char *path)
-{
-    int64_t t0 = common_clock_ms();
-    sqlite3_stmt *st = NULL;
-    int rc = sqlite3_prepare_v2(db, "PRAGMA quick_check(5)", -1, &st, NULL);
-    char first[512] = "";
-    int rows = 0, ok = 0;
-    if (rc == SQLITE_OK)
-        rc = SQLITE_ROW;
-    while (rc == SQLITE_ROW && (rc = sqlite3_step(st)) == SQLITE_ROW) {
-        const char *line = (const char *)sqlite3_column_text(st, 0);
-        if (rows++ == 0) {
-            snprintf(first, sizeof first, "%s", line ? line : "");
-            ok = line && strcmp(line, "ok") == 0;
-        }
-    }
-    if (rc != SQLITE_DONE) {
-        snprintf(first, sizeof first, "%s", sqlite3_errmsg(db));
-        ok = 0;
-    }
-    sqlite3_finalize(st);
-    if (!ok) {
-        broker_store_report_damage(path, "PRAGMA quick_check", first);
-        return -1;
-    }
-    int64_t took = common_clock_ms() - t0;
-    if (took >= 1000)
-        LOG_INFO("store %s checked (PRAGMA quick_check: ok) in %.1f s", path,
-                 (double)took / 1000.0);
     return 0;
 }
 

@@ -20,8 +20,6 @@
 int broker_store_is_damage(int rc);
 /* Runs sql; on failure logs it (a damaged file as such) and returns -1. */
 int broker_store_exec(sqlite3 *db, const char *path, const char *sql);
-/* PRAGMA quick_check of the whole file; 0 when sound, else -1 (reported). */
-int broker_store_quick_check(sqlite3 *db, const char *path);
 /* Creates what is missing, records the schema version, adds the columns
  * older stores lack and moves schema 1 and 2 stores to 3 (each move one
  * transaction: a failure leaves the file as it was). 0, or -1 (logged). */
