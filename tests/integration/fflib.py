@@ -204,6 +204,20 @@ def done_in_store(db_path):
         return 0
 
 
+def overwrite_middle_page(db_path, seed):
+    """Overwrites the middle page of a SQLite file with random bytes (a torn
+    write or a bad sector). Returns (page number, pages, page size)."""
+    with open(db_path, "rb") as f:
+        header = f.read(100)
+    page_size = int.from_bytes(header[16:18], "big")  # SQLite file format, header offset 16
+    pages = os.path.getsize(db_path) // page_size
+    victim = pages // 2
+    with open(db_path, "r+b") as f:
+        f.seek((victim - 1) * page_size)
+        f.write(random.Random(seed).randbytes(page_size))
+    return victim, pages, page_size
+
+
 def run_eval(args, input_text, timeout=600):
     """Runs `fitfarm eval ARGS` with input_text on stdin. Returns
     (exit status, list of parsed output lines, stderr)."""

@@ -13,7 +13,6 @@ and the broker stops cleanly.
 Run with /usr/bin/python3 (Debian's)."""
 import json
 import os
-import random
 import signal
 import subprocess
 import sys
@@ -63,15 +62,8 @@ with fflib.Pool() as pool:
              "the WAL was checkpointed into fitfarm.db at the clean stop")
 
     # 2. One page in the middle, overwritten (a torn write or a bad sector).
-    with open(db_path, "rb") as f:
-        header = f.read(100)
-    page_size = int.from_bytes(header[16:18], "big")  # SQLite file format, header offset 16
-    pages = os.path.getsize(db_path) // page_size
+    victim, pages, page_size = fflib.overwrite_middle_page(db_path, seed=2)
     check.ok(page_size == 4096 and pages > 100, f"page size {page_size}, {pages} pages")
-    victim = pages // 2
-    with open(db_path, "r+b") as f:
-        f.seek((victim - 1) * page_size)
-        f.write(random.Random(2).randbytes(page_size))
     print(f"overwrote page {victim} of {pages}")
 
     epfile = os.path.join(pool.tmp, "endpoints2")

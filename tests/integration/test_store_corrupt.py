@@ -9,7 +9,6 @@ sqlite3 .recover, integrity_check, move in place) is then followed, with
 the sqlite3 shell, and a broker starts on the result.
 Run with /usr/bin/python3 (Debian's)."""
 import os
-import random
 import shutil
 import signal
 import sqlite3
@@ -55,15 +54,8 @@ with fflib.Pool() as pool:
              "the WAL was checkpointed into fitfarm.db at the clean stop")
 
     # One page in the middle, overwritten (a torn write or a bad sector).
-    with open(db_path, "rb") as f:
-        header = f.read(100)
-    page_size = int.from_bytes(header[16:18], "big")  # SQLite file format, header offset 16
-    pages = os.path.getsize(db_path) // page_size
+    victim, pages, page_size = fflib.overwrite_middle_page(db_path, seed=1)
     check.ok(page_size == 4096 and pages > 100, f"page size {page_size}, {pages} pages")
-    victim = pages // 2
-    with open(db_path, "r+b") as f:
-        f.seek((victim - 1) * page_size)
-        f.write(random.Random(1).randbytes(page_size))
     print(f"overwrote page {victim} of {pages}")
 
     t0 = time.time()
