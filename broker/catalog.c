@@ -57,11 +57,25 @@ static void s_take_param_defaults(broker_plugin_t *p, const proto_plugin_info_t 
         p->param_defaults = common_xstrdup(info->param_defaults);
 }
 
+static const void *s_name_key(const void *value, size_t *len)
+{
+    const broker_plugin_t *p = value;
+    *len = strlen(p->name);
+    return p->name;
+}
+
+static const void *s_ref_key(const void *value, size_t *len)
+{
+    const broker_plugin_t *p = value;
+    *len = p->ref_len;
+    return p->ref;
+}
+
 void broker_catalog_init(broker_catalog_t *self)
 {
     memset(self, 0, sizeof *self);
-    self->by_name = broker_table_new();
-    self->by_ref = broker_table_new();
+    self->by_name = broker_table_new(s_name_key);
+    self->by_ref = broker_table_new(s_ref_key);
 }
 
 void broker_catalog_fini(broker_catalog_t *self)

@@ -36,7 +36,7 @@ void broker_core_init_config(broker_t *b, const broker_config_t *config)
     b->max_queued_bytes_per_run = BROKER_DEFAULT_QUEUED_BYTES_PER_RUN;
     b->max_runs = BROKER_DEFAULT_RUNS;
     b->max_runs_per_key = BROKER_DEFAULT_RUNS_PER_KEY;
-    b->key_use = broker_table_new();
+    b->key_use = broker_table_new(broker_keyuse_key);
     broker_catalog_init(&b->catalog);
     broker_registry_init(&b->registry);
     broker_evals_init(&b->evals);

@@ -17,11 +17,32 @@ typedef struct {
     broker_eval_t *eval;
 } s_orphan_t;
 
+static const void *s_content_key(const void *value, size_t *len)
+{
+    const broker_eval_t *e = value;
+    *len = PROTO_KEY_BYTES;
+    return e->key;
+}
+
+static const void *s_job_key(const void *value, size_t *len)
+{
+    const broker_eval_t *e = value;
+    *len = sizeof e->job_id;
+    return &e->job_id;
+}
+
+static const void *s_orphan_key(const void *value, size_t *len)
+{
+    const s_orphan_t *o = value;
+    *len = sizeof o->job_id;
+    return &o->job_id;
+}
+
 void broker_evals_init(broker_evals_t *self)
 {
-    self->by_key = broker_table_new();
-    self->by_job = broker_table_new();
-    self->orphans = broker_table_new();
+    self->by_key = broker_table_new(s_content_key);
+    self->by_job = broker_table_new(s_job_key);
+    self->orphans = broker_table_new(s_orphan_key);
     self->n_done = 0;
     self->fresh_head = NULL;
     self->lru_head = self->lru_tail = NULL;

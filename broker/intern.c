@@ -6,9 +6,15 @@
 
 #include "common/alloc.h"
 
+static const void *s_text_key(const void *value, size_t *len)
+{
+    *len = strlen(value);
+    return value;
+}
+
 void broker_intern_init(broker_intern_t *self)
 {
-    self->strings = broker_table_new();
+    self->strings = broker_table_new(s_text_key);
 }
 
 void broker_intern_fini(broker_intern_t *self)

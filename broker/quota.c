@@ -12,6 +12,13 @@
 #include "common/alloc.h"
 #include "common/log.h"
 
+const void *broker_keyuse_key(const void *value, size_t *len)
+{
+    const broker_keyuse_t *u = value;
+    *len = strlen(u->owner);
+    return u->owner;
+}
+
 static broker_keyuse_t *s_use(broker_t *b, const char *owner, int create)
 {
     broker_keyuse_t *u = broker_table_get(b->key_use, owner, strlen(owner));

@@ -38,6 +38,8 @@ int broker_quota_check(const broker_t *b, const char *who, const broker_run_t *r
 
 /* Counts run (new or loaded) under its owner's totals; again after its owner
  * changed (a claim: detach first). */
+/* The key of a broker_keyuse_t in b->key_use (table.h): its owner text. */
+const void *broker_keyuse_key(const void *value, size_t *len);
 void broker_quota_attach(broker_t *b, broker_run_t *run);
 void broker_quota_detach(broker_t *b, broker_run_t *run);
 /* e (QUEUED, new) holds its genome for run until DONE. */

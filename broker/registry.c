@@ -9,10 +9,17 @@
 #include "common/alloc.h"
 #include "evals.h"
 
+static const void *s_rid_key(const void *value, size_t *len)
+{
+    const broker_worker_t *w = value;
+    *len = w->rid_len;
+    return w->rid;
+}
+
 void broker_registry_init(broker_registry_t *self)
 {
     memset(self, 0, sizeof *self);
-    self->by_rid = broker_table_new();
+    self->by_rid = broker_table_new(s_rid_key);
     self->next_serial = 1;
 }
 

@@ -17,10 +17,24 @@
 #include "key.h"
 #include "msg.h"
 
+static const void *s_id_key(const void *value, size_t *len)
+{
+    const broker_run_t *run = value;
+    *len = strlen(run->id);
+    return run->id;
+}
+
+static const void *s_tag_key(const void *value, size_t *len)
+{
+    const broker_delivery_t *d = value;
+    *len = sizeof d->tag;
+    return &d->tag;
+}
+
 void broker_runs_init(broker_runs_t *self)
 {
     memset(self, 0, sizeof *self);
-    self->by_id = broker_table_new();
+    self->by_id = broker_table_new(s_id_key);
     broker_runs_set_caps(self, 0, 0);
 }
 
@@ -102,7 +116,7 @@ broker_run_t *broker_runs_new(broker_runs_t *self, const char *id, uint64_t seed
     run->seed = seed;
     run->seed_mode = seed_mode;
     snprintf(run->owner, sizeof run->owner, "%s", owner ? owner : "");
-    run->unacked = broker_table_new();
+    run->unacked = broker_table_new(s_tag_key);
     broker_table_put(self->by_id, run->id, strlen(run->id), run);
     return run;
 }

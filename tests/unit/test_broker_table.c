@@ -12,17 +12,24 @@
 
 #include "broker/table.h"
 
-/* Usage example: keys are borrowed, so they usually live inside the value. */
+/* Usage example: a key lives inside its value, and the table finds it there. */
 typedef struct {
     char name[16];
     int slots;
 } s_thing_t;
 
+static const void *s_thing_key(const void *value, size_t *len)
+{
+    const s_thing_t *thing = value;
+    *len = strlen(thing->name);
+    return thing->name;
+}
+
 static void test_usage_example(void **state)
 {
     (void)state;
     s_thing_t a = {"alpha", 4}, b = {"beta", 8};
-    broker_table_t *t = broker_table_new();
+    broker_table_t *t = broker_table_new(s_thing_key);
     assert_null(broker_table_put(t, a.name, strlen(a.name), &a));
     assert_null(broker_table_put(t, b.name, strlen(b.name), &b));
     s_thing_t *got = broker_table_get(t, "beta", 4);
@@ -37,13 +44,26 @@ static void test_usage_example(void **state)
 }
 
 #define N_KEYS 4000
+#define N_VERSIONS 4 /* values per key: a put may replace one with another */
 
 typedef struct {
     uint8_t key[12];
     size_t len;
     int present;
-    int value_id;
+    int value_id; /* 0..N_VERSIONS-1 */
 } s_ref_t;
+
+typedef struct {
+    const s_ref_t *ref; /* its key */
+    int id;
+} s_value_t;
+
+static const void *s_value_key(const void *value, size_t *len)
+{
+    const s_value_t *v = value;
+    *len = v->ref->len;
+    return v->ref->key;
+}
 
 static uint64_t s_rng = 0x9e3779b97f4a7c15ull;
 static uint64_t s_next(void)
@@ -59,9 +79,7 @@ static void test_against_brute_force(void **state)
 {
     (void)state;
     static s_ref_t ref[N_KEYS];
-    static int values[N_KEYS * 4];
-    for (int i = 0; i < N_KEYS * 4; i++)
-        values[i] = i;
+    static s_value_t values[N_KEYS][N_VERSIONS];
     for (int i = 0; i < N_KEYS; i++) {
         ref[i].len = 1 + (size_t)(s_next() % 12);
         for (size_t k = 0; k < ref[i].len; k++)
@@ -72,17 +90,19 @@ static void test_against_brute_force(void **state)
             ref[i].len = 2;
         ref[i].key[1] = (uint8_t)(i >> 8);
         ref[i].present = 0;
+        for (int v = 0; v < N_VERSIONS; v++)
+            values[i][v] = (s_value_t){&ref[i], v};
     }
-    broker_table_t *t = broker_table_new();
+    broker_table_t *t = broker_table_new(s_value_key);
     size_t present = 0;
     for (int step = 0; step < 40000; step++) {
         int i = (int)(s_next() % N_KEYS);
         int op = (int)(s_next() % 3);
         if (op < 2) {
-            int vid = (int)(s_next() % (N_KEYS * 4));
-            void *prev = broker_table_put(t, ref[i].key, ref[i].len, &values[vid]);
+            int vid = (int)(s_next() % N_VERSIONS);
+            void *prev = broker_table_put(t, ref[i].key, ref[i].len, &values[i][vid]);
             if (ref[i].present)
-                assert_ptr_equal(prev, &values[ref[i].value_id]);
+                assert_ptr_equal(prev, &values[i][ref[i].value_id]);
             else
                 assert_null(prev), present++;
             ref[i].present = 1;
@@ -90,7 +110,7 @@ static void test_against_brute_force(void **state)
         } else {
             void *was = broker_table_delete(t, ref[i].key, ref[i].len);
             if (ref[i].present)
-                assert_ptr_equal(was, &values[ref[i].value_id]), present--;
+                assert_ptr_equal(was, &values[i][ref[i].value_id]), present--;
             else
                 assert_null(was);
             ref[i].present = 0;
@@ -102,7 +122,7 @@ static void test_against_brute_force(void **state)
     for (int i = 0; i < N_KEYS; i++) {
         void *v = broker_table_get(t, ref[i].key, ref[i].len);
         if (ref[i].present)
-            assert_ptr_equal(v, &values[ref[i].value_id]);
+            assert_ptr_equal(v, &values[i][ref[i].value_id]);
         else
             assert_null(v);
     }
