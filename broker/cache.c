@@ -82,9 +82,9 @@ broker_eval_t *broker_cache_lookup(broker_t *b, const uint8_t key[PROTO_KEY_BYTE
              * column 2 is a NULL placeholder. */
             e = broker_evals_new(&b->evals, key, plugin, broker_intern(&b->intern, params),
                                  (uint64_t)sqlite3_column_int64(st, 3), NULL, 0);
-            e->timeout_ms = (uint32_t)sqlite3_column_int64(st, 4);
-            e->max_attempts = (uint16_t)sqlite3_column_int(st, 5);
-            e->attempts = (uint16_t)sqlite3_column_int(st, 9);
+            e->live->timeout_ms = (uint32_t)sqlite3_column_int64(st, 4);
+            e->live->max_attempts = (uint16_t)sqlite3_column_int(st, 5);
+            e->live->attempts = (uint16_t)sqlite3_column_int(st, 9);
             uint32_t nf = s_fitness(st, 7, fit);
             broker_provenance_t prov;
             broker_cache_row_provenance(b, st, 10, &prov);

@@ -155,7 +155,7 @@ static int s_retry_recorded(const proto_submit_t *s, const broker_eval_t *e)
     if (s->flags & PROTO_SUBMIT_RETRY_FAILED)
         return 1;
     return e->status == PROTO_STATUS_TIMEOUT && s->timeout_ms > 0 &&
-           (e->timeout_ms == 0 || s->timeout_ms > e->timeout_ms);
+           (broker_eval_time_limit(e) == 0 || s->timeout_ms > broker_eval_time_limit(e));
 }
 
 /* 0 when the store certainly records no request tag of run (runs.h,
@@ -179,7 +179,7 @@ static void s_tag_recorded(broker_run_t *run, uint64_t tag)
 /* 1 when request (run, tag) already waits on e. */
 static int s_waits(broker_eval_t *e, const broker_run_t *run, uint64_t tag)
 {
-    for (uint32_t i = 0; i < e->n_waiters; i++) {
+    for (uint32_t i = 0; i < e->live->n_waiters; i++) {
         const broker_waiter_t *w = broker_eval_waiter(e, i);
         if (w->run == run && w->tag == tag)
             return 1;
@@ -535,8 +535,8 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                 if (!e->again) {
                     broker_eval_t *f = broker_evals_new_fresh(&b->evals, e, it->genome, it->genome_len);
                     broker_quota_charge(b, run, f);
-                    f->timeout_ms = s->timeout_ms;
-                    f->max_attempts =
+                    f->live->timeout_ms = s->timeout_ms;
+                    f->live->max_attempts =
                         (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
                     broker_eval_add_waiter(f, run, it->tag, seeds[i]);
                     broker_runs_enqueue(&b->runs, run, f, 0);
@@ -571,8 +571,8 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             e = broker_evals_new(&b->evals, keys[i], plugin, params, seeds[i], it->genome,
                                  it->genome_len);
             broker_quota_charge(b, run, e);
-            e->timeout_ms = s->timeout_ms;
-            e->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
+            e->live->timeout_ms = s->timeout_ms;
+            e->live->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
             broker_eval_add_waiter(e, run, it->tag, seeds[i]);
             broker_runs_enqueue(&b->runs, run, e, 0);
             broker_store_note_eval(b->store, e);
@@ -582,8 +582,8 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             if (!e->again) {
                 broker_eval_t *f = broker_evals_new_fresh(&b->evals, e, it->genome, it->genome_len);
                 broker_quota_charge(b, run, f);
-                f->timeout_ms = s->timeout_ms;
-                f->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
+                f->live->timeout_ms = s->timeout_ms;
+                f->live->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
                 broker_eval_add_waiter(f, run, it->tag, seeds[i]);
                 broker_runs_enqueue(&b->runs, run, f, 0);
             } else {

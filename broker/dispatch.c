@@ -35,22 +35,22 @@ uint64_t broker_dispatch_turn(broker_t *b)
             if (!e)
                 break;
             e->state = BROKER_EVAL_RUNNING;
-            e->worker = w;
+            e->live->worker = w;
             broker_eval_mark_sent(e, b->now_ms);
             broker_evals_bind_job(&b->evals, e, ++b->next_job_id);
             broker_worker_hold(w, e);
             broker_registry_spend(&b->registry, w);
-            e->home->n_running++;
+            e->live->home->n_running++;
             b->runs.total_running++;
             proto_job_t *j = &b->jobs[n++];
-            j->job_id = e->job_id;
+            j->job_id = e->live->job_id;
             j->plugin = e->plugin->name;
             j->params = (char *)e->params; /* read only by the encoder */
             j->seed = e->seed;
-            j->timeout_ms = e->timeout_ms;
-            j->genome_len = e->genome_len;
-            j->genome = e->genome;
-            bytes += e->genome_len + 64;
+            j->timeout_ms = e->live->timeout_ms;
+            j->genome_len = e->live->genome_len;
+            j->genome = e->live->genome;
+            bytes += e->live->genome_len + 64;
             assert(broker_eval_check(&b->evals, e));
         }
         s_send_jobs(b, w, n);
@@ -66,11 +66,11 @@ static void s_detach(broker_t *b, broker_eval_t *e)
 {
     if (e->state == BROKER_EVAL_RUNNING) {
         broker_speculate_drop_for(b, e); /* its copy is no longer wanted */
-        broker_worker_release(e->worker, e);
+        broker_worker_release(e->live->worker, e);
         broker_evals_unbind_job(&b->evals, e);
-        e->worker = NULL;
-        assert(e->home->n_running > 0);
-        e->home->n_running--;
+        e->live->worker = NULL;
+        assert(e->live->home->n_running > 0);
+        e->live->home->n_running--;
         assert(b->runs.total_running > 0);
         b->runs.total_running--;
     } else if (e->state == BROKER_EVAL_QUEUED) {
@@ -91,17 +91,17 @@ void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker
     broker_store_note_result(b->store, e, o, w ? w->name : NULL, w ? w->host : NULL,
                              w ? w->arch : NULL);
     broker_eval_t *origin = NULL;
-    if (e->fresh && e->origin) {
+    if (e->fresh && e->live->origin) {
         /* A re-evaluation is done: later no-cache requests start another. */
-        origin = e->origin;
+        origin = e->live->origin;
         origin->again = NULL;
-        e->origin = NULL;
+        e->live->origin = NULL;
     }
     /* One simulation, charged to the run whose queue it came from; requests
      * that attached to it (single flight) did not cost another. */
-    e->home->n_evaluated++;
-    e->home->p_evaluated++;
-    for (uint32_t i = 0; i < e->n_waiters; i++) {
+    e->live->home->n_evaluated++;
+    e->live->home->p_evaluated++;
+    for (uint32_t i = 0; i < e->live->n_waiters; i++) {
         broker_waiter_t *wt = broker_eval_waiter(e, i);
         broker_runs_answer(&b->runs, wt->run, wt->tag, wt->seed, e, 0);
     }
@@ -145,8 +145,8 @@ static void s_copy_outcome(broker_t *b, broker_worker_t *w, const broker_copy_t 
         b->spec.failed++;
         LOG_INFO("copy job %" PRIu64 " of job %" PRIu64 " %s on worker %s: %s; the first "
                  "keeps running on %s",
-                 o->job_id, e->job_id, proto_status_name((int)o->status), w->name,
-                 o->error ? o->error : "", e->worker->name);
+                 o->job_id, e->live->job_id, proto_status_name((int)o->status), w->name,
+                 o->error ? o->error : "", e->live->worker->name);
         return;
     }
     assert(e->state == BROKER_EVAL_RUNNING);
@@ -154,9 +154,9 @@ static void s_copy_outcome(broker_t *b, broker_worker_t *w, const broker_copy_t 
     b->spec.won++;
     LOG_INFO("job %" PRIu64 ": its copy, job %" PRIu64 " on worker %s, finished first (%.3f s "
              "after it was sent); the first, on worker %s, is cancelled",
-             e->job_id, o->job_id, w->name, (double)(b->now_ms - c->sent_ms) / 1000.0,
-             e->worker->name);
-    broker_speculate_cancel(b, e->worker, e->job_id);
+             e->live->job_id, o->job_id, w->name, (double)(b->now_ms - c->sent_ms) / 1000.0,
+             e->live->worker->name);
+    broker_speculate_cancel(b, e->live->worker, e->live->job_id);
     s_detach(b, e);
     broker_dispatch_complete(b, e, w, o);
 }
@@ -176,28 +176,28 @@ void broker_dispatch_outcome(broker_t *b, broker_worker_t *w, const proto_outcom
     }
     broker_eval_t *e = broker_evals_by_job(&b->evals, o->job_id);
     if (e) {
-        if (e->worker != w) {
+        if (e->live->worker != w) {
             LOG_WARN("ignored the result of job %" PRIu64 " from worker %s: it was sent to %s",
-                     o->job_id, w ? w->name : "(unregistered)", e->worker->name);
+                     o->job_id, w ? w->name : "(unregistered)", e->live->worker->name);
             return;
         }
         s_note_time(w, e->plugin, o);
         s_detach(b, e);
         if (s_retryable(o->status)) {
-            e->attempts++;
-            unsigned max_attempts = e->max_attempts ? e->max_attempts : b->attempts;
-            if (e->attempts < max_attempts) {
+            e->live->attempts++;
+            unsigned max_attempts = e->live->max_attempts ? e->live->max_attempts : b->attempts;
+            if (e->live->attempts < max_attempts) {
                 LOG_INFO("job %" PRIu64 " %s on worker %s (attempt %u of %u): %s; retrying",
                          o->job_id, proto_status_name((int)o->status), w->name,
-                         (unsigned)e->attempts, max_attempts, o->error ? o->error : "");
-                e->avoid_worker = w->serial;
+                         (unsigned)e->live->attempts, max_attempts, o->error ? o->error : "");
+                e->live->avoid_worker = w->serial;
                 e->state = BROKER_EVAL_QUEUED;
-                broker_runs_enqueue(&b->runs, e->home, e, 1);
+                broker_runs_enqueue(&b->runs, e->live->home, e, 1);
                 assert(broker_eval_check(&b->evals, e));
                 return;
             }
             LOG_WARN("job %" PRIu64 " %s %u times, last on worker %s: %s; failing it", o->job_id,
-                     proto_status_name((int)o->status), (unsigned)e->attempts, w->name,
+                     proto_status_name((int)o->status), (unsigned)e->live->attempts, w->name,
                      o->error ? o->error : "");
         }
         broker_dispatch_complete(b, e, w, o);
@@ -225,8 +225,8 @@ uint32_t broker_dispatch_lose_worker(broker_t *b, broker_worker_t *w)
     /* Counted in the stored attempts, not against --attempts: losing a
      * machine says nothing about the job. */
     for (broker_eval_t *e = w->jobs_head; e; e = e->next)
-        if (e->lost < UINT16_MAX)
-            e->lost++;
+        if (e->live->lost < UINT16_MAX)
+            e->live->lost++;
     return broker_dispatch_drop_worker(b, w);
 }
 
@@ -236,10 +236,10 @@ uint32_t broker_dispatch_drop_worker(broker_t *b, broker_worker_t *w)
     /* Tail first, each pushed to the front: the oldest ends up first again. */
     broker_eval_t *e;
     while ((e = w->jobs_tail)) {
-        broker_evals_orphan_add(&b->evals, e->job_id, e);
+        broker_evals_orphan_add(&b->evals, e->live->job_id, e);
         s_detach(b, e);
         e->state = BROKER_EVAL_QUEUED;
-        broker_runs_enqueue(&b->runs, e->home, e, 1);
+        broker_runs_enqueue(&b->runs, e->live->home, e, 1);
         assert(broker_eval_check(&b->evals, e));
         n++;
     }
@@ -260,11 +260,11 @@ uint32_t broker_dispatch_hand_back(broker_t *b, broker_worker_t *w, const uint64
         if (broker_speculate_take(&b->spec, job_ids[i], &copy))
             continue; /* a copy: the first keeps running */
         broker_eval_t *e = broker_evals_by_job(&b->evals, job_ids[i]);
-        if (!e || e->worker != w)
+        if (!e || e->live->worker != w)
             continue;
         s_detach(b, e);
         e->state = BROKER_EVAL_QUEUED;
-        broker_runs_enqueue(&b->runs, e->home, e, 1);
+        broker_runs_enqueue(&b->runs, e->live->home, e, 1);
         assert(broker_eval_check(&b->evals, e));
         back++;
     }

@@ -27,8 +27,8 @@ static const void *s_content_key(const void *value, size_t *len)
 static const void *s_job_key(const void *value, size_t *len)
 {
     const broker_eval_t *e = value;
-    *len = sizeof e->job_id;
-    return &e->job_id;
+    *len = sizeof e->live->job_id;
+    return &e->live->job_id;
 }
 
 static const void *s_orphan_key(const void *value, size_t *len)
@@ -56,27 +56,55 @@ void broker_evals_init(broker_evals_t *self)
  * encoder copies from it), never freed. */
 static uint8_t s_empty_genome[1];
 
-static void s_set_genome(broker_eval_t *e, const uint8_t *genome, uint32_t genome_len)
+static void s_set_genome(broker_eval_live_t *live, const uint8_t *genome, uint32_t genome_len)
 {
-    e->genome_len = genome_len;
-    e->genome = genome_len ? common_xmemdup(genome, genome_len) : s_empty_genome;
+    live->genome_len = genome_len;
+    live->genome = genome_len ? common_xmemdup(genome, genome_len) : s_empty_genome;
 }
 
-static void s_drop_genome(broker_eval_t *e)
+static void s_drop_genome(broker_eval_live_t *live)
 {
-    if (e->genome != s_empty_genome)
-        free(e->genome);
-    e->genome = NULL;
-    e->genome_len = 0;
+    if (live->genome != s_empty_genome)
+        free(live->genome);
+    live->genome = NULL;
+    live->genome_len = 0;
+}
+
+static void s_free_live(broker_eval_t *e)
+{
+    if (!e->live)
+        return;
+    s_drop_genome(e->live);
+    free(e->live->more);
+    free(e->live);
+    e->live = NULL;
+}
+
+static void s_free_fitness(broker_eval_t *e)
+{
+    if (e->n_fitness > 1)
+        free(e->fit.many);
+    e->n_fitness = 0;
 }
 
 static void s_free(broker_eval_t *e)
 {
-    s_drop_genome(e);
-    free(e->more);
-    free(e->fitness);
+    s_free_live(e);
+    s_free_fitness(e);
     free(e->error);
     free(e);
+}
+
+/* A new QUEUED evaluation with its live part and a copy of genome. */
+static broker_eval_t *s_alloc(const uint8_t key[PROTO_KEY_BYTES], const uint8_t *genome,
+                              uint32_t genome_len)
+{
+    broker_eval_t *e = common_xcalloc(1, sizeof *e);
+    e->live = common_xcalloc(1, sizeof *e->live);
+    memcpy(e->key, key, PROTO_KEY_BYTES);
+    e->state = BROKER_EVAL_QUEUED;
+    s_set_genome(e->live, genome, genome_len);
+    return e;
 }
 
 void broker_evals_fini(broker_evals_t *self)
@@ -90,7 +118,7 @@ void broker_evals_fini(broker_evals_t *self)
     while ((e = broker_table_next(self->by_key, &cur)))
         s_free(e);
     while ((e = self->fresh_head)) {
-        self->fresh_head = e->fresh_next;
+        self->fresh_head = e->live->fresh_next;
         s_free(e);
     }
     broker_table_destroy(&self->by_key);
@@ -107,13 +135,10 @@ broker_eval_t *broker_evals_new(broker_evals_t *self, const uint8_t key[PROTO_KE
                                 broker_plugin_t *plugin, const char *params, uint64_t seed,
                                 const uint8_t *genome, uint32_t genome_len)
 {
-    broker_eval_t *e = common_xcalloc(1, sizeof *e);
-    memcpy(e->key, key, PROTO_KEY_BYTES);
-    e->state = BROKER_EVAL_QUEUED;
+    broker_eval_t *e = s_alloc(key, genome, genome_len);
     e->plugin = plugin;
     e->params = params;
     e->seed = seed;
-    s_set_genome(e, genome, genome_len);
     void *prev = broker_table_put(self->by_key, e->key, PROTO_KEY_BYTES, e);
     assert(prev == NULL);
     (void)prev;
@@ -123,17 +148,14 @@ broker_eval_t *broker_evals_new(broker_evals_t *self, const uint8_t key[PROTO_KE
 static broker_eval_t *s_fresh_copy(broker_evals_t *self, const broker_eval_t *like,
                                    const uint8_t *genome, uint32_t genome_len)
 {
-    broker_eval_t *e = common_xcalloc(1, sizeof *e);
-    memcpy(e->key, like->key, PROTO_KEY_BYTES);
-    e->state = BROKER_EVAL_QUEUED;
+    broker_eval_t *e = s_alloc(like->key, genome, genome_len);
     e->fresh = 1;
     e->plugin = like->plugin;
     e->params = like->params;
     e->seed = like->seed;
-    s_set_genome(e, genome, genome_len);
-    e->fresh_next = self->fresh_head;
+    e->live->fresh_next = self->fresh_head;
     if (self->fresh_head)
-        self->fresh_head->fresh_prev = e;
+        self->fresh_head->live->fresh_prev = e;
     self->fresh_head = e;
     return e;
 }
@@ -143,7 +165,7 @@ broker_eval_t *broker_evals_new_fresh(broker_evals_t *self, broker_eval_t *origi
 {
     assert(origin->state == BROKER_EVAL_DONE && origin->again == NULL && !origin->fresh);
     broker_eval_t *e = s_fresh_copy(self, origin, genome, genome_len);
-    e->origin = origin;
+    e->live->origin = origin;
     origin->again = e;
     broker_evals_settle(self, origin); /* pinned while e is in flight */
     return e;
@@ -158,11 +180,12 @@ void broker_evals_set_caps(broker_evals_t *self, uint64_t entries, uint64_t byte
 }
 
 /* What one cached result costs: the evaluation, its result, and roughly the
- * allocator's and the key table's share. */
+ * allocator's and the key table's share (tests/bench/bench_memory.py
+ * measures the whole from outside). */
 static uint64_t s_bytes(const broker_eval_t *e)
 {
-    return sizeof *e + e->genome_len + (uint64_t)e->n_fitness * sizeof(double) +
-           (e->error ? strlen(e->error) + 1 : 0) + 64;
+    return sizeof *e + (e->n_fitness > 1 ? (uint64_t)e->n_fitness * sizeof(double) + 16 : 0) +
+           (e->error ? strlen(e->error) + 1 + 16 : 0) + 8 + 32;
 }
 
 static void s_lru_unlink(broker_evals_t *self, broker_eval_t *e)
@@ -216,16 +239,23 @@ static void s_evict(broker_evals_t *self, const broker_eval_t *keep)
 void broker_evals_settle(broker_evals_t *self, broker_eval_t *e)
 {
     int done = e->state == BROKER_EVAL_DONE;
-    if (done && e->fresh && e->pins == 0 && e->origin == NULL) {
+    if (done && e->fresh && e->pins == 0 && e->live->origin == NULL) {
         /* Answered (deliveries hold copies): nothing points here any more. */
-        if (e->fresh_prev)
-            e->fresh_prev->fresh_next = e->fresh_next;
+        broker_eval_live_t *live = e->live;
+        if (live->fresh_prev)
+            live->fresh_prev->live->fresh_next = live->fresh_next;
         else
-            self->fresh_head = e->fresh_next;
-        if (e->fresh_next)
-            e->fresh_next->fresh_prev = e->fresh_prev;
+            self->fresh_head = live->fresh_next;
+        if (live->fresh_next)
+            live->fresh_next->live->fresh_prev = live->fresh_prev;
         s_free(e);
         return;
+    }
+    if (done && !e->fresh && e->live && e->live->n_waiters == 0) {
+        /* Answered: from here on it is a cached result, which needs none of
+         * the live part. */
+        assert(e->live->job_id == 0 && e->live->worker == NULL && e->live->charged == NULL);
+        s_free_live(e);
     }
     int evictable = done && !e->fresh && e->pins == 0 && e->again == NULL;
     if (evictable && !e->in_lru) {
@@ -252,49 +282,53 @@ void broker_evals_touch(broker_evals_t *self, broker_eval_t *e)
 
 void broker_eval_add_waiter(broker_eval_t *e, struct broker_run *run, uint64_t tag, uint64_t seed)
 {
+    broker_eval_live_t *live = e->live;
+    assert(live && e->state != BROKER_EVAL_DONE);
     broker_waiter_t w = {run, tag, seed};
-    if (e->n_waiters == 0) {
-        e->w0 = w;
+    if (live->n_waiters == 0) {
+        live->w0 = w;
     } else {
-        uint32_t i = e->n_waiters - 1;
-        if (i == e->cap_more) {
-            e->cap_more = e->cap_more ? e->cap_more * 2 : 4;
-            e->more = common_xrealloc(e->more, e->cap_more, sizeof *e->more);
+        uint32_t i = live->n_waiters - 1;
+        if (i == live->cap_more) {
+            live->cap_more = live->cap_more ? live->cap_more * 2 : 4;
+            live->more = common_xrealloc(live->more, live->cap_more, sizeof *live->more);
         }
-        e->more[i] = w;
+        live->more[i] = w;
     }
-    e->n_waiters++;
+    live->n_waiters++;
 }
 
 broker_waiter_t *broker_eval_waiter(broker_eval_t *e, uint32_t i)
 {
-    assert(i < e->n_waiters);
-    return i == 0 ? &e->w0 : &e->more[i - 1];
+    assert(e->live && i < e->live->n_waiters);
+    return i == 0 ? &e->live->w0 : &e->live->more[i - 1];
 }
 
 void broker_eval_clear_waiters(broker_eval_t *e)
 {
-    free(e->more);
-    e->more = NULL;
-    e->cap_more = 0;
-    e->n_waiters = 0;
+    if (!e->live)
+        return;
+    free(e->live->more);
+    e->live->more = NULL;
+    e->live->cap_more = 0;
+    e->live->n_waiters = 0;
 }
 
 void broker_evals_bind_job(broker_evals_t *self, broker_eval_t *e, uint64_t job_id)
 {
-    assert(e->job_id == 0 && job_id != 0);
-    e->job_id = job_id;
-    broker_table_put(self->by_job, &e->job_id, sizeof e->job_id, e);
+    assert(e->live->job_id == 0 && job_id != 0);
+    e->live->job_id = job_id;
+    broker_table_put(self->by_job, &e->live->job_id, sizeof e->live->job_id, e);
 }
 
 void broker_evals_unbind_job(broker_evals_t *self, broker_eval_t *e)
 {
-    if (e->job_id == 0)
+    if (!e->live || e->live->job_id == 0)
         return;
-    void *was = broker_table_delete(self->by_job, &e->job_id, sizeof e->job_id);
+    void *was = broker_table_delete(self->by_job, &e->live->job_id, sizeof e->live->job_id);
     assert(was == e);
     (void)was;
-    e->job_id = 0;
+    e->live->job_id = 0;
 }
 
 broker_eval_t *broker_evals_by_job(const broker_evals_t *self, uint64_t job_id)
@@ -356,16 +390,20 @@ void broker_eval_set_result(broker_evals_t *self, broker_eval_t *e, uint32_t sta
                             const double *fitness, uint32_t n_fitness, const char *error,
                             const broker_provenance_t *prov)
 {
-    assert(e->state != BROKER_EVAL_DONE && e->job_id == 0 && e->worker == NULL);
-    assert(e->charged == NULL); /* quota.c charged the genome's length; released first */
-    s_drop_genome(e);
-    free(e->fitness);
+    assert(e->state != BROKER_EVAL_DONE && e->live->job_id == 0 && e->live->worker == NULL);
+    assert(e->live->charged == NULL); /* quota.c charged the genome's length; released first */
+    assert(n_fitness <= PROTO_MAX_OBJECTIVES);
+    s_drop_genome(e->live);
+    s_free_fitness(e);
     free(e->error);
-    e->fitness = NULL;
     e->error = NULL;
-    e->n_fitness = n_fitness;
-    if (n_fitness)
-        e->fitness = common_xmemdup(fitness, (size_t)n_fitness * sizeof *fitness);
+    e->n_fitness = (uint8_t)n_fitness;
+    if (n_fitness == 1)
+        e->fit.one = fitness[0];
+    else if (n_fitness > 1)
+        e->fit.many = common_xmemdup(fitness, (size_t)n_fitness * sizeof *fitness);
+    else if (status == PROTO_STATUS_TIMEOUT)
+        e->fit.timeout_ms = e->live->timeout_ms;
     if (error && *error)
         e->error = common_xstrdup(error);
     e->status = (uint8_t)status;
@@ -379,27 +417,31 @@ void broker_eval_set_result(broker_evals_t *self, broker_eval_t *e, uint32_t sta
 
 int broker_eval_check(const broker_evals_t *self, const broker_eval_t *e)
 {
+    const broker_eval_live_t *live = e->live;
+    if (!live && (e->state != BROKER_EVAL_DONE || e->fresh))
+        return 0; /* only a settled cached result has none */
     if (e->fresh) {
         /* Not in by_key; linked from its origin exactly while in flight. */
-        if (e->state != BROKER_EVAL_DONE && (!e->origin || e->origin->again != e))
+        if (e->state != BROKER_EVAL_DONE && (!live->origin || live->origin->again != e))
             return 0;
-        if (e->state == BROKER_EVAL_DONE && e->origin)
+        if (e->state == BROKER_EVAL_DONE && live->origin)
             return 0;
     } else if (broker_evals_get(self, e->key) != e) {
         return 0;
     }
-    if ((e->state == BROKER_EVAL_DONE) != (e->genome == NULL) ||
-        (e->genome == NULL && e->genome_len != 0))
+    if (live && ((e->state == BROKER_EVAL_DONE) != (live->genome == NULL) ||
+                 (live->genome == NULL && live->genome_len != 0)))
         return 0; /* a genome exactly while it may be sent */
     switch (e->state) {
     case BROKER_EVAL_QUEUED:
-        return e->job_id == 0 && e->worker == NULL && e->n_waiters >= 1 && e->home != NULL;
+        return live->job_id == 0 && live->worker == NULL && live->n_waiters >= 1 &&
+               live->home != NULL;
     case BROKER_EVAL_RUNNING:
-        return e->job_id != 0 && broker_evals_by_job(self, e->job_id) == e && e->worker != NULL &&
-               e->n_waiters >= 1;
+        return live->job_id != 0 && broker_evals_by_job(self, live->job_id) == e &&
+               live->worker != NULL && live->n_waiters >= 1;
     case BROKER_EVAL_DONE:
-        return e->job_id == 0 && e->worker == NULL && e->n_waiters == 0 &&
-               (!e->in_lru || (!e->fresh && e->pins == 0 && e->again == NULL));
+        return (!live || (live->job_id == 0 && live->worker == NULL && live->n_waiters == 0)) &&
+               (!e->in_lru || (!e->fresh && e->pins == 0 && e->again == NULL && !live));
     default:
         return 0;
     }

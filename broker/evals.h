@@ -51,6 +51,7 @@
 
 #include "catalog.h"
 #include "limits.h"
+#include "msg.h"
 #include "table.h"
 
 struct broker_run;
@@ -75,49 +76,89 @@ typedef struct {
     double finished_at; /* Unix time the broker recorded the result */
 } broker_provenance_t;
 
-typedef struct broker_eval {
-    uint8_t key[PROTO_KEY_BYTES];
-    uint8_t state;    /* broker_eval_state_t */
-    uint8_t fresh;    /* a re-evaluation for no-cache requests, not in by_key */
-    uint8_t status;   /* proto_status_t once DONE */
-    uint8_t in_lru;   /* DONE, unpinned, in the LRU list through prev/next */
+/* What an evaluation needs only until it is answered: its dispatch, its
+ * waiters, its genome and its retry accounting. Allocated with the
+ * evaluation and freed when a DONE one settles (broker_evals_settle), so
+ * the result cache's entries are the small broker_eval_t alone. A fresh
+ * evaluation keeps its own until it is freed. */
+typedef struct broker_eval_live {
+    uint64_t job_id;  /* current dispatch; 0 when not RUNNING */
+    uint64_t avoid_worker; /* serial of the worker it last crashed on, 0 = none */
+    uint64_t qseq;         /* enqueue order: oldest-first across plugin queues */
+    uint32_t timeout_ms;   /* per evaluation, sent with the job; 0 = the worker's default */
     uint16_t attempts;/* dispatches that ended CRASHED or TIMEOUT */
     uint16_t lost;    /* dispatches lost with a worker that vanished (re-queued; no cap) */
     uint16_t max_attempts; /* from the submitting run's SUBMIT; 0 = the broker's --attempts */
-    uint32_t timeout_ms;   /* per evaluation, sent with the job; 0 = the worker's default */
-    uint64_t job_id;  /* current dispatch; 0 when not RUNNING */
-    uint64_t seed;
-    uint64_t avoid_worker; /* serial of the worker it last crashed on, 0 = none */
-    uint64_t qseq;         /* enqueue order: oldest-first across plugin queues */
-    broker_plugin_t *plugin; /* borrowed from the catalog */
-    const char *params;      /* borrowed, interned (broker_intern) */
     struct broker_run *home; /* run whose queue it is charged to */
     /* run whose queued-genome budget holds this genome until DONE (quota.h);
      * a waiter, so it outlives the charge */
     struct broker_run *charged;
     struct broker_worker *worker;
-    struct broker_eval *prev, *next; /* run queue when QUEUED, worker list when RUNNING */
-    struct broker_eval *again;  /* cached evaluation: its fresh one in flight, or NULL */
     struct broker_eval *origin; /* fresh evaluation: the cached one, NULL once DONE */
     struct broker_eval *fresh_next, *fresh_prev; /* every fresh evaluation in RAM, for fini */
-    uint32_t pins; /* orphan records pointing here: not evictable, not freed */
     /* waiters: the first inline (the common case), the rest in more[] */
     broker_waiter_t w0;
     broker_waiter_t *more;
     uint32_t n_waiters, cap_more;
-    /* result */
-    uint32_t n_fitness;
-    double *fitness;
-    char *error; /* NULL = "" */
-    broker_provenance_t prov;
     /* Copied in and owned while QUEUED or RUNNING (dispatch and straggler
      * copies send it); freed, NULL and 0, once DONE: a finished evaluation
      * answers by key, the store keeps the genome, and a re-evaluation takes
-     * it from the request that asks for one. A cached result then costs RAM
-     * for its result only, whatever the genome's size. */
+     * it from the request that asks for one. */
     uint32_t genome_len;
     uint8_t *genome;
+} broker_eval_live_t;
+
+/* One evaluation. What a cached result needs is here, laid out in 152
+ * bytes (a 160-byte allocation): one objective's fitness inline, more on
+ * the heap, and everything else in live, which a settled DONE evaluation
+ * no longer has (NULL). */
+typedef struct broker_eval {
+    uint8_t key[PROTO_KEY_BYTES];
+    uint8_t state;     /* broker_eval_state_t */
+    uint8_t status;    /* proto_status_t once DONE */
+    uint8_t n_fitness; /* <= PROTO_MAX_OBJECTIVES */
+    uint8_t fresh : 1; /* a re-evaluation for no-cache requests, not in by_key */
+    uint8_t in_lru : 1;/* DONE, unpinned, in the LRU list through prev/next */
+    uint32_t pins; /* orphan records pointing here: not evictable, not freed */
+    uint64_t seed;
+    broker_plugin_t *plugin; /* borrowed from the catalog */
+    const char *params;      /* borrowed, interned (broker_intern) */
+    struct broker_eval *prev, *next; /* run queue when QUEUED, worker list when RUNNING, LRU when DONE */
+    struct broker_eval *again;  /* cached evaluation: its fresh one in flight, or NULL */
+    broker_eval_live_t *live;   /* until answered and settled; NULL after */
+    union {
+        double one;    /* n_fitness == 1 */
+        double *many;  /* n_fitness > 1, owned */
+        /* n_fitness == 0 and status TIMEOUT: the time limit it ran out of
+         * (live->timeout_ms is gone once settled), which a resume with a
+         * larger one retries; read through broker_eval_time_limit */
+        uint32_t timeout_ms;
+    } fit;             /* read through broker_eval_fitness */
+    char *error; /* NULL = "" */
+    broker_provenance_t prov;
 } broker_eval_t;
+
+/* What a queued evaluation costs beyond its genome, as the queue caps
+ * count it (quota.h). */
+#define BROKER_EVAL_QUEUED_BYTES (sizeof(broker_eval_t) + sizeof(broker_eval_live_t))
+
+_Static_assert(PROTO_MAX_OBJECTIVES <= UINT8_MAX, "n_fitness is one byte");
+_Static_assert(sizeof(broker_eval_t) <= 152, "a cached result stays in a 160-byte allocation");
+
+/* The result's fitness vector, n_fitness doubles (NULL when there are none). */
+static inline const double *broker_eval_fitness(const broker_eval_t *e)
+{
+    return e->n_fitness == 0 ? NULL : e->n_fitness == 1 ? &e->fit.one : e->fit.many;
+}
+
+/* The per-evaluation time limit it was sent with (0 = the worker's
+ * default); for a DONE one known only when it timed out. */
+static inline uint32_t broker_eval_time_limit(const broker_eval_t *e)
+{
+    if (e->live)
+        return e->live->timeout_ms;
+    return e->status == PROTO_STATUS_TIMEOUT && e->n_fitness == 0 ? e->fit.timeout_ms : 0;
+}
 
 /* While an evaluation is RUNNING its provenance is not set yet (the result
  * sets all of it): prov.finished_at holds the broker's clock, in ms, at its

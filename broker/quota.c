@@ -60,14 +60,14 @@ void broker_quota_detach(broker_t *b, broker_run_t *run)
 /* What a queued evaluation holds: its record and its genome (evals.c). */
 static uint64_t s_cost(uint32_t genome_len)
 {
-    return (uint64_t)sizeof(broker_eval_t) + genome_len;
+    return (uint64_t)BROKER_EVAL_QUEUED_BYTES + genome_len;
 }
 
 void broker_quota_charge(broker_t *b, broker_run_t *run, broker_eval_t *e)
 {
-    assert(!e->charged);
-    uint64_t c = s_cost(e->genome_len);
-    e->charged = run;
+    assert(!e->live->charged);
+    uint64_t c = s_cost(e->live->genome_len);
+    e->live->charged = run;
     run->genome_bytes += c;
     if (run->use)
         run->use->genome_bytes += c;
@@ -76,16 +76,16 @@ void broker_quota_charge(broker_t *b, broker_run_t *run, broker_eval_t *e)
 
 void broker_quota_release(broker_t *b, broker_eval_t *e)
 {
-    broker_run_t *run = e->charged;
+    broker_run_t *run = e->live ? e->live->charged : NULL;
     if (!run)
         return;
-    uint64_t c = s_cost(e->genome_len);
+    uint64_t c = s_cost(e->live->genome_len);
     assert(run->genome_bytes >= c && b->queued_bytes >= c);
     run->genome_bytes -= c;
     if (run->use)
         run->use->genome_bytes -= c;
     b->queued_bytes -= c;
-    e->charged = NULL;
+    e->live->charged = NULL;
 }
 
 int broker_quota_check(const broker_t *b, const char *who, const broker_run_t *run,
@@ -158,7 +158,7 @@ int broker_quota_check(const broker_t *b, const char *who, const broker_run_t *r
                  "queue full: this %s holds %" PRIu64 " bytes of queued evaluations and this "
                  "batch adds up to %" PRIu64 " (genomes plus %zu bytes each); the cap is %" PRIu64
                  " (%s); wait for results and submit again",
-                 scope, have, add, sizeof(broker_eval_t), cap, flag);
+                 scope, have, add, (size_t)BROKER_EVAL_QUEUED_BYTES, cap, flag);
         return -1;
     }
     return 0;

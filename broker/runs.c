@@ -187,7 +187,7 @@ static broker_queue_t *s_queue(broker_run_t *run, broker_plugin_t *plugin, int c
 /* A run other than run, not parked, that waits for e; NULL if none. */
 static broker_run_t *s_unparked_waiter(broker_eval_t *e, const broker_run_t *run)
 {
-    for (uint32_t i = 0; i < e->n_waiters; i++) {
+    for (uint32_t i = 0; i < e->live->n_waiters; i++) {
         broker_run_t *r = broker_eval_waiter(e, i)->run;
         if (r != run && !r->parked)
             return r;
@@ -204,9 +204,9 @@ void broker_runs_enqueue(broker_runs_t *self, broker_run_t *run, broker_eval_t *
             run = to;
     }
     broker_queue_t *q = s_queue(run, e->plugin, 1);
-    e->home = run;
+    e->live->home = run;
     if (front) {
-        e->qseq = (uint64_t)(-(++self->front_seq));
+        e->live->qseq = (uint64_t)(-(++self->front_seq));
         e->next = q->head;
         if (q->head)
             q->head->prev = e;
@@ -214,7 +214,7 @@ void broker_runs_enqueue(broker_runs_t *self, broker_run_t *run, broker_eval_t *
             q->tail = e;
         q->head = e;
     } else {
-        e->qseq = (uint64_t)(++self->back_seq);
+        e->live->qseq = (uint64_t)(++self->back_seq);
         e->prev = q->tail;
         if (q->tail)
             q->tail->next = e;
@@ -261,7 +261,7 @@ uint64_t broker_runs_unpark(broker_runs_t *self, broker_run_t *run)
 
 void broker_runs_adopt(broker_runs_t *self, broker_run_t *run, broker_eval_t *e)
 {
-    if (e->state != BROKER_EVAL_QUEUED || !e->home || !e->home->parked || run->parked)
+    if (e->state != BROKER_EVAL_QUEUED || !e->live->home || !e->live->home->parked || run->parked)
         return;
     broker_runs_unqueue(self, e);
     broker_runs_enqueue(self, run, e, 0);
@@ -269,7 +269,7 @@ void broker_runs_adopt(broker_runs_t *self, broker_run_t *run, broker_eval_t *e)
 
 void broker_runs_unqueue(broker_runs_t *self, broker_eval_t *e)
 {
-    broker_run_t *run = e->home;
+    broker_run_t *run = e->live->home;
     broker_queue_t *q = s_queue(run, e->plugin, 0);
     assert(q && e->state == BROKER_EVAL_QUEUED);
     if (e->prev)
@@ -291,7 +291,7 @@ void broker_runs_unqueue(broker_runs_t *self, broker_eval_t *e)
 /* qseq as a signed order: front-pushed jobs are negative, newest front first. */
 static int64_t s_order(const broker_eval_t *e)
 {
-    return (int64_t)e->qseq;
+    return (int64_t)e->live->qseq;
 }
 
 static broker_eval_t *s_oldest_for(broker_run_t *run, const broker_worker_t *w)
@@ -302,7 +302,7 @@ static broker_eval_t *s_oldest_for(broker_run_t *run, const broker_worker_t *w)
         broker_eval_t *e = q->head;
         if (!e || !broker_worker_carries(w, q->plugin))
             continue;
-        if (e->avoid_worker == w->serial && q->plugin->carriers > 1)
+        if (e->live->avoid_worker == w->serial && q->plugin->carriers > 1)
             continue;
         if (!best || s_order(e) < s_order(best))
             best = e;
@@ -427,7 +427,8 @@ static int s_push_eval(broker_runs_t *self, broker_run_t *run, uint64_t tag, uin
                            .cached = (uint8_t)(cached != 0),
                            .fresh = e->fresh,
                            .n_fitness = e->n_fitness,
-                           .fitness = e->fitness,
+                           /* copied by s_outbox_push, never written */
+                           .fitness = (double *)broker_eval_fitness(e),
                            .error = e->error,
                            .prov = e->prov};
     memcpy(t.key, e->key, PROTO_KEY_BYTES);
@@ -622,7 +623,7 @@ int broker_runs_check(const broker_runs_t *self)
         uint64_t in_queues = 0;
         for (uint32_t i = 0; i < run->n_queues; i++)
             for (const broker_eval_t *e = run->queues[i].head; e; e = e->next) {
-                if (e->home != run || e->state != BROKER_EVAL_QUEUED)
+                if (e->state != BROKER_EVAL_QUEUED || e->live->home != run)
                     return 0;
                 in_queues++;
             }

@@ -49,7 +49,7 @@ static broker_worker_t *s_target(broker_t *b, const broker_eval_t *e, double plu
 {
     broker_worker_t *best = NULL;
     for (broker_worker_t *t = b->registry.ready_head; t; t = t->ready_next) {
-        if (t == e->worker || t->credits == 0 || t->serial == e->avoid_worker ||
+        if (t == e->live->worker || t->credits == 0 || t->serial == e->live->avoid_worker ||
             !broker_worker_carries(t, e->plugin))
             continue;
         double x = s_expected(t, e->plugin, plugin_median);
@@ -72,9 +72,9 @@ static void s_start(broker_t *b, broker_eval_t *e, broker_worker_t *t, double ag
                        .plugin = e->plugin->name,
                        .params = (char *)e->params, /* read only by the encoder */
                        .seed = e->seed,
-                       .timeout_ms = e->timeout_ms,
-                       .genome_len = e->genome_len,
-                       .genome = e->genome};
+                       .timeout_ms = e->live->timeout_ms,
+                       .genome_len = e->live->genome_len,
+                       .genome = e->live->genome};
     proto_msg_t msg = {.type = PROTO_JOBS};
     msg.u.jobs.n_jobs = 1;
     msg.u.jobs.jobs = &job;
@@ -86,7 +86,7 @@ static void s_start(broker_t *b, broker_eval_t *e, broker_worker_t *t, double ag
     b->jobs_sent++;
     LOG_INFO("job %" PRIu64 " has run %.3f s on worker %s (plugin %s: median %.3f s); a copy "
              "goes to worker %s as job %" PRIu64 ", the first to finish wins",
-             e->job_id, age, e->worker->name, e->plugin->name, median, t->name, c->job_id);
+             e->live->job_id, age, e->live->worker->name, e->plugin->name, median, t->name, c->job_id);
 }
 
 void broker_speculate_turn(broker_t *b)
@@ -182,7 +182,7 @@ void broker_speculate_drop_for(broker_t *b, broker_eval_t *e)
     broker_speculate_cancel(b, c.w, c.job_id);
     LOG_INFO("job %" PRIu64 " finished or left worker %s first; its copy, job %" PRIu64
              " on worker %s, is cancelled",
-             e->job_id, e->worker ? e->worker->name : "?", c.job_id, c.w->name);
+             e->live->job_id, e->live->worker ? e->live->worker->name : "?", c.job_id, c.w->name);
 }
 
 void broker_speculate_forget_worker(broker_t *b, broker_worker_t *w)

@@ -433,10 +433,10 @@ void broker_store_note_eval(broker_store_t *self, const broker_eval_t *e)
     s_text(self, i, 2, e->plugin->name);
     s_text(self, i, 3, e->plugin->version);
     s_text(self, i, 4, e->params);
-    s_blob(self, i, 5, e->genome, e->genome_len);
+    s_blob(self, i, 5, e->live->genome, e->live->genome_len);
     s_u64(self, i, 6, e->seed);
-    s_int(self, i, 7, e->timeout_ms);
-    s_int(self, i, 8, e->max_attempts);
+    s_int(self, i, 7, e->live->timeout_ms);
+    s_int(self, i, 8, e->live->max_attempts);
     s_real(self, i, 9, s_now());
     s_write(self, i);
 }
@@ -589,12 +589,12 @@ static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *
         uint32_t nf = e->n_fitness < PROTO_MAX_OBJECTIVES ? e->n_fitness : PROTO_MAX_OBJECTIVES;
         for (uint32_t f = 0; f < nf; f++) {
             uint64_t bits;
-            memcpy(&bits, &e->fitness[f], 8);
+            memcpy(&bits, &broker_eval_fitness(e)[f], 8);
             for (int k = 0; k < 8; k++)
                 le[f * 8 + (uint32_t)k] = (uint8_t)(bits >> (8 * k));
         }
         s_blob(self, i, 4, le, (size_t)nf * 8);
-        char *json = s_fitness_json(e->fitness, nf);
+        char *json = s_fitness_json(broker_eval_fitness(e), nf);
         s_text(self, i, 5, json);
         free(json);
     }
@@ -602,7 +602,7 @@ static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *
     /* attempts counts dispatches that did not end with this result: crashed
      * or timed out (the final one counts too when it ended the same way),
      * or lost with a worker that vanished. */
-    s_int(self, i, 7, (int)e->attempts + (int)e->lost);
+    s_int(self, i, 7, (int)e->live->attempts + (int)e->live->lost);
     if (worker) {
         s_text(self, i, 8, worker);
         s_text(self, i, 9, host);
@@ -617,7 +617,7 @@ static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *
         s_u64(self, i, 13, o->peak_rss_kb);
     }
     s_real(self, i, 14, e->prov.finished_at > 0 ? e->prov.finished_at : s_now());
-    s_text(self, i, 15, e->home ? e->home->id : "");
+    s_text(self, i, 15, e->live->home ? e->live->home->id : "");
     if (which == S_HISTORY)
         s_int(self, i, 16, e->fresh != 0);
     s_write(self, i);

@@ -187,14 +187,14 @@ static broker_eval_t *s_new_eval(broker_t *b, sqlite3_stmt *st, int col, int ver
     int genome_len = sqlite3_column_bytes(st, col + 3);
     broker_eval_t *e = broker_evals_new(&b->evals, key, plugin, broker_intern(&b->intern, params),
                                         s_u64(st, col + 4), genome, (uint32_t)genome_len);
-    e->timeout_ms = (uint32_t)sqlite3_column_int64(st, col + 5);
-    e->max_attempts = (uint16_t)sqlite3_column_int(st, col + 6);
+    e->live->timeout_ms = (uint32_t)sqlite3_column_int64(st, col + 5);
+    e->live->max_attempts = (uint16_t)sqlite3_column_int(st, col + 6);
     return e;
 }
 
 static int s_waits(broker_eval_t *e, broker_run_t *run, uint64_t tag)
 {
-    for (uint32_t i = 0; i < e->n_waiters; i++) {
+    for (uint32_t i = 0; i < e->live->n_waiters; i++) {
         broker_waiter_t *w = broker_eval_waiter(e, i);
         if (w->run == run && w->tag == tag)
             return 1;
@@ -233,9 +233,9 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
             continue;
         uint32_t replicate = (uint32_t)sqlite3_column_int64(st, 11);
         broker_eval_add_waiter(e, run, tag,
-                               broker_run_request_seed(run, e->genome, e->genome_len, replicate));
+                               broker_run_request_seed(run, e->live->genome, e->live->genome_len, replicate));
         broker_run_count_request(run);
-        if (!e->home) {
+        if (!e->live->home) {
             broker_runs_enqueue(&b->runs, run, e, 0);
             broker_quota_charge(b, run, e);
             (*pending)++;
@@ -278,16 +278,16 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
             /* The cached origin keeps no genome (evals.h): the store's row. */
             f = broker_evals_new_fresh(&b->evals, origin, sqlite3_column_blob(st, 9),
                                        (uint32_t)sqlite3_column_bytes(st, 9));
-            f->timeout_ms = (uint32_t)sqlite3_column_int64(st, 6);
-            f->max_attempts = (uint16_t)sqlite3_column_int(st, 7);
+            f->live->timeout_ms = (uint32_t)sqlite3_column_int64(st, 6);
+            f->live->max_attempts = (uint16_t)sqlite3_column_int(st, 7);
         }
         if (s_waits(f, run, tag))
             continue;
         uint32_t replicate = (uint32_t)sqlite3_column_int64(st, 8);
         broker_eval_add_waiter(f, run, tag,
-                               broker_run_request_seed(run, f->genome, f->genome_len, replicate));
+                               broker_run_request_seed(run, f->live->genome, f->live->genome_len, replicate));
         broker_run_count_request(run);
-        if (!f->home) {
+        if (!f->live->home) {
             broker_runs_enqueue(&b->runs, run, f, 0);
             broker_quota_charge(b, run, f);
             (*pending)++;

@@ -110,7 +110,7 @@ static void test_usage_example(void **state)
     assert_int_equal(broker_dispatch_turn(b), 1);
     assert_int_equal(w->held, 1);
     assert_int_equal(w->credits, 7);
-    proto_outcome_t o = s_outcome(w->jobs_head->job_id, PROTO_STATUS_OK, 1.25);
+    proto_outcome_t o = s_outcome(w->jobs_head->live->job_id, PROTO_STATUS_OK, 1.25);
     broker_dispatch_outcome(b, w, &o);
     assert_int_equal(w->held, 0);
     assert_int_equal(run->n_outbox, 3);
@@ -145,29 +145,29 @@ static void test_single_flight_across_runs_and_no_cache(void **state)
     /* a third request while it runs attaches too */
     assert_int_equal(s_submit(b, "c2", "r2", 2, "det", g, 1, 2, 0), 0);
     assert_int_equal(broker_dispatch_turn(b), 0);
-    proto_outcome_t o = s_outcome(w->jobs_head->job_id, PROTO_STATUS_OK, 3.0);
+    proto_outcome_t o = s_outcome(w->jobs_head->live->job_id, PROTO_STATUS_OK, 3.0);
     broker_dispatch_outcome(b, w, &o);
     broker_run_t *r1 = broker_runs_get(&b->runs, "r1"), *r2 = broker_runs_get(&b->runs, "r2");
     assert_int_equal(r1->n_outbox, 1);
     assert_int_equal(r2->n_outbox, 2);
     assert_int_equal(r2->outbox[1].cached, 0); /* attached while running: not a cache hit */
-    /* The finished evaluation keeps no genome: it answers by key. */
+    /* The finished evaluation keeps no genome, nor any other part it needed
+     * only until answered: it answers by key. */
     size_t cur = 0;
     broker_eval_t *done = broker_table_next(b->evals.by_key, &cur);
     assert_non_null(done);
     assert_int_equal(done->state, BROKER_EVAL_DONE);
-    assert_null(done->genome);
-    assert_int_equal(done->genome_len, 0);
+    assert_null(done->live);
     assert_true(broker_eval_check(&b->evals, done));
     /* no-cache evaluates the same key again, with the request's genome */
     assert_int_equal(s_submit(b, "c1", "r1", 1, "det", g, 1, 9, PROTO_SUBMIT_NO_CACHE), 0);
     assert_int_equal(r1->n_queued, 1);
     assert_int_equal(broker_dispatch_turn(b), 1);
     broker_eval_t *again = w->jobs_head;
-    assert_true(again->fresh && again->origin == done);
-    assert_int_equal(again->genome_len, sizeof(double));
+    assert_true(again->fresh && again->live->origin == done);
+    assert_int_equal(again->live->genome_len, sizeof(double));
     double sent;
-    memcpy(&sent, again->genome, sizeof sent);
+    memcpy(&sent, again->live->genome, sizeof sent);
     assert_true(sent == 2.0);
     assert_true(broker_eval_check(&b->evals, again));
     s_broker_destroy(&b);
@@ -186,23 +186,23 @@ static void test_retry_accounting(void **state)
     uint64_t seed = e->seed;
 
     assert_int_equal(broker_dispatch_turn(b), 1);
-    assert_ptr_equal(e->worker, wa);
-    proto_outcome_t o = s_outcome(e->job_id, PROTO_STATUS_CRASHED, 0);
+    assert_ptr_equal(e->live->worker, wa);
+    proto_outcome_t o = s_outcome(e->live->job_id, PROTO_STATUS_CRASHED, 0);
     broker_dispatch_outcome(b, wa, &o);
-    assert_int_equal(e->attempts, 1);
+    assert_int_equal(e->live->attempts, 1);
     assert_int_equal(e->state, BROKER_EVAL_QUEUED);
 
     /* a retry goes to another worker when one carries the plugin */
     assert_int_equal(broker_dispatch_turn(b), 1);
-    assert_ptr_equal(e->worker, wb);
+    assert_ptr_equal(e->live->worker, wb);
     assert_int_equal(e->seed, seed); /* same seed on every attempt */
-    o = s_outcome(e->job_id, PROTO_STATUS_TIMEOUT, 0);
+    o = s_outcome(e->live->job_id, PROTO_STATUS_TIMEOUT, 0);
     broker_dispatch_outcome(b, wb, &o);
-    assert_int_equal(e->attempts, 2);
+    assert_int_equal(e->live->attempts, 2);
 
     assert_int_equal(broker_dispatch_turn(b), 1);
-    assert_ptr_equal(e->worker, wa);
-    o = s_outcome(e->job_id, PROTO_STATUS_CRASHED, 0);
+    assert_ptr_equal(e->live->worker, wa);
+    o = s_outcome(e->live->job_id, PROTO_STATUS_CRASHED, 0);
     broker_dispatch_outcome(b, wa, &o);
     /* third attempt of three: final, with the last status and error */
     assert_int_equal(e->state, BROKER_EVAL_DONE);
@@ -224,7 +224,7 @@ static void test_dropped_worker_requeue_and_late_result(void **state)
     assert_int_equal(s_submit(b, "c1", "r", 5, "spin", g, 2, 1, 0), 0);
     assert_int_equal(broker_dispatch_turn(b), 2);
     broker_eval_t *first = wa->jobs_head, *second = wa->jobs_tail;
-    uint64_t old_job = first->job_id;
+    uint64_t old_job = first->live->job_id;
     assert_int_equal(broker_dispatch_drop_worker(b, wa), 2);
     broker_run_t *run = broker_runs_get(&b->runs, "r");
     assert_int_equal(run->n_queued, 2);
@@ -233,8 +233,8 @@ static void test_dropped_worker_requeue_and_late_result(void **state)
 
     broker_worker_t *wb = s_worker(b, "wb", "spin", 0, 8);
     assert_int_equal(broker_dispatch_turn(b), 2);
-    assert_ptr_equal(first->worker, wb);
-    uint64_t new_job = first->job_id;
+    assert_ptr_equal(first->live->worker, wb);
+    uint64_t new_job = first->live->job_id;
     assert_true(new_job != old_job);
     /* the dropped worker's late result arrives first: accepted once */
     proto_outcome_t o = s_outcome(old_job, PROTO_STATUS_OK, 4.0);
@@ -246,7 +246,7 @@ static void test_dropped_worker_requeue_and_late_result(void **state)
     o = s_outcome(new_job, PROTO_STATUS_OK, 5.0);
     broker_dispatch_outcome(b, wb, &o);
     assert_int_equal(run->n_outbox, 1);
-    assert_true(first->fitness[0] == 4.0);
+    assert_true(broker_eval_fitness(first)[0] == 4.0);
     /* and the stale id again: still nothing */
     o = s_outcome(old_job, PROTO_STATUS_OK, 6.0);
     broker_dispatch_outcome(b, NULL, &o);
@@ -279,10 +279,10 @@ static void test_round_robin_fairness(void **state)
     assert_int_equal(rs->n_queued, 0);
     int k = 0, big_seen = 0;
     for (broker_eval_t *e = w->jobs_head; e; e = e->next, k++) {
-        assert_ptr_equal(e->home, k % 2 == 0 ? rb : rs);
-        if (e->home == rb) {
+        assert_ptr_equal(e->live->home, k % 2 == 0 ? rb : rs);
+        if (e->live->home == rb) {
             double v;
-            memcpy(&v, e->genome, sizeof v);
+            memcpy(&v, e->live->genome, sizeof v);
             assert_true(v == big_seen++); /* oldest first within a run */
         }
     }
@@ -339,9 +339,9 @@ static void test_owner_and_parking(void **state)
     assert_true(broker_runs_check(&b->runs));
     broker_eval_t *e = broker_runs_pick(&b->runs, w);
     assert_non_null(e);
-    assert_ptr_equal(e->home, broker_runs_get(&b->runs, "rb"));
+    assert_ptr_equal(e->live->home, broker_runs_get(&b->runs, "rb"));
     assert_null(broker_runs_pick(&b->runs, w));
-    broker_runs_enqueue(&b->runs, e->home, e, 1); /* back, for the unpark count below */
+    broker_runs_enqueue(&b->runs, e->live->home, e, 1); /* back, for the unpark count below */
     assert_int_equal(broker_runs_unpark(&b->runs, r), 1);
     assert_true(broker_runs_check(&b->runs));
     s_who = "local";
@@ -367,11 +367,11 @@ static void test_caps_and_idle_runs(void **state)
     assert_int_equal(s_submit(b, "c2", "r5", 1, "spin", g, 1, 1, 0), PROTO_REFUSE_QUEUE_FULL);
     /* An existing run takes more work; its queued bytes are capped (its own
      * seed: r1's evaluation of 1.0 under seed 1 would be shared, not charged). */
-    b->max_queued_bytes_per_run = 2 * (sizeof(broker_eval_t) + sizeof(double));
+    b->max_queued_bytes_per_run = 2 * (BROKER_EVAL_QUEUED_BYTES + sizeof(double));
     assert_int_equal(s_submit(b, "c2", "r4", 4, "spin", &g[1], 1, 2, 0), 0);
     assert_int_equal(s_submit(b, "c2", "r4", 4, "spin", &g[2], 1, 3, 0), PROTO_REFUSE_QUEUE_FULL);
     broker_run_t *r4 = broker_runs_get(&b->runs, "r4");
-    assert_int_equal(r4->genome_bytes, 2 * (sizeof(broker_eval_t) + sizeof(double)));
+    assert_int_equal(r4->genome_bytes, 2 * (BROKER_EVAL_QUEUED_BYTES + sizeof(double)));
     assert_int_equal(r4->use->runs, 1);
     assert_int_equal(r4->use->outstanding, 2);
     /* A run with nothing in flight leaves RAM and comes back on use. */
@@ -402,9 +402,9 @@ static void test_resend_after_reconnect(void **state)
     double g[2] = {1.0, 2.0};
     assert_int_equal(s_submit(b, "old-conn", "r", 3, "spin", g, 2, 10, 0), 0);
     assert_int_equal(broker_dispatch_turn(b), 2);
-    proto_outcome_t o = s_outcome(w->jobs_head->job_id, PROTO_STATUS_OK, 1.0);
+    proto_outcome_t o = s_outcome(w->jobs_head->live->job_id, PROTO_STATUS_OK, 1.0);
     broker_dispatch_outcome(b, w, &o);
-    o = s_outcome(w->jobs_head->job_id, PROTO_STATUS_OK, 2.0);
+    o = s_outcome(w->jobs_head->live->job_id, PROTO_STATUS_OK, 2.0);
     broker_dispatch_outcome(b, w, &o);
     broker_client_flush(b);
     broker_run_t *run = broker_runs_get(&b->runs, "r");

@@ -166,7 +166,7 @@ static void test_copy_wins_once(void **state)
     s_submit(b, "run-a", 1);
     assert_int_equal(broker_dispatch_turn(b), 1);
     broker_worker_t *fast = s_worker(b, "fast", 2);
-    uint64_t first = slow->jobs_head->job_id;
+    uint64_t first = slow->jobs_head->live->job_id;
     s_teach(b, 0.050);
     b->now_ms += 1000; /* 20 x the median */
     broker_speculate_turn(b);
@@ -200,7 +200,7 @@ static void test_first_wins_once(void **state)
     s_submit(b, "run-a", 1);
     broker_dispatch_turn(b);
     broker_worker_t *fast = s_worker(b, "fast", 2);
-    uint64_t first = slow->jobs_head->job_id;
+    uint64_t first = slow->jobs_head->live->job_id;
     s_teach(b, 0.050);
     b->now_ms += 1000;
     broker_speculate_turn(b);

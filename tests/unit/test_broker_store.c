@@ -96,7 +96,7 @@ static int s_submit(broker_t *b, const char *run_id, double x0, uint32_t n, uint
 static void s_finish(broker_t *b, broker_worker_t *w, uint32_t n, proto_outcome_t like)
 {
     for (uint32_t i = 0; i < n && w->jobs_head; i++) {
-        like.job_id = w->jobs_head->job_id;
+        like.job_id = w->jobs_head->live->job_id;
         broker_dispatch_outcome(b, w, &like);
     }
 }
@@ -350,7 +350,7 @@ static void test_pending_no_cache_request_survives_a_restart(void **state)
             s_complete_ok(b, w, 1);
             size_t cur = 0;
             broker_eval_t *done = broker_table_next(b->evals.by_key, &cur);
-            assert_true(done && done->state == BROKER_EVAL_DONE && done->genome == NULL);
+            assert_true(done && done->state == BROKER_EVAL_DONE && done->live == NULL);
             /* The same genome again, no-cache: queued, not yet sent. */
             proto_item_t it = {.tag = 2, .genome_len = sizeof(double)};
             double g = 6.5;
@@ -365,8 +365,8 @@ static void test_pending_no_cache_request_survives_a_restart(void **state)
             broker_eval_t *again = w->jobs_head;
             assert_true(again && again->fresh);
             double sent = 0;
-            assert_int_equal(again->genome_len, sizeof sent);
-            memcpy(&sent, again->genome, sizeof sent);
+            assert_int_equal(again->live->genome_len, sizeof sent);
+            memcpy(&sent, again->live->genome, sizeof sent);
             assert_true(sent == 6.5);
         }
         s_broker_destroy(&b);
