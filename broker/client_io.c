@@ -521,7 +521,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         const proto_item_t *it = &s->items[i];
         broker_eval_t *e = broker_cache_lookup(b, keys[i]); /* RAM, else the store */
         if (recorded[i] && e) {
-            if (e->again && s_waits(e->again, run, it->tag)) {
+            if (broker_eval_again(e) && s_waits(broker_eval_again(e), run, it->tag)) {
                 continue; /* a no-cache request still waiting on its re-evaluation */
             } else if (recorded[i] == 3 && e->state == BROKER_EVAL_DONE) {
                 s_redeliver_fresh(b, run, it->tag, seeds[i], e);
@@ -532,7 +532,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                  * the request (and the run's replay) reads that result. */
                 broker_store_note_request_fresh(b->store, run, it->tag);
                 broker_run_count_request(run);
-                if (!e->again) {
+                if (!broker_eval_again(e)) {
                     broker_eval_t *f = broker_evals_new_fresh(&b->evals, e, it->genome, it->genome_len);
                     broker_quota_charge(b, run, f);
                     f->live->timeout_ms = s->timeout_ms;
@@ -541,8 +541,8 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                     broker_eval_add_waiter(f, run, it->tag, seeds[i]);
                     broker_runs_enqueue(&b->runs, run, f, 0);
                 } else {
-                    broker_eval_add_waiter(e->again, run, it->tag, seeds[i]);
-                    broker_runs_adopt(&b->runs, run, e->again);
+                    broker_eval_add_waiter(broker_eval_again(e), run, it->tag, seeds[i]);
+                    broker_runs_adopt(&b->runs, run, broker_eval_again(e));
                 }
             } else if (e->state == BROKER_EVAL_DONE) {
                 s_redeliver(b, run, it->tag, seeds[i], e, recorded[i] == 2);
@@ -579,7 +579,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         } else if (e->state == BROKER_EVAL_DONE) {
             /* No-cache: evaluate again, keeping the cached result (evals.h,
              * "Re-evaluations"); no-cache requests for the key share one. */
-            if (!e->again) {
+            if (!broker_eval_again(e)) {
                 broker_eval_t *f = broker_evals_new_fresh(&b->evals, e, it->genome, it->genome_len);
                 broker_quota_charge(b, run, f);
                 f->live->timeout_ms = s->timeout_ms;
@@ -587,10 +587,10 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                 broker_eval_add_waiter(f, run, it->tag, seeds[i]);
                 broker_runs_enqueue(&b->runs, run, f, 0);
             } else {
-                broker_eval_add_waiter(e->again, run, it->tag, seeds[i]);
-                broker_runs_adopt(&b->runs, run, e->again);
+                broker_eval_add_waiter(broker_eval_again(e), run, it->tag, seeds[i]);
+                broker_runs_adopt(&b->runs, run, broker_eval_again(e));
             }
-            e = e->again;
+            e = broker_eval_again(e);
         } else {
             broker_eval_add_waiter(e, run, it->tag, seeds[i]); /* single flight */
             broker_runs_adopt(&b->runs, run, e);

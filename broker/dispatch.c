@@ -94,7 +94,7 @@ void broker_dispatch_complete(broker_t *b, broker_eval_t *e, const broker_worker
     if (e->fresh && e->live->origin) {
         /* A re-evaluation is done: later no-cache requests start another. */
         origin = e->live->origin;
-        origin->again = NULL;
+        origin->live->again = NULL; /* pinned by it: its live part is there */
         e->live->origin = NULL;
     }
     /* One simulation, charged to the run whose queue it came from; requests

@@ -95,6 +95,15 @@ static void s_free(broker_eval_t *e)
     free(e);
 }
 
+/* e's live part, made empty for a settled DONE one that something points
+ * at again (a re-evaluation). */
+static broker_eval_live_t *s_live(broker_eval_t *e)
+{
+    if (!e->live)
+        e->live = common_xcalloc(1, sizeof *e->live);
+    return e->live;
+}
+
 /* A new QUEUED evaluation with its live part and a copy of genome. */
 static broker_eval_t *s_alloc(const uint8_t key[PROTO_KEY_BYTES], const uint8_t *genome,
                               uint32_t genome_len)
@@ -163,10 +172,11 @@ static broker_eval_t *s_fresh_copy(broker_evals_t *self, const broker_eval_t *li
 broker_eval_t *broker_evals_new_fresh(broker_evals_t *self, broker_eval_t *origin,
                                       const uint8_t *genome, uint32_t genome_len)
 {
-    assert(origin->state == BROKER_EVAL_DONE && origin->again == NULL && !origin->fresh);
+    assert(origin->state == BROKER_EVAL_DONE && broker_eval_again(origin) == NULL &&
+           !origin->fresh);
     broker_eval_t *e = s_fresh_copy(self, origin, genome, genome_len);
     e->live->origin = origin;
-    origin->again = e;
+    s_live(origin)->again = e;
     broker_evals_settle(self, origin); /* pinned while e is in flight */
     return e;
 }
@@ -239,7 +249,7 @@ static void s_evict(broker_evals_t *self, const broker_eval_t *keep)
 void broker_evals_settle(broker_evals_t *self, broker_eval_t *e)
 {
     int done = e->state == BROKER_EVAL_DONE;
-    if (done && e->fresh && e->pins == 0 && e->live->origin == NULL) {
+    if (done && e->fresh && e->live->pins == 0 && e->live->origin == NULL) {
         /* Answered (deliveries hold copies): nothing points here any more. */
         broker_eval_live_t *live = e->live;
         if (live->fresh_prev)
@@ -251,13 +261,14 @@ void broker_evals_settle(broker_evals_t *self, broker_eval_t *e)
         s_free(e);
         return;
     }
-    if (done && !e->fresh && e->live && e->live->n_waiters == 0) {
-        /* Answered: from here on it is a cached result, which needs none of
-         * the live part. */
+    if (done && !e->fresh && e->live && e->live->n_waiters == 0 && e->live->pins == 0 &&
+        e->live->again == NULL) {
+        /* Answered and unpinned: from here on it is a cached result, which
+         * needs none of the live part. */
         assert(e->live->job_id == 0 && e->live->worker == NULL && e->live->charged == NULL);
         s_free_live(e);
     }
-    int evictable = done && !e->fresh && e->pins == 0 && e->again == NULL;
+    int evictable = done && !e->fresh && e->live == NULL;
     if (evictable && !e->in_lru) {
         s_lru_push(self, e);
         s_evict(self, e);
@@ -350,7 +361,7 @@ static void s_orphan_sweep(broker_evals_t *self)
         o = broker_table_delete(self->orphans, &ids[i], sizeof ids[i]);
         broker_eval_t *e = o->eval;
         free(o);
-        e->pins--;
+        e->live->pins--;
         broker_evals_settle(self, e);
     }
     free(ids);
@@ -365,10 +376,10 @@ void broker_evals_orphan_add(broker_evals_t *self, uint64_t job_id, broker_eval_
     s_orphan_t *o = common_xmalloc(sizeof *o);
     o->job_id = job_id;
     o->eval = e;
-    e->pins++;
+    e->live->pins++; /* a dispatched evaluation: it has its live part */
     s_orphan_t *prev = broker_table_put(self->orphans, &o->job_id, sizeof o->job_id, o);
     if (prev) { /* job ids are unique; kept safe all the same */
-        prev->eval->pins--;
+        prev->eval->live->pins--;
         broker_evals_settle(self, prev->eval);
     }
     free(prev);
@@ -381,8 +392,8 @@ broker_eval_t *broker_evals_orphan_take(broker_evals_t *self, uint64_t job_id)
         return NULL;
     broker_eval_t *e = o->eval;
     free(o);
-    assert(e->pins > 0);
-    e->pins--;
+    assert(e->live && e->live->pins > 0); /* pinned: its live part stays */
+    e->live->pins--;
     return e;
 }
 
@@ -407,7 +418,13 @@ void broker_eval_set_result(broker_evals_t *self, broker_eval_t *e, uint32_t sta
     if (error && *error)
         e->error = common_xstrdup(error);
     e->status = (uint8_t)status;
-    e->prov = prov ? *prov : (broker_provenance_t){.worker = "", .host = ""};
+    e->worker = prov ? prov->worker : "";
+    e->host = prov ? prov->host : "";
+    e->cpu_seconds = prov ? prov->cpu_seconds : 0;
+    e->peak_rss_kb = prov ? (uint32_t)(prov->peak_rss_kb < UINT32_MAX ? prov->peak_rss_kb
+                                                                       : UINT32_MAX)
+                          : 0;
+    e->finished_at = prov ? prov->finished_at : 0;
     e->state = BROKER_EVAL_DONE;
     e->prev = e->next = NULL;
     self->n_done++;
@@ -422,7 +439,8 @@ int broker_eval_check(const broker_evals_t *self, const broker_eval_t *e)
         return 0; /* only a settled cached result has none */
     if (e->fresh) {
         /* Not in by_key; linked from its origin exactly while in flight. */
-        if (e->state != BROKER_EVAL_DONE && (!live->origin || live->origin->again != e))
+        if (e->state != BROKER_EVAL_DONE &&
+            (!live->origin || broker_eval_again(live->origin) != e))
             return 0;
         if (e->state == BROKER_EVAL_DONE && live->origin)
             return 0;
@@ -441,7 +459,7 @@ int broker_eval_check(const broker_evals_t *self, const broker_eval_t *e)
                live->worker != NULL && live->n_waiters >= 1;
     case BROKER_EVAL_DONE:
         return (!live || (live->job_id == 0 && live->worker == NULL && live->n_waiters == 0)) &&
-               (!e->in_lru || (!e->fresh && e->pins == 0 && e->again == NULL && !live));
+               (!e->in_lru || (!e->fresh && !live)); /* a settled one has none */
     default:
         return 0;
     }

@@ -86,6 +86,9 @@ typedef struct broker_eval_live {
     uint64_t avoid_worker; /* serial of the worker it last crashed on, 0 = none */
     uint64_t qseq;         /* enqueue order: oldest-first across plugin queues */
     uint32_t timeout_ms;   /* per evaluation, sent with the job; 0 = the worker's default */
+    uint32_t pins; /* orphan records pointing here: not evictable, not freed */
+    uint32_t n_waiters, cap_more;
+    uint32_t genome_len;
     uint16_t attempts;/* dispatches that ended CRASHED or TIMEOUT */
     uint16_t lost;    /* dispatches lost with a worker that vanished (re-queued; no cap) */
     uint16_t max_attempts; /* from the submitting run's SUBMIT; 0 = the broker's --attempts */
@@ -96,36 +99,36 @@ typedef struct broker_eval_live {
     struct broker_worker *worker;
     struct broker_eval *origin; /* fresh evaluation: the cached one, NULL once DONE */
     struct broker_eval *fresh_next, *fresh_prev; /* every fresh evaluation in RAM, for fini */
+    struct broker_eval *again;  /* cached evaluation: its fresh one in flight, or NULL */
     /* waiters: the first inline (the common case), the rest in more[] */
     broker_waiter_t w0;
     broker_waiter_t *more;
-    uint32_t n_waiters, cap_more;
     /* Copied in and owned while QUEUED or RUNNING (dispatch and straggler
      * copies send it); freed, NULL and 0, once DONE: a finished evaluation
      * answers by key, the store keeps the genome, and a re-evaluation takes
      * it from the request that asks for one. */
-    uint32_t genome_len;
     uint8_t *genome;
 } broker_eval_live_t;
 
-/* One evaluation. What a cached result needs is here, laid out in 152
- * bytes (a 160-byte allocation): one objective's fitness inline, more on
- * the heap, and everything else in live, which a settled DONE evaluation
- * no longer has (NULL). */
+/* One evaluation. What a cached result needs is here, in 136 bytes (a
+ * 144-byte allocation): one objective's fitness inline, more on the heap,
+ * the provenance's fields spelled out (broker_eval_provenance gathers
+ * them), and everything else in live. A DONE evaluation has a live part
+ * only while something still points at it (waiters, orphan records' pins,
+ * an in-flight re-evaluation); a settled one in the LRU list has none. */
 typedef struct broker_eval {
     uint8_t key[PROTO_KEY_BYTES];
     uint8_t state;     /* broker_eval_state_t */
     uint8_t status;    /* proto_status_t once DONE */
     uint8_t n_fitness; /* <= PROTO_MAX_OBJECTIVES */
     uint8_t fresh : 1; /* a re-evaluation for no-cache requests, not in by_key */
-    uint8_t in_lru : 1;/* DONE, unpinned, in the LRU list through prev/next */
-    uint32_t pins; /* orphan records pointing here: not evictable, not freed */
+    uint8_t in_lru : 1;/* DONE, in the LRU list through prev/next (live is NULL) */
+    uint32_t peak_rss_kb; /* the result's; saturates at 4 TiB */
     uint64_t seed;
     broker_plugin_t *plugin; /* borrowed from the catalog */
     const char *params;      /* borrowed, interned (broker_intern) */
     struct broker_eval *prev, *next; /* run queue when QUEUED, worker list when RUNNING, LRU when DONE */
-    struct broker_eval *again;  /* cached evaluation: its fresh one in flight, or NULL */
-    broker_eval_live_t *live;   /* until answered and settled; NULL after */
+    broker_eval_live_t *live;   /* see above; NULL once settled */
     union {
         double one;    /* n_fitness == 1 */
         double *many;  /* n_fitness > 1, owned */
@@ -135,7 +138,10 @@ typedef struct broker_eval {
         uint32_t timeout_ms;
     } fit;             /* read through broker_eval_fitness */
     char *error; /* NULL = "" */
-    broker_provenance_t prov;
+    /* provenance of the result (broker_provenance_t's fields) */
+    const char *worker, *host;
+    double cpu_seconds;
+    double finished_at;
 } broker_eval_t;
 
 /* What a queued evaluation costs beyond its genome, as the queue caps
@@ -143,12 +149,28 @@ typedef struct broker_eval {
 #define BROKER_EVAL_QUEUED_BYTES (sizeof(broker_eval_t) + sizeof(broker_eval_live_t))
 
 _Static_assert(PROTO_MAX_OBJECTIVES <= UINT8_MAX, "n_fitness is one byte");
-_Static_assert(sizeof(broker_eval_t) <= 152, "a cached result stays in a 160-byte allocation");
+_Static_assert(sizeof(broker_eval_t) <= 136, "a cached result stays in a 144-byte allocation");
 
 /* The result's fitness vector, n_fitness doubles (NULL when there are none). */
 static inline const double *broker_eval_fitness(const broker_eval_t *e)
 {
     return e->n_fitness == 0 ? NULL : e->n_fitness == 1 ? &e->fit.one : e->fit.many;
+}
+
+/* The result's provenance (interned strings, "" when not known). */
+static inline broker_provenance_t broker_eval_provenance(const broker_eval_t *e)
+{
+    return (broker_provenance_t){.worker = e->worker ? e->worker : "",
+                                 .host = e->host ? e->host : "",
+                                 .cpu_seconds = e->cpu_seconds,
+                                 .peak_rss_kb = e->peak_rss_kb,
+                                 .finished_at = e->finished_at};
+}
+
+/* The fresh evaluation in flight for this cached one, or NULL. */
+static inline struct broker_eval *broker_eval_again(const broker_eval_t *e)
+{
+    return e->live ? e->live->again : NULL;
 }
 
 /* The per-evaluation time limit it was sent with (0 = the worker's
@@ -161,16 +183,16 @@ static inline uint32_t broker_eval_time_limit(const broker_eval_t *e)
 }
 
 /* While an evaluation is RUNNING its provenance is not set yet (the result
- * sets all of it): prov.finished_at holds the broker's clock, in ms, at its
+ * sets all of it): finished_at holds the broker's clock, in ms, at its
  * dispatch instead, for the straggler copies (speculate.h), which saves a
  * field in every cached evaluation. */
 static inline void broker_eval_mark_sent(broker_eval_t *e, int64_t now_ms)
 {
-    e->prov.finished_at = (double)now_ms;
+    e->finished_at = (double)now_ms;
 }
 static inline int64_t broker_eval_sent_ms(const broker_eval_t *e)
 {
-    return (int64_t)e->prov.finished_at;
+    return (int64_t)e->finished_at;
 }
 
 typedef struct {

@@ -430,7 +430,7 @@ static int s_push_eval(broker_runs_t *self, broker_run_t *run, uint64_t tag, uin
                            /* copied by s_outbox_push, never written */
                            .fitness = (double *)broker_eval_fitness(e),
                            .error = e->error,
-                           .prov = e->prov};
+                           .prov = broker_eval_provenance(e)};
     memcpy(t.key, e->key, PROTO_KEY_BYTES);
     return s_outbox_push(self, run, &t);
 }

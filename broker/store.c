@@ -616,7 +616,7 @@ static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *
         s_real(self, i, 12, o->cpu_seconds);
         s_u64(self, i, 13, o->peak_rss_kb);
     }
-    s_real(self, i, 14, e->prov.finished_at > 0 ? e->prov.finished_at : s_now());
+    s_real(self, i, 14, e->finished_at > 0 ? e->finished_at : s_now());
     s_text(self, i, 15, e->live->home ? e->live->home->id : "");
     if (which == S_HISTORY)
         s_int(self, i, 16, e->fresh != 0);

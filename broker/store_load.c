@@ -273,7 +273,7 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
         if (!origin || origin->state != BROKER_EVAL_DONE)
             continue;
         uint64_t tag = s_u64(st, 1);
-        broker_eval_t *f = origin->again;
+        broker_eval_t *f = broker_eval_again(origin);
         if (!f) {
             /* The cached origin keeps no genome (evals.h): the store's row. */
             f = broker_evals_new_fresh(&b->evals, origin, sqlite3_column_blob(st, 9),

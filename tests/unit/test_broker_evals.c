@@ -170,6 +170,50 @@ static void test_single_flight_across_runs_and_no_cache(void **state)
     memcpy(&sent, again->live->genome, sizeof sent);
     assert_true(sent == 2.0);
     assert_true(broker_eval_check(&b->evals, again));
+    /* While it runs the cached one has a live part again, pinned by it and
+     * out of the LRU list; its result settles both: the fresh one is freed
+     * and the cached one is a bare cached result once more, still 3.0. */
+    assert_non_null(done->live);
+    assert_ptr_equal(broker_eval_again(done), again);
+    assert_false(done->in_lru);
+    o = s_outcome(again->live->job_id, PROTO_STATUS_OK, 4.0);
+    broker_dispatch_outcome(b, w, &o);
+    assert_null(done->live);
+    assert_true(done->in_lru);
+    assert_true(broker_eval_fitness(done)[0] == 3.0);
+    assert_true(broker_eval_check(&b->evals, done));
+    assert_int_equal(r1->outbox[r1->n_outbox - 1].status, PROTO_STATUS_OK);
+    assert_true(r1->outbox[r1->n_outbox - 1].fitness[0] == 4.0);
+    s_broker_destroy(&b);
+}
+
+/* A cached result's provenance, its one objective inline and a time-out's
+ * limit outlive the live part; two objectives go to the heap. */
+static void test_settled_result_keeps_what_it_answers_with(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker(3);
+    broker_worker_t *w = s_worker(b, "w1", "spin", 0, 8);
+    double g[1] = {9.0};
+    assert_int_equal(s_submit(b, "c1", "r", 5, "spin", g, 1, 1, 0), 0);
+    assert_int_equal(broker_dispatch_turn(b), 1);
+    broker_eval_t *e = w->jobs_head;
+    proto_outcome_t o = s_outcome(e->live->job_id, PROTO_STATUS_OK, 0);
+    double two[2] = {0.25, -8.5};
+    o.fitness = two;
+    o.n_fitness = 2;
+    o.cpu_seconds = 1.5;
+    o.peak_rss_kb = 1ull << 40; /* past 32 bits: saturates */
+    broker_dispatch_outcome(b, w, &o);
+    assert_null(e->live);
+    assert_int_equal(e->n_fitness, 2);
+    assert_true(broker_eval_fitness(e)[0] == 0.25 && broker_eval_fitness(e)[1] == -8.5);
+    broker_provenance_t p = broker_eval_provenance(e);
+    assert_string_equal(p.worker, "w1");
+    assert_true(p.cpu_seconds == 1.5);
+    assert_int_equal(p.peak_rss_kb, UINT32_MAX);
+    assert_true(p.finished_at > 0);
+    assert_true(broker_eval_check(&b->evals, e));
     s_broker_destroy(&b);
 }
 
@@ -426,6 +470,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_usage_example),
         cmocka_unit_test(test_single_flight_across_runs_and_no_cache),
+        cmocka_unit_test(test_settled_result_keeps_what_it_answers_with),
         cmocka_unit_test(test_retry_accounting),
         cmocka_unit_test(test_dropped_worker_requeue_and_late_result),
         cmocka_unit_test(test_round_robin_fairness),
