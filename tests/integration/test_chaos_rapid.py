@@ -61,13 +61,19 @@ with fflib.Pool(broker_args=["--lost-after", "1500"]) as pool:
     def killer():
         marks = [total * (k + 1) // (BROKER_KILLS + 1) for k in range(BROKER_KILLS)]
         serial = 3
+        next_worker_kill = time.time() + rnd.uniform(0.3, 1.0)
         try:
-            while not finished.wait(rnd.uniform(0.3, 1.0)):
-                i = rnd.randrange(len(live))
-                pool.kill(live[i], signal.SIGKILL)
-                stats["worker kills"] += 1
-                live[i] = pool.start_worker(slots=1, name=f"r{serial}")
-                serial += 1
+            # The broker's kills follow the run's progress, polled every
+            # 50 ms, not the workers' clock: a run of two seconds still
+            # passes every mark before it ends.
+            while not finished.wait(0.05):
+                if time.time() >= next_worker_kill:
+                    i = rnd.randrange(len(live))
+                    pool.kill(live[i], signal.SIGKILL)
+                    stats["worker kills"] += 1
+                    live[i] = pool.start_worker(slots=1, name=f"r{serial}")
+                    serial += 1
+                    next_worker_kill = time.time() + rnd.uniform(0.3, 1.0)
                 if marks and fflib.done_in_store(db_path) >= marks[0] // REPS:
                     marks.pop(0)
                     # At once, not waiting for the old process to be gone:
