@@ -31,21 +31,16 @@ Processes started here are ended by PID."""
 import argparse
 import json
 import os
-import signal
 import statistics
 import subprocess
 import sys
 import tempfile
 import time
 
-DIM = 8
+from benchproc import DIM, genomes_jsonl, stop
+
 GENOME_BYTES = DIM * 8
 WARM = 4  # set from --warm
-
-
-def genomes_jsonl(n, base):
-    return "".join("[" + ", ".join(repr(base + i * 1e-3 + d) for d in range(DIM)) + "]\n"
-                   for i in range(n))
 
 
 def rss_bytes(pid):
@@ -54,16 +49,6 @@ def rss_bytes(pid):
             if line.startswith("VmRSS:"):
                 return int(line.split()[1]) * 1024
     raise RuntimeError("no VmRSS line")
-
-
-def stop(proc):
-    if proc.poll() is None:
-        proc.send_signal(signal.SIGTERM)
-    try:
-        proc.wait(timeout=60)
-    except subprocess.TimeoutExpired:
-        proc.kill()
-        proc.wait()
 
 
 def start_broker(build, work):

@@ -28,7 +28,6 @@ import argparse
 import os
 import re
 import shutil
-import signal
 import sqlite3
 import statistics
 import subprocess
@@ -36,12 +35,7 @@ import sys
 import tempfile
 import time
 
-DIM = 8
-
-
-def genomes_jsonl(n, base):
-    return "".join("[" + ", ".join(repr(base + i * 1e-3 + d) for d in range(DIM)) + "]\n"
-                   for i in range(n))
+from benchproc import genomes_jsonl, stop
 
 
 def wait_file(path, proc, what, seconds=600):
@@ -53,16 +47,6 @@ def wait_file(path, proc, what, seconds=600):
             return open(path).read()
         time.sleep(0.002)
     sys.exit(f"bench_restart: {what} did not start")
-
-
-def stop(proc):
-    if proc.poll() is None:
-        proc.send_signal(signal.SIGTERM)
-    try:
-        proc.wait(timeout=60)
-    except subprocess.TimeoutExpired:
-        proc.kill()
-        proc.wait()
 
 
 class Broker:
