@@ -158,6 +158,27 @@ static int s_retry_recorded(const proto_submit_t *s, const broker_eval_t *e)
            (broker_eval_time_limit(e) == 0 || s->timeout_ms > broker_eval_time_limit(e));
 }
 
+/* Request (run, tag of it) joins the re-evaluation of DONE evaluation e:
+ * the one in flight (single flight), else a new fresh one, queued with the
+ * submit's time limit and attempts. Returns it. */
+static broker_eval_t *s_join_fresh(broker_t *b, broker_run_t *run, const proto_submit_t *s,
+                                   broker_eval_t *e, const proto_item_t *it, uint64_t seed)
+{
+    broker_eval_t *f = broker_eval_again(e);
+    if (f) {
+        broker_eval_add_waiter(f, run, it->tag, seed);
+        broker_runs_adopt(&b->runs, run, f);
+        return f;
+    }
+    f = broker_evals_new_fresh(&b->evals, e, it->genome, it->genome_len);
+    broker_quota_charge(b, run, f);
+    f->live->timeout_ms = s->timeout_ms;
+    f->live->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
+    broker_eval_add_waiter(f, run, it->tag, seed);
+    broker_runs_enqueue(&b->runs, run, f, 0);
+    return f;
+}
+
 /* 0 when the store certainly records no request tag of run (runs.h,
  * tags_end): a new tag past the run's last needs no lookup. */
 static int s_tag_may_be_recorded(broker_t *b, broker_run_t *run, uint64_t tag)
@@ -521,7 +542,8 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         const proto_item_t *it = &s->items[i];
         broker_eval_t *e = broker_cache_lookup(b, keys[i]); /* RAM, else the store */
         if (recorded[i] && e) {
-            if (broker_eval_again(e) && s_waits(broker_eval_again(e), run, it->tag)) {
+            broker_eval_t *again = broker_eval_again(e);
+            if (again && s_waits(again, run, it->tag)) {
                 continue; /* a no-cache request still waiting on its re-evaluation */
             } else if (recorded[i] == 3 && e->state == BROKER_EVAL_DONE) {
                 s_redeliver_fresh(b, run, it->tag, seeds[i], e);
@@ -532,18 +554,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
                  * the request (and the run's replay) reads that result. */
                 broker_store_note_request_fresh(b->store, run, it->tag);
                 broker_run_count_request(run);
-                if (!broker_eval_again(e)) {
-                    broker_eval_t *f = broker_evals_new_fresh(&b->evals, e, it->genome, it->genome_len);
-                    broker_quota_charge(b, run, f);
-                    f->live->timeout_ms = s->timeout_ms;
-                    f->live->max_attempts =
-                        (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
-                    broker_eval_add_waiter(f, run, it->tag, seeds[i]);
-                    broker_runs_enqueue(&b->runs, run, f, 0);
-                } else {
-                    broker_eval_add_waiter(broker_eval_again(e), run, it->tag, seeds[i]);
-                    broker_runs_adopt(&b->runs, run, broker_eval_again(e));
-                }
+                s_join_fresh(b, run, s, e, it, seeds[i]);
             } else if (e->state == BROKER_EVAL_DONE) {
                 s_redeliver(b, run, it->tag, seeds[i], e, recorded[i] == 2);
             } else if (!s_waits(e, run, it->tag)) {
@@ -579,18 +590,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         } else if (e->state == BROKER_EVAL_DONE) {
             /* No-cache: evaluate again, keeping the cached result (evals.h,
              * "Re-evaluations"); no-cache requests for the key share one. */
-            if (!broker_eval_again(e)) {
-                broker_eval_t *f = broker_evals_new_fresh(&b->evals, e, it->genome, it->genome_len);
-                broker_quota_charge(b, run, f);
-                f->live->timeout_ms = s->timeout_ms;
-                f->live->max_attempts = (uint16_t)(s->attempts > UINT16_MAX ? UINT16_MAX : s->attempts);
-                broker_eval_add_waiter(f, run, it->tag, seeds[i]);
-                broker_runs_enqueue(&b->runs, run, f, 0);
-            } else {
-                broker_eval_add_waiter(broker_eval_again(e), run, it->tag, seeds[i]);
-                broker_runs_adopt(&b->runs, run, broker_eval_again(e));
-            }
-            e = broker_eval_again(e);
+            e = s_join_fresh(b, run, s, e, it, seeds[i]);
         } else {
             broker_eval_add_waiter(e, run, it->tag, seeds[i]); /* single flight */
             broker_runs_adopt(&b->runs, run, e);

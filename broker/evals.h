@@ -76,11 +76,14 @@ typedef struct {
     double finished_at; /* Unix time the broker recorded the result */
 } broker_provenance_t;
 
-/* What an evaluation needs only until it is answered: its dispatch, its
- * waiters, its genome and its retry accounting. Allocated with the
- * evaluation and freed when a DONE one settles (broker_evals_settle), so
- * the result cache's entries are the small broker_eval_t alone. A fresh
- * evaluation keeps its own until it is freed. */
+/* What an evaluation needs only while it is a job or something points at
+ * it: its dispatch, waiters, genome, retry accounting, the orphan records'
+ * pins and an in-flight re-evaluation (again). Allocated with the
+ * evaluation and freed when a DONE one settles with none of those left
+ * (broker_evals_settle), so the result cache's entries are the small
+ * broker_eval_t alone; a re-evaluation gives a settled one an empty live
+ * part again for its again link. A fresh evaluation keeps its own until
+ * it is freed. */
 typedef struct broker_eval_live {
     uint64_t job_id;  /* current dispatch; 0 when not RUNNING */
     uint64_t avoid_worker; /* serial of the worker it last crashed on, 0 = none */
