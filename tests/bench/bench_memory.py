@@ -40,7 +40,6 @@ import time
 from benchproc import DIM, genomes_jsonl, stop
 
 GENOME_BYTES = DIM * 8
-WARM = 4  # set from --warm
 
 
 def rss_bytes(pid):
@@ -87,7 +86,7 @@ def start_workers(build, workers, n):
         stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL) for _ in range(n)]
 
 
-def measure_cached(build, rounds, per_round):
+def measure_cached(build, rounds, per_round, warm):
     work = tempfile.mkdtemp(prefix="fitfarm-bench-mem-")
     broker, clients, workers = start_broker(build, work)
     wprocs = start_workers(build, workers, 2)
@@ -111,7 +110,7 @@ def measure_cached(build, rounds, per_round):
             stop(w)
         stop(broker)
         subprocess.run(["rm", "-rf", work], check=False)
-    return slope(points[WARM:])
+    return slope(points[warm:])
 
 
 def status(build, clients):
@@ -136,7 +135,7 @@ def queued_count(build, clients):
     return sum(run["queued"] + run["running"] for run in view["runs"]) if view else -1
 
 
-def measure_queued(build, rounds, per_round):
+def measure_queued(build, rounds, per_round, warm):
     work = tempfile.mkdtemp(prefix="fitfarm-bench-mem-")
     broker, clients, workers = start_broker(build, work)
     wprocs = start_workers(build, workers, 1)
@@ -170,7 +169,7 @@ def measure_queued(build, rounds, per_round):
             stop(w)
         stop(broker)
         subprocess.run(["rm", "-rf", work], check=False)
-    return slope(points[WARM:])
+    return slope(points[warm:])
 
 
 def main():
@@ -183,14 +182,12 @@ def main():
     a = ap.parse_args()
     if a.warm < 0 or a.rounds < a.warm + 2 or a.per_round < 1:
         sys.exit("bench_memory: --rounds must be at least --warm + 2, --per-round at least 1")
-    global WARM
-    WARM = a.warm
     if a.only != "queued":
-        cached = measure_cached(a.build, a.rounds, a.per_round)
+        cached = measure_cached(a.build, a.rounds, a.per_round, a.warm)
         print(f"broker_bytes_per_cached_result: {cached:.0f} bytes (the fitness: 8 bytes)",
               flush=True)
     if a.only != "cached":
-        queued = measure_queued(a.build, a.rounds, a.per_round)
+        queued = measure_queued(a.build, a.rounds, a.per_round, a.warm)
         print(f"broker_bytes_per_queued_job_beyond_genome: {queued - GENOME_BYTES:.0f} bytes "
               f"(genome {GENOME_BYTES} bytes)")
 
