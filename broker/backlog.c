@@ -1,8 +1,8 @@
 /* backlog.c: paging results owed to clients back from the store (see
  * backlog.h). Owns one prepared statement on the store's connection; it
- * reads through the partial index requests_unacked (store.c's schema), so a
- * sweep reads only unacknowledged requests however long the run. Owns no
- * results: they go to runs.c as copies. */
+ * reads a run's requests from its acknowledgement mark on (runs.acked_below,
+ * store.c), so a sweep never reads the acknowledged past however long the
+ * run. Owns no results: they go to runs.c as copies. */
 #include "backlog.h"
 
 #include <inttypes.h>
@@ -26,10 +26,12 @@ static const char s_page_sql[] =
     " CASE WHEN r.fresh THEN x.cpu_seconds ELSE e.cpu_seconds END,"
     " CASE WHEN r.fresh THEN x.peak_rss_kb ELSE e.peak_rss_kb END,"
     " CASE WHEN r.fresh THEN x.finished_at ELSE e.finished_at END"
-    " FROM requests r INDEXED BY requests_unacked JOIN evaluations e ON e.key = r.key"
+    " FROM requests r JOIN evaluations e ON e.key = r.key"
     " LEFT JOIN results x ON r.fresh = 1 AND x.rowid = (SELECT max(rowid) FROM results y"
     "  WHERE y.run_id = r.run_id AND y.key = r.key AND y.fresh = 1)"
-    " WHERE r.run_id = ?1 AND r.acked = 0 AND r.tag >= ?2 AND r.tag <= ?3"
+    " WHERE r.run_id = ?1 AND r.acked = 0"
+    " AND r.tag >= max(?2, coalesce((SELECT acked_below FROM runs WHERE run_id = ?1), 0))"
+    " AND r.tag <= ?3"
     " ORDER BY r.tag LIMIT ?4";
 
 static uint32_t s_fitness(sqlite3_stmt *st, int col, double *fit)
@@ -57,7 +59,8 @@ int broker_backlog_load(broker_t *b)
     }
     sqlite3_stmt *st = NULL;
     if (sqlite3_prepare_v2(db,
-                           "SELECT DISTINCT r.run_id FROM requests r INDEXED BY requests_unacked"
+                           "SELECT DISTINCT u.run_id FROM runs u CROSS JOIN requests r"
+                           " ON r.run_id = u.run_id AND r.tag >= u.acked_below"
                            " JOIN evaluations e ON e.key = r.key"
                            " WHERE r.acked = 0 AND (e.status IS NOT NULL OR r.fresh = 1)",
                            -1, &st, NULL) != SQLITE_OK) {

@@ -190,11 +190,17 @@ static int s_tag_may_be_recorded(broker_t *b, broker_run_t *run, uint64_t tag)
     return run->tags_end == UINT64_MAX || tag < run->tags_end;
 }
 
-/* Request tag of run was just noted in the store. */
-static void s_tag_recorded(broker_run_t *run, uint64_t tag)
+/* Notes a new request (run, tag) in the store. A tag below the run's last
+ * recorded one fills a gap, which may lie below the run's acknowledgement
+ * mark (store.c): the mark comes down first so the request is owed. */
+static void s_note_request(broker_t *b, broker_run_t *run, const proto_submit_t *s,
+                           const proto_item_t *it, const broker_eval_t *e, int cached)
 {
-    if (run->tags_known && tag >= run->tags_end)
-        run->tags_end = tag == UINT64_MAX ? UINT64_MAX : tag + 1;
+    if (!run->tags_known || run->tags_end == UINT64_MAX || it->tag < run->tags_end)
+        broker_store_note_request_below(b->store, run, it->tag);
+    broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, cached);
+    if (run->tags_known && it->tag >= run->tags_end)
+        run->tags_end = it->tag == UINT64_MAX ? UINT64_MAX : it->tag + 1;
 }
 
 /* 1 when request (run, tag) already waits on e. */
@@ -402,6 +408,13 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         goto cleanup;
     }
     for (uint32_t i = 0; i < s->n_items; i++) {
+        if (s->items[i].tag > BROKER_TAG_MAX) {
+            snprintf(text, sizeof text, "item %u: request tag %" PRIu64 ", limit %" PRIu64, i,
+                     s->items[i].tag, BROKER_TAG_MAX);
+            rc = PROTO_REFUSE_BAD_MESSAGE;
+            s_refuse_item(b, rid, rid_len, rc, s->batch_tag, s->run_id, &s->items[i], text);
+            goto cleanup;
+        }
         if (s->items[i].replicate >= PROTO_MAX_REPLICATES) {
             snprintf(text, sizeof text, "item %u: replicate %u, limit %u", i,
                      s->items[i].replicate, PROTO_MAX_REPLICATES);
@@ -573,8 +586,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
         int transient = e && e->state == BROKER_EVAL_DONE &&
                         (e->status == PROTO_STATUS_CRASHED || e->status == PROTO_STATUS_TIMEOUT);
         if (e && e->state == BROKER_EVAL_DONE && !no_cache && !transient) {
-            broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, 1);
-            s_tag_recorded(run, it->tag);
+            s_note_request(b, run, s, it, e, 1);
             broker_runs_answer(&b->runs, run, it->tag, seeds[i], e, 1);
             continue;
         }
@@ -595,8 +607,7 @@ int broker_client_submit(broker_t *b, const uint8_t *rid, size_t rid_len, const 
             broker_eval_add_waiter(e, run, it->tag, seeds[i]); /* single flight */
             broker_runs_adopt(&b->runs, run, e);
         }
-        broker_store_note_request(b->store, run, it->tag, s->batch_tag, it->replicate, e, 0);
-        s_tag_recorded(run, it->tag);
+        s_note_request(b, run, s, it, e, 0);
         assert(broker_eval_check(&b->evals, e));
     }
     broker_runs_take_end(&b->runs, run);

@@ -80,8 +80,10 @@ enum {
     S_TAG_END,
     S_FIND_FRESH,
     S_RESULT,
-    S_ACK,
-    S_ACK_RANGE,
+    S_ACK_MARK,
+    S_ACK_ROWS,
+    S_LOWER_ROWS,
+    S_LOWER_MARK,
     S_UNACK,
     S_PLUGIN,
     S_FIND_RUN,
@@ -114,9 +116,35 @@ static const char *const s_sql[S_COUNT_] = {
                  " fitness_json = ?5, error = ?6, attempts = ?7, worker = ?8, host = ?9,"
                  " arch = ?10, digest = ?11, cpu_seconds = ?12, peak_rss_kb = ?13,"
                  " finished_at = ?14, run_id = ?15 WHERE key = ?1",
-    [S_ACK] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag = ?2",
-    [S_ACK_RANGE] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag BETWEEN ?2 AND ?3",
-    [S_UNACK] = "UPDATE requests SET acked = 0 WHERE run_id = ?1 AND tag = ?2 AND acked = 1",
+    /* Acknowledgements. A request is acknowledged when its tag is below
+     * runs.acked_below or its acked is 1, so tags first..last (?2..?3) are
+     * acknowledged in two steps. S_ACK_MARK: when no request from the mark
+     * up to the range is owed, the mark moves past the range and past every
+     * later request already acked = 1, to the run's next request owed, or
+     * one past its last. Both are reads that stop at the first owed row, and
+     * the mark stands on one (or past the end): a request acknowledged out
+     * of order is passed once. S_ACK_ROWS: what is still above the mark
+     * (tags acknowledged before one below them) gets acked = 1. A
+     * generation's answers, acknowledged in order, thus write one runs row
+     * instead of a row per request. Tags are at most BROKER_TAG_MAX. */
+    [S_ACK_MARK] = "UPDATE runs SET acked_below = max(?3 + 1, coalesce((SELECT tag FROM requests"
+                   " WHERE run_id = ?1 AND tag > ?3 AND acked = 0 ORDER BY tag LIMIT 1),"
+                   " (SELECT max(tag) + 1 FROM requests WHERE run_id = ?1), 0))"
+                   " WHERE run_id = ?1 AND acked_below <= ?3 + 1 AND NOT EXISTS (SELECT 1"
+                   " FROM requests WHERE run_id = ?1 AND tag >= runs.acked_below AND tag < ?2"
+                   " AND acked = 0)",
+    [S_ACK_ROWS] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag BETWEEN"
+                   " max(?2, coalesce((SELECT acked_below FROM runs WHERE run_id = ?1), 0))"
+                   " AND ?3",
+    /* A request at tag ?2 is to be owed while the mark is above it: the
+     * requests between it and the mark, acknowledged by the mark alone, get
+     * acked = 1 (S_LOWER_ROWS), then the mark comes down to ?2 (S_LOWER_MARK).
+     * Rare (a re-sent request past the delivery cap, a retry on resume, a
+     * gap filled below a run's last tag), and each row is written once. */
+    [S_LOWER_ROWS] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag > ?2"
+                     " AND tag < (SELECT acked_below FROM runs WHERE run_id = ?1) AND acked = 0",
+    [S_LOWER_MARK] = "UPDATE runs SET acked_below = ?2 WHERE run_id = ?1 AND acked_below > ?2",
+    [S_UNACK] = "UPDATE requests SET acked = 0 WHERE run_id = ?1 AND tag = ?2",
     /* first_seen is written once: it orders a name's versions (catalog.h). */
     [S_PLUGIN] = "INSERT INTO plugins(name, version, objectives, flags, digests, last_seen,"
                  " seed_params, param_defaults, first_seen)"
@@ -360,7 +388,7 @@ static int s_begin(broker_store_t *self, const char *sql_begin, sqlite3_stmt *st
 /* Starts op `which` in the log; the caller fills its values and calls s_write. */
 static size_t s_op(broker_store_t *self, int which)
 {
-    if (which != S_ACK && which != S_ACK_RANGE) {
+    if (which != S_ACK_MARK && which != S_ACK_ROWS) {
         if (self->log_must++ == 0)
             self->must_since_us = common_clock_us();
     }
@@ -626,18 +654,42 @@ static void s_bind_result(broker_store_t *self, int which, const broker_eval_t *
 void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64_t first,
                            uint64_t last)
 {
-    /* One statement for a generation's acknowledgements, which come as one
-     * range of tags, rather than one per tag. */
-    size_t i = s_op(self, first == last ? S_ACK : S_ACK_RANGE);
+    /* Two statements for a generation's acknowledgements, which come as one
+     * range of tags, rather than one per tag (S_ACK_MARK says how). */
+    size_t i = s_op(self, S_ACK_MARK);
     s_text(self, i, 1, run->id);
     s_u64(self, i, 2, first);
-    if (first != last)
-        s_u64(self, i, 3, last);
+    s_u64(self, i, 3, last);
     s_write(self, i);
+    i = s_op(self, S_ACK_ROWS);
+    s_text(self, i, 1, run->id);
+    s_u64(self, i, 2, first);
+    s_u64(self, i, 3, last);
+    s_write(self, i);
+}
+
+/* Request tag of run is to be owed: the run's mark comes down to it. */
+static void s_lower_mark(broker_store_t *self, const broker_run_t *run, uint64_t tag)
+{
+    size_t i = s_op(self, S_LOWER_ROWS);
+    s_text(self, i, 1, run->id);
+    s_u64(self, i, 2, tag);
+    s_write(self, i);
+    i = s_op(self, S_LOWER_MARK);
+    s_text(self, i, 1, run->id);
+    s_u64(self, i, 2, tag);
+    s_write(self, i);
+}
+
+void broker_store_note_request_below(broker_store_t *self, const broker_run_t *run,
+                                     uint64_t tag)
+{
+    s_lower_mark(self, run, tag);
 }
 
 void broker_store_note_request_fresh(broker_store_t *self, const broker_run_t *run, uint64_t tag)
 {
+    s_lower_mark(self, run, tag);
     size_t i = s_op(self, S_REFRESH);
     s_text(self, i, 1, run->id);
     s_u64(self, i, 2, tag);
@@ -646,6 +698,7 @@ void broker_store_note_request_fresh(broker_store_t *self, const broker_run_t *r
 
 void broker_store_note_unack(broker_store_t *self, const broker_run_t *run, uint64_t tag)
 {
+    s_lower_mark(self, run, tag);
     size_t i = s_op(self, S_UNACK);
     s_text(self, i, 1, run->id);
     s_u64(self, i, 2, tag);

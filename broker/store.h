@@ -6,7 +6,8 @@
  *     holds the ACCEPTED reply until the turn's commit;
  *   - broker_dispatch_outcome notes each final result (status, fitness, error,
  *     attempts, which worker, CPU seconds, peak memory);
- *   - an ACK marks its requests acked (nothing is ever deleted);
+ *   - an ACK marks its requests acknowledged (nothing is ever deleted):
+ *     mostly by moving its run's mark (runs.acked_below, store.c);
  *   - HELLO notes each plugin (so a restarted broker knows the catalog before
  *     any worker is back);
  *   - the loop's before-sleep step calls broker_store_commit once per turn,
@@ -32,6 +33,10 @@
 
 typedef struct broker_store broker_store_t;
 struct broker;
+
+/* The largest request tag the broker takes: the store keeps tags as SQLite
+ * integers (signed 64 bits) and orders them, and one past a tag must fit. */
+#define BROKER_TAG_MAX ((uint64_t)INT64_MAX - 1)
 
 /* Opens (creating if needed) DIR/fitfarm.db (an error SQLite reports as
  * damage refuses it with how to recover; the whole file is checked later,
@@ -85,6 +90,11 @@ void broker_store_note_result(broker_store_t *self, const broker_eval_t *e,
 /* Request tags first..last of run (each owed until now) were acknowledged. */
 void broker_store_note_ack(broker_store_t *self, const broker_run_t *run, uint64_t first,
                            uint64_t last);
+/* A new request of run is about to be noted at a tag below the run's last
+ * recorded one (a gap the client fills): the run's acknowledgement mark
+ * comes down to it first, so the store records it as owed. */
+void broker_store_note_request_below(broker_store_t *self, const broker_run_t *run,
+                                     uint64_t tag);
 /* A recorded request is answered again by a re-evaluation of its own (a
  * crash or time-out retried on resume): it now reads its run's latest
  * re-evaluation, as a no-cache request does, and is owed again. */

@@ -138,8 +138,9 @@ static int s_load_runs(broker_t *b, sqlite3 *db, uint32_t *n)
     /* Only runs with a request not acknowledged (waiting, or answered and
      * owed): the others come back from the store on their next SUBMIT (quota.h). */
     if (sqlite3_prepare_v2(db,
-                           "SELECT run_id, seed, seed_mode, owner FROM runs WHERE run_id IN"
-                           " (SELECT DISTINCT run_id FROM requests WHERE acked = 0)",
+                           "SELECT u.run_id, u.seed, u.seed_mode, u.owner FROM runs u"
+                           " WHERE EXISTS (SELECT 1 FROM requests r WHERE r.run_id = u.run_id"
+                           " AND r.tag >= u.acked_below AND r.acked = 0)",
                            -1, &st, NULL) != SQLITE_OK)
         return s_fail(db, "runs");
     int rc;
@@ -209,7 +210,8 @@ static int s_load_requests(broker_t *b, sqlite3 *db, uint64_t *pending)
     if (sqlite3_prepare_v2(db,
                            "SELECT r.run_id, r.tag, r.cached, r.acked, e.key, e.plugin, e.params,"
                            " e.genome, e.seed, e.timeout_ms, e.max_attempts, r.replicate, e.version"
-                           " FROM requests r INDEXED BY requests_unacked"
+                           " FROM runs u CROSS JOIN requests r"
+                           " ON r.run_id = u.run_id AND r.tag >= u.acked_below"
                            " JOIN evaluations e ON e.key = r.key"
                            " WHERE r.acked = 0 AND r.fresh = 0 AND e.status IS NULL"
                            " ORDER BY r.created",
@@ -253,7 +255,9 @@ static int s_load_fresh(broker_t *b, sqlite3 *db, uint64_t *pending)
     sqlite3_stmt *st = NULL;
     if (sqlite3_prepare_v2(db,
                            "SELECT r.run_id, r.tag, r.key, x.status, x.fitness, x.error,"
-                           " e.timeout_ms, e.max_attempts, r.replicate, e.genome FROM requests r"
+                           " e.timeout_ms, e.max_attempts, r.replicate, e.genome"
+                           " FROM runs u CROSS JOIN requests r"
+                           " ON r.run_id = u.run_id AND r.tag >= u.acked_below"
                            " JOIN evaluations e ON e.key = r.key"
                            " LEFT JOIN results x ON x.rowid = (SELECT max(rowid) FROM results y"
                            "  WHERE y.run_id = r.run_id AND y.key = r.key AND y.fresh = 1)"

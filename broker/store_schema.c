@@ -21,7 +21,8 @@ static const char s_schema[] =
     "CREATE TABLE IF NOT EXISTS meta(name TEXT PRIMARY KEY, value TEXT NOT NULL);"
     "CREATE TABLE IF NOT EXISTS runs("
     " run_id TEXT PRIMARY KEY, seed INTEGER NOT NULL, seed_mode INTEGER NOT NULL,"
-    " created REAL NOT NULL, last_activity REAL NOT NULL, owner TEXT);"
+    " created REAL NOT NULL, last_activity REAL NOT NULL, owner TEXT,"
+    " acked_below INTEGER NOT NULL DEFAULT 0);"
     "CREATE TABLE IF NOT EXISTS evaluations("
     " key BLOB PRIMARY KEY, plugin TEXT NOT NULL, version TEXT NOT NULL,"
     " params TEXT NOT NULL, genome BLOB NOT NULL, seed INTEGER NOT NULL,"
@@ -35,13 +36,14 @@ static const char s_schema[] =
     " acked INTEGER NOT NULL DEFAULT 0, created REAL NOT NULL,"
     " fresh INTEGER NOT NULL DEFAULT 0,"
     " PRIMARY KEY(run_id, tag)) WITHOUT ROWID;"
-    /* Requests not yet acknowledged (a partial index stays as small as the
-     * work in flight and the results owed): the start finds pending work
-     * and owed results through it (store_load.c, backlog.c), never by a
-     * pass over every request ever made. Schema 2 dropped requests_by_key
-     * (on key): its only reader was that pass, and with random keys it
-     * cost a random b-tree insert and about 69 bytes per request. */
-    "CREATE INDEX IF NOT EXISTS requests_unacked ON requests(run_id, tag) WHERE acked = 0;"
+    /* A request is acknowledged when its tag is below its run's
+     * runs.acked_below or its acked is 1 (store.c, "Acknowledgements"): the
+     * start finds pending work and owed results by reading each run's
+     * requests from acked_below on, never by a pass over every request ever
+     * made. Schema 2 dropped requests_by_key (on key): its only reader was
+     * that pass, and with random keys it cost a random b-tree insert and
+     * about 69 bytes per request. Schema 4 dropped requests_unacked (see
+     * s_migrate_acked). */
     "DROP INDEX IF EXISTS requests_by_key;"
     "CREATE TABLE IF NOT EXISTS results("
     " key BLOB NOT NULL, run_id TEXT NOT NULL, fresh INTEGER NOT NULL,"
@@ -63,6 +65,14 @@ static const char s_simulations_view[] =
     " UNION ALL SELECT key, run_id, 1 AS fresh, status, status_name, fitness, fitness_json,"
     " error, attempts, worker, host, arch, digest, cpu_seconds, peak_rss_kb, finished_at"
     " FROM results";
+
+/* Requests not acknowledged by their client (answered and owed, or not yet
+ * answered): acked = 0 and at or above their run's mark (store.c,
+ * "Acknowledgements"). For readers of the file; the broker's own queries
+ * spell the same condition out. Made after s_migrate_acked. */
+static const char s_owed_view[] =
+    "CREATE VIEW IF NOT EXISTS requests_owed AS SELECT r.* FROM runs u CROSS JOIN requests r"
+    " ON r.run_id = u.run_id AND r.tag >= u.acked_below WHERE r.acked = 0";
 
 /* SQLite's word for a file that is not a sound database. */
 int broker_store_is_damage(int rc)
@@ -150,9 +160,66 @@ static int s_migrate_versions(sqlite3 *db, const char *path)
     return 0;
 }
 
+/* Schema 3 stores marked every acknowledged request acked = 1 and found the
+ * rest through the partial index requests_unacked (acked = 0), so each
+ * request cost an index entry and each acknowledgement a row write and an
+ * index delete. Schema 4 keeps, per run, the tag below which every request
+ * is acknowledged (runs.acked_below). Sets it for each run from the index
+ * (the run's first unacknowledged tag, else one past its last), drops the
+ * index and sets schema_version 4, in one transaction, once per store. Reads
+ * one index entry per run: milliseconds even for millions of requests. */
+static int s_migrate_acked(sqlite3 *db, const char *path)
+{
+    if (sqlite3_exec(db, "SELECT acked_below FROM runs LIMIT 0", NULL, NULL, NULL) == SQLITE_OK)
+        return 0;
+    int64_t t0 = common_clock_ms();
+    if (broker_store_exec(db, path, "BEGIN IMMEDIATE") != 0 ||
+        broker_store_exec(db, path, "ALTER TABLE runs ADD COLUMN acked_below INTEGER NOT NULL"
+                     " DEFAULT 0") != 0 ||
+        broker_store_exec(db, path, "UPDATE runs SET acked_below = coalesce("
+                     "(SELECT min(r.tag) FROM requests r WHERE r.run_id = runs.run_id"
+                     " AND r.acked = 0),"
+                     " (SELECT max(r.tag) + 1 FROM requests r WHERE r.run_id = runs.run_id), 0)") != 0 ||
+        broker_store_exec(db, path, "DROP INDEX IF EXISTS requests_unacked") != 0 ||
+        broker_store_exec(db, path, "UPDATE meta SET value = '4' WHERE name = 'schema_version'") != 0 ||
+        broker_store_exec(db, path, "COMMIT") != 0) {
+        if (!sqlite3_get_autocommit(db))
+            sqlite3_exec(db, "ROLLBACK", NULL, NULL, NULL);
+        LOG_ERROR("store %s: cannot move it to schema 4 (nothing changed: the transaction "
+                  "rolled back)",
+                  path);
+        return -1;
+    }
+    LOG_INFO("store %s moved to schema 4 in %.1f s: each run records the tag below which its "
+             "requests are acknowledged (runs.acked_below); a broker older than this one must "
+             "not open the store again",
+             path, (double)(common_clock_ms() - t0) / 1000.0);
+    return 0;
+}
+
+/* A store a newer broker moved past this one's schema: its rows may mean
+ * what this broker cannot read (schema 4's acknowledgements, for one). */
+static int s_refuse_newer(sqlite3 *db, const char *path)
+{
+    sqlite3_stmt *st = NULL;
+    int version = 0;
+    if (sqlite3_prepare_v2(db, "SELECT value FROM meta WHERE name = 'schema_version'", -1, &st,
+                           NULL) == SQLITE_OK &&
+        sqlite3_step(st) == SQLITE_ROW)
+        version = sqlite3_column_int(st, 0);
+    sqlite3_finalize(st);
+    if (version > STORE_SCHEMA_VERSION) {
+        LOG_ERROR("store %s has schema %d, made by a newer fitfarm-broker; this one reads "
+                  "schema %d and older. Start the newer broker on it (nothing was changed)",
+                  path, version, STORE_SCHEMA_VERSION);
+        return -1;
+    }
+    return 0;
+}
+
 int broker_store_schema_apply(sqlite3 *db, const char *path)
 {
-    if (broker_store_exec(db, path, s_schema) != 0 ||
+    if (s_refuse_newer(db, path) != 0 || broker_store_exec(db, path, s_schema) != 0 ||
         broker_store_exec(db, path, "BEGIN IMMEDIATE") != 0)
         return -1;
     char sql[128];
@@ -183,7 +250,9 @@ int broker_store_schema_apply(sqlite3 *db, const char *path)
         broker_store_exec(db, path, "ALTER TABLE runs ADD COLUMN owner TEXT") != 0)
         return -1;
     if (s_migrate_history(db, path) != 0 || s_migrate_versions(db, path) != 0 ||
-        broker_store_exec(db, path, s_simulations_view) != 0)
+        s_migrate_acked(db, path) != 0 ||
+        broker_store_exec(db, path, s_simulations_view) != 0 ||
+        broker_store_exec(db, path, s_owed_view) != 0)
         return -1;
     return 0;
 }

@@ -156,6 +156,10 @@ def pad_store(work, n_total):
     con.execute("INSERT INTO requests(run_id, tag, batch_tag, replicate, key, cached, acked,"
                 " created, fresh) SELECT 'padding', rowid, 0, 0, key, 0, 1, created, 0"
                 " FROM evaluations WHERE run_id = 'padding'")
+    # Every padding request is acknowledged, as the broker records it (store
+    # schema 4): the run's mark is one past its last tag.
+    con.execute("UPDATE runs SET acked_below = (SELECT max(tag) + 1 FROM requests"
+                " WHERE run_id = 'padding') WHERE run_id = 'padding'")
     con.execute("COMMIT")
     con.execute("PRAGMA wal_checkpoint(TRUNCATE)")
     con.close()

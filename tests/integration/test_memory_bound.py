@@ -147,7 +147,7 @@ with fflib.Pool(broker_args=CAPS) as pool:
     def count_unacked():
         db = sqlite3.connect(f"file:{db_path}?mode=ro", uri=True)
         try:
-            return db.execute("SELECT count(*) FROM requests WHERE run_id = 'away' AND acked = 0"
+            return db.execute("SELECT count(*) FROM requests_owed WHERE run_id = 'away'"
                               ).fetchone()[0]
         finally:
             db.close()

@@ -64,7 +64,9 @@ def wait_log(pool, text, timeout=15):
 
 def acked(pool, run_id):
     db = sqlite3.connect(f"file:{pool.store}/fitfarm.db?mode=ro", uri=True, timeout=5)
-    n = db.execute("SELECT count(*) FROM requests WHERE run_id = ? AND acked = 1", (run_id,)).fetchone()[0]
+    # Acknowledged: every request of the run not in requests_owed (schema 4).
+    n = db.execute("SELECT (SELECT count(*) FROM requests WHERE run_id = ?1)"
+                   " - (SELECT count(*) FROM requests_owed WHERE run_id = ?1)", (run_id,)).fetchone()[0]
     db.close()
     return n
 

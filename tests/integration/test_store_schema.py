@@ -1,4 +1,13 @@
-"""The store's schema 3 and the moves from schemas 1 and 2.
+"""The store's schema 4 and the moves from schemas 1, 2 and 3.
+
+Schema 4 records, per run, the tag below which every request is
+acknowledged (runs.acked_below) instead of a row write per acknowledgement
+and the partial index requests_unacked of schema 3; the view requests_owed
+lists what is not acknowledged. The store is taken back here to schema 3's
+acknowledgements (acked = 1 on every acknowledged request, the index, no
+column), and a broker must move it once (log line, schema_version 4) with
+the same requests owed: none, and the resume answers from the store. A
+store whose schema is newer than the broker's is refused, unchanged.
 
 Schema 3 keeps one `plugins` row per name and version (PRIMARY KEY(name,
 version), with first_seen: which version a plugin given without one
@@ -41,7 +50,11 @@ with fflib.Pool() as pool:
     db_path = os.path.join(pool.store, "fitfarm.db")
     db = sqlite3.connect(db_path)
     q = lambda sql: db.execute(sql).fetchone()[0]  # noqa: E731
-    check.ok(q("SELECT value FROM meta WHERE name = 'schema_version'") == "3", "schema 3")
+    check.ok(q("SELECT value FROM meta WHERE name = 'schema_version'") == "4", "schema 4")
+    check.ok(q("SELECT acked_below FROM runs WHERE run_id = 'old'") == N,
+             "every request of the finished run is below its mark")
+    check.ok(q("SELECT count(*) FROM sqlite_master WHERE name = 'requests_unacked'") == 0,
+             "no requests_unacked index")
     pk = [r[1] for r in sorted((r for r in db.execute("PRAGMA table_info(plugins)") if r[5]),
                                key=lambda r: r[5])]
     check.ok(pk == ["name", "version"], f"plugins keyed by name and version: {pk}")
@@ -57,9 +70,39 @@ with fflib.Pool() as pool:
 
     pool.kill(pool.broker, signal.SIGTERM)
     check.ok(pool.broker.returncode == 0, "clean stop")
-
-    # Back to schema 2's plugins table, then to schema 1's layout.
+    # Acknowledgements commit lazily (store.h); after the stop all are in.
     db = sqlite3.connect(db_path)
+    check.ok(db.execute("SELECT count(*) FROM requests_owed").fetchone()[0] == 0, "nothing owed")
+    db.close()
+
+    # A store from a newer broker is refused and left as it was.
+    db = sqlite3.connect(db_path)
+    db.execute("UPDATE meta SET value = '99' WHERE name = 'schema_version'")
+    db.commit()
+    db.close()
+    try:
+        pool.start_broker()
+        rc = 0
+    except RuntimeError as e:
+        rc = str(e)
+    log = open(os.path.join(pool.tmp, "broker.log"), errors="replace").read()
+    check.ok(rc != 0 and "has schema 99, made by a newer fitfarm-broker" in log,
+             f"a newer store is refused: exit {rc} {log[-300:]}")
+    db = sqlite3.connect(db_path)
+    check.ok(db.execute("SELECT value FROM meta WHERE name = 'schema_version'").fetchone()[0]
+             == "99", "and left unchanged")
+
+    # Back to schema 3's acknowledgements, schema 2's plugins table, then
+    # to schema 1's layout.
+    db.executescript(
+        "BEGIN;"
+        "CREATE TEMP TABLE marks AS SELECT run_id, acked_below FROM runs;"
+        "DROP VIEW requests_owed;"
+        "ALTER TABLE runs DROP COLUMN acked_below;"
+        "UPDATE requests SET acked = 1 WHERE tag < (SELECT m.acked_below FROM marks m"
+        " WHERE m.run_id = requests.run_id);"
+        "CREATE INDEX requests_unacked ON requests(run_id, tag) WHERE acked = 0;"
+        "COMMIT;")
     seen_before = db.execute("SELECT last_seen FROM plugins WHERE name = 'sphere'").fetchone()[0]
     db.executescript(
         "BEGIN;"
@@ -83,11 +126,18 @@ with fflib.Pool() as pool:
     pool.start_broker()
     log = open(os.path.join(pool.tmp, "broker.log"), errors="replace").read()
     check.ok("moved to schema 2" in log and "moved to schema 3" in log and
-             log.index("moved to schema 2") < log.index("moved to schema 3"),
-             "the broker says it moved the store from 1 to 2, then to 3")
+             "moved to schema 4" in log and
+             log.index("moved to schema 2") < log.index("moved to schema 3") <
+             log.index("moved to schema 4"),
+             "the broker says it moved the store from 1 to 2, to 3, then to 4")
     db = sqlite3.connect(f"file:{db_path}?mode=ro", uri=True)
     q = lambda sql: db.execute(sql).fetchone()[0]  # noqa: E731
-    check.ok(q("SELECT value FROM meta WHERE name = 'schema_version'") == "3", "schema 3 again")
+    check.ok(q("SELECT value FROM meta WHERE name = 'schema_version'") == "4", "schema 4 again")
+    check.ok(q("SELECT acked_below FROM runs WHERE run_id = 'old'") == N and
+             q("SELECT acked_below FROM runs WHERE run_id = 'again'") == N and
+             q("SELECT count(*) FROM requests_owed") == 0 and
+             q("SELECT count(*) FROM sqlite_master WHERE name = 'requests_unacked'") == 0,
+             "each run's mark set from its acknowledged requests, the index gone")
     pk = [r[1] for r in sorted((r for r in db.execute("PRAGMA table_info(plugins)") if r[5]),
                                key=lambda r: r[5])]
     check.ok(pk == ["name", "version"] and

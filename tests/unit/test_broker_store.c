@@ -236,7 +236,8 @@ static void s_complete_ok(broker_t *b, broker_worker_t *w, uint32_t n)
 
 /* The bound on a run's recorded request tags, read from the store for a run
  * that comes back from it: none, one past the highest, and no bound at all
- * for a tag past INT64_MAX (stored as a negative int64). */
+ * for a tag past INT64_MAX (stored as a negative int64), which only an older
+ * broker took: this one refuses tags past BROKER_TAG_MAX, naming the limit. */
 static void test_request_tags_end(void **state)
 {
     (void)state;
@@ -246,7 +247,12 @@ static void test_request_tags_end(void **state)
     assert_int_equal(s_submit(b, "r1", 0.0, 20, 5), 0);
     assert_int_equal(broker_store_request_tags_end(b->store, "r1"), 25);
     assert_int_equal(broker_store_request_tags_end(b->store, "other"), 0);
-    assert_int_equal(s_submit(b, "r1", 100.0, 1, (UINT64_C(1) << 63) + 5), 0);
+    assert_int_equal(s_submit(b, "r1", 100.0, 1, (UINT64_C(1) << 63) + 5),
+                     PROTO_REFUSE_BAD_MESSAGE);
+    assert_int_equal(s_submit(b, "r1", 101.0, 1, BROKER_TAG_MAX), 0);
+    assert_true(broker_store_request_tags_end(b->store, "r1") == BROKER_TAG_MAX + 1);
+    s_pages(b, "INSERT INTO requests(run_id, tag, batch_tag, replicate, key, cached, created)"
+               " VALUES('r1', -3, 1, 0, zeroblob(32), 0, 0)");
     assert_true(broker_store_request_tags_end(b->store, "r1") == UINT64_MAX);
     s_broker_destroy(&b);
 }
@@ -374,6 +380,94 @@ static void test_pending_no_cache_request_survives_a_restart(void **state)
     s_remove_dir(dir);
 }
 
+/* Requests of run r1 the store says are owed (not acknowledged): acked = 0
+ * and at or above the run's mark (store.c, "Acknowledgements"). */
+static long long s_owed(broker_t *b)
+{
+    return s_count(b, "SELECT count(*) FROM requests r JOIN runs u ON u.run_id = r.run_id"
+                      " WHERE r.run_id = 'r1' AND r.acked = 0 AND r.tag >= u.acked_below");
+}
+
+static long long s_mark(broker_t *b)
+{
+    return s_count(b, "SELECT acked_below FROM runs WHERE run_id = 'r1'");
+}
+
+static void s_ack(broker_t *b, uint64_t first, uint64_t last)
+{
+    broker_store_note_ack(b->store, broker_runs_get(&b->runs, "r1"), first, last);
+    assert_int_equal(broker_store_commit(b->store), 0);
+}
+
+/* Acknowledgements move the run's mark when nothing owed lies below them,
+ * and write rows only for tags acknowledged ahead of an owed one; the mark
+ * then passes those rows once. A request owed again (past the delivery cap)
+ * brings the mark down without un-acknowledging the requests between; a
+ * restarted broker loads the run only while something is owed. */
+static void test_acknowledgements_move_the_mark(void **state)
+{
+    (void)state;
+    char dir[] = "/tmp/fitfarm-store-test-XXXXXX";
+    assert_non_null(mkdtemp(dir));
+    broker_t *b = s_broker_on(dir);
+    broker_worker_t *w = s_worker(b, 100);
+    assert_int_equal(s_submit(b, "r1", 0.0, 10, 0), 0);
+    assert_int_equal(broker_dispatch_turn(b), 10);
+    s_complete_ok(b, w, 10);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    assert_int_equal(s_mark(b), 0);
+    assert_int_equal(s_owed(b), 10);
+
+    s_ack(b, 0, 2);
+    assert_int_equal(s_mark(b), 3);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM requests WHERE acked = 1"), 0);
+    s_ack(b, 5, 7); /* ahead of 3 and 4: rows */
+    assert_int_equal(s_mark(b), 3);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM requests WHERE acked = 1"), 3);
+    assert_int_equal(s_owed(b), 4);
+    s_ack(b, 3, 4); /* the mark passes 5..7 */
+    assert_int_equal(s_mark(b), 8);
+    assert_int_equal(s_owed(b), 2);
+    s_ack(b, 9, 9);
+    assert_int_equal(s_mark(b), 8);
+    s_ack(b, 8, 8);
+    assert_int_equal(s_mark(b), 10);
+    assert_int_equal(s_owed(b), 0);
+
+    broker_store_note_unack(b->store, broker_runs_get(&b->runs, "r1"), 4);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    assert_int_equal(s_mark(b), 4);
+    assert_int_equal(s_owed(b), 1);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM requests WHERE acked = 0 AND tag = 4"), 1);
+    s_broker_destroy(&b);
+
+    b = s_broker_on(dir); /* request 4 is owed: its run comes back */
+    assert_non_null(broker_runs_get(&b->runs, "r1"));
+    s_ack(b, 4, 4);
+    assert_int_equal(s_mark(b), 10);
+    assert_int_equal(s_owed(b), 0);
+    s_broker_destroy(&b);
+
+    b = s_broker_on(dir); /* nothing owed: the run stays in the store */
+    assert_null(broker_runs_get(&b->runs, "r1"));
+    w = s_worker(b, 100);
+    /* Tags 20..24 after a gap, acknowledged: the mark passes the gap. */
+    assert_int_equal(s_submit(b, "r1", 20.0, 5, 20), 0);
+    assert_int_equal(broker_dispatch_turn(b), 5);
+    s_complete_ok(b, w, 5);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    s_ack(b, 20, 24);
+    assert_int_equal(s_mark(b), 25);
+    /* A new request in the gap is owed: the mark comes down to it. */
+    assert_int_equal(s_submit(b, "r1", 50.0, 1, 12), 0);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    assert_int_equal(s_mark(b), 12);
+    assert_int_equal(s_owed(b), 1);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM requests WHERE acked = 0 AND tag = 12"), 1);
+    s_broker_destroy(&b);
+    s_remove_dir(dir);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -385,6 +479,7 @@ int main(void)
         cmocka_unit_test(test_cache_asks_the_store_after_an_eviction),
         cmocka_unit_test(test_store_with_results_is_not_mirrored),
         cmocka_unit_test(test_pending_no_cache_request_survives_a_restart),
+        cmocka_unit_test(test_acknowledgements_move_the_mark),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
