@@ -99,6 +99,7 @@ int broker_backlog_load(broker_t *b)
 /* Reads up to limit owed rows of run into its outbox; returns rows read. */
 static int s_page(broker_t *b, broker_run_t *run, int limit)
 {
+    broker_store_flush(b->store); /* requests noted this turn, read below */
     sqlite3_stmt *st = b->backlog_page;
     sqlite3_bind_text(st, 1, run->id, -1, SQLITE_STATIC);
     sqlite3_bind_int64(st, 2, run->spill_cur);

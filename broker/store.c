@@ -165,9 +165,22 @@ static const char *const s_sql[S_COUNT_] = {
 #define STORE_RETRY_MAX_MS 5000
 #define STORE_REPORT_MS 5000
 
+/* New requests are written STORE_REQUEST_ROWS to a statement (one INSERT
+ * with that many rows) rather than one statement each: a generation's
+ * requests are most of what a batch answered from the cache writes, and
+ * each statement costs a program start, its cursors and its halt. They wait
+ * in the log (at most one statement's worth) until the statement is full,
+ * or until anything that reads or changes requests runs (s_flush_requests),
+ * so every read sees them. */
+#define STORE_REQUEST_ROWS 64
+#define STORE_REQUEST_COLUMNS 8
+
 struct broker_store {
     sqlite3 *db;
     sqlite3_stmt *stmt[S_COUNT_];
+    sqlite3_stmt *requests_many; /* S_REQUEST for STORE_REQUEST_ROWS rows */
+    size_t pend[STORE_REQUEST_ROWS]; /* log indexes of S_REQUEST ops not yet written */
+    size_t n_pend;
     int lock_fd; /* DIR/fitfarm.lock, flock'ed for the broker's life; -1 in memory */
     uint64_t commits;
     broker_hist_t commit_times; /* successful COMMITs, seconds (metrics.c) */
@@ -233,6 +246,26 @@ void broker_store_report_damage(const char *path, const char *what, const char *
 }
 
 
+/* S_REQUEST's insert with STORE_REQUEST_ROWS rows of anonymous parameters. */
+static int s_prepare_requests_many(broker_store_t *self)
+{
+    const char *head = s_sql[S_REQUEST];
+    size_t n_head = (size_t)(strstr(head, " VALUES") - head);
+    static const char row[] = "(?,?,?,?,?,?,?,?)";
+    size_t cap = n_head + 8 + STORE_REQUEST_ROWS * sizeof row;
+    char *sql = common_xmalloc(cap);
+    size_t n = (size_t)snprintf(sql, cap, "%.*s VALUES", (int)n_head, head);
+    for (int r = 0; r < STORE_REQUEST_ROWS; r++)
+        n += (size_t)snprintf(sql + n, cap - n, "%s%s", r ? "," : "", row);
+    int rc = sqlite3_prepare_v3(self->db, sql, -1, SQLITE_PREPARE_PERSISTENT,
+                                &self->requests_many, NULL);
+    if (rc != SQLITE_OK)
+        LOG_ERROR("store %s: cannot prepare the insert of %d requests: %s", self->path,
+                  STORE_REQUEST_ROWS, sqlite3_errmsg(self->db));
+    free(sql);
+    return rc == SQLITE_OK ? 0 : -1;
+}
+
 broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms)
 {
     broker_store_t *self = common_xcalloc(1, sizeof *self);
@@ -280,6 +313,8 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
             goto fail;
         }
     }
+    if (s_prepare_requests_many(self) != 0)
+        goto fail;
     if (dir)
         LOG_INFO("store %s open (WAL, synchronous=%s)", self->path,
                  scratch ? "OFF: a scratch store" : "FULL");
@@ -299,6 +334,7 @@ void broker_store_close(broker_store_t **self_p)
         (void)broker_store_commit(self);
     for (int i = 0; i < S_COUNT_; i++)
         sqlite3_finalize(self->stmt[i]);
+    sqlite3_finalize(self->requests_many);
     if (self->db)
         sqlite3_close(self->db);
     /* After sqlite3_close: closing a descriptor of the database file would
@@ -332,6 +368,7 @@ static void s_fail(broker_store_t *self, int rc, const char *what)
                   sqlite3_errmsg(self->db));
     int64_t now = common_clock_ms();
     int first = self->fail_rc == 0;
+    self->n_pend = 0; /* still in the log: the retry writes them with the rest */
     self->fail_rc = rc;
     memcpy(self->fail_msg, msg, sizeof msg);
     if (first) {
@@ -401,13 +438,57 @@ static size_t s_op(broker_store_t *self, int which)
     return broker_store_log_begin(&self->log, which);
 }
 
+/* Writes the new requests waiting in the log (STORE_REQUEST_ROWS). */
+static void s_flush_requests(broker_store_t *self)
+{
+    size_t n = self->n_pend;
+    self->n_pend = 0;
+    if (n == 0 || self->fail_rc)
+        return;
+    int rc = SQLITE_DONE;
+    if (n == STORE_REQUEST_ROWS) {
+        sqlite3_stmt *st = self->requests_many;
+        for (size_t r = 0; r < n; r++)
+            broker_store_log_bind(&self->log, self->pend[r], st, (int)r * STORE_REQUEST_COLUMNS,
+                                  STORE_REQUEST_COLUMNS);
+        rc = sqlite3_step(st);
+        sqlite3_reset(st);
+        sqlite3_clear_bindings(st);
+    } else {
+        for (size_t r = 0; r < n && rc == SQLITE_DONE; r++)
+            rc = broker_store_log_apply(&self->log, self->pend[r], self->stmt[S_REQUEST]);
+    }
+    if (rc != SQLITE_DONE)
+        s_fail(self, rc, "write");
+}
+
+void broker_store_flush(broker_store_t *self)
+{
+    if (self)
+        s_flush_requests(self);
+}
+
 /* Writes op i inside the turn's transaction, opening it if needed. While
- * the store is failing it is only kept: the retry writes it with the rest. */
+ * the store is failing it is only kept: the retry writes it with the rest.
+ * A new request waits for a full statement of them; a new evaluation may
+ * pass them (nothing it writes reads requests); anything else writes them
+ * first. */
 static void s_write(broker_store_t *self, size_t i)
 {
     if (self->fail_rc || s_begin(self, NULL, self->stmt[S_BEGIN]) != 0)
         return;
     int which = self->log.ops[i].which;
+    if (which == S_REQUEST) {
+        self->pend[self->n_pend++] = i;
+        if (self->n_pend == STORE_REQUEST_ROWS)
+            s_flush_requests(self);
+        return;
+    }
+    if (which != S_EVAL) {
+        s_flush_requests(self);
+        if (self->fail_rc)
+            return;
+    }
     int rc = broker_store_log_apply(&self->log, i, self->stmt[which]);
     if (rc != SQLITE_DONE && rc != SQLITE_ROW)
         s_fail(self, rc, "write");
@@ -507,6 +588,7 @@ int broker_store_find_run(broker_store_t *self, const char *run_id, uint64_t *se
 int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t tag,
                               uint8_t key[PROTO_KEY_BYTES], int *cached, int *fresh)
 {
+    s_flush_requests(self);
     sqlite3_stmt *st = self->stmt[S_FIND_REQUEST];
     sqlite3_bind_text(st, 1, run_id, -1, SQLITE_STATIC);
     s_bind_u64(st, 2, tag);
@@ -524,6 +606,7 @@ int broker_store_find_request(broker_store_t *self, const char *run_id, uint64_t
 
 uint64_t broker_store_request_tags_end(broker_store_t *self, const char *run_id)
 {
+    s_flush_requests(self);
     sqlite3_stmt *st = self->stmt[S_TAG_END];
     sqlite3_bind_text(st, 1, run_id, -1, SQLITE_STATIC);
     /* Tags are written as int64 bit patterns (s_bind_u64): a tag past
@@ -766,6 +849,7 @@ static int s_retry(broker_store_t *self)
 
 int broker_store_commit(broker_store_t *self)
 {
+    s_flush_requests(self);
     if (self->fail_rc) {
         if (common_clock_ms() < self->retry_at_ms || s_retry(self) != 0)
             return -1;

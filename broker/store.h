@@ -103,6 +103,10 @@ void broker_store_note_request_fresh(broker_store_t *self, const broker_run_t *r
  * past the delivery cap, runs.h): acked back to 0 so the backlog reads it. */
 void broker_store_note_unack(broker_store_t *self, const broker_run_t *run, uint64_t tag);
 void broker_store_note_plugin(broker_store_t *self, const broker_plugin_t *p);
+/* Writes the notes still waiting to share a statement (new requests,
+ * store.c) inside the turn's transaction; a reader of requests on the
+ * store's connection calls it first (the store's own reads do). */
+void broker_store_flush(broker_store_t *self);
 /* Makes this turn's notes durable. Returns 0, or -1: nothing that depends
  * on a note since the last successful commit may be sent. After a failure
  * the store is failing (sticky): every note since the last successful

@@ -112,12 +112,13 @@ void broker_store_log_blob(broker_store_log_t *self, size_t i, int k, const void
     val->u.off = off;
 }
 
-int broker_store_log_apply(const broker_store_log_t *self, size_t i, sqlite3_stmt *st)
+void broker_store_log_bind(const broker_store_log_t *self, size_t i, sqlite3_stmt *st, int base,
+                           int n)
 {
     const broker_store_op_t *op = &self->ops[i];
-    int n = sqlite3_bind_parameter_count(st);
-    for (int k = 1; k <= n && k <= BROKER_STORE_MAX_PARAMS; k++) {
-        const broker_store_val_t *v = &op->v[k - 1];
+    for (int j = 1; j <= n && j <= BROKER_STORE_MAX_PARAMS; j++) {
+        const broker_store_val_t *v = &op->v[j - 1];
+        int k = base + j;
         switch (v->type) {
         case SQLITE_INTEGER:
             sqlite3_bind_int64(st, k, v->u.i);
@@ -141,6 +142,11 @@ int broker_store_log_apply(const broker_store_log_t *self, size_t i, sqlite3_stm
             break;
         }
     }
+}
+
+int broker_store_log_apply(const broker_store_log_t *self, size_t i, sqlite3_stmt *st)
+{
+    broker_store_log_bind(self, i, st, 0, sqlite3_bind_parameter_count(st));
     int rc = sqlite3_step(st);
     sqlite3_reset(st);
     sqlite3_clear_bindings(st);

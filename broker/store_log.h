@@ -59,6 +59,10 @@ void broker_store_log_real(broker_store_log_t *self, size_t i, int k, double v);
 void broker_store_log_text(broker_store_log_t *self, size_t i, int k, const char *s);
 void broker_store_log_blob(broker_store_log_t *self, size_t i, int k, const void *p, size_t n);
 
+/* Binds op i's parameters ?1..?n to st's parameters base+1..base+n (one row
+ * of a statement that writes many). */
+void broker_store_log_bind(const broker_store_log_t *self, size_t i, struct sqlite3_stmt *st,
+                           int base, int n);
 /* Binds op i to st (prepared for op i's statement), steps it once, resets
  * it and clears its bindings. Returns SQLite's result code of the step
  * (SQLITE_DONE or SQLITE_ROW on success). */

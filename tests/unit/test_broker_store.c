@@ -468,6 +468,31 @@ static void test_acknowledgements_move_the_mark(void **state)
     s_remove_dir(dir);
 }
 
+/* New requests are written many to a statement (store.c,
+ * STORE_REQUEST_ROWS); the ones still waiting for a full statement are
+ * written before anything reads requests, so reads inside the turn see
+ * every one, and the commit writes the rest. 130 = two full statements of
+ * 64 and two left over. */
+static void test_requests_in_groups_are_read_in_the_turn(void **state)
+{
+    (void)state;
+    broker_t *b = s_broker();
+    (void)s_worker(b, 200);
+    assert_int_equal(s_submit(b, "r1", 0.0, 130, 0), 0);
+    uint8_t key[PROTO_KEY_BYTES];
+    int cached = -1, fresh = -1;
+    assert_true(broker_store_find_request(b->store, "r1", 129, key, &cached, &fresh));
+    assert_true(cached == 0 && fresh == 0);
+    assert_true(broker_store_find_request(b->store, "r1", 0, key, &cached, &fresh));
+    assert_int_equal(broker_store_request_tags_end(b->store, "r1"), 130);
+    assert_int_equal(s_submit(b, "r1", 200.0, 3, 130), 0);
+    assert_int_equal(broker_store_commit(b->store), 0);
+    assert_int_equal(s_count(b, "SELECT count(*) FROM requests"), 133);
+    assert_int_equal(s_count(b, "SELECT count(DISTINCT key) FROM requests"), 133);
+    assert_int_equal(s_count(b, "SELECT max(tag) FROM requests"), 132);
+    s_broker_destroy(&b);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -480,6 +505,7 @@ int main(void)
         cmocka_unit_test(test_store_with_results_is_not_mirrored),
         cmocka_unit_test(test_pending_no_cache_request_survives_a_restart),
         cmocka_unit_test(test_acknowledgements_move_the_mark),
+        cmocka_unit_test(test_requests_in_groups_are_read_in_the_turn),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
