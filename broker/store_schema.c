@@ -96,6 +96,32 @@ int broker_store_exec(sqlite3 *db, const char *path, const char *sql)
     return 0;
 }
 
+/* Moves the store to schema `to` in one transaction: steps (NULL-ended),
+ * then meta.schema_version. A failure rolls everything back, so the file
+ * stays as it was, and is logged. 0, or -1. */
+static int s_move(sqlite3 *db, const char *path, int to, const char *const *steps)
+{
+    char version[96];
+    snprintf(version, sizeof version,
+             "UPDATE meta SET value = '%d' WHERE name = 'schema_version'", to);
+    int rc = broker_store_exec(db, path, "BEGIN IMMEDIATE");
+    for (size_t i = 0; rc == 0 && steps[i]; i++)
+        rc = broker_store_exec(db, path, steps[i]);
+    if (rc == 0)
+        rc = broker_store_exec(db, path, version);
+    if (rc == 0)
+        rc = broker_store_exec(db, path, "COMMIT");
+    if (rc != 0) {
+        if (!sqlite3_get_autocommit(db))
+            sqlite3_exec(db, "ROLLBACK", NULL, NULL, NULL);
+        LOG_ERROR("store %s: cannot move it to schema %d (nothing changed: the transaction "
+                  "rolled back)",
+                  path, to);
+        return -1;
+    }
+    return 0;
+}
+
 /* Schema 1 stores kept a copy of every first evaluation in the results
  * history and had no evaluations.run_id. Moves the paying run into
  * evaluations and drops the copies, in one transaction, once per store; a
@@ -105,22 +131,16 @@ static int s_migrate_history(sqlite3 *db, const char *path)
     if (sqlite3_exec(db, "SELECT run_id FROM evaluations LIMIT 0", NULL, NULL, NULL) ==
         SQLITE_OK)
         return 0;
+    static const char *const steps[] = {
+        "ALTER TABLE evaluations ADD COLUMN run_id TEXT",
+        "UPDATE evaluations SET run_id = (SELECT y.run_id FROM results y"
+        " WHERE y.key = evaluations.key AND y.fresh = 0 ORDER BY y.rowid LIMIT 1)"
+        " WHERE status IS NOT NULL",
+        "DELETE FROM results WHERE fresh = 0",
+        NULL};
     int64_t t0 = common_clock_ms();
-    if (broker_store_exec(db, path, "BEGIN IMMEDIATE") != 0 ||
-        broker_store_exec(db, path, "ALTER TABLE evaluations ADD COLUMN run_id TEXT") != 0 ||
-        broker_store_exec(db, path, "UPDATE evaluations SET run_id = (SELECT y.run_id FROM results y"
-                     " WHERE y.key = evaluations.key AND y.fresh = 0 ORDER BY y.rowid LIMIT 1)"
-                     " WHERE status IS NOT NULL") != 0 ||
-        broker_store_exec(db, path, "DELETE FROM results WHERE fresh = 0") != 0 ||
-        broker_store_exec(db, path, "UPDATE meta SET value = '2' WHERE name = 'schema_version'") != 0 ||
-        broker_store_exec(db, path, "COMMIT") != 0) {
-        if (!sqlite3_get_autocommit(db))
-            sqlite3_exec(db, "ROLLBACK", NULL, NULL, NULL);
-        LOG_ERROR("store %s: cannot move it to schema 2 (nothing changed: the transaction "
-                  "rolled back)",
-                  path);
+    if (s_move(db, path, 2, steps) != 0)
         return -1;
-    }
     LOG_INFO("store %s moved to schema 2 in %.1f s: the results history keeps re-evaluations "
              "only; first evaluations name their run in evaluations.run_id",
              path, (double)(common_clock_ms() - t0) / 1000.0);
@@ -137,23 +157,17 @@ static int s_migrate_versions(sqlite3 *db, const char *path)
     if (sqlite3_exec(db, "SELECT first_seen FROM plugins LIMIT 0", NULL, NULL, NULL) ==
         SQLITE_OK)
         return 0;
-    if (broker_store_exec(db, path, "BEGIN IMMEDIATE") != 0 ||
-        broker_store_exec(db, path, "CREATE TABLE plugins_v3" S_PLUGINS_COLUMNS) != 0 ||
-        broker_store_exec(db, path, "INSERT INTO plugins_v3(name, version, objectives, flags, digests,"
-                     " last_seen, seed_params, param_defaults, first_seen)"
-                     " SELECT name, version, objectives, flags, digests, last_seen, seed_params,"
-                     " param_defaults, last_seen FROM plugins ORDER BY rowid") != 0 ||
-        broker_store_exec(db, path, "DROP TABLE plugins") != 0 ||
-        broker_store_exec(db, path, "ALTER TABLE plugins_v3 RENAME TO plugins") != 0 ||
-        broker_store_exec(db, path, "UPDATE meta SET value = '3' WHERE name = 'schema_version'") != 0 ||
-        broker_store_exec(db, path, "COMMIT") != 0) {
-        if (!sqlite3_get_autocommit(db))
-            sqlite3_exec(db, "ROLLBACK", NULL, NULL, NULL);
-        LOG_ERROR("store %s: cannot move it to schema 3 (nothing changed: the transaction "
-                  "rolled back)",
-                  path);
+    static const char *const steps[] = {
+        "CREATE TABLE plugins_v3" S_PLUGINS_COLUMNS,
+        "INSERT INTO plugins_v3(name, version, objectives, flags, digests,"
+        " last_seen, seed_params, param_defaults, first_seen)"
+        " SELECT name, version, objectives, flags, digests, last_seen, seed_params,"
+        " param_defaults, last_seen FROM plugins ORDER BY rowid",
+        "DROP TABLE plugins",
+        "ALTER TABLE plugins_v3 RENAME TO plugins",
+        NULL};
+    if (s_move(db, path, 3, steps) != 0)
         return -1;
-    }
     LOG_INFO("store %s moved to schema 3: plugins are kept per name and version (a plugin "
              "given without a version still means the one this store saw first)",
              path);
@@ -172,24 +186,16 @@ static int s_migrate_acked(sqlite3 *db, const char *path)
 {
     if (sqlite3_exec(db, "SELECT acked_below FROM runs LIMIT 0", NULL, NULL, NULL) == SQLITE_OK)
         return 0;
+    static const char *const steps[] = {
+        "ALTER TABLE runs ADD COLUMN acked_below INTEGER NOT NULL DEFAULT 0",
+        "UPDATE runs SET acked_below = coalesce("
+        "(SELECT min(r.tag) FROM requests r WHERE r.run_id = runs.run_id AND r.acked = 0),"
+        " (SELECT max(r.tag) + 1 FROM requests r WHERE r.run_id = runs.run_id), 0)",
+        "DROP INDEX IF EXISTS requests_unacked",
+        NULL};
     int64_t t0 = common_clock_ms();
-    if (broker_store_exec(db, path, "BEGIN IMMEDIATE") != 0 ||
-        broker_store_exec(db, path, "ALTER TABLE runs ADD COLUMN acked_below INTEGER NOT NULL"
-                     " DEFAULT 0") != 0 ||
-        broker_store_exec(db, path, "UPDATE runs SET acked_below = coalesce("
-                     "(SELECT min(r.tag) FROM requests r WHERE r.run_id = runs.run_id"
-                     " AND r.acked = 0),"
-                     " (SELECT max(r.tag) + 1 FROM requests r WHERE r.run_id = runs.run_id), 0)") != 0 ||
-        broker_store_exec(db, path, "DROP INDEX IF EXISTS requests_unacked") != 0 ||
-        broker_store_exec(db, path, "UPDATE meta SET value = '4' WHERE name = 'schema_version'") != 0 ||
-        broker_store_exec(db, path, "COMMIT") != 0) {
-        if (!sqlite3_get_autocommit(db))
-            sqlite3_exec(db, "ROLLBACK", NULL, NULL, NULL);
-        LOG_ERROR("store %s: cannot move it to schema 4 (nothing changed: the transaction "
-                  "rolled back)",
-                  path);
+    if (s_move(db, path, 4, steps) != 0)
         return -1;
-    }
     LOG_INFO("store %s moved to schema 4 in %.1f s: each run records the tag below which its "
              "requests are acknowledged (runs.acked_below); a broker older than this one must "
              "not open the store again",
