@@ -1,7 +1,7 @@
 /* backlog.c: paging results owed to clients back from the store (see
  * backlog.h). Owns one prepared statement on the store's connection; it
  * reads a run's requests from its acknowledgement mark on (runs.acked_below,
- * store.c), so a sweep never reads the acknowledged past however long the
+ * store_sql.c), so a sweep never reads the acknowledged past however long the
  * run. Owns no results: they go to runs.c as copies. */
 #include "backlog.h"
 

@@ -192,7 +192,7 @@ static int s_tag_may_be_recorded(broker_t *b, broker_run_t *run, uint64_t tag)
 
 /* Notes a new request (run, tag) in the store. A tag below the run's last
  * recorded one fills a gap, which may lie below the run's acknowledgement
- * mark (store.c): the mark comes down first so the request is owed. */
+ * mark (store_sql.c): the mark comes down first so the request is owed. */
 static void s_note_request(broker_t *b, broker_run_t *run, const proto_submit_t *s,
                            const proto_item_t *it, const broker_eval_t *e, int cached)
 {

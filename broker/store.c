@@ -1,8 +1,8 @@
 /* store.c: the durable store (see store.h): opening the SQLite database, the
  * prepared statements for each note, and the group commit. Owns the
- * connection and the statements. Not here: the tables and the moves of
- * older stores (store_schema.c), rebuilding the broker's state at start
- * (store_load.c).
+ * connection and the statements. Not here: the statements' text
+ * (store_sql.c), the tables and the moves of older stores (store_schema.c),
+ * rebuilding the broker's state at start (store_load.c).
  *
  * Durability: journal_mode=WAL, synchronous=FULL. In WAL mode FULL fsyncs
  * the log at every COMMIT, so "accepted" survives a power cut as well as a
@@ -56,6 +56,7 @@
 #include "store_hook.h"
 #include "store_lock.h"
 #include "store_log.h"
+#include "store_sql.h"
 #include "store_schema.h"
 
 #define STORE_FILE "fitfarm.db"
@@ -68,93 +69,6 @@
  * this, in alternating runs of one session. */
 #define STORE_CACHE_KIB "65536"
 
-
-enum {
-    S_BEGIN,
-    S_COMMIT,
-    S_RUN,
-    S_EVAL,
-    S_HISTORY,
-    S_REQUEST,
-    S_FIND_REQUEST,
-    S_TAG_END,
-    S_FIND_FRESH,
-    S_RESULT,
-    S_ACK_MARK,
-    S_ACK_ROWS,
-    S_LOWER_ROWS,
-    S_LOWER_MARK,
-    S_UNACK,
-    S_PLUGIN,
-    S_FIND_RUN,
-    S_REFRESH,
-    S_COUNT_
-};
-
-static const char *const s_sql[S_COUNT_] = {
-    [S_BEGIN] = "BEGIN",
-    [S_COMMIT] = "COMMIT",
-    [S_RUN] = "INSERT INTO runs(run_id, seed, seed_mode, created, last_activity, owner)"
-              " VALUES(?1, ?2, ?3, ?4, ?4, ?5)"
-              " ON CONFLICT(run_id) DO UPDATE SET last_activity = ?4, owner = ?5",
-    [S_EVAL] = "INSERT OR IGNORE INTO evaluations(key, plugin, version, params, genome, seed,"
-               " timeout_ms, max_attempts, created) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?9)",
-    [S_HISTORY] = "INSERT INTO results(key, run_id, fresh, status, status_name, fitness,"
-                  " fitness_json, error, attempts, worker, host, arch, digest, cpu_seconds,"
-                  " peak_rss_kb, finished_at) VALUES(?1, ?15, ?16, ?2, ?3, ?4, ?5, ?6, ?7, ?8,"
-                  " ?9, ?10, ?11, ?12, ?13, ?14)",
-    [S_REQUEST] = "INSERT OR IGNORE INTO requests(run_id, tag, batch_tag, replicate, key, cached,"
-                  " created, fresh) VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
-    [S_FIND_REQUEST] = "SELECT key, cached, fresh FROM requests WHERE run_id = ?1 AND tag = ?2",
-    /* Two subqueries, so each is one b-tree descent (SQLite's min/max
-     * optimisation takes one aggregate per query). */
-    [S_TAG_END] = "SELECT (SELECT max(tag) FROM requests WHERE run_id = ?1),"
-                  " (SELECT min(tag) FROM requests WHERE run_id = ?1)",
-    [S_FIND_FRESH] = "SELECT status, fitness, error FROM results WHERE run_id = ?1 AND key = ?2"
-                     " AND fresh = 1 ORDER BY rowid DESC LIMIT 1",
-    [S_RESULT] = "UPDATE evaluations SET status = ?2, status_name = ?3, fitness = ?4,"
-                 " fitness_json = ?5, error = ?6, attempts = ?7, worker = ?8, host = ?9,"
-                 " arch = ?10, digest = ?11, cpu_seconds = ?12, peak_rss_kb = ?13,"
-                 " finished_at = ?14, run_id = ?15 WHERE key = ?1",
-    /* Acknowledgements. A request is acknowledged when its tag is below
-     * runs.acked_below or its acked is 1, so tags first..last (?2..?3) are
-     * acknowledged in two steps. S_ACK_MARK: when no request from the mark
-     * up to the range is owed, the mark moves past the range and past every
-     * later request already acked = 1, to the run's next request owed, or
-     * one past its last. Both are reads that stop at the first owed row, and
-     * the mark stands on one (or past the end): a request acknowledged out
-     * of order is passed once. S_ACK_ROWS: what is still above the mark
-     * (tags acknowledged before one below them) gets acked = 1. A
-     * generation's answers, acknowledged in order, thus write one runs row
-     * instead of a row per request. Tags are at most BROKER_TAG_MAX. */
-    [S_ACK_MARK] = "UPDATE runs SET acked_below = max(?3 + 1, coalesce((SELECT tag FROM requests"
-                   " WHERE run_id = ?1 AND tag > ?3 AND acked = 0 ORDER BY tag LIMIT 1),"
-                   " (SELECT max(tag) + 1 FROM requests WHERE run_id = ?1), 0))"
-                   " WHERE run_id = ?1 AND acked_below <= ?3 + 1 AND NOT EXISTS (SELECT 1"
-                   " FROM requests WHERE run_id = ?1 AND tag >= runs.acked_below AND tag < ?2"
-                   " AND acked = 0)",
-    [S_ACK_ROWS] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag BETWEEN"
-                   " max(?2, coalesce((SELECT acked_below FROM runs WHERE run_id = ?1), 0))"
-                   " AND ?3",
-    /* A request at tag ?2 is to be owed while the mark is above it: the
-     * requests between it and the mark, acknowledged by the mark alone, get
-     * acked = 1 (S_LOWER_ROWS), then the mark comes down to ?2 (S_LOWER_MARK).
-     * Rare (a re-sent request past the delivery cap, a retry on resume, a
-     * gap filled below a run's last tag), and each row is written once. */
-    [S_LOWER_ROWS] = "UPDATE requests SET acked = 1 WHERE run_id = ?1 AND tag > ?2"
-                     " AND tag < (SELECT acked_below FROM runs WHERE run_id = ?1) AND acked = 0",
-    [S_LOWER_MARK] = "UPDATE runs SET acked_below = ?2 WHERE run_id = ?1 AND acked_below > ?2",
-    [S_UNACK] = "UPDATE requests SET acked = 0 WHERE run_id = ?1 AND tag = ?2",
-    /* first_seen is written once: it orders a name's versions (catalog.h). */
-    [S_PLUGIN] = "INSERT INTO plugins(name, version, objectives, flags, digests, last_seen,"
-                 " seed_params, param_defaults, first_seen)"
-                 " VALUES(?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8, ?6)"
-                 " ON CONFLICT(name, version) DO UPDATE"
-                 " SET objectives = ?3, flags = ?4, digests = ?5, last_seen = ?6,"
-                 " seed_params = ?7, param_defaults = ?8",
-    [S_FIND_RUN] = "SELECT seed, seed_mode, owner FROM runs WHERE run_id = ?1",
-    [S_REFRESH] = "UPDATE requests SET fresh = 1, acked = 0 WHERE run_id = ?1 AND tag = ?2",
-};
 
 /* Retry pacing while the store cannot write: the first retry soon (a
  * checkpoint may free WAL space at once), then doubling up to a ceiling low
@@ -249,7 +163,7 @@ void broker_store_report_damage(const char *path, const char *what, const char *
 /* S_REQUEST's insert with STORE_REQUEST_ROWS rows of anonymous parameters. */
 static int s_prepare_requests_many(broker_store_t *self)
 {
-    const char *head = s_sql[S_REQUEST];
+    const char *head = broker_store_sql[S_REQUEST];
     size_t n_head = (size_t)(strstr(head, " VALUES") - head);
     static const char row[] = "(?,?,?,?,?,?,?,?)";
     size_t cap = n_head + 8 + STORE_REQUEST_ROWS * sizeof row;
@@ -302,14 +216,14 @@ broker_store_t *broker_store_open(const char *dir, int scratch, int lock_wait_ms
         broker_store_schema_apply(self->db, self->path) != 0)
         goto fail;
     for (int i = 0; i < S_COUNT_; i++) {
-        if (sqlite3_prepare_v3(self->db, s_sql[i], -1, SQLITE_PREPARE_PERSISTENT, &self->stmt[i],
-                               NULL) != SQLITE_OK) {
+        if (sqlite3_prepare_v3(self->db, broker_store_sql[i], -1, SQLITE_PREPARE_PERSISTENT,
+                               &self->stmt[i], NULL) != SQLITE_OK) {
             if (broker_store_is_damage(sqlite3_errcode(self->db)))
                 broker_store_report_damage(self->path, "preparing a statement",
                                          sqlite3_errmsg(self->db));
             else
-                LOG_ERROR("store %s: cannot prepare \"%s\": %s", self->path, s_sql[i],
-                          sqlite3_errmsg(self->db));
+                LOG_ERROR("store %s: cannot prepare \"%s\": %s", self->path,
+                          broker_store_sql[i], sqlite3_errmsg(self->db));
             goto fail;
         }
     }

@@ -7,7 +7,7 @@
  *   - broker_dispatch_outcome notes each final result (status, fitness, error,
  *     attempts, which worker, CPU seconds, peak memory);
  *   - an ACK marks its requests acknowledged (nothing is ever deleted):
- *     mostly by moving its run's mark (runs.acked_below, store.c);
+ *     mostly by moving its run's mark (runs.acked_below, store_sql.c);
  *   - HELLO notes each plugin (so a restarted broker knows the catalog before
  *     any worker is back);
  *   - the loop's before-sleep step calls broker_store_commit once per turn,
@@ -18,7 +18,7 @@
  * broker_store_load (store_load.c) rebuilds the catalog, the runs and the
  * pending evaluations at start; finished results are read back on demand
  * (cache.c), results owed to clients in pages (backlog.c). The schema is in
- * store.c and in the README ("The store"). Not here: cache lookups in memory
+ * store_schema.c and in the README ("The store"). Not here: cache lookups in memory
  * (evals.h), what a request means (client_io.c). */
 #ifndef BROKER_STORE_H
 #define BROKER_STORE_H

@@ -10,7 +10,7 @@
  * bounded because no new work is accepted or dispatched then (store.h).
  *
  * Values live in one byte arena per log (no allocation per value). Not here:
- * which statements exist and what they mean (store.c), when to retry. */
+ * which statements exist (store_sql.c) and what they mean (store.c), when to retry. */
 #ifndef BROKER_STORE_LOG_H
 #define BROKER_STORE_LOG_H
 

@@ -37,7 +37,7 @@ static const char s_schema[] =
     " fresh INTEGER NOT NULL DEFAULT 0,"
     " PRIMARY KEY(run_id, tag)) WITHOUT ROWID;"
     /* A request is acknowledged when its tag is below its run's
-     * runs.acked_below or its acked is 1 (store.c, "Acknowledgements"): the
+     * runs.acked_below or its acked is 1 (store_sql.c, "Acknowledgements"): the
      * start finds pending work and owed results by reading each run's
      * requests from acked_below on, never by a pass over every request ever
      * made. Schema 2 dropped requests_by_key (on key): its only reader was
@@ -67,7 +67,7 @@ static const char s_simulations_view[] =
     " FROM results";
 
 /* Requests not acknowledged by their client (answered and owed, or not yet
- * answered): acked = 0 and at or above their run's mark (store.c,
+ * answered): acked = 0 and at or above their run's mark (store_sql.c,
  * "Acknowledgements"). For readers of the file; the broker's own queries
  * spell the same condition out. Made after s_migrate_acked. */
 static const char s_owed_view[] =

@@ -381,7 +381,7 @@ static void test_pending_no_cache_request_survives_a_restart(void **state)
 }
 
 /* Requests of run r1 the store says are owed (not acknowledged): acked = 0
- * and at or above the run's mark (store.c, "Acknowledgements"). */
+ * and at or above the run's mark (store_sql.c, "Acknowledgements"). */
 static long long s_owed(broker_t *b)
 {
     return s_count(b, "SELECT count(*) FROM requests r JOIN runs u ON u.run_id = r.run_id"
