@@ -87,12 +87,12 @@
  * or until anything that reads or changes requests runs (s_flush_requests),
  * so every read sees them. */
 #define STORE_REQUEST_ROWS 64
-#define STORE_REQUEST_COLUMNS 8
 
 struct broker_store {
     sqlite3 *db;
     sqlite3_stmt *stmt[S_COUNT_];
     sqlite3_stmt *requests_many; /* S_REQUEST for STORE_REQUEST_ROWS rows */
+    int request_columns;         /* S_REQUEST's parameters, one row's worth */
     size_t pend[STORE_REQUEST_ROWS]; /* log indexes of S_REQUEST ops not yet written */
     size_t n_pend;
     int lock_fd; /* DIR/fitfarm.lock, flock'ed for the broker's life; -1 in memory */
@@ -160,17 +160,22 @@ void broker_store_report_damage(const char *path, const char *what, const char *
 }
 
 
-/* S_REQUEST's insert with STORE_REQUEST_ROWS rows of anonymous parameters. */
+/* S_REQUEST's insert with STORE_REQUEST_ROWS rows of anonymous parameters,
+ * as many per row as S_REQUEST has (prepared first), so the two cannot
+ * disagree. */
 static int s_prepare_requests_many(broker_store_t *self)
 {
     const char *head = broker_store_sql[S_REQUEST];
     size_t n_head = (size_t)(strstr(head, " VALUES") - head);
-    static const char row[] = "(?,?,?,?,?,?,?,?)";
-    size_t cap = n_head + 8 + STORE_REQUEST_ROWS * sizeof row;
+    int cols = sqlite3_bind_parameter_count(self->stmt[S_REQUEST]);
+    self->request_columns = cols;
+    size_t cap = n_head + 8 + (size_t)STORE_REQUEST_ROWS * (2 * (size_t)cols + 2);
     char *sql = common_xmalloc(cap);
     size_t n = (size_t)snprintf(sql, cap, "%.*s VALUES", (int)n_head, head);
     for (int r = 0; r < STORE_REQUEST_ROWS; r++)
-        n += (size_t)snprintf(sql + n, cap - n, "%s%s", r ? "," : "", row);
+        for (int c = 0; c < cols; c++)
+            n += (size_t)snprintf(sql + n, cap - n, "%s%s%s", c ? "" : r ? ",(" : "(",
+                                  c ? ",?" : "?", c == cols - 1 ? ")" : "");
     int rc = sqlite3_prepare_v3(self->db, sql, -1, SQLITE_PREPARE_PERSISTENT,
                                 &self->requests_many, NULL);
     if (rc != SQLITE_OK)
@@ -363,8 +368,8 @@ static void s_flush_requests(broker_store_t *self)
     if (n == STORE_REQUEST_ROWS) {
         sqlite3_stmt *st = self->requests_many;
         for (size_t r = 0; r < n; r++)
-            broker_store_log_bind(&self->log, self->pend[r], st, (int)r * STORE_REQUEST_COLUMNS,
-                                  STORE_REQUEST_COLUMNS);
+            broker_store_log_bind(&self->log, self->pend[r], st, (int)r * self->request_columns,
+                                  self->request_columns);
         rc = sqlite3_step(st);
         sqlite3_reset(st);
         sqlite3_clear_bindings(st);
